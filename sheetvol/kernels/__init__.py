@@ -1,0 +1,1 @@
+"""Pure numpy kernels: arrays in, arrays out, no I/O and no spreadsheet types."""

@@ -1,0 +1,69 @@
+"""The gap policy shared by every series kernel.
+
+A bar is *usable* when every input the kernel needs is finite on that row.
+Unusable bars (blank cells, NaN, inf) are skipped: the kernel runs on the
+usable bars only, as if the gap rows were not there, and the gap rows get NaN
+in the output. Windows and recursions therefore carry on across a gap instead
+of being poisoned by it for the rest of the series.
+"""
+
+from __future__ import annotations
+
+import functools
+from collections.abc import Callable
+from typing import Any
+
+import numpy as np
+
+from sheetvol.kernels._types import FloatArray
+
+
+def as_series(x: Any, name: str = "values") -> FloatArray:
+    """Return ``x`` as a 1-D float64 array (a copy only when needed)."""
+    arr = np.asarray(x, dtype=np.float64)
+    if arr.ndim == 0:
+        arr = arr.reshape(1)
+    if arr.ndim != 1:
+        raise ValueError(f"{name} must be one-dimensional, got shape {arr.shape}")
+    return arr
+
+
+def skip_gaps(n_series: int) -> Callable[[Callable[..., Any]], Callable[..., Any]]:
+    """Decorate a kernel whose first ``n_series`` arguments are aligned price arrays.
+
+    The wrapped kernel sees only the usable bars; its outputs (one array or a
+    tuple of arrays) are scattered back onto the original rows with NaN on the
+    skipped ones. When every bar is usable the kernel is called directly.
+    """
+
+    def decorate(kernel: Callable[..., Any]) -> Callable[..., Any]:
+        @functools.wraps(kernel)
+        def wrapper(*args: Any, **kwargs: Any) -> Any:
+            series = [as_series(a) for a in args[:n_series]]
+            n = len(series[0])
+            for s in series[1:]:
+                if len(s) != n:
+                    raise ValueError(
+                        f"{kernel.__name__}: input series have different lengths "
+                        f"({', '.join(str(len(t)) for t in series)})"
+                    )
+            usable = np.ones(n, dtype=bool)
+            for s in series:
+                usable &= np.isfinite(s)
+            if usable.all():
+                return kernel(*series, *args[n_series:], **kwargs)
+            result = kernel(*(s[usable] for s in series), *args[n_series:], **kwargs)
+            if isinstance(result, tuple):
+                return tuple(_scatter(r, usable) for r in result)
+            return _scatter(result, usable)
+
+        wrapper.__wrapped_kernel__ = kernel  # type: ignore[attr-defined]
+        return wrapper
+
+    return decorate
+
+
+def _scatter(values: FloatArray, usable: np.ndarray) -> FloatArray:
+    out = np.full(usable.shape, np.nan)
+    out[usable] = values
+    return out

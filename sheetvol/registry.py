@@ -1,0 +1,498 @@
+"""The one description of every sheetvol worksheet function.
+
+Each :class:`Function` entry says what a worksheet function is called, what it
+takes (with types, defaults, valid ranges and help), what it returns and which
+pure kernel computes it. The add-in wrappers (``sheetvol.addin``), the headless
+formula evaluator (``sheetvol.formulas``), the command line, argument
+validation and ``docs/functions.md`` are all generated from this table, so
+adding a function means: one entry here, its kernel, its tests.
+
+Series functions (``shape="series"``) take price columns and return a column
+of the same height. Each one also exists in two derived forms, generated here
+and not written by hand:
+
+* ``<NAME>_LAST`` returns only the value on the last row of the given ranges,
+  for filling a formula down a column like any built-in function;
+* ``<NAME>_ON`` takes a date and a dates column first and returns the value on
+  the last bar on or before that date (never a later bar), for trade logs.
+"""
+
+from __future__ import annotations
+
+import importlib
+import math
+from collections.abc import Callable, Iterator, Mapping
+from dataclasses import dataclass
+from typing import Any, Literal
+
+import numpy as np
+
+ParamKind = Literal["series", "dates", "date", "whole", "number", "choice", "text"]
+Shape = Literal["series", "scalar"]
+Unit = Literal["price", "percent", "ratio", "quantity", "date", "text", "number"]
+Variant = Literal["column", "last", "on"]
+
+MAX_PERIOD = 5000
+
+
+class ArgumentError(ValueError):
+    """A worksheet argument that cannot be used; the message is cell-ready."""
+
+
+class _Required:
+    def __repr__(self) -> str:
+        return "REQUIRED"
+
+
+REQUIRED: Any = _Required()
+
+
+@dataclass(frozen=True)
+class Param:
+    """One argument of a worksheet function.
+
+    ``kind`` is one of: ``series`` (a price or value column), ``dates`` (a
+    column of dates), ``date`` (one date), ``whole`` (a whole number),
+    ``number``, ``choice`` (one of ``choices``) or ``text``.
+    """
+
+    name: str
+    kind: ParamKind
+    help: str
+    default: Any = REQUIRED
+    low: float | None = None
+    high: float | None = None
+    choices: tuple[str, ...] = ()
+    # Accept the upper/lower bound itself (True) or only values strictly inside.
+    low_inclusive: bool = True
+
+    @property
+    def required(self) -> bool:
+        return self.default is REQUIRED
+
+    @property
+    def is_column(self) -> bool:
+        return self.kind in ("series", "dates")
+
+    def describe_range(self) -> str:
+        """Plain-words description of the valid values, used in messages and docs."""
+        if self.kind == "choice":
+            return "one of " + ", ".join(f'"{c}"' for c in self.choices)
+        if self.kind in ("whole", "number"):
+            noun = "a whole number" if self.kind == "whole" else "a number"
+            if self.low is not None and self.high is not None:
+                return f"{noun} from {_fmt(self.low)} to {_fmt(self.high)}"
+            if self.low is not None:
+                return f"{noun} {'of at least' if self.low_inclusive else 'above'} {_fmt(self.low)}"
+            if self.high is not None:
+                return f"{noun} up to {_fmt(self.high)}"
+            return noun
+        return {
+            "series": "a column of numbers",
+            "dates": "a column of dates",
+            "date": "a date",
+            "text": "text",
+        }[self.kind]
+
+
+def _fmt(x: float) -> str:
+    return str(int(x)) if float(x).is_integer() else repr(float(x))
+
+
+@dataclass(frozen=True)
+class Function:
+    """One worksheet function: its name, arguments, result and kernel.
+
+    ``kernel`` is ``"module:callable"``, imported on first use so that reading
+    the registry stays cheap. Registry parameter names are the kernel's
+    keyword names; a test checks this against the kernel signatures. When the
+    kernel returns a tuple of arrays, ``outputs`` names them and the
+    ``select`` parameter says which one the worksheet function returns.
+    """
+
+    name: str
+    group: str
+    summary: str
+    params: tuple[Param, ...]
+    kernel: str
+    returns: str
+    shape: Shape = "series"
+    unit: Unit = "price"
+    outputs: tuple[str, ...] = ()
+    select: str | None = None
+    example: str = ""
+    notes: str = ""
+
+    # -- introspection -----------------------------------------------------
+    @property
+    def columns(self) -> tuple[Param, ...]:
+        return tuple(p for p in self.params if p.is_column)
+
+    @property
+    def options(self) -> tuple[Param, ...]:
+        return tuple(p for p in self.params if not p.is_column)
+
+    def param(self, name: str) -> Param:
+        for p in self.params:
+            if p.name == name:
+                return p
+        raise KeyError(f"{self.name} has no argument {name!r}")
+
+    def resolve_kernel(self) -> Callable[..., Any]:
+        module, _, attr = self.kernel.partition(":")
+        return getattr(importlib.import_module(module), attr)
+
+    # -- validation ----------------------------------------------------------
+    def bind(self, args: tuple[Any, ...] = (), kwargs: Mapping[str, Any] | None = None) -> dict:
+        """Match positional and keyword arguments to parameters, fill defaults.
+
+        Column arguments are passed through untouched (the caller converts
+        spreadsheet values at its edge); options are validated and coerced.
+        Raises :class:`ArgumentError` with a message naming this function.
+        """
+        kwargs = dict(kwargs or {})
+        if len(args) > len(self.params):
+            raise ArgumentError(
+                f"{self.name}: takes at most {len(self.params)} arguments, got {len(args)}"
+            )
+        bound: dict[str, Any] = {}
+        for p, a in zip(self.params, args):
+            bound[p.name] = a
+        for k, v in kwargs.items():
+            if k in bound:
+                raise ArgumentError(f"{self.name}: {k} given twice")
+            self.param(k)  # raises KeyError for unknown names
+            bound[k] = v
+        out: dict[str, Any] = {}
+        for p in self.params:
+            value = bound.get(p.name)
+            if _is_blank(value):
+                if p.required:
+                    raise ArgumentError(f"{self.name}: {p.name} is required ({p.help})")
+                value = p.default
+                if p.is_column:
+                    out[p.name] = value
+                    continue
+            out[p.name] = value if p.is_column else self.check(p, value)
+        return out
+
+    def check(self, p: Param, value: Any) -> Any:
+        """Validate and coerce one option value; raise a cell-ready message."""
+        if p.kind == "choice":
+            text = str(value).strip().lower()
+            if text not in p.choices:
+                raise ArgumentError(
+                    f"{self.name}: {p.name} must be {p.describe_range()}, got {value!r}"
+                )
+            return text
+        if p.kind in ("whole", "number"):
+            number = _as_number(value)
+            ok = number is not None and math.isfinite(number)
+            if ok and p.kind == "whole":
+                ok = float(number).is_integer()
+            if ok and p.low is not None:
+                ok = number >= p.low if p.low_inclusive else number > p.low
+            if ok and p.high is not None:
+                ok = number <= p.high
+            if not ok:
+                raise ArgumentError(
+                    f"{self.name}: {p.name} must be {p.describe_range()}, got {_show(value)}"
+                )
+            return int(number) if p.kind == "whole" else float(number)
+        if p.kind == "text":
+            return str(value)
+        return value  # "date": converted at the edge
+
+    def __call__(self, *args: Any, **kwargs: Any) -> Any:
+        """Validate the arguments and call the kernel (Python-level use)."""
+        bound = self.bind(args, kwargs)
+        return self.compute(bound)
+
+    def compute(self, bound: Mapping[str, Any]) -> Any:
+        """Call the kernel with already-bound arguments and pick the output."""
+        kernel = self.resolve_kernel()
+        call_args = {k: v for k, v in bound.items() if k != self.select}
+        result = kernel(**call_args)
+        if self.select is not None:
+            return result[self.outputs.index(bound[self.select])]
+        return result
+
+
+def _is_blank(value: Any) -> bool:
+    if value is None:
+        return True
+    if isinstance(value, str) and value.strip() == "":
+        return True
+    return False
+
+
+def _as_number(value: Any) -> float | None:
+    if isinstance(value, bool):
+        return None
+    if isinstance(value, (int, float, np.integer, np.floating)):
+        return float(value)
+    if isinstance(value, str):
+        try:
+            return float(value.strip().replace(",", ""))
+        except ValueError:
+            return None
+    return None
+
+
+def _show(value: Any) -> str:
+    if isinstance(value, float) and value.is_integer():
+        return repr(value)
+    return repr(value) if isinstance(value, str) else str(value)
+
+
+# -- shared parameter definitions ---------------------------------------------
+AVERAGES = ("simple", "exponential", "wilder", "linear")
+BASES = ("close", "open", "high", "low", "median", "typical", "weighted")
+LINES = ("upper", "middle", "lower")
+
+
+def _prices(name: str = "prices", help: str = "price column, oldest bar first") -> Param:
+    return Param(name, "series", help)
+
+
+def _period(default: int, help: str = "bars in the window") -> Param:
+    return Param("period", "whole", help, default, 2, MAX_PERIOD)
+
+
+def _average(default: str = "simple", name: str = "average") -> Param:
+    return Param(name, "choice", "moving average to measure from", default, choices=AVERAGES)
+
+
+_DIVISOR = Param(
+    "divisor",
+    "choice",
+    "population divides by N (the trade's usual choice); sample divides by N-1",
+    "population",
+    choices=("population", "sample"),
+)
+_PER_YEAR = Param("per_year", "number", "bars per year for annualising (252 trading days; 365 for 24/7 markets)", 252, 1, 1_000_000)
+_OPEN = Param("open", "series", "opening prices, oldest bar first")
+_HIGH = Param("high", "series", "high prices, oldest bar first")
+_LOW = Param("low", "series", "low prices, oldest bar first")
+_CLOSE = Param("close", "series", "closing prices, oldest bar first")
+_SMOOTHING = Param(
+    "smoothing", "choice", "how true ranges are averaged", "wilder",
+    choices=("wilder", "simple", "exponential"),
+)
+_WIDTH = Param("width", "number", "band half-width in deviations", 2.0, 0, 100, low_inclusive=False)
+_SIDE = Param("side", "choice", "trade direction", "long", choices=("long", "short", "buy", "sell"))
+
+_K = "sheetvol.kernels"
+
+FUNCTIONS: tuple[Function, ...] = (
+    # ---- averages and price basis ------------------------------------------
+    Function(
+        "SV_AVERAGE", "averages",
+        "Moving average of a price column: simple, exponential, Wilder or linearly weighted.",
+        (_prices(), _period(14), Param("kind", "choice", "which moving average", "simple", choices=AVERAGES)),
+        f"{_K}.averages:moving_average", "the average on each bar; blank until a full window",
+        example='=SV_AVERAGE(E2:E400, 20, "exponential")',
+    ),
+    Function(
+        "SV_PRICE", "averages",
+        "Price basis of each bar from open, high, low and close (median, typical, weighted close...).",
+        (_OPEN, _HIGH, _LOW, _CLOSE, Param("basis", "choice", "which price of the bar", "typical", choices=BASES)),
+        f"{_K}.prices:price_basis", "one price per bar",
+        example='=SV_PRICE(B2:B400, C2:C400, D2:D400, E2:E400, "typical")',
+    ),
+    # ---- dispersion -----------------------------------------------------------
+    Function(
+        "SV_DEVIATION", "dispersion",
+        "Rolling standard deviation of the last N prices about the current value of a moving average.",
+        (_prices(), _period(14), _average(), _DIVISOR),
+        f"{_K}.dispersion:dispersion", "deviation in price units; blank until a full window",
+        example='=SV_DEVIATION(E2:E400, 14, "simple")',
+        notes="With the simple average this is the ordinary rolling standard deviation.",
+    ),
+    # ---- ranges ---------------------------------------------------------------
+    Function(
+        "SV_TRUERANGE", "ranges",
+        "True range of each bar: the largest of high-low, |high-previous close|, |low-previous close|.",
+        (_HIGH, _LOW, _CLOSE, Param(
+            "first_bar", "choice",
+            "the first bar has no previous close: use its high-low, or leave it blank",
+            "high-low", choices=("high-low", "blank"))),
+        f"{_K}.ranges:true_range", "true range in price units",
+    ),
+    Function(
+        "SV_ATR", "ranges",
+        "Average true range: true ranges averaged over N bars (Wilder smoothing by default).",
+        (_HIGH, _LOW, _CLOSE, _period(14), _SMOOTHING),
+        f"{_K}.ranges:average_true_range", "ATR in price units; blank until a full window",
+        example="=SV_ATR(C2:C400, D2:D400, E2:E400, 14)",
+    ),
+    Function(
+        "SV_ATRPCT", "ranges",
+        "Average true range as a percentage of the close.",
+        (_HIGH, _LOW, _CLOSE, _period(14), _SMOOTHING),
+        f"{_K}.ranges:atr_percent", "ATR divided by close (format as %)", unit="percent",
+    ),
+    # ---- bands ----------------------------------------------------------------
+    Function(
+        "SV_BAND", "bands",
+        "Bollinger Bands: a moving average plus or minus a number of standard deviations.",
+        (_prices(), Param("line", "choice", "which line of the bands", "upper", choices=LINES),
+         _period(20), _WIDTH, _average(), _DIVISOR),
+        f"{_K}.bands:deviation_bands", "the chosen band line in price units",
+        outputs=("middle", "upper", "lower"), select="line",
+        example='=SV_BAND(E2:E400, "lower", 20, 2)',
+    ),
+    Function(
+        "SV_PCTB", "bands",
+        "%b: where the price sits within its bands (0 at the lower band, 1 at the upper).",
+        (_prices(), _period(20), _WIDTH, _average(), _DIVISOR),
+        f"{_K}.bands:percent_b", "%b as a fraction", unit="ratio",
+    ),
+    Function(
+        "SV_BANDWIDTH", "bands",
+        "Bandwidth: distance between the upper and lower band divided by the middle line.",
+        (_prices(), _period(20), _WIDTH, _average(), _DIVISOR),
+        f"{_K}.bands:bandwidth", "bandwidth as a fraction of the middle line", unit="percent",
+    ),
+    Function(
+        "SV_ATRBAND", "bands",
+        "Bands at an exponential average of the close plus or minus a multiple of ATR (Keltner-type).",
+        (_HIGH, _LOW, _CLOSE, Param("line", "choice", "which line of the bands", "upper", choices=LINES),
+         _period(20, "bars in the middle average"), _WIDTH,
+         Param("atr_period", "whole", "bars in the ATR", 10, 2, MAX_PERIOD)),
+        f"{_K}.bands:atr_bands", "the chosen band line in price units",
+        outputs=("middle", "upper", "lower"), select="line",
+    ),
+    Function(
+        "SV_ENVELOPE", "bands",
+        "Percentage envelope: a moving average plus or minus a fixed percentage.",
+        (_prices(), Param("line", "choice", "which line of the envelope", "upper", choices=LINES),
+         _period(20), Param("percent", "number", "envelope half-width in percent of the average", 2.5, 0, 100, low_inclusive=False),
+         _average()),
+        f"{_K}.bands:envelope", "the chosen envelope line in price units",
+        outputs=("middle", "upper", "lower"), select="line",
+    ),
+    # ---- returns-based volatility ------------------------------------------------
+    Function(
+        "SV_CLOSEVOL", "returns",
+        "Close-to-close volatility: sample standard deviation of log returns, annualised.",
+        (_CLOSE, _period(20, "returns in the window"), _PER_YEAR),
+        f"{_K}.estimators:close_to_close", "annualised volatility (format as %)", unit="percent",
+        example="=SV_CLOSEVOL(E2:E400, 20, 252)",
+    ),
+    Function(
+        "SV_PARKINSON", "returns",
+        "Parkinson volatility from the high-low range, annualised.",
+        (_HIGH, _LOW, _period(20), _PER_YEAR),
+        f"{_K}.estimators:parkinson", "annualised volatility (format as %)", unit="percent",
+    ),
+    Function(
+        "SV_GARMANKLASS", "returns",
+        "Garman-Klass volatility from open, high, low and close, annualised.",
+        (_OPEN, _HIGH, _LOW, _CLOSE, _period(20), _PER_YEAR),
+        f"{_K}.estimators:garman_klass", "annualised volatility (format as %)", unit="percent",
+    ),
+    Function(
+        "SV_ROGERSSATCHELL", "returns",
+        "Rogers-Satchell volatility (allows for drift), annualised.",
+        (_OPEN, _HIGH, _LOW, _CLOSE, _period(20), _PER_YEAR),
+        f"{_K}.estimators:rogers_satchell", "annualised volatility (format as %)", unit="percent",
+    ),
+    Function(
+        "SV_YANGZHANG", "returns",
+        "Yang-Zhang volatility (overnight, open-to-close and Rogers-Satchell parts), annualised.",
+        (_OPEN, _HIGH, _LOW, _CLOSE, _period(20), _PER_YEAR),
+        f"{_K}.estimators:yang_zhang", "annualised volatility (format as %)", unit="percent",
+    ),
+    # ---- regime ---------------------------------------------------------------
+    Function(
+        "SV_VOLRANK", "regime",
+        "Where today's reading stands among its own last N readings (0 = lowest, 1 = highest).",
+        (Param("values", "series", "a volatility column, oldest first"),
+         Param("lookback", "whole", "readings to compare against", 252, 2, 100_000)),
+        f"{_K}.regime:percentile_rank", "percentile rank as a fraction (format as %)", unit="percent",
+        example="=SV_VOLRANK(H2:H900, 252)",
+    ),
+    Function(
+        "SV_DEVATR", "regime",
+        "Ratio of the close's standard deviation to ATR over the same period.",
+        (_HIGH, _LOW, _CLOSE, _period(14)),
+        f"{_K}.regime:deviation_to_atr", "ratio (around 0.5 to 2 on most markets)", unit="ratio",
+    ),
+    # ---- trade levels (scalar) -------------------------------------------------------
+    Function(
+        "SV_STOP", "trade",
+        "Stop level a multiple of volatility away from entry, below for long and above for short.",
+        (Param("entry", "number", "entry price"), Param("volatility", "number", "volatility in price units (ATR or deviation)", low=0),
+         Param("multiple", "number", "volatility units between entry and stop", 2.0, 0, 1000, low_inclusive=False), _SIDE),
+        f"{_K}.risk:stop_price", "stop price", shape="scalar",
+        example='=SV_STOP(105.2, 1.8, 2, "long")',
+    ),
+    Function(
+        "SV_TARGET", "trade",
+        "Target level a multiple of volatility away from entry, above for long and below for short.",
+        (Param("entry", "number", "entry price"), Param("volatility", "number", "volatility in price units (ATR or deviation)", low=0),
+         Param("multiple", "number", "volatility units between entry and target", 3.0, 0, 1000, low_inclusive=False), _SIDE),
+        f"{_K}.risk:target_price", "target price", shape="scalar",
+    ),
+    Function(
+        "SV_SIZE", "trade",
+        "Position size that risks a set share of equity between entry and stop, rounded down to the lot step.",
+        (Param("equity", "number", "account equity in account currency", low=0, low_inclusive=False),
+         Param("risk", "number", "share of equity to risk, e.g. 0.01 for 1%", low=0, high=1, low_inclusive=False),
+         Param("entry", "number", "entry price"), Param("stop", "number", "stop price"),
+         Param("point_value", "number", "money per 1.0 price move per unit, in instrument currency", 1.0, 0, low_inclusive=False),
+         Param("lot_step", "number", "smallest tradable increment", 1.0, 0, low_inclusive=False),
+         Param("min_qty", "number", "smallest allowed size (0 = none)", 0.0, 0),
+         Param("max_qty", "number", "largest allowed size (0 = no limit)", 0.0, 0),
+         Param("fx_rate", "number", "account currency per unit of instrument currency", 1.0, 0, low_inclusive=False)),
+        f"{_K}.risk:position_size", "quantity (units or contracts)", shape="scalar", unit="quantity",
+        example="=SV_SIZE(250000, 0.01, 105.2, 101.6, 1, 1)",
+    ),
+)
+
+_BY_NAME: dict[str, Function] = {f.name: f for f in FUNCTIONS}
+
+
+def get(name: str) -> Function:
+    """Look a worksheet function up by name (case-insensitive, variants included)."""
+    key = name.strip().upper()
+    if key in _BY_NAME:
+        return _BY_NAME[key]
+    raise KeyError(f"no sheetvol function named {name!r}")
+
+
+def variant_of(name: str) -> tuple[Function, Variant]:
+    """Split a worksheet name into its base function and variant.
+
+    >>> variant_of("SV_ATR_ON")[1]
+    'on'
+    """
+    key = name.strip().upper()
+    if key in _BY_NAME:
+        return _BY_NAME[key], "column"
+    for suffix, variant in (("_LAST", "last"), ("_ON", "on")):
+        base = key.removesuffix(suffix)
+        if base != key and base in _BY_NAME and _BY_NAME[base].shape == "series":
+            return _BY_NAME[base], variant  # type: ignore[return-value]
+    raise KeyError(f"no sheetvol function named {name!r}")
+
+
+def worksheet_names() -> Iterator[tuple[str, Function, Variant]]:
+    """Every name a user can type, with its base function and variant."""
+    for f in FUNCTIONS:
+        yield f.name, f, "column"
+        if f.shape == "series":
+            yield f"{f.name}_LAST", f, "last"
+            yield f"{f.name}_ON", f, "on"
+
+
+ON_PARAMS = (
+    Param("date", "date", "the date to read the value on (the last bar on or before it is used)"),
+    Param("dates", "dates", "the dates of the bars, one per row of the price columns"),
+)
+
+
+def variant_params(func: Function, variant: Variant) -> tuple[Param, ...]:
+    """The argument list of a derived form: ``_ON`` takes date and dates first."""
+    return (ON_PARAMS + func.params) if variant == "on" else func.params
