@@ -21,8 +21,23 @@ import pandas as pd
 from sheetvol.kernels._types import FloatArray
 
 ERROR_TEXTS = frozenset(
-    {"#N/A", "#NULL!", "#DIV/0!", "#VALUE!", "#REF!", "#NAME?", "#NUM!", "#GETTING_DATA",
-     "#SPILL!", "#CALC!", "#FIELD!", "#BLOCKED!", "#UNKNOWN!", "#BUSY!", "#CONNECT!"}
+    {
+        "#N/A",
+        "#NULL!",
+        "#DIV/0!",
+        "#VALUE!",
+        "#REF!",
+        "#NAME?",
+        "#NUM!",
+        "#GETTING_DATA",
+        "#SPILL!",
+        "#CALC!",
+        "#FIELD!",
+        "#BLOCKED!",
+        "#UNKNOWN!",
+        "#BUSY!",
+        "#CONNECT!",
+    }
 )
 BLANK_TEXTS = frozenset({"", "-", "--", "n/a", "na", "nan", "null", "none"})
 
@@ -53,7 +68,8 @@ def to_number(value: Any, *, decimal_comma: bool = False) -> float:
 
     Text numbers may carry thousands separators, spaces or accounting
     brackets for negatives. Currency and percent signs are refused rather than
-    guessed at, since either would silently change the scale. With ``decimal_comma`` the roles of ``.`` and ``,`` swap, as in
+    guessed at, since either would silently change the scale. With
+    ``decimal_comma`` the roles of ``.`` and ``,`` swap, as in
     many European exports.
 
     >>> to_number("1,234.5")
@@ -87,7 +103,9 @@ def to_number(value: Any, *, decimal_comma: bool = False) -> float:
     raise CellValueError(f"{value!r} is not a number")
 
 
-def to_series(values: Iterable[Any], *, decimal_comma: bool = False, name: str = "values") -> FloatArray:
+def to_series(
+    values: Iterable[Any], *, decimal_comma: bool = False, name: str = "values"
+) -> FloatArray:
     """Convert a flat sequence of cell values to a float array (NaN for blanks).
 
     Raises
@@ -127,7 +145,9 @@ def datetime_to_serial(value: dt.date | dt.datetime, *, date1904: bool = False) 
     return delta.days + delta.seconds / 86400 + delta.microseconds / 86_400_000_000
 
 
-def to_datetime(value: Any, *, date1904: bool = False, dayfirst: bool = False) -> dt.datetime | None:
+def to_datetime(
+    value: Any, *, date1904: bool = False, dayfirst: bool = False
+) -> dt.datetime | None:
     """Read one cell as a date (datetime); blanks give None.
 
     Accepts datetimes and dates, serial numbers (1900 or 1904 system) and
@@ -158,7 +178,9 @@ def to_datetime(value: Any, *, date1904: bool = False, dayfirst: bool = False) -
     raise CellValueError(f"{value!r} is not a date")
 
 
-def to_day_numbers(values: Iterable[Any], *, date1904: bool = False, dayfirst: bool = False) -> FloatArray:
+def to_day_numbers(
+    values: Iterable[Any], *, date1904: bool = False, dayfirst: bool = False
+) -> FloatArray:
     """Convert cell values to float day numbers (1900-system serials; NaN for blanks).
 
     Day numbers compare and sort like dates and are what the kernels use for

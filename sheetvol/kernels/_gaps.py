@@ -10,6 +10,7 @@ of being poisoned by it for the rest of the series.
 from __future__ import annotations
 
 import functools
+import inspect
 from collections.abc import Callable
 from typing import Any
 
@@ -37,22 +38,26 @@ def skip_gaps(n_series: int) -> Callable[[Callable[..., Any]], Callable[..., Any
     """
 
     def decorate(kernel: Callable[..., Any]) -> Callable[..., Any]:
+        signature = inspect.signature(kernel)
+        names = list(signature.parameters)[:n_series]
+
         @functools.wraps(kernel)
         def wrapper(*args: Any, **kwargs: Any) -> Any:
-            series = [as_series(a) for a in args[:n_series]]
+            # Columns may come by position (Python callers) or by keyword (the registry).
+            bound = signature.bind(*args, **kwargs)
+            series = [as_series(bound.arguments[name], name) for name in names]
             n = len(series[0])
-            for s in series[1:]:
-                if len(s) != n:
-                    raise ValueError(
-                        f"{kernel.__name__}: input series have different lengths "
-                        f"({', '.join(str(len(t)) for t in series)})"
-                    )
+            if any(len(s) != n for s in series[1:]):
+                pairs = zip(names, series, strict=True)
+                lengths = ", ".join(f"{name} {len(s)}" for name, s in pairs)
+                raise ValueError(f"{kernel.__name__}: columns have different lengths ({lengths})")
             usable = np.ones(n, dtype=bool)
             for s in series:
                 usable &= np.isfinite(s)
+            options = {k: v for k, v in bound.arguments.items() if k not in names}
             if usable.all():
-                return kernel(*series, *args[n_series:], **kwargs)
-            result = kernel(*(s[usable] for s in series), *args[n_series:], **kwargs)
+                return kernel(*series, **options)
+            result = kernel(*(s[usable] for s in series), **options)
             if isinstance(result, tuple):
                 return tuple(_scatter(r, usable) for r in result)
             return _scatter(result, usable)

@@ -1,0 +1,311 @@
+"""Worksheet arguments as the add-in and the formula evaluator receive them, made usable.
+
+Both faces hand us what a spreadsheet holds: a scalar for one cell, a flat
+list for a one-dimensional range (xlwings without ``ndim=2``), a list of rows
+for a block, a numpy array for the result of a nested sheetvol call, ``None``
+for blank and error cells, text numbers, datetimes or date serial numbers.
+This module turns those into what the registry wants: one float column per
+``series`` argument (NaN for blanks), day numbers for ``dates`` and ``date``,
+and a single value for every option. Cell-level rules (what counts as blank,
+how text numbers are read) are :mod:`sheetvol.cells`; this module only adds
+the shape handling and a vectorised fast path for big ranges.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from sheetvol import cells
+from sheetvol.kernels._types import FloatArray
+from sheetvol.registry import ArgumentError
+
+# Types that np.array(..., dtype=float64) turns into the right float without surprises
+# (None becomes NaN). bool is deliberately absent: TRUE must not become a price of 1.0.
+_PLAIN = frozenset({float, int, type(None), np.float64})
+_DATES = frozenset({dt.datetime, dt.date, pd.Timestamp, type(None)})
+_SERIAL_SHIFT_1904 = 1462.0  # days from 1899-12-30 to 1904-01-01
+
+
+@dataclass(frozen=True)
+class Column:
+    """One converted column argument and how it was laid out in the sheet."""
+
+    values: FloatArray
+    horizontal: bool = False  # True when the user gave a row rather than a column
+
+
+def as_grid(value: Any) -> list[list[Any]] | None:
+    """Return a range value as a list of rows, or None when it is a single value.
+
+    Parameters
+    ----------
+    value : Any
+        A scalar, a flat list (one-dimensional range), a list of rows, a tuple
+        or a numpy array.
+
+    Returns
+    -------
+    list of list or None
+        Rows of cells; a flat list becomes one column.
+
+    Examples
+    --------
+    >>> as_grid([1.0, 2.0])
+    [[1.0], [2.0]]
+    >>> as_grid(3.0) is None
+    True
+    """
+    if isinstance(value, np.ndarray):
+        if value.ndim == 0:
+            return None
+        if value.ndim == 1:
+            return value.reshape(-1, 1).tolist()
+        return value.tolist()
+    if isinstance(value, (list, tuple)):
+        if not value:
+            return []
+        if isinstance(value[0], (list, tuple)):
+            return [list(r) for r in value]
+        return [[v] for v in value]
+    return None
+
+
+def single(value: Any, *, func: str, param: str) -> Any:
+    """Return the one value of an option argument (a single cell or literal).
+
+    A 1x1 block is unwrapped; anything larger is refused with a message naming
+    the function and argument.
+
+    Examples
+    --------
+    >>> single([[14.0]], func="SV_ATR", param="period")
+    14.0
+    """
+    if isinstance(value, np.ndarray) and value.size == 1:
+        return value.reshape(-1)[0].item()
+    grid = as_grid(value)
+    if grid is None:
+        return value
+    if len(grid) == 1 and len(grid[0]) == 1:
+        return grid[0][0]
+    rows, cols = len(grid), (len(grid[0]) if grid else 0)
+    raise ArgumentError(
+        f"{func}: {param} must be one cell or a value, got a range of {rows} x {cols} cells"
+    )
+
+
+def _line(value: Any, func: str, param: str) -> tuple[list[Any] | np.ndarray, bool]:
+    """Flatten a column or row argument; refuse blocks wider than one column."""
+    if isinstance(value, np.ndarray):
+        if value.ndim <= 1:
+            return value.reshape(-1), False
+        if value.ndim == 2 and 1 in value.shape:
+            return value.reshape(-1), value.shape[0] == 1 and value.shape[1] > 1
+        raise ArgumentError(f"{func}: {param} must be one column, got a block of shape "
+                            f"{value.shape}")
+    if not isinstance(value, (list, tuple)):
+        return [value], False
+    if not value:
+        return [], False
+    if not isinstance(value[0], (list, tuple)):
+        return list(value), False  # a flat list: xlwings' form of a one-dimensional range
+    widths = set(map(len, value))
+    if widths == {1}:
+        return [r[0] for r in value], False
+    if len(value) == 1:
+        return list(value[0]), True
+    width = max(widths)
+    if width <= 1:  # ragged rows with empty ones: treat empty as blank
+        return [r[0] if r else None for r in value], False
+    raise ArgumentError(
+        f"{func}: {param} must be one column (or one row), got a block of "
+        f"{len(value)} rows x {width} columns; select a single column"
+    )
+
+
+def column(value: Any, *, func: str, param: str, decimal_comma: bool = False) -> Column:
+    """Convert a ``series`` argument to a float column (NaN for blanks).
+
+    Numbers, blanks and error cells (which xlwings passes as None) take a
+    vectorised path. Text numbers are read as numbers. Text above the first
+    number (a header caught in the range, e.g. a whole-column reference) is
+    treated as blank; other text, true/false values and dates are refused with
+    the row that holds them.
+
+    Parameters
+    ----------
+    value : Any
+        What the spreadsheet passed for the argument.
+    func, param : str
+        Function and argument names, for messages.
+    decimal_comma : bool
+        Read text numbers with a decimal comma.
+
+    Returns
+    -------
+    Column
+        The float values and whether the range was a row.
+
+    Examples
+    --------
+    >>> column([[1.0], [None], ["2.5"]], func="SV_X", param="prices").values
+    array([1. , nan, 2.5])
+    """
+    if value is None:
+        raise ArgumentError(f"{func}: {param} is required (a column of numbers)")
+    flat, horizontal = _line(value, func, param)
+    if isinstance(flat, np.ndarray) and flat.dtype.kind in "fiu":
+        return Column(flat.astype(np.float64, copy=False), horizontal)
+    if isinstance(flat, np.ndarray):
+        flat = flat.tolist()
+    kinds = set(map(type, flat))
+    if kinds <= _PLAIN:
+        return Column(np.array(flat, dtype=np.float64), horizontal)
+    out = np.empty(len(flat), dtype=np.float64)
+    seen_number = False
+    for i, v in enumerate(flat):
+        if type(v) in _PLAIN:
+            out[i] = math.nan if v is None else float(v)
+            seen_number = seen_number or v is not None
+            continue
+        try:
+            out[i] = cells.to_number(v, decimal_comma=decimal_comma)
+        except cells.CellValueError:
+            if isinstance(v, str) and not seen_number:
+                out[i] = math.nan  # a header above the numbers
+                continue
+            raise ArgumentError(
+                f"{func}: {param} item {i + 1} is {_show(v)}, not a number"
+            ) from None
+        seen_number = seen_number or not math.isnan(out[i])
+    return Column(out, horizontal)
+
+
+def day_numbers(value: Any, *, func: str, param: str, date1904: bool = False) -> FloatArray:
+    """Convert a ``dates`` argument to day numbers (1900-system serials, NaN for blanks).
+
+    Accepts datetimes, date serial numbers (dynamic-array results arrive as
+    serials), and dates written as text. Text above the first date (a header)
+    counts as blank.
+
+    Examples
+    --------
+    >>> day_numbers([[dt.datetime(2025, 1, 2)], [45660.0]], func="SV_X_ON", param="dates")
+    array([45659., 45660.])
+    """
+    if value is None:
+        raise ArgumentError(f"{func}: {param} is required (a column of dates)")
+    flat, _ = _line(value, func, param)
+    if isinstance(flat, np.ndarray):
+        if flat.dtype.kind in "fiu":
+            out = flat.astype(np.float64)
+            return out + _SERIAL_SHIFT_1904 if date1904 else _fix_1900(out)
+        flat = flat.tolist()
+    kinds = set(map(type, flat))
+    if kinds <= _PLAIN:
+        out = np.array(flat, dtype=np.float64)
+        return out + _SERIAL_SHIFT_1904 if date1904 else _fix_1900(out)
+    if kinds <= _DATES:
+        try:
+            stamps = pd.DatetimeIndex(flat)
+        except (TypeError, ValueError):
+            stamps = None  # e.g. mixed time zones: fall back to one cell at a time
+        if stamps is not None:
+            if stamps.tz is not None:
+                stamps = stamps.tz_localize(None)
+            days = (stamps - pd.Timestamp(cells.EPOCH_1900)) / pd.Timedelta(days=1)
+            return np.asarray(days, dtype=np.float64)
+    out = np.empty(len(flat), dtype=np.float64)
+    seen = False
+    for i, v in enumerate(flat):
+        try:
+            when = cells.to_datetime(v, date1904=date1904)
+        except cells.CellValueError:
+            if isinstance(v, str) and not seen:
+                out[i] = math.nan
+                continue
+            raise ArgumentError(f"{func}: {param} item {i + 1} is {_show(v)}, not a date") from None
+        out[i] = math.nan if when is None else cells.datetime_to_serial(when)
+        seen = seen or when is not None
+    return out
+
+
+def day_number(value: Any, *, func: str, param: str, date1904: bool = False) -> float:
+    """Convert a ``date`` argument (one cell) to a day number.
+
+    Examples
+    --------
+    >>> day_number("2025-01-02", func="SV_X_ON", param="date")
+    45659.0
+    """
+    v = single(value, func=func, param=param)
+    try:
+        when = cells.to_datetime(v, date1904=date1904)
+    except cells.CellValueError:
+        raise ArgumentError(f"{func}: {param} is {_show(v)}, not a date") from None
+    if when is None:
+        raise ArgumentError(f"{func}: {param} is required (a date)")
+    return cells.datetime_to_serial(when)
+
+
+def _fix_1900(serials: FloatArray) -> FloatArray:
+    # Serials below 61 sit before the 1900 system's fictitious Feb 29; shift them as
+    # cells.serial_to_datetime does so that day numbers stay one per real day.
+    low = serials < 61
+    if low.any():
+        serials = serials.copy()
+        serials[low] += 1.0
+    return serials
+
+
+def _show(v: Any) -> str:
+    text = repr(v) if isinstance(v, str) else str(v)
+    return text if len(text) <= 40 else text[:37] + "..."
+
+
+def to_cells(values: FloatArray | Sequence[float], *, horizontal: bool = False) -> list[list[Any]]:
+    """Turn a result column into rows for the spreadsheet: NaN becomes None (a true blank).
+
+    xlwings shows NaN in a returned array as an empty *text*, which formulas
+    then see as text; None leaves the cell blank.
+
+    Examples
+    --------
+    >>> to_cells(np.array([np.nan, 1.5]))
+    [[None], [1.5]]
+    """
+    raw = np.asarray(values)
+    if raw.dtype == object:  # mixed text and numbers (e.g. trade outcomes)
+        cells_ = [to_cell(v) for v in raw.reshape(-1).tolist()]
+        return [cells_] if horizontal else [[v] for v in cells_]
+    arr = raw.astype(np.float64).reshape(-1)
+    bad = np.flatnonzero(~np.isfinite(arr)).tolist()
+    if horizontal:
+        row = arr.tolist()
+        for i in bad:
+            row[i] = None
+        return [row]
+    rows = arr.reshape(-1, 1).tolist()
+    for i in bad:
+        rows[i][0] = None
+    return rows
+
+
+def to_cell(value: Any) -> Any:
+    """One result value for a cell: NaN and inf become None, numpy scalars plain floats,
+    text cut to the 255 characters a returned array can hold."""
+    if value is None:
+        return None
+    if isinstance(value, str):
+        return value if len(value) <= 255 else value[:252] + "..."
+    if isinstance(value, (np.floating, float, int, np.integer)) and not isinstance(value, bool):
+        f = float(value)
+        return f if math.isfinite(f) else None
+    return value

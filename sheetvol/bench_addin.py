@@ -1,0 +1,115 @@
+"""Per-call cost of the add-in's worksheet functions on big ranges.
+
+Run ``python -m sheetvol.bench_addin`` (``--rows`` to change the size). The
+inputs are built the way xlwings hands a range to a function declared with
+``ndim=2``: a list of one-element rows of floats (with a few blanks as None),
+dates as datetimes. Only the Python time inside the generated function is
+measured: argument conversion, the kernel and building the returned rows.
+xlwings' own COM transfer is not included (there is no spreadsheet program
+here). Budget: a whole-column call on 100,000 rows under 50 ms.
+"""
+
+from __future__ import annotations
+
+import argparse
+import datetime as dt
+import statistics
+import sys
+import time
+from collections.abc import Callable
+from typing import Any
+
+import numpy as np
+
+BUDGET_MS = 50.0
+
+
+def _inputs(rows: int, seed: int = 7) -> dict[str, Any]:
+    rng = np.random.default_rng(seed)
+    close = 100 * np.exp(np.cumsum(rng.normal(0, 0.01, rows)))
+    high = close * (1 + np.abs(rng.normal(0, 0.004, rows)))
+    low = close * (1 - np.abs(rng.normal(0, 0.004, rows)))
+
+    def cells(a: np.ndarray) -> list[list[Any]]:
+        out: list[list[Any]] = [[x] for x in a.tolist()]
+        for i in range(0, rows, 997):  # a few blank cells, as real exports have
+            out[i] = [None]
+        return out
+
+    start = dt.datetime(1990, 1, 1)
+    return {
+        "high": cells(high), "low": cells(low), "close": cells(close),
+        "dates": [[start + dt.timedelta(days=i)] for i in range(rows)],
+        "last_date": start + dt.timedelta(days=rows - 10),
+    }
+
+
+def _time(call: Callable[[], Any], repeat: int) -> tuple[float, float]:
+    samples = []
+    for _ in range(repeat):
+        t0 = time.perf_counter()
+        call()
+        samples.append((time.perf_counter() - t0) * 1000)
+    return min(samples), statistics.median(samples)
+
+
+def run(rows: int = 100_000, repeat: int = 7) -> dict[str, tuple[float, float]]:
+    """Time the add-in functions; return {label: (best ms, median ms)}.
+
+    Examples
+    --------
+    >>> results = run(rows=2_000, repeat=1)
+    >>> sorted(results)[0]
+    'SV_ATR whole column (3 columns)'
+    """
+    from sheetvol import addin
+    from sheetvol.calling import CACHE
+
+    d = _inputs(rows)
+    u = addin.UDFS
+    cases: dict[str, Callable[[], Any]] = {
+        "SV_DEVIATION whole column (1 column)": lambda: u["SV_DEVIATION"](d["close"], 14),
+        "SV_AVERAGE exponential whole column": lambda: u["SV_AVERAGE"](
+            d["close"], 20, "exponential"),
+        "SV_ATR whole column (3 columns)": lambda: u["SV_ATR"](d["high"], d["low"], d["close"], 14),
+        "SV_BAND whole column (1 column)": lambda: u["SV_BAND"](d["close"], "upper", 20, 2),
+    }
+    out = {label: _time(call, repeat) for label, call in cases.items()}
+
+    # _LAST filled down: each cell passes a longer anchored range; the cache computes the
+    # column once and later cells only check the prefix.
+    CACHE.clear()
+    u["SV_ATR_LAST"](d["high"], d["low"], d["close"], 14)
+    prefix = rows - 1
+    out["SV_ATR_LAST, next row of a fill-down (cache hit)"] = _time(
+        lambda: u["SV_ATR_LAST"](d["high"][:prefix], d["low"][:prefix], d["close"][:prefix], 14),
+        repeat)
+    out["SV_ATR_LAST, cache cleared each call"] = _time(
+        lambda: (CACHE.clear(), u["SV_ATR_LAST"](d["high"], d["low"], d["close"], 14)), repeat)
+    out["SV_ATR_ON, trade-log row (same columns)"] = _time(
+        lambda: u["SV_ATR_ON"](d["last_date"], d["dates"], d["high"], d["low"], d["close"]),
+        repeat)
+    CACHE.clear()
+    return out
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Print the per-call cost; exit 1 when a whole-column call is over budget."""
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    parser.add_argument("--rows", type=int, default=100_000)
+    parser.add_argument("--repeat", type=int, default=7)
+    ns = parser.parse_args(argv)
+    results = run(ns.rows, ns.repeat)
+    print(f"add-in per-call Python time, {ns.rows:,} rows, best / median of {ns.repeat}:")
+    width = max(map(len, results))
+    over = False
+    for label, (best, median) in results.items():
+        flag = ""
+        if "whole column" in label and median > BUDGET_MS and ns.rows <= 100_000:
+            flag, over = f"  OVER the {BUDGET_MS:.0f} ms budget", True
+        print(f"  {label:<{width}}  {best:7.1f} ms / {median:7.1f} ms{flag}")
+    return 1 if over else 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

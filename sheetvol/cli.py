@@ -1,0 +1,297 @@
+"""The ``sheetvol`` command: ``fill`` exports, list ``functions``.
+
+Errors go to stderr as one line per file, naming the file, sheet and cell;
+the exit code is 0 when every file was filled, 1 when any failed and 2 for a
+command line that cannot be understood.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from collections.abc import Sequence
+from pathlib import Path
+
+from sheetvol import registry
+from sheetvol._version import __version__
+from sheetvol.fill import USER_ERRORS, FillOptions, fill_file, output_path
+from sheetvol.recipe import RecipeError, default_specs, load_recipe
+
+__all__ = ["build_parser", "main"]
+
+PROG = "sheetvol"
+ROLES = ("date", "open", "high", "low", "close", "volume")
+
+
+def _default_lines() -> str:
+    return "\n".join(
+        f"  {s.header:<28} {s.function} {s.describe_options()}" for s in default_specs()
+    )
+
+
+FILL_DESCRIPTION = """\
+Add volatility columns to price exports (.xlsx, .xlsm or .csv) and write a copy.
+
+The price sheet and its Date/Open/High/Low/Close(/Volume) columns are found by
+their headers (any case, usual spellings such as "Close*", "Close/Last", "Last
+Price", "<CLOSE>"; the header row may be below a title). Rows are computed in
+date order (newest-first exports too) and each result is written on its bar's
+row; warm-up rows stay blank. Everything else in the workbook is kept as it was.
+A notes sheet ("sheetvol notes") records the input file and its SHA-256, the
+columns read and each column's function and parameters. Sheetvol formulas typed
+into cells (=SV_...) are evaluated too; the formula text stays in the cell.
+
+Default columns:
+{defaults}
+"""
+
+FILL_EPILOG = """\
+rows the fill skips or leaves blank:
+  blank rows; dated rows without prices (holidays); trailing summary rows
+  ("Total", "Average", or prices without a date after the last bar); price
+  cells holding errors (#N/A) or blank words ("n/a", "-") are gaps: that
+  bar's results are blank and the windows continue over the other bars.
+  Text that is not a number ("abc"), High below Low, the same date twice or
+  an unreadable date stop the fill with the cell named; nothing is written.
+
+recipe file (TOML), for any registry function (see `sheetvol functions`):
+  [[column]]
+  function = "SV_DEVIATION"
+  options = { period = 20, average = "exponential" }
+
+  [[column]]
+  function = "SV_ATR"
+  id = "atr"
+  header = "ATR 10"
+  options = { period = 10 }
+
+  [[column]]
+  function = "SV_VOLRANK"
+  inputs = { values = "atr" }     # a price column or an earlier column's id
+
+examples:
+  sheetvol fill prices.xlsx                     writes prices-filled.xlsx beside it
+  sheetvol fill export.csv -o report.xlsx
+  sheetvol fill exports/*.xlsx --out-dir filled/
+  sheetvol fill book.xlsm --sheet Daily --close-col "Settle" --header-row 4
+  sheetvol fill prices.xlsx --close-col F --date-col A
+  sheetvol fill eu-export.csv --decimal-comma --dayfirst
+  sheetvol fill prices.xlsx --recipe my-columns.toml --chart
+  sheetvol fill prices.xlsx --in-place          keeps prices.bak.xlsx
+
+exit status: 0 all files filled, 1 any file failed (each reports its own
+error; the others are still filled), 2 bad command line.
+Not advice: volatility figures describe the past.
+"""
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser (also used to render the help in the docs).
+
+    Returns
+    -------
+    argparse.ArgumentParser
+
+    Examples
+    --------
+    >>> build_parser().parse_args(["fill", "a.xlsx", "--chart"]).chart
+    True
+    """
+    parser = argparse.ArgumentParser(
+        prog=PROG,
+        description="Volatility, bands and ranges for price exports kept in workbooks.",
+        epilog="Run `sheetvol fill --help` for the fill and its examples.",
+    )
+    parser.add_argument("--version", action="version", version=f"{PROG} {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+
+    fill = sub.add_parser(
+        "fill",
+        help="add volatility columns to .xlsx/.xlsm/.csv exports",
+        description=FILL_DESCRIPTION.format(defaults=_default_lines()),
+        epilog=FILL_EPILOG,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    fill.add_argument("files", nargs="+", type=Path, metavar="FILE",
+                      help="one or more .xlsx, .xlsm or .csv files")
+    where = fill.add_argument_group("output (default: NAME-filled.xlsx beside each input)")
+    dest = where.add_mutually_exclusive_group()
+    dest.add_argument("-o", "--output", type=Path, metavar="OUT",
+                      help="output file (one input only); .xlsm input needs .xlsm output")
+    dest.add_argument("--out-dir", type=Path, metavar="DIR",
+                      help="folder for the outputs of several inputs")
+    dest.add_argument("--in-place", action="store_true",
+                      help="replace the input (written atomically; NAME.bak.xlsx keeps the old)")
+
+    cols = fill.add_argument_group(
+        "where the prices are (found by their headers unless given)"
+    )
+    cols.add_argument("--sheet", metavar="NAME", help="sheet to read (default: the first "
+                      "sheet with a Close column)")
+    cols.add_argument("--header-row", type=int, metavar="N",
+                      help="row of the column headers (default: searched in the first 50 rows)")
+    for role, letter in zip(ROLES, "ABCDEF", strict=True):
+        cols.add_argument(f"--{role}-col", metavar="COL",
+                          help=f"{role.capitalize()} column: header text or letter "
+                               f"(e.g. {letter})")
+
+    what = fill.add_argument_group("what to compute")
+    what.add_argument("--recipe", type=Path, metavar="FILE.toml",
+                      help="columns to add instead of the defaults (format below)")
+
+    read = fill.add_argument_group("reading")
+    read.add_argument("--decimal-comma", action="store_true",
+                      help='text numbers use "," for decimals and "." for thousands '
+                           '("1.234,5"), as in many European exports')
+    read.add_argument("--dayfirst", action="store_true",
+                      help='text dates are day/month/year ("03/04/2025" is 3 April)')
+
+    extra = fill.add_argument_group("formulas, charts, messages")
+    forms = extra.add_mutually_exclusive_group()
+    forms.add_argument("--keep-formulas", dest="formulas", action="store_true", default=True,
+                       help="evaluate typed sheetvol formulas and store their results with "
+                            "the formula text kept (the default): add-in users keep live "
+                            "formulas, everyone else sees numbers")
+    forms.add_argument("--skip-formulas", dest="formulas", action="store_false",
+                       help="leave typed sheetvol formulas as they are")
+    extra.add_argument("--chart", action="store_true",
+                       help='add a "sheetvol charts" sheet: close with the bands, and '
+                            "dispersion with ATR, as native charts")
+    extra.add_argument("-q", "--quiet", action="store_true",
+                       help="no progress bar and no summary; errors are still shown")
+
+    funcs = sub.add_parser(
+        "functions",
+        help="list the worksheet functions, or show one",
+        description="List sheetvol's worksheet functions (usable in recipes and as "
+                    "formulas), or show one function's arguments.",
+        epilog="examples:\n  sheetvol functions\n  sheetvol functions SV_ATR",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    funcs.add_argument("name", nargs="?", help="a function name, e.g. SV_ATR")
+    return parser
+
+
+def _print_functions(name: str | None) -> int:
+    if name is None:
+        group = None
+        for f in registry.FUNCTIONS:
+            if f.group != group:
+                group = f.group
+                print(f"\n{group}:")
+            print(f"  {f.name:<18} {f.summary}")
+        print("\nColumn functions also come as NAME_LAST (value on the last row) and "
+              "NAME_ON(date, dates, ...)\n(value on or before a date). "
+              "`sheetvol functions NAME` shows the arguments.")
+        return 0
+    try:
+        func, variant = registry.variant_of(name)
+    except KeyError:
+        print(f"{PROG}: no function named {name!r}; `sheetvol functions` lists them",
+              file=sys.stderr)
+        return 1
+    params = registry.variant_params(func, variant)
+    shown = name.strip().upper()
+    print(f"{shown}({', '.join(p.name if p.required else f'[{p.name}]' for p in params)})")
+    print(f"  {func.summary}")
+    print(f"  returns: {func.returns}")
+    print("  arguments:")
+    for p in params:
+        default = "" if p.required else f" (default {_show_default(p.default)})"
+        print(f"    {p.name:<12} {p.describe_range()}{default}: {p.help}")
+    if func.example:
+        print(f"  example: {func.example}")
+    if func.notes:
+        print(f"  note: {func.notes}")
+    return 0
+
+
+def _show_default(value: object) -> str:
+    if isinstance(value, str):
+        return f'"{value}"'
+    if isinstance(value, float) and value.is_integer():
+        return str(int(value))
+    return str(value)
+
+
+def _run_fill(args: argparse.Namespace, parser: argparse.ArgumentParser) -> int:
+    files: list[Path] = args.files
+    if args.output is not None and len(files) > 1:
+        parser.error("-o/--output takes one input; use --out-dir for several")
+    if args.out_dir is not None and not args.out_dir.is_dir():
+        parser.error(f"--out-dir {args.out_dir}: no such folder")
+    if args.header_row is not None and args.header_row < 1:
+        parser.error("--header-row must be 1 or more")
+    specs = None
+    if args.recipe is not None:
+        try:
+            specs = load_recipe(args.recipe)
+        except RecipeError as exc:
+            print(f"{PROG}: error: {exc}", file=sys.stderr)
+            return 1
+    columns = {role: getattr(args, f"{role}_col") for role in ROLES}
+    options = FillOptions(
+        output=args.output, out_dir=args.out_dir, sheet=args.sheet,
+        header_row=args.header_row, columns={k: v for k, v in columns.items() if v},
+        specs=specs, decimal_comma=args.decimal_comma, dayfirst=args.dayfirst,
+        in_place=args.in_place, formulas=args.formulas, chart=args.chart,
+        progress=not args.quiet,
+    )
+    outputs = [output_path(f, options) for f in files]
+    if len(set(outputs)) < len(outputs):
+        parser.error("two inputs would write the same output file; use separate runs")
+    failed = 0
+    for src in files:
+        try:
+            report = fill_file(src, options)
+        except USER_ERRORS as exc:
+            failed += 1
+            print(f"{PROG}: error: {_with_file(src, str(exc))}", file=sys.stderr)
+            continue
+        except OSError as exc:
+            failed += 1
+            print(f"{PROG}: error: {src}: {exc.strerror or exc}", file=sys.stderr)
+            continue
+        if not args.quiet:
+            print("\n".join(report.summary()))
+    if len(files) > 1 and not args.quiet:
+        print(f"{len(files) - failed} of {len(files)} files filled")
+    return 1 if failed else 0
+
+
+def _with_file(src: Path, message: str) -> str:
+    return message if src.name in message else f"{src.name}: {message}"
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run the command line; returns the exit code.
+
+    Parameters
+    ----------
+    argv : sequence of str, optional
+        Arguments without the program name (default: ``sys.argv[1:]``).
+
+    Returns
+    -------
+    int
+        0 on success, 1 when any file failed, 2 for a bad command line.
+
+    Examples
+    --------
+    >>> main(["functions", "SV_ATR"])  # doctest: +ELLIPSIS
+    SV_ATR(high, low, close, [period], [smoothing])
+    ...
+    0
+    """
+    parser = build_parser()
+    try:
+        args = parser.parse_args(argv)
+        if args.command == "fill":
+            return _run_fill(args, parser)
+    except SystemExit as exc:  # argparse exits for --help, --version and usage errors
+        return exc.code if isinstance(exc.code, int) else 2
+    if args.command == "functions":
+        return _print_functions(args.name)
+    parser.print_help()
+    return 0
+

@@ -1,0 +1,696 @@
+"""The headless fill: computed columns written into a copy of a price export.
+
+``fill_file`` is the whole job for one input: find the price sheet and
+columns (:mod:`sheetvol.locate`), read the bars in date order
+(:mod:`sheetvol.prices_table`), compute the recipe's columns through the
+registry (:func:`sheetvol.frame.compute_columns`, the same path as the
+pandas helper), evaluate typed sheetvol formulas (:mod:`sheetvol.formulas`),
+and ask the package writer for exactly those edits plus a notes sheet. The
+input is only ever read; the output is written atomically by the writer.
+"""
+
+from __future__ import annotations
+
+import csv
+import datetime as dt
+import io
+import math
+import re
+import shutil
+import sys
+import tempfile
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from sheetvol import cells, registry
+from sheetvol.frame import ComputeError, compute_columns, needed_roles
+from sheetvol.locate import (
+    HEADER_SCAN_ROWS,
+    HeaderMatch,
+    LocateError,
+    col_letter,
+    col_number,
+    find_header,
+)
+from sheetvol.notes import (
+    CAUTION_LINE,
+    NOTES_SHEET,
+    FormulaNote,
+    SheetNote,
+    WrittenColumn,
+    build_notes,
+    read_record,
+    sha256_of,
+)
+from sheetvol.prices_table import PriceTable, PriceTableError, build_price_table
+from sheetvol.recipe import DEFAULT_RECIPE, ColumnSpec, RecipeError, default_specs, load_recipe
+from sheetvol.workbook import (
+    CellResult,
+    Column,
+    FormulaCell,
+    LineChart,
+    NewColumn,
+    NewSheet,
+    Package,
+    SpillResult,
+    WorkbookError,
+    write_package,
+)
+
+__all__ = ["FillError", "FillOptions", "FillReport", "fill_file", "output_path"]
+
+CHART_SHEET = "sheetvol charts"
+OWN_SHEETS = {NOTES_SHEET.casefold(), CHART_SHEET.casefold()}
+WORKBOOK_SUFFIXES = {".xlsx", ".xlsm"}
+TEXT_SUFFIXES = {".csv", ".txt", ".tsv"}
+PROGRESS_MIN_ROWS = 20_000
+
+
+class FillError(ValueError):
+    """The fill cannot go on; the message names the file and what to do."""
+
+
+# Every error a fill reports to the user as one message (no traceback).
+USER_ERRORS = (FillError, WorkbookError, LocateError, PriceTableError, RecipeError, ComputeError)
+
+
+@dataclass
+class FillOptions:
+    """What the command line (or a script) asks of one fill.
+
+    ``sheets`` names the price sheets (default: the first sheet with a Close
+    column, or every such sheet with ``all_sheets``). ``columns`` maps a role
+    (``date``, ``open``, ``high``, ``low``, ``close``, ``volume``) to a header
+    text or column letter.
+    """
+
+    output: Path | None = None
+    out_dir: Path | None = None
+    sheets: tuple[str, ...] = ()
+    all_sheets: bool = False
+    header_row: int | None = None
+    columns: dict[str, str] = field(default_factory=dict)
+    specs: list[ColumnSpec] | None = None
+    decimal_comma: bool = False
+    dayfirst: bool = False
+    in_place: bool = False
+    formulas: bool = True
+    chart: bool = False
+    progress: bool = False
+
+
+@dataclass
+class SheetReport:
+    """What the fill read and wrote on one price sheet."""
+
+    sheet: str
+    match: HeaderMatch
+    table: PriceTable | None = None
+    written: list[WrittenColumn] = field(default_factory=list)
+    replaced: int = 0
+
+    def summary(self) -> list[str]:
+        lines = [f'  sheet "{self.sheet}", header row {self.match.row}: {self.match.describe()}']
+        t = self.table
+        if t is not None:
+            span = t.first_last_dates()
+            bars = f"{len(t)} bars" + (f" ({span[0]} to {span[1]})" if span else "")
+            lines.append(f"    rows read: {t.rows_read}; {bars}, {t.order}")
+            lines.append(f"    rows skipped: {_describe_counts(t.skipped) or 'none'}")
+            if t.gap_cells:
+                lines.append(
+                    f"    gaps (results blank on those bars): {_describe_counts(t.gap_cells)}"
+                )
+        if self.written:
+            cols = ", ".join(f"{w.letter} {w.spec.header}" for w in self.written)
+            again = f" ({self.replaced} replaced from an earlier fill)" if self.replaced else ""
+            lines.append(f"    columns written{again}: {cols}")
+        return lines
+
+
+@dataclass
+class FillReport:
+    """What one fill did, for the summary and for tests."""
+
+    input: Path
+    output: Path
+    sheets: list[SheetReport] = field(default_factory=list)
+    formulas: list[FormulaNote] = field(default_factory=list)
+    formulas_ok: int = 0
+    warnings: list[str] = field(default_factory=list)
+    other_price_sheets: list[str] = field(default_factory=list)
+    backup: Path | None = None
+
+    # The first (often only) price sheet, for short access.
+    @property
+    def sheet(self) -> str:
+        return self.sheets[0].sheet
+
+    @property
+    def match(self) -> HeaderMatch:
+        return self.sheets[0].match
+
+    @property
+    def table(self) -> PriceTable:
+        table = self.sheets[0].table
+        assert table is not None
+        return table
+
+    @property
+    def written(self) -> list[WrittenColumn]:
+        return [w for s in self.sheets for w in s.written]
+
+    @property
+    def replaced(self) -> int:
+        return sum(s.replaced for s in self.sheets)
+
+    def summary(self) -> list[str]:
+        """A few lines for the terminal: what was read, skipped and written."""
+        lines = [f"{self.input.name} -> {self.output}"]
+        for s in self.sheets:
+            lines.extend(s.summary())
+        if self.other_price_sheets:
+            names = ", ".join(f'"{n}"' for n in self.other_price_sheets)
+            lines.append(f"  also price columns on {names}: add --all-sheets to fill them too")
+        if self.formulas:
+            failed = len(self.formulas) - self.formulas_ok
+            lines.append(
+                f"  typed formulas evaluated: {self.formulas_ok}"
+                + (f", {failed} could not be (see warnings)" if failed else "")
+            )
+        for w in self.warnings:
+            lines.append(f"  warning: {w}")
+        if self.backup is not None:
+            lines.append(f"  backup of the input: {self.backup}")
+        lines.append(f"  {CAUTION_LINE}")
+        return lines
+
+
+def _describe_counts(counts: Mapping[str, int]) -> str:
+    return ", ".join(f"{n} {what}" for what, n in counts.items() if n)
+
+
+# -- paths -------------------------------------------------------------------------------
+def output_path(src: Path, options: FillOptions) -> Path:
+    """Where the output of ``src`` goes: ``-o``, ``--out-dir``, in place, or beside it.
+
+    Examples
+    --------
+    >>> output_path(Path("exports/prices.csv"), FillOptions()).as_posix()
+    'exports/prices-filled.xlsx'
+    >>> output_path(Path("book.xlsm"), FillOptions()).as_posix()
+    'book-filled.xlsm'
+    """
+    suffix = ".xlsm" if src.suffix.lower() == ".xlsm" else ".xlsx"
+    if options.in_place:
+        return src
+    if options.output is not None:
+        return options.output
+    folder = options.out_dir if options.out_dir is not None else src.parent
+    return folder / f"{src.stem}-filled{suffix}"
+
+
+def backup_path(src: Path) -> Path:
+    """``prices.xlsx`` -> ``prices.bak.xlsx`` beside it."""
+    return src.with_name(f"{src.stem}.bak{src.suffix}")
+
+
+# -- CSV input ---------------------------------------------------------------------------
+def _csv_to_workbook(src: Path, dest: Path, options: FillOptions) -> None:
+    """Write a CSV export as a one-sheet workbook: numbers as numbers, the date column as dates.
+
+    Cells that are neither stay text, so the price reader later names them exactly
+    as it would in a workbook (row and column are the CSV's).
+    """
+    import xlsxwriter
+
+    raw = src.read_bytes()
+    text = raw.decode("utf-8-sig") if _is_utf8(raw) else raw.decode("cp1252", errors="replace")
+    sample = text[:65536]
+    try:
+        dialect: type[csv.Dialect] | csv.Dialect = csv.Sniffer().sniff(sample, ",;\t|")
+    except csv.Error:
+        dialect = csv.excel
+    rows = list(csv.reader(io.StringIO(text), dialect))
+    if not any(any(cell.strip() for cell in row) for row in rows):
+        raise FillError(f"{src.name} is empty")
+    top = {i: {j: v for j, v in enumerate(row, start=1) if v.strip()}
+           for i, row in enumerate(rows[:HEADER_SCAN_ROWS], start=1)}
+    date_col = None
+    header_row = 0
+    try:
+        match = find_header(top, header_row=options.header_row,
+                            overrides=options.columns, where=src.name)
+        date_col, header_row = match.columns.get("date"), match.row
+    except LocateError:
+        pass  # the workbook path reports it with the same words
+    sheet_name = re.sub(r"[\[\]:*?/\\]", "_", src.stem)[:31] or "Prices"
+    wb = xlsxwriter.Workbook(str(dest), {"constant_memory": True, "strings_to_numbers": False})
+    try:
+        ws = wb.add_worksheet(sheet_name)
+        date_fmt = wb.add_format({"num_format": "yyyy-mm-dd"})
+        time_fmt = wb.add_format({"num_format": "yyyy-mm-dd hh:mm"})
+        for i, row in enumerate(rows):
+            for j, value in enumerate(row):
+                if not value.strip():
+                    continue
+                if i + 1 > header_row and date_col == j + 1:
+                    try:
+                        when = cells.to_datetime(value, dayfirst=options.dayfirst)
+                    except cells.CellValueError:
+                        when = None
+                    if when is not None:
+                        fmt = time_fmt if when.time() != dt.time() else date_fmt
+                        ws.write_datetime(i, j, when, fmt)
+                        continue
+                number = _csv_number(value, options.decimal_comma) if i + 1 > header_row else None
+                if number is not None:
+                    ws.write_number(i, j, number)
+                else:
+                    ws.write_string(i, j, value)
+    finally:
+        wb.close()
+
+
+def _is_utf8(raw: bytes) -> bool:
+    try:
+        raw.decode("utf-8")
+    except UnicodeDecodeError:
+        return False
+    return True
+
+
+def _csv_number(value: str, decimal_comma: bool) -> float | None:
+    from sheetvol.prices_table import _suspect_separator
+
+    if cells.is_blank(value) or _suspect_separator(value, decimal_comma):
+        return None
+    try:
+        number = cells.to_number(value, decimal_comma=decimal_comma)
+    except cells.CellValueError:
+        return None
+    return number if math.isfinite(number) else None
+
+
+# -- the fill ---------------------------------------------------------------------------
+def fill_file(src: str | Path, options: FillOptions | None = None) -> FillReport:
+    """Fill one workbook or CSV export and write the result.
+
+    Parameters
+    ----------
+    src : str or Path
+        An ``.xlsx``, ``.xlsm`` or ``.csv`` export.
+    options : FillOptions, optional
+        Sheet, columns, recipe, output and the rest (defaults: find everything,
+        default columns, ``<name>-filled.xlsx`` beside the input).
+
+    Returns
+    -------
+    FillReport
+
+    Raises
+    ------
+    FillError, WorkbookError, LocateError, PriceTableError, RecipeError, ComputeError
+        With a message naming the file, sheet and cell; nothing is written then.
+
+    Examples
+    --------
+    >>> report = fill_file("prices.xlsx")  # doctest: +SKIP
+    >>> print("\\n".join(report.summary()))  # doctest: +SKIP
+    """
+    options = options or FillOptions()
+    src = Path(src)
+    if not src.exists():
+        raise FillError(f"{src}: no such file")
+    suffix = src.suffix.lower()
+    if suffix == ".xls":
+        raise FillError(f"{src.name} is in the old .xls format; save it as .xlsx and run again")
+    if suffix not in WORKBOOK_SUFFIXES | TEXT_SUFFIXES:
+        raise FillError(f"{src.name}: sheetvol reads .xlsx, .xlsm and .csv files, not {suffix!r}")
+    out = output_path(src, options)
+    if options.in_place and suffix in TEXT_SUFFIXES:
+        raise FillError(f"{src.name}: --in-place needs a workbook; a CSV cannot hold the columns")
+    if out.resolve() == src.resolve() and not options.in_place:
+        raise FillError(f"{src.name}: the output would overwrite the input; use --in-place "
+                        "to mean that (a backup is kept)")
+    want_xlsm = src.suffix.lower() == ".xlsm"
+    if want_xlsm and out.suffix.lower() != ".xlsm":
+        raise FillError(f"{src.name} has macros; its output must end in .xlsm, not {out.name}")
+    if not want_xlsm and out.suffix.lower() not in (".xlsx",):
+        raise FillError(f"output {out.name}: use a name ending in .xlsx")
+    if not out.parent.exists():
+        raise FillError(f"output folder {out.parent} does not exist")
+
+    report = FillReport(input=src, output=out)
+    with tempfile.TemporaryDirectory(prefix="sheetvol-") as tmp:
+        book = src
+        if suffix in TEXT_SUFFIXES:
+            book = Path(tmp) / (src.stem + ".xlsx")
+            _csv_to_workbook(src, book, options)
+        pkg = Package.open(book)
+        if pkg.is_macro_enabled and not want_xlsm:
+            raise FillError(f"{src.name} holds macros but is named .xlsx; rename it to .xlsm")
+        edits = _plan(pkg, src, options, report)
+        if options.in_place:
+            backup = backup_path(src)
+            shutil.copy2(src, backup)
+            report.backup = backup
+        _write(pkg, out, edits, report, options)
+    return report
+
+
+def _where(src: Path, sheet: str) -> str:
+    return f'{src.name}, sheet "{sheet}"'
+
+
+def _choose_sheets(pkg: Package, src: Path, options: FillOptions,
+                   report: FillReport) -> list[tuple[str, HeaderMatch, int]]:
+    """The price sheets with their header match and the rightmost used column near the top."""
+    def locate(name: str) -> tuple[str, HeaderMatch, int]:
+        grid = pkg.read_grid(name, max_rows=HEADER_SCAN_ROWS)
+        match = find_header(grid.rows, header_row=options.header_row,
+                            overrides=options.columns, where=_where(src, name))
+        return name, match, grid.max_col
+
+    if options.sheets:
+        return [locate(pkg.sheet(name).name) for name in dict.fromkeys(options.sheets)]
+    found: list[tuple[str, HeaderMatch, int]] = []
+    tried: list[str] = []
+    first_error: LocateError | None = None
+    for info in pkg.sheets:
+        if info.kind != "worksheet" or info.name.casefold() in OWN_SHEETS:
+            continue
+        try:
+            hit = locate(info.name)
+        except LocateError as exc:
+            first_error = first_error or exc
+            tried.append(info.name)
+            continue
+        # beyond the first, only sheets that look like bars (a date and a close)
+        if not found or "date" in hit[1].columns:
+            found.append(hit)
+    if found:
+        if not options.all_sheets:
+            report.other_price_sheets = [name for name, m, _ in found[1:]]
+            return found[:1]
+        return found
+    if len(tried) == 1 and first_error is not None:
+        raise first_error
+    if not tried:
+        raise FillError(f"{src.name} has no worksheet with cells")
+    names = ", ".join(repr(t) for t in tried)
+    raise LocateError(
+        f"{src.name}: no sheet has a Close column in its first {HEADER_SCAN_ROWS} rows "
+        f"(sheets: {names}; on the first: {first_error}); pick the sheet with --sheet and "
+        "name the column with --close-col"
+    )
+
+
+def _own_columns(match: HeaderMatch, recorded: Mapping[str, str],
+                 specs: Sequence[ColumnSpec]) -> dict[int, str]:
+    """Columns of a price sheet an earlier fill wrote: col -> header.
+
+    Recognised from the notes sheet's record (letter and header must still
+    agree) or, when the notes sheet is gone, by a header we would write now.
+    """
+    own: dict[int, str] = {}
+    for letter, header in recorded.items():
+        try:
+            col = col_number(letter)
+        except ValueError:
+            continue
+        if match.headers.get(col) == header:
+            own[col] = header
+    ours = {s.header for s in specs}
+    own.update({col: text for col, text in match.headers.items() if text in ours})
+    used = set(match.columns.values())
+    return {c: h for c, h in own.items() if c not in used}
+
+
+def _recorded(pkg: Package) -> dict[str, dict[str, str]]:
+    """An earlier fill's record of its columns (sheet name casefolded)."""
+    names = {s.name.casefold(): s.name for s in pkg.sheets}
+    if NOTES_SHEET.casefold() not in names:
+        return {}
+    notes = pkg.read_grid(names[NOTES_SHEET.casefold()], max_rows=2000)
+    return {k.casefold(): v for k, v in read_record(notes.rows).items()}
+
+
+def _has_cells(column: Column) -> bool:
+    return bool(np.isfinite(column.numbers).any() or any(
+        v is not None and v != "" for v in column.other.values()))
+
+
+def _number_format(spec: ColumnSpec, decimals: int) -> str:
+    unit = spec.func.unit
+    if unit == "percent":
+        return "0.00%"
+    if unit == "ratio":
+        return "0.000"
+    if unit == "quantity":
+        return "0"
+    return "0." + "0" * decimals if decimals else "0"
+
+
+def _select_specs(options: FillOptions, match: HeaderMatch, where: str,
+                  report: FillReport) -> list[ColumnSpec]:
+    specs = options.specs if options.specs is not None else default_specs()
+    missing = needed_roles(specs) - set(match.columns)
+    if not missing:
+        return specs
+    found = ", ".join(f"{col_letter(c)} {t!r}" for c, t in sorted(match.headers.items()))
+    if options.specs is None:  # the default set: leave out what the export cannot feed
+        kept = [s for s in specs if not set(s.inputs.values()) & missing]
+        left_out = sorted({s.header for s in specs} - {s.header for s in kept})
+        report.warnings.append(
+            f"{where}: no {'/'.join(sorted(m.capitalize() for m in missing))} column, so "
+            f"{', '.join(left_out)} left out (headers in row {match.row}: {found})"
+        )
+        return kept
+    role = sorted(missing)[0]
+    users = ", ".join(s.header for s in specs if role in s.inputs.values())
+    raise LocateError(
+        f"{where}: no {role.capitalize()} column found, and {users} need it (headers in row "
+        f"{match.row}: {found}); name it with --{role}-col"
+    )
+
+
+def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport) -> list:
+    """Every edit of the fill, computed before anything is written."""
+    chosen = _choose_sheets(pkg, src, options, report)
+    typed = pkg.formula_cells() if options.formulas else []
+    recorded = _recorded(pkg)
+    edits: list = []
+    taken: dict[str, set[int]] = {}
+    specs_by_sheet: list[tuple[SheetReport, list[ColumnSpec], list[int]]] = []
+    for sheet, match, max_col in chosen:
+        sr = SheetReport(sheet=sheet, match=match)
+        report.sheets.append(sr)
+        specs = _select_specs(options, match, _where(src, sheet), report)
+        typed_cols = [fc.col for fc in typed if fc.sheet == sheet]
+        cols, targets = _plan_sheet(pkg, src, options, sr, specs, max_col, typed_cols,
+                                    recorded.get(sheet.casefold(), {}))
+        edits.extend(cols)
+        taken[sheet] = {e.col for e in cols}
+        specs_by_sheet.append((sr, specs, targets))
+    if typed:
+        edits.extend(_evaluate_formulas(pkg, typed, taken, report))
+    if options.chart:
+        edits.append(NewSheet(name=CHART_SHEET, rows=[["Charts of the filled sheets"]]))
+        for k, (sr, specs, targets) in enumerate(specs_by_sheet):
+            edits.extend(_charts(sr, specs, targets, top=3 + 44 * k))
+    edits.append(NewSheet(name=NOTES_SHEET, rows=_notes_rows(src, report),
+                          widths=[16, 14, 30, 16, 52, 40]))
+    return edits
+
+
+def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
+                specs: list[ColumnSpec], max_col: int, typed_cols: list[int],
+                recorded: Mapping[str, str]) -> tuple[list[NewColumn], list[int]]:
+    """Read one price sheet, compute its columns and say where each one goes."""
+    sheet, match = sr.sheet, sr.match
+    where = _where(src, sheet)
+    # Where each column goes: its own earlier place, else a freed earlier place, else new
+    # columns right of everything used (top rows, a table, typed formulas, cells below).
+    own = _own_columns(match, recorded, specs)
+    for t in pkg.tables(sheet):
+        if t.header_row == match.row and t.left <= match.columns["close"] <= t.right:
+            max_col = max(max_col, t.right)
+    max_col = max([max_col, *own, *typed_cols])
+    headers = {s.header for s in specs}
+    reused = {h: c for c, h in own.items() if h in headers}
+    free = sorted(c for c in own if own[c] not in headers)
+    n_new = max(0, len(specs) - len(reused) - len(free))
+
+    roles = sorted(match.columns, key=match.columns.__getitem__)
+    letters = {role: col_letter(match.columns[role]) for role in roles}
+    price_cols = [match.columns[r] for r in roles]
+    start = max_col + 1
+    read = pkg.read_columns(sheet, price_cols + list(range(start, start + n_new)),
+                            first_row=match.row + 1)
+    while busy := [c for c in range(start, start + n_new) if _has_cells(read[c])]:
+        # cells far below the header in the columns we meant to use: move right of them
+        start = max(busy) + 1
+        read = pkg.read_columns(sheet, list(range(start, start + n_new)),
+                                first_row=match.row + 1) | {c: read[c] for c in price_cols}
+    new_cols = list(range(start, start + n_new))
+    targets = [reused[s.header] if s.header in reused else (free or new_cols).pop(0)
+               for s in specs]
+    sr.replaced = sum(1 for c in targets if c in own)
+
+    table = build_price_table(
+        {role: read[match.columns[role]] for role in roles},
+        header_row=match.row, letters=letters, date1904=pkg.date1904,
+        decimal_comma=options.decimal_comma, dayfirst=options.dayfirst, where=where,
+    )
+    sr.table = table
+    if not len(table):
+        raise FillError(f"{where}: no price rows below the header row {match.row}")
+    results = compute_columns(specs, table.prices)
+
+    first_row = int(table.rows.min())
+    height = int(table.rows.max()) - first_row + 1
+    columns: list[NewColumn] = []
+    for spec, col, values in zip(specs, targets, results, strict=True):
+        placed = np.full(height, np.nan)
+        placed[table.rows - first_row] = values
+        columns.append(NewColumn(
+            sheet=sheet, col=col, header_row=match.row, header=spec.header,
+            first_row=first_row, values=placed,
+            number_format=_number_format(spec, table.decimals),
+            width=max(10.0, len(spec.header) * 1.1 + 2),
+            replace=col in own,  # only our own earlier columns are cleared first
+        ))
+        sr.written.append(WrittenColumn(sheet, col_letter(col), spec, letters))
+        if not np.isfinite(values).any():
+            sr_warn = f"{where}: {spec.header} is blank on every row ({len(table)} bars"
+            sr_warn += " are not enough for its window)"
+            _warn(sr, sr_warn)
+    for col in free:  # earlier columns this recipe no longer has: cleared
+        columns.append(NewColumn(sheet=sheet, col=col, header_row=match.row, header="",
+                                 first_row=first_row, values=np.full(1, np.nan),
+                                 number_format="General"))
+    return columns, targets
+
+
+def _warn(sr: SheetReport, message: str) -> None:
+    assert sr.table is not None
+    sr.table.warnings.append(message)
+
+
+def _notes_rows(src: Path, report: FillReport) -> list[list[object]]:
+    notes = []
+    for sr in report.sheets:
+        table = sr.table
+        assert table is not None
+        span = table.first_last_dates()
+        bars = f"{len(table)}" + (f" ({span[0]} to {span[1]})" if span else "")
+        bars += f", {table.order}"
+        if table.order == "newest first":
+            bars += "; computed oldest first, written back on each bar's row"
+        notes.append(SheetNote(sr.sheet, sr.match.row, sr.match.describe(), bars,
+                               _describe_counts(table.skipped) or "none"))
+    return build_notes(
+        input_name=src.name,
+        input_sha256=sha256_of(src),
+        sheets=notes,
+        written=report.written,
+        formulas=report.formulas,
+        warnings=report.warnings,
+    )
+
+
+def _evaluate_formulas(pkg: Package, found: Sequence[FormulaCell],
+                       taken: Mapping[str, set[int]], report: FillReport) -> list:
+    """Results for typed sheetvol formulas; the formula text stays in the cell."""
+    try:
+        from sheetvol import formulas
+    except ImportError:  # the evaluator ships with the package; guard for partial installs
+        report.warnings.append("typed sheetvol formulas found but the evaluator is missing")
+        return []
+    resolver = formulas.package_resolver(pkg)
+    edits: list = []
+    for fc in found:
+        if fc.col in taken.get(fc.sheet, set()):
+            continue  # replaced by the fill's own column
+        ref = f"{_quote(fc.sheet)}!{col_letter(fc.col)}{fc.row}"
+        try:
+            value = formulas.evaluate(fc.formula, resolver, current_sheet=fc.sheet,
+                                      date1904=pkg.date1904)
+        except (formulas.FormulaError, registry.ArgumentError, WorkbookError, ValueError) as exc:
+            report.warnings.append(f"{ref}: formula left as it was: {exc}")
+            report.formulas.append(FormulaNote(ref, fc.formula, f"not evaluated: {exc}"))
+            continue
+        if isinstance(value, np.ndarray):
+            values = np.asarray(value, dtype=np.float64).reshape(-1)
+            below = pkg.read_range(fc.sheet, fc.row + 1, fc.col, fc.row + len(values) - 1,
+                                   fc.col) if len(values) > 1 else []
+            if any(row[0] is not None for row in below) and fc.array_ref is None:
+                report.warnings.append(
+                    f"{ref}: a column of {len(values)} results would cover cells below it "
+                    "that are not empty; formula left as it was"
+                )
+                report.formulas.append(FormulaNote(ref, fc.formula, "not written: cells below"))
+                continue
+            edits.append(SpillResult(fc.sheet, fc.row, fc.col, fc.formula, values))
+            outcome = f"column of {len(values)} values"
+        else:
+            if isinstance(value, float) and not math.isfinite(value):
+                value = None
+            edits.append(CellResult(fc.sheet, fc.row, fc.col, value))
+            outcome = "blank" if value is None else repr(value)
+        report.formulas_ok += 1
+        report.formulas.append(FormulaNote(ref, fc.formula, outcome))
+    return edits
+
+
+def _quote(sheet: str) -> str:
+    return sheet if re.fullmatch(r"[A-Za-z_][A-Za-z0-9_.]*", sheet) else f"'{sheet}'"
+
+
+def _charts(sr: SheetReport, specs: Sequence[ColumnSpec], targets: Sequence[int],
+            top: int) -> list:
+    """Close with the bands, and the price-unit dispersion columns, as native line charts."""
+    table = sr.table
+    assert table is not None
+    match = sr.match
+    x_col = match.columns.get("date", match.columns["close"])
+    lo, hi = int(table.rows.min()), int(table.rows.max())
+    bands = [c for s, c in zip(specs, targets, strict=True)
+             if s.func.unit == "price" and s.func.group in ("bands", "averages")]
+    spread = [c for s, c in zip(specs, targets, strict=True)
+              if s.func.unit == "price" and s.func.group in ("dispersion", "ranges")]
+    edits: list = [LineChart(sr.sheet, f"{sr.sheet}: close and bands", x_col,
+                             [match.columns["close"], *bands], lo, hi, CHART_SHEET, f"A{top}")]
+    if spread:
+        edits.append(LineChart(sr.sheet, f"{sr.sheet}: dispersion and ATR", x_col, spread, lo,
+                               hi, CHART_SHEET, f"A{top + 22}"))
+    return edits
+
+
+def _write(pkg: Package, out: Path, edits: list, report: FillReport,
+           options: FillOptions) -> None:
+    bar = None
+    callback: Callable[[int], None] | None = None
+    rows = len(report.table) if report.table is not None else 0
+    if options.progress and rows >= PROGRESS_MIN_ROWS and sys.stderr.isatty():
+        from tqdm import tqdm
+
+        bar = tqdm(total=int(report.table.rows.max()), desc=f"writing {out.name}",
+                   unit=" rows", file=sys.stderr, leave=False)
+        callback = bar.update
+    try:
+        write_package(pkg, out, edits, progress=callback)
+    finally:
+        if bar is not None:
+            bar.close()
+
+
+def recipe_options(recipe: str | Path | None) -> tuple[list[ColumnSpec] | None, str]:
+    """Specs and a label for the summary: the recipe file's, or the defaults."""
+    if recipe is None:
+        return None, f"default columns ({len(DEFAULT_RECIPE)})"
+    return load_recipe(recipe), Path(recipe).name

@@ -1,0 +1,504 @@
+"""Accurate O(n) rolling window sums, means and variances.
+
+Why not running sums over the whole series: a running sum of prices near 1e7
+grows to 1e13 after a million bars, and the difference of two such sums keeps
+only the last few digits of a window sum; a running sum of squares (the naive
+``E[x^2] - E[x]^2`` variance) cancels catastrophically as soon as the prices
+are large and the moves small. The obvious accurate method (two passes over
+every window) costs O(n * period).
+
+What we do instead (block-local shifts): the series is cut into blocks of
+exactly ``period`` bars, so the window ending in block ``b`` covers a suffix
+of block ``b-1`` and a prefix of block ``b``. Each block gets its own shift
+``c_b`` (one of its own prices), and only the deviations ``y = x - c_b`` are
+summed, with cumulative sums that never run over more than one block. The
+part of a window taken from block ``b-1`` is moved to the shift of block ``b``
+with the exact identity ``sum(y + d) = Y1 + k d`` and
+``sum((y + d)^2) = Y2 + 2 d Y1 + k d^2`` (``d = c_{b-1} - c_b``, ``k`` bars).
+Deviations are small, so the variance ``S2/N - (S1/N)^2`` loses almost no
+digits, and nothing accumulates along the series, so there is no drift after a
+million bars. Constant prices give exactly zero (every deviation is 0).
+
+For short periods the blocks are laid out transposed, one row per position
+inside a block and one column per block, so the cumulative sums are ``period``
+vectorised row additions instead of a sequential scan (several times faster in
+numpy); long periods keep each block contiguous and use numpy's cumulative sum.
+Either way the work runs over chunks of blocks small enough to stay in the CPU
+cache, and the cost per bar does not grow with the period.
+"""
+
+from __future__ import annotations
+
+import operator
+from collections.abc import Iterable
+from typing import Any
+
+import numpy as np
+
+from sheetvol.kernels._gaps import as_series
+from sheetvol.kernels._types import FloatArray
+
+# Work is done on chunks of blocks so the temporaries stay in the CPU cache; a chunk
+# spans at least _MIN_COLUMNS blocks so the per-row numpy calls stay cheap, and about
+# _CHUNK_ELEMENTS values otherwise (measured on 1e6 bars, see docs/performance.md).
+_CHUNK_ELEMENTS = 32768
+_MIN_COLUMNS = 1024
+# With fewer blocks than this (long periods), the row loop costs more than numpy's own
+# cumulative sum down each block, which is then run on blocks stored contiguously.
+_ROW_LOOP_MIN_COLUMNS = 256
+_ROW_LOOP_MAX_PERIOD = 64
+# A window is recomputed by two passes when its variance is below this share of the
+# terms that cancel in the one-pass formula: the one-pass relative error is a few
+# eps divided by this share, so 1e-3 keeps it near 1e-12 or better.
+_REFINE_RATIO = 1e-3
+
+
+# -- option checks shared by the kernels ---------------------------------------------
+def check_period(period: Any, name: str = "period", minimum: int = 1) -> int:
+    """Return ``period`` as an int or raise ``ValueError`` naming the bad value.
+
+    Parameters
+    ----------
+    period : int
+        Window length in bars; a float is accepted only when it is whole.
+    name : str
+        Argument name used in the message.
+    minimum : int
+        Smallest allowed value.
+
+    Returns
+    -------
+    int
+        The validated period.
+
+    Examples
+    --------
+    >>> check_period(14.0)
+    14
+    """
+    if isinstance(period, (bool, np.bool_)):
+        raise ValueError(f"{name} must be a whole number of at least {minimum}, got {period!r}")
+    try:
+        value = operator.index(period)
+    except TypeError:
+        if isinstance(period, (float, np.floating)) and float(period).is_integer():
+            value = int(period)
+        else:
+            raise ValueError(
+                f"{name} must be a whole number of at least {minimum}, got {period!r}"
+            ) from None
+    if value < minimum:
+        raise ValueError(f"{name} must be a whole number of at least {minimum}, got {period!r}")
+    return value
+
+
+def check_choice(value: Any, name: str, allowed: Iterable[str]) -> str:
+    """Return ``value`` if it is one of ``allowed``, else raise ``ValueError``.
+
+    Parameters
+    ----------
+    value : str
+        The option given by the caller.
+    name : str
+        Argument name used in the message.
+    allowed : iterable of str
+        The valid option words.
+
+    Returns
+    -------
+    str
+        ``value`` unchanged.
+
+    Examples
+    --------
+    >>> check_choice("simple", "kind", ("simple", "exponential"))
+    'simple'
+    """
+    options = tuple(allowed)
+    if not isinstance(value, str) or value not in options:
+        listed = ", ".join(f'"{o}"' for o in options)
+        raise ValueError(f"{name} must be one of {listed}, got {value!r}")
+    return value
+
+
+# -- the block engine ------------------------------------------------------------------
+def _cumsum_rows(a: FloatArray) -> FloatArray:
+    """Cumulative sums down each column (one column per block), in place."""
+    if a.flags.c_contiguous and a.shape[1] >= _ROW_LOOP_MIN_COLUMNS:
+        for j in range(1, a.shape[0]):
+            np.add(a[j - 1], a[j], out=a[j])
+        return a
+    return np.cumsum(a, axis=0, out=a)
+
+
+def _older(prefix: FloatArray) -> FloatArray:
+    """Sum over rows j+1..N-1 of the previous block, for each row j of blocks 1..c."""
+    return prefix[-1, :-1] - prefix[:, :-1]
+
+
+def _grid(values: FloatArray, period: int, fill: float) -> FloatArray:
+    """``values`` padded to whole blocks and viewed as (position in block, block)."""
+    n = len(values)
+    n_blocks = -(-n // period)
+    if n_blocks * period != n:
+        values = np.concatenate([values, np.full(n_blocks * period - n, fill)])
+    return values.reshape(n_blocks, period).T
+
+
+def _engine(
+    x: FloatArray, period: int, mode: str, level: FloatArray | None = None, sample: bool = False
+) -> list[FloatArray]:
+    """Window statistics by blocks of ``period`` bars (see the module docstring).
+
+    ``mode``: ``"sum"``, ``"mean"``, ``"moments"`` (mean, variance), ``"frame"``
+    (shift, offset, variance), ``"deviation"`` (root mean square about ``level``
+    or about the window mean) or ``"linear"`` (linearly weighted mean).
+    """
+    n, big_n = len(x), float(period)
+    gx = _grid(x, period, x[-1])  # padding only feeds rows that are cut off again
+    n_blocks = gx.shape[1]
+    gl = None if level is None else _grid(level, period, np.nan)
+    # The shift of each block is one of its own prices: deviations from it are exact
+    # (Sterbenz) for prices of one sign, and 0 for constant prices.
+    shift = gx[period // 2].copy()
+    n_out = {"moments": 2, "frame": 3}.get(mode, 1)
+    outs = [np.empty(n_blocks * period) for _ in range(n_out)]
+    grids = [o.reshape(n_blocks, period).T for o in outs]
+    pos = np.arange(period, dtype=np.float64)[:, None]
+    k = (period - 1.0) - pos  # bars of each window that lie in the previous block
+    wide = period <= _ROW_LOOP_MAX_PERIOD and n_blocks >= _ROW_LOOP_MIN_COLUMNS
+    cols = max(_MIN_COLUMNS if wide else 4, _CHUNK_ELEMENTS // period)
+    cols = min(n_blocks, cols)
+    flagged: list[np.ndarray] = []
+    for b0 in range(0, n_blocks, cols):
+        b1 = min(b0 + cols, n_blocks)
+        here = slice(b0, b1)
+        # Column 0 is the previous block; before block 0 a dummy of zero deviations.
+        sh = np.empty(b1 - b0 + 1)
+        sh[1:] = shift[here]
+        sh[0] = shift[b0 - 1] if b0 else shift[0]
+        # Wide chunks: one row per position (row loop); narrow: one contiguous block
+        # per column (numpy's cumulative sum); every later step follows this order.
+        y = np.empty((period, b1 - b0 + 1), order="C" if wide else "F")
+        y[:, 1:] = gx[:, here]
+        y[:, 0] = gx[:, b0 - 1] if b0 else sh[0]
+        y -= sh
+        d = sh[:-1] - sh[1:]  # moves the older part onto the newer block's shift
+        kd = k * d
+        if mode == "linear":
+            pj = _cumsum_rows(y * pos)
+            p1 = _cumsum_rows(y)
+            q1, qj = _older(p1), _older(pj)
+            # Rows 0..j of block b carry weights (N - j) + p, rows j+1..N-1 of block
+            # b-1 carry p - j; the shift change adds d * k(k+1)/2.
+            acc = (big_n - pos) * p1[:, 1:]
+            acc += pj[:, 1:]
+            acc += qj
+            acc -= pos * q1
+            acc += kd * ((k + 1.0) / 2.0)
+            acc /= big_n * (big_n + 1.0) / 2.0
+            acc += sh[1:]
+            grids[0][:, here] = acc
+            continue
+        y2 = y * y if mode in ("moments", "frame", "deviation") else None
+        p1 = _cumsum_rows(y)
+        q1 = _older(p1)
+        s1 = p1[:, 1:] + q1
+        s1 += kd
+        if mode == "sum":
+            s1 += big_n * sh[1:]
+            grids[0][:, here] = s1
+            continue
+        s1 /= big_n  # now the window mean minus the shift
+        if y2 is None:
+            s1 += sh[1:]
+            grids[0][:, here] = s1
+            continue
+        p2 = _cumsum_rows(y2)
+        prev_total = p2[-1, :-1]
+        s2 = p2[:, 1:] + _older(p2)
+        s2 += (2.0 * d) * q1
+        square = kd * d
+        s2 += square
+        # Size of the terms that cancel in s2 (an upper bound by Cauchy-Schwarz on
+        # sum|y| <= sqrt(N sum y^2)); the rounding error of the variance is a few
+        # eps times this, which only matters when the window is much flatter than
+        # its neighbourhood (see _refine).
+        size = p2[:, 1:] + square
+        size += prev_total + 2.0 * np.abs(d) * np.sqrt(big_n * prev_total)
+        s2 /= big_n
+        s2 -= s1 * s1  # population variance
+        np.maximum(s2, 0.0, out=s2)  # rounding may leave -1e-30 on a flat window
+        if mode == "deviation" and gl is not None:
+            # mean - level in the local frame: (level - shift) is exact nearby.
+            s1 -= gl[:, here] - sh[1:]
+            s1 *= s1
+            s2 += s1
+        rows, cols_ = np.nonzero(s2 * big_n < _REFINE_RATIO * size)
+        if len(rows):
+            flagged.append((b0 + cols_) * period + rows)
+        if mode == "moments":
+            grids[0][:, here] = s1 + sh[1:]
+            grids[1][:, here] = s2
+        elif mode == "frame":
+            grids[0][:, here] = sh[1:]
+            grids[1][:, here] = s1
+            grids[2][:, here] = s2
+        else:
+            if sample:
+                s2 *= big_n / (big_n - 1.0)
+            grids[0][:, here] = np.sqrt(s2, out=s2)
+    for o in outs:
+        o[: period - 1] = np.nan
+    outs = [o[:n] for o in outs]
+    if flagged:
+        ends = np.concatenate(flagged)
+        ends = ends[(ends >= period - 1) & (ends < n)]
+        _refine(x, period, ends, mode, outs[-1], level, sample)
+    return outs
+
+
+def _refine(
+    x: FloatArray,
+    period: int,
+    ends: np.ndarray,
+    mode: str,
+    out: FloatArray,
+    level: FloatArray | None,
+    sample: bool,
+) -> None:
+    """Recompute flagged windows by two passes (in place on ``out``).
+
+    Flagged windows are those whose variance is tiny next to the deviations from
+    the block shift (a flat stretch after a jump, two nearly equal prices in a short
+    window). There the one-pass formula could lose relative digits; two passes over
+    just those windows restore full accuracy. For random walks this is a few percent
+    of the windows at period 2 and almost none at longer periods.
+    """
+    offsets = np.arange(1 - period, 1)
+    batch = max(1, _CHUNK_ELEMENTS // period)
+    for i in range(0, len(ends), batch):
+        t = ends[i : i + batch]
+        w = x[t[:, None] + offsets]
+        if mode == "deviation" and level is not None:
+            dev = w - level[t][:, None]
+        else:
+            dev = w - w[:, -1:]  # exact for nearby prices; 0 on a flat window
+            dev -= dev.mean(axis=1, keepdims=True)
+        var = np.einsum("ij,ij->i", dev, dev) / period
+        if mode == "deviation":
+            out[t] = np.sqrt(var * (period / (period - 1.0)) if sample else var)
+        else:
+            out[t] = var
+
+
+def _empty(n: int) -> FloatArray:
+    return np.full(n, np.nan)
+
+
+def _prepare(values: Any, period: Any) -> tuple[FloatArray, int]:
+    return as_series(values), check_period(period)
+
+
+def window_sum(values: FloatArray, period: int) -> FloatArray:
+    """Sum of the last ``period`` values at each bar, accurate and O(n).
+
+    Parameters
+    ----------
+    values : array_like
+        Finite values, oldest first (callers drop gaps with ``skip_gaps``).
+    period : int
+        Window length in bars (at least 1).
+
+    Returns
+    -------
+    numpy.ndarray
+        Window sums aligned with ``values``; NaN on the first ``period - 1`` rows.
+
+    Examples
+    --------
+    >>> window_sum([1.0, 2.0, 3.0, 4.0], 2)
+    array([nan,  3.,  5.,  7.])
+    """
+    x, period = _prepare(values, period)
+    if len(x) < period:
+        return _empty(len(x))
+    return _engine(x, period, "sum")[0]
+
+
+def window_mean(values: FloatArray, period: int) -> FloatArray:
+    """Rolling mean (the simple moving average), accurate and O(n).
+
+    Parameters
+    ----------
+    values : array_like
+        Finite values, oldest first.
+    period : int
+        Window length in bars (at least 1).
+
+    Returns
+    -------
+    numpy.ndarray
+        Means aligned with ``values``; NaN on the first ``period - 1`` rows.
+
+    Examples
+    --------
+    >>> window_mean([1.0, 2.0, 3.0, 4.0], 2)
+    array([nan, 1.5, 2.5, 3.5])
+    """
+    x, period = _prepare(values, period)
+    if len(x) < period:
+        return _empty(len(x))
+    return _engine(x, period, "mean")[0]
+
+
+def window_mean_var(values: FloatArray, period: int) -> tuple[FloatArray, FloatArray]:
+    """Rolling mean and population variance (divide by N), accurate and O(n).
+
+    Parameters
+    ----------
+    values : array_like
+        Finite values, oldest first (callers drop gaps with ``skip_gaps``).
+    period : int
+        Window length in bars (at least 1).
+
+    Returns
+    -------
+    mean, variance : numpy.ndarray
+        Aligned with ``values``; NaN on the first ``period - 1`` rows.
+
+    Examples
+    --------
+    >>> mean, var = window_mean_var([1.0, 2.0, 3.0, 5.0], 3)
+    >>> mean[2:], var[2:]
+    (array([2.        , 3.33333333]), array([0.66666667, 1.55555556]))
+    """
+    x, period = _prepare(values, period)
+    if len(x) < period:
+        return _empty(len(x)), _empty(len(x))
+    mean, var = _engine(x, period, "moments")
+    return mean, var
+
+
+def window_frame(values: FloatArray, period: int) -> tuple[FloatArray, FloatArray, FloatArray]:
+    """Window mean and population variance in a local frame (for exact differences).
+
+    Returns ``(shift, offset, variance)`` per bar with ``mean = shift + offset``,
+    where ``shift`` is one of the input prices near the window. Differences of the
+    mean from another price ``m`` are best taken as ``offset - (m - shift)``: the
+    subtraction ``m - shift`` is exact for nearby prices, so no digits are lost.
+
+    Parameters
+    ----------
+    values : array_like
+        Finite values, oldest first.
+    period : int
+        Window length in bars (at least 1).
+
+    Returns
+    -------
+    tuple of numpy.ndarray
+        ``shift``, ``offset`` and ``variance``, NaN on the warm-up rows.
+
+    Examples
+    --------
+    >>> shift, offset, var = window_frame([10.0, 12.0, 14.0], 2)
+    >>> (shift + offset)[1:], var[1:]
+    (array([11., 13.]), array([1., 1.]))
+    """
+    x, period = _prepare(values, period)
+    if len(x) < period:
+        return _empty(len(x)), _empty(len(x)), _empty(len(x))
+    shift, offset, var = _engine(x, period, "frame")
+    return shift, offset, var
+
+
+def window_deviation(
+    values: FloatArray,
+    period: int,
+    level: FloatArray | None = None,
+    sample: bool = False,
+) -> FloatArray:
+    """Root mean square deviation of each window about ``level`` (or its own mean).
+
+    ``sqrt(sum((x_i - m_t)^2) / D)`` over the last ``period`` values, with ``m_t``
+    the window mean (``level=None``) or ``level[t]``, and ``D = N`` or ``N - 1``
+    (``sample=True``). Uses ``sum((x_i - m)^2) = N var + N (mean - m)^2`` with the
+    difference ``mean - m`` taken in the block's local frame.
+
+    Parameters
+    ----------
+    values : array_like
+        Finite values, oldest first.
+    period : int
+        Window length in bars (at least 1; at least 2 with ``sample``).
+    level : array_like, optional
+        The centre on each bar (e.g. a moving average), aligned with ``values``.
+    sample : bool, default False
+        Divide by N - 1 instead of N.
+
+    Returns
+    -------
+    numpy.ndarray
+        Deviations aligned with ``values``; NaN on the warm-up rows and wherever
+        ``level`` is NaN.
+
+    Examples
+    --------
+    >>> window_deviation([2.0, 4.0, 4.0, 4.0, 5.0, 5.0, 7.0, 9.0], 8)[-1]
+    np.float64(2.0)
+    >>> window_deviation([1.0, 3.0], 2, level=[0.0, 0.0])[-1]
+    np.float64(2.23606797749979)
+    """
+    x = as_series(values)
+    period = check_period(period, minimum=2 if sample else 1)
+    lv = None
+    if level is not None:
+        lv = as_series(level, "level")
+        if len(lv) != len(x):
+            raise ValueError(f"level has {len(lv)} rows but values has {len(x)}")
+    if len(x) < period:
+        return _empty(len(x))
+    return _engine(x, period, "deviation", lv, sample)[0]
+
+
+def window_linear(values: FloatArray, period: int) -> FloatArray:
+    """Linearly weighted mean of the last ``period`` values (newest weight N, oldest 1).
+
+    Index-weighted running sums over the whole series lose digits at 1e6 bars of
+    prices near 1e7; here the weights are local positions inside a block and the
+    values are deviations from the block's shift, like the other window sums.
+
+    Parameters
+    ----------
+    values : array_like
+        Finite values, oldest first.
+    period : int
+        Window length in bars (at least 1).
+
+    Returns
+    -------
+    numpy.ndarray
+        Weighted means aligned with ``values``; NaN on the first ``period - 1`` rows.
+
+    Examples
+    --------
+    >>> window_linear([1.0, 2.0, 4.0], 2)
+    array([       nan, 1.66666667, 3.33333333])
+    """
+    x, period = _prepare(values, period)
+    if len(x) < period:
+        return _empty(len(x))
+    return _engine(x, period, "linear")[0]
+
+
+__all__ = [
+    "check_choice",
+    "check_period",
+    "window_deviation",
+    "window_frame",
+    "window_linear",
+    "window_mean",
+    "window_mean_var",
+    "window_sum",
+]

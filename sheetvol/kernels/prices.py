@@ -1,0 +1,65 @@
+"""Price basis of each bar: one price per bar from open, high, low and close."""
+
+from __future__ import annotations
+
+from sheetvol.kernels._gaps import as_series
+from sheetvol.kernels._types import FloatArray
+from sheetvol.kernels._windows import check_choice
+
+BASES = ("close", "open", "high", "low", "median", "typical", "weighted")
+
+
+def price_basis(
+    open: FloatArray,  # the trade's word and the registry's name, though it shadows open()
+    high: FloatArray,
+    low: FloatArray,
+    close: FloatArray,
+    basis: str = "typical",
+) -> FloatArray:
+    """One price per bar: close, open, high, low, median, typical or weighted close.
+
+    Parameters
+    ----------
+    open, high, low, close : array_like
+        Bar prices, oldest first, all the same length. Only the columns the basis
+        uses need values; a blank in one of those gives NaN on that row only.
+    basis : {"close", "open", "high", "low", "median", "typical", "weighted"}
+        ``"median"`` is (H+L)/2, ``"typical"`` (H+L+C)/3 and ``"weighted"``
+        (H+L+2C)/4.
+
+    Returns
+    -------
+    numpy.ndarray
+        The chosen price on each bar.
+
+    Examples
+    --------
+    >>> price_basis([9.0], [12.0], [8.0], [10.0], "typical")
+    array([10.])
+    >>> price_basis([9.0], [12.0], [8.0], [10.0], "weighted")
+    array([10.])
+    """
+    check_choice(basis, "basis", BASES)
+    o, h, lo, c = (as_series(a, name) for a, name in
+                   ((open, "open"), (high, "high"), (low, "low"), (close, "close")))
+    if not len(o) == len(h) == len(lo) == len(c):
+        raise ValueError(
+            f"price_basis: open, high, low and close have different lengths "
+            f"({len(o)}, {len(h)}, {len(lo)}, {len(c)})"
+        )
+    if basis == "close":
+        return c.copy()
+    if basis == "open":
+        return o.copy()
+    if basis == "high":
+        return h.copy()
+    if basis == "low":
+        return lo.copy()
+    if basis == "median":
+        return (h + lo) / 2.0
+    if basis == "typical":
+        return (h + lo + c) / 3.0
+    return (h + lo + 2.0 * c) / 4.0
+
+
+__all__ = ["BASES", "price_basis"]

@@ -1,0 +1,273 @@
+"""True range, average true range (ATR) and ATR as a fraction of the close.
+
+Conventions
+-----------
+* **True range** of a bar is the largest of ``high - low``, ``|high - previous
+  close|`` and ``|low - previous close|`` (Wilder, 1978). The first bar has no
+  previous close: with ``first_bar="high-low"`` (the default) its true range is
+  its own ``high - low``; with ``first_bar="blank"`` it is NaN. "blank" is the
+  convention of TA-Lib's ``TRANGE``.
+* **ATR** averages the true ranges over ``period`` bars. The default is Wilder
+  smoothing (an exponential average with ``alpha = 1/period``) seeded with the
+  simple average of the first ``period`` true ranges, so the first ATR appears
+  on bar ``period`` (row ``period - 1``). ``smoothing="exponential"`` uses
+  ``alpha = 2/(period+1)`` with the same seed; ``smoothing="simple"`` is the
+  plain rolling mean of the last ``period`` true ranges. ``seed="first"`` starts
+  the recursion at the first true range instead (see
+  :func:`sheetvol.kernels.averages.moving_average`).
+* TA-Lib's ``ATR`` leaves the first bar out (it has no previous close) and seeds
+  with the mean of true ranges 2..period+1; that is the convention of
+  ``first_bar="blank"`` here, whose first ATR is on row ``period`` (the values
+  agree with TA-Lib to about 1e-15 relative, the last bits of the recursion
+  aside). With the
+  default ``first_bar="high-low"`` the seed differs and the difference decays
+  by a factor ``1 - 1/period`` per bar.
+* **ATR percent** is ATR divided by the close of the same bar, returned as a
+  fraction (0.012 means 1.2 %; sheets format it as a percentage). A close of 0
+  gives NaN.
+* Gaps: a bar is skipped when its high, low or close is not finite (see
+  :mod:`sheetvol.kernels._gaps`); it is NaN in every output and the previous
+  close of the next usable bar is the close of the last usable bar.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import numpy.typing as npt
+
+from sheetvol.kernels._gaps import skip_gaps
+from sheetvol.kernels._types import FloatArray
+from sheetvol.kernels._windows import check_choice, check_period
+from sheetvol.kernels.averages import SEEDS, average_of
+
+__all__ = [
+    "atr_percent",
+    "average_true_range",
+    "average_true_range_of",
+    "true_range",
+    "true_range_of",
+]
+
+FIRST_BAR = ("high-low", "blank")
+SMOOTHING = ("wilder", "simple", "exponential")
+
+
+def true_range_of(
+    high: FloatArray, low: FloatArray, close: FloatArray, first_bar: str
+) -> FloatArray:
+    """:func:`true_range` on finite, aligned float arrays (no gap handling).
+
+    For kernels that already run inside ``skip_gaps``.
+
+    Parameters
+    ----------
+    high, low, close : numpy.ndarray
+        Finite float64 prices, oldest first.
+    first_bar : {"high-low", "blank"}
+        Already validated.
+
+    Returns
+    -------
+    numpy.ndarray
+        True range on each bar.
+
+    Examples
+    --------
+    >>> true_range_of(np.array([2.0, 5.0]), np.array([1.0, 4.0]), np.array([1.5, 4.5]),
+    ...               "high-low").tolist()
+    [1.0, 3.5]
+    """
+    n = len(high)
+    out = np.empty(n)
+    if n == 0:
+        return out
+    prev = close[:-1]
+    h, lo, tr = high[1:], low[1:], out[1:]
+    # In place, to keep 1e6-bar columns cheap: tr = max(H-L, |H-pC|, |L-pC|).
+    np.subtract(h, lo, out=tr)
+    part = np.subtract(h, prev)
+    np.abs(part, out=part)
+    np.maximum(tr, part, out=tr)
+    np.subtract(lo, prev, out=part)
+    np.abs(part, out=part)
+    np.maximum(tr, part, out=tr)
+    out[0] = high[0] - low[0] if first_bar == "high-low" else np.nan
+    return out
+
+
+_true_range = skip_gaps(3)(true_range_of)
+
+
+def true_range(
+    high: npt.ArrayLike,
+    low: npt.ArrayLike,
+    close: npt.ArrayLike,
+    first_bar: str = "high-low",
+) -> FloatArray:
+    """True range of each bar.
+
+    Parameters
+    ----------
+    high, low, close : array_like
+        Aligned price columns, oldest bar first.
+    first_bar : {"high-low", "blank"}, default "high-low"
+        The first bar has no previous close: use its ``high - low`` or give NaN.
+
+    Returns
+    -------
+    FloatArray
+        ``max(H - L, |H - previous C|, |L - previous C|)`` on each bar, in price
+        units; NaN on gap rows.
+
+    Examples
+    --------
+    The second bar gaps up above the first close, so ``|H - prev C|`` wins:
+
+    >>> true_range([10.0, 13.0], [9.0, 12.0], [9.5, 12.5]).tolist()
+    [1.0, 3.5]
+    >>> true_range([10.0, 13.0], [9.0, 12.0], [9.5, 12.5], first_bar="blank").tolist()
+    [nan, 3.5]
+    """
+    check_choice(first_bar, "first_bar", FIRST_BAR)
+    return _true_range(high, low, close, first_bar)
+
+
+def average_true_range_of(
+    high: FloatArray,
+    low: FloatArray,
+    close: FloatArray,
+    period: int,
+    smoothing: str = "wilder",
+    seed: str = "average",
+    first_bar: str = "high-low",
+) -> FloatArray:
+    """:func:`average_true_range` on finite arrays with checked options (no gap handling).
+
+    For kernels that already run inside ``skip_gaps`` (ATR bands, ratios).
+
+    Parameters
+    ----------
+    high, low, close : numpy.ndarray
+        Finite float64 prices, oldest first.
+    period : int
+        Already validated.
+    smoothing, seed, first_bar : str
+        Already validated.
+
+    Returns
+    -------
+    numpy.ndarray
+        ATR on each bar; NaN during the warm-up.
+
+    Examples
+    --------
+    >>> average_true_range_of(np.array([3.0, 3.0]), np.array([1.0, 1.0]),
+    ...                       np.array([2.0, 2.0]), 2).tolist()
+    [nan, 2.0]
+    """
+    tr = true_range_of(high, low, close, first_bar)
+    start = 0 if first_bar == "high-low" else 1
+    if start == 0:
+        return average_of(tr, period, smoothing, seed)
+    out = np.full(len(tr), np.nan)
+    if len(tr) > start:
+        out[start:] = average_of(tr[start:], period, smoothing, seed)
+    return out
+
+
+_average_true_range = skip_gaps(3)(average_true_range_of)
+
+
+def average_true_range(
+    high: npt.ArrayLike,
+    low: npt.ArrayLike,
+    close: npt.ArrayLike,
+    period: int = 14,
+    smoothing: str = "wilder",
+    seed: str = "average",
+    first_bar: str = "high-low",
+) -> FloatArray:
+    """Average true range.
+
+    Parameters
+    ----------
+    high, low, close : array_like
+        Aligned price columns, oldest bar first.
+    period : int, default 14
+        Bars averaged.
+    smoothing : {"wilder", "simple", "exponential"}, default "wilder"
+        Wilder smoothing (alpha = 1/period), a simple rolling mean, or an
+        exponential average (alpha = 2/(period+1)).
+    seed : {"average", "first"}, default "average"
+        How the recursive averages start: the simple mean of the first
+        ``period`` true ranges, or the first true range itself.
+    first_bar : {"high-low", "blank"}, default "high-low"
+        True range of the first bar (see :func:`true_range`). ``"blank"`` with
+        Wilder smoothing reproduces TA-Lib's ATR.
+
+    Returns
+    -------
+    FloatArray
+        ATR in price units; NaN until a full window of true ranges and on gap
+        rows.
+
+    Examples
+    --------
+    Three bars, each with a true range of 2, average to 2:
+
+    >>> average_true_range([11.0, 11.0, 11.0], [9.0, 9.0, 9.0], [10.0, 10.0, 10.0],
+    ...                    period=2).tolist()
+    [nan, 2.0, 2.0]
+    """
+    check_choice(smoothing, "smoothing", SMOOTHING)
+    check_choice(seed, "seed", SEEDS)
+    check_choice(first_bar, "first_bar", FIRST_BAR)
+    return _average_true_range(high, low, close, check_period(period), smoothing, seed, first_bar)
+
+
+def atr_percent(
+    high: npt.ArrayLike,
+    low: npt.ArrayLike,
+    close: npt.ArrayLike,
+    period: int = 14,
+    smoothing: str = "wilder",
+    seed: str = "average",
+    first_bar: str = "high-low",
+) -> FloatArray:
+    """Average true range as a fraction of the close.
+
+    Parameters
+    ----------
+    high, low, close : array_like
+        Aligned price columns, oldest bar first.
+    period, smoothing, seed, first_bar
+        As for :func:`average_true_range`.
+
+    Returns
+    -------
+    FloatArray
+        ``ATR / close`` as a fraction (0.012 = 1.2 %); NaN during the warm-up,
+        on gap rows and where the close is 0.
+
+    Examples
+    --------
+    >>> atr_percent([11.0, 11.0, 11.0], [9.0, 9.0, 9.0], [10.0, 10.0, 10.0],
+    ...             period=2).tolist()
+    [nan, 0.2, 0.2]
+    """
+    check_choice(smoothing, "smoothing", SMOOTHING)
+    check_choice(seed, "seed", SEEDS)
+    check_choice(first_bar, "first_bar", FIRST_BAR)
+    return _atr_percent(high, low, close, check_period(period), smoothing, seed, first_bar)
+
+
+@skip_gaps(3)
+def _atr_percent(
+    high: FloatArray, low: FloatArray, close: FloatArray,
+    period: int, smoothing: str, seed: str, first_bar: str,
+) -> FloatArray:
+    atr = average_true_range_of(high, low, close, period, smoothing, seed, first_bar)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        np.divide(atr, close, out=atr)
+    atr[close == 0] = np.nan
+    return atr

@@ -1,0 +1,285 @@
+"""Finding the price columns of an export by their headers.
+
+Exports put their header row anywhere near the top (often under a title and
+a blank line) and spell the columns in many ways: ``Close``, ``Close*``,
+``Close/Last``, ``Last Price``, ``<CLOSE>``, ``Closing price (USD)``... A
+header is normalised (lower case, units in brackets and decorations removed)
+and compared whole with a table of synonyms per role, so that one of our own
+headers such as ``Close vol 20 (ann.)`` is never taken for the close.
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+
+__all__ = [
+    "HEADER_SCAN_ROWS",
+    "HeaderMatch",
+    "LocateError",
+    "col_letter",
+    "col_number",
+    "find_header",
+    "normalize_header",
+    "resolve_column",
+    "role_of",
+]
+
+HEADER_SCAN_ROWS = 50
+"""How many rows from the top are searched for the header row."""
+
+# role -> synonyms, best first; the index is the preference when two columns
+# fit one role (e.g. "Close" beats "Adj Close", which beats "Price").
+SYNONYMS: dict[str, tuple[str, ...]] = {
+    "date": (
+        "date", "date time", "datetime", "date/time", "timestamp", "day",
+        "trade date", "trading date", "trading day", "session", "period", "as of",
+        "pricing date", "value date", "dt", "dtyyyymmdd", "local time", "gmt time", "utc time",
+    ),
+    # A separate time of day (intraday exports with Date and Time columns); a lone
+    # Time column holding full timestamps is taken as the date column.
+    "time": ("time", "time of day", "tm", "hour", "bar time"),
+    "open": ("open", "opening", "open price", "opening price", "o", "first", "px open", "px_open"),
+    "high": ("high", "high price", "day high", "daily high", "hi", "h", "max", "maximum",
+             "px high"),
+    "low": ("low", "low price", "day low", "daily low", "lo", "l", "min", "minimum", "px low"),
+    "close": (
+        "close", "closing", "close price", "closing price", "close/last", "last",
+        "last price", "c", "settle", "settlement", "settlement price", "px last",
+        "adj close", "adj. close", "adjusted close", "price",
+    ),
+    "volume": ("volume", "vol", "vol.", "v", "qty", "quantity", "shares", "contracts",
+               "tick volume", "tickvol"),
+}
+
+_SYNONYM_INDEX: dict[str, tuple[str, int]] = {}
+for _role, _names in SYNONYMS.items():
+    for _rank, _name in enumerate(_names):
+        _SYNONYM_INDEX.setdefault(_name, (_role, _rank))
+
+
+class LocateError(ValueError):
+    """The price columns cannot be found; the message lists what was found."""
+
+
+def normalize_header(text: object) -> str:
+    """Lower-case a header and strip decorations, units and separators.
+
+    Examples
+    --------
+    >>> normalize_header("  Close* (USD) ")
+    'close'
+    >>> normalize_header("<DATE>")
+    'date'
+    """
+    s = str(text).strip().lower()
+    s = re.sub(r"\([^)]*\)|\[[^\]]*\]", " ", s)  # units: "(USD)", "[EUR]"
+    s = s.replace("_", " ")
+    s = re.sub(r"[<>*\"':]", "", s)
+    s = re.sub(r"\s+", " ", s).strip()
+    return s.rstrip(".") if s not in _SYNONYM_INDEX else s
+
+
+def role_of(text: object) -> tuple[str, int] | None:
+    """The price role a header stands for and its preference rank, or None.
+
+    Examples
+    --------
+    >>> role_of("Adj Close")
+    ('close', 12)
+    >>> role_of("Close vol 20 (ann.)") is None
+    True
+    """
+    if not isinstance(text, str) or not text.strip():
+        return None
+    norm = normalize_header(text)
+    return _SYNONYM_INDEX.get(norm) or _SYNONYM_INDEX.get(norm.rstrip("."))
+
+
+@dataclass
+class HeaderMatch:
+    """Where the price columns are: the header row and a 1-based column per role."""
+
+    row: int
+    columns: dict[str, int]
+    headers: dict[int, str] = field(default_factory=dict)
+
+    def describe(self) -> str:
+        """``Date = A, Close = E`` for messages and the notes sheet."""
+        return ", ".join(
+            f"{role.capitalize()} = {col_letter(col)}"
+            for role, col in sorted(self.columns.items(), key=lambda kv: kv[1])
+        )
+
+
+def col_letter(col: int) -> str:
+    """1-based column number to letters.
+
+    Examples
+    --------
+    >>> col_letter(28)
+    'AB'
+    """
+    out = ""
+    while col > 0:
+        col, rem = divmod(col - 1, 26)
+        out = chr(65 + rem) + out
+    return out
+
+
+def col_number(letters: str) -> int:
+    """Column letters to a 1-based number.
+
+    Examples
+    --------
+    >>> col_number("ab")
+    28
+    """
+    n = 0
+    for ch in letters.strip().upper():
+        if not "A" <= ch <= "Z":
+            raise ValueError(f"{letters!r} is not a column letter")
+        n = n * 26 + ord(ch) - 64
+    return n
+
+
+def _text_cells(cells: Mapping[int, object]) -> dict[int, str]:
+    return {c: str(v).strip() for c, v in cells.items() if isinstance(v, str) and v.strip()}
+
+
+def _match_row(cells: Mapping[int, object]) -> dict[str, tuple[int, int]]:
+    """role -> (rank, column) for the best-ranked header of each role in one row."""
+    found: dict[str, tuple[int, int]] = {}
+    for col, text in sorted(_text_cells(cells).items()):
+        hit = role_of(text)
+        if hit is None:
+            continue
+        role, rank = hit
+        if role not in found or rank < found[role][0]:
+            found[role] = (rank, col)
+    return found
+
+
+def find_header(
+    rows: Mapping[int, Mapping[int, object]],
+    *,
+    header_row: int | None = None,
+    overrides: Mapping[str, str] | None = None,
+    where: str = "",
+) -> HeaderMatch:
+    """Find the header row and the column of each price role.
+
+    Parameters
+    ----------
+    rows : mapping
+        row -> column -> value for the top of a sheet (1-based).
+    header_row : int, optional
+        Use this row as the header row instead of searching.
+    overrides : mapping, optional
+        role -> header text or column letter given by the user.
+    where : str
+        ``file, sheet`` prefix for messages.
+
+    Returns
+    -------
+    HeaderMatch
+
+    Raises
+    ------
+    LocateError
+        When no row has a close column; the message lists the headers seen.
+
+    Examples
+    --------
+    >>> m = find_header({1: {1: "Prices"}, 3: {1: "Date", 2: "High", 3: "Low", 4: "Last"}})
+    >>> (m.row, m.columns["close"])
+    (3, 4)
+    """
+    overrides = {k: v for k, v in (overrides or {}).items() if v}
+    prefix = f"{where}: " if where else ""
+    if header_row is not None:
+        candidates = [header_row]
+    else:
+        candidates = sorted(r for r in rows if r <= HEADER_SCAN_ROWS)
+    best: tuple[int, int, dict[str, tuple[int, int]]] | None = None
+    for r in candidates:
+        found = _match_row(rows.get(r, {}))
+        score = len(found) + len(overrides)
+        if "close" not in found and "close" not in overrides:
+            continue
+        if best is None or score > best[1]:
+            best = (r, score, found)
+    if best is None:
+        if header_row is not None:
+            seen = _text_cells(rows.get(header_row, {}))
+            raise LocateError(
+                f"{prefix}row {header_row} has no Close column (headers there: "
+                f"{_list_headers(seen)}); name it with --close-col or pick another --header-row"
+            )
+        raise LocateError(
+            f"{prefix}no Close column found in the first {HEADER_SCAN_ROWS} rows "
+            f"(headers found: {_list_headers(_first_text_row(rows))}); name it with "
+            "--close-col (header text or column letter) and, if needed, --header-row"
+        )
+    row, _, found = best
+    header_cells = _text_cells(rows.get(row, {}))
+    columns = {role: col for role, (_, col) in found.items()}
+    for role, given in overrides.items():
+        columns[role] = resolve_column(given, header_cells, role=role, row=row, where=where)
+    if "time" in columns and "date" not in columns:
+        columns["date"] = columns.pop("time")
+    used: dict[int, str] = {}
+    for role, col in sorted(columns.items()):
+        if col in used:
+            raise LocateError(
+                f"{prefix}column {col_letter(col)} was taken as both {used[col]} and {role}; "
+                f"name the columns with --{used[col]}-col/--{role}-col"
+            )
+        used[col] = role
+    return HeaderMatch(row=row, columns=columns, headers=header_cells)
+
+
+def resolve_column(
+    given: str, header_cells: Mapping[int, str], *, role: str, row: int, where: str = ""
+) -> int:
+    """A user's column choice: header text (case-insensitive) first, else a column letter.
+
+    Examples
+    --------
+    >>> resolve_column("Last", {5: "Last"}, role="close", row=1)
+    5
+    >>> resolve_column("F", {5: "Last"}, role="close", row=1)
+    6
+    """
+    text = str(given).strip()
+    for col, header in header_cells.items():
+        if header.lower() == text.lower():
+            return col
+    if re.fullmatch(r"[A-Za-z]{1,3}", text) and col_number(text) <= 16384:
+        return col_number(text)
+    prefix = f"{where}: " if where else ""
+    raise LocateError(
+        f"{prefix}--{role}-col {text!r} is neither a header in row {row} "
+        f"({_list_headers(header_cells)}) nor a column letter"
+    )
+
+
+def _first_text_row(rows: Mapping[int, Mapping[int, object]]) -> dict[int, str]:
+    """The text cells of the row with the most text, to show the user what was seen."""
+    best: dict[int, str] = {}
+    for r in sorted(rows):
+        if r > HEADER_SCAN_ROWS:
+            break
+        cells = _text_cells(rows[r])
+        if len(cells) > len(best):
+            best = cells
+    return best
+
+
+def _list_headers(cells: Mapping[int, str]) -> str:
+    if not cells:
+        return "none"
+    shown = [f"{col_letter(c)} {t!r}" for c, t in sorted(cells.items())[:20]]
+    more = len(cells) - len(shown)
+    return ", ".join(shown) + (f" and {more} more" if more > 0 else "")

@@ -1,0 +1,485 @@
+"""Splicing new cells into the rows of a worksheet part, streaming.
+
+The sheet XML goes through in chunks of whole rows. Rows nobody edits are copied as
+they are (as slices of the input). An edited row keeps every cell element it had,
+byte for byte, except cells that an edit replaces; new cells are placed in column
+order and missing rows are created in row order.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from collections.abc import Callable, Iterator
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from sheetvol.workbook._sheetxml import (
+    _ATTR_R_CELL,
+    _ATTR_R_ROW,
+    Patterns,
+    cell_name,
+    col_index,
+    col_letters,
+    escape_text,
+)
+from sheetvol.workbook.errors import WorkbookError
+
+_SPANS = re.compile(rb"""\s+spans\s*=\s*(["'])[^"']*\1""")
+_T_ATTR = re.compile(rb"""\s+t\s*=\s*(["'])[^"']*\1""")
+_S_ATTR = re.compile(rb"""(?:^|\s)s\s*=\s*["'](\d+)["']""")
+_F_REF = re.compile(rb"""(?:^|\s)ref\s*=\s*["']([A-Z$]+\d+(?::[A-Z$]+\d+)?)["']""")
+_F_T = re.compile(rb"""(?:^|\s)t\s*=\s*["'](\w+)["']""")
+_INF = float("inf")
+MAX_COL = 16_384
+
+
+def number_text(value: float) -> str:
+    """Shortest text that reads back to the same double (``repr``), e.g. ``1850.25``."""
+    text = repr(value)
+    return text[:-2] if text.endswith(".0") else text
+
+
+def text_cell(ref: str, text: str, style: int | None, prefix: str = "") -> str:
+    """An inline-string cell; ``xml:space`` kept when the text has outer spaces."""
+    s = f' s="{style}"' if style else ""
+    space = ' xml:space="preserve"' if text != text.strip() or "\n" in text else ""
+    p = prefix
+    return (f'<{p}c r="{ref}"{s} t="inlineStr"><{p}is><{p}t{space}>{escape_text(text)}'
+            f"</{p}t></{p}is></{p}c>")
+
+
+def value_cell(ref: str, value: object, style: int | None, prefix: str = "") -> str | None:
+    """A cell for a Python value (None/NaN/inf give no cell)."""
+    from sheetvol.workbook.package import CellError
+
+    s = f' s="{style}"' if style else ""
+    p = prefix
+    if value is None:
+        return None
+    if isinstance(value, CellError):
+        return f'<{p}c r="{ref}"{s} t="e"><{p}v>{escape_text(str(value))}</{p}v></{p}c>'
+    if isinstance(value, (bool, np.bool_)):
+        return f'<{p}c r="{ref}"{s} t="b"><{p}v>{int(bool(value))}</{p}v></{p}c>'
+    if isinstance(value, (int, float, np.integer, np.floating)):
+        x = float(value)
+        if not math.isfinite(x):
+            return None
+        return f'<{p}c r="{ref}"{s}><{p}v>{number_text(x)}</{p}v></{p}c>'
+    return text_cell(ref, str(value), style, prefix)
+
+
+@dataclass
+class ColumnRun:
+    """Numbers for rows first_row.. of one column (NaN/inf -> no cell)."""
+
+    col: int
+    first_row: int
+    values: list[float]
+    style: int
+    letters: str = ""
+    replace_from: int | None = None  # drop existing cells of the column from this row down
+    must_be_empty: bool = False  # spill targets: an existing cell is an error
+    label: str = ""
+
+    def __post_init__(self) -> None:
+        self.letters = col_letters(self.col)
+
+    @property
+    def last_row(self) -> int:
+        return self.first_row + len(self.values) - 1
+
+
+@dataclass
+class SheetEdits:
+    """All edits of one sheet, in a form the row loop can use quickly."""
+
+    file: str
+    sheet: str
+    runs: list[ColumnRun] = field(default_factory=list)
+    # single new cells (headers): (row, col) -> (xml text, replace allowed)
+    points: dict[tuple[int, int], tuple[str, bool]] = field(default_factory=dict)
+    # changes to an existing cell: (row, col) -> function(existing match or None) -> xml
+    modifiers: dict[tuple[int, int], Callable[[re.Match[bytes] | None], bytes | None]] = field(
+        default_factory=dict)
+    # drop ranges: (col, from_row, to_row) with existing cells removed silently
+    drops: list[tuple[int, int, float]] = field(default_factory=list)
+    # guarded ranges: (col, from_row, to_row, label); existing cells are an error
+    guards: list[tuple[int, int, int, str]] = field(default_factory=list)
+    prefix: str = ""
+    # called when a spill anchor reveals an older, longer spill whose cells must go
+    on_change: Callable[[], None] = lambda: None
+
+    def claim(self, row: int, col: int, what: str) -> None:
+        """Refuse two edits aimed at the same cell."""
+        key = (row, col)
+        if key in self.points or key in self.modifiers or any(
+            run.col == col and run.first_row <= row <= run.last_row for run in self.runs
+        ):
+            raise WorkbookError(f"{self.file}: sheet {self.sheet!r} cell {cell_name(row, col)} "
+                                f"is written twice ({what}); give each result its own cell.")
+
+    def rows_needed(self) -> list[int]:
+        """Sorted rows that get new or changed cells."""
+        parts = [np.array(sorted({r for r, _ in self.points} | {r for r, _ in self.modifiers}),
+                          dtype=np.int64)]
+        for run in self.runs:
+            vals = np.asarray(run.values, dtype=np.float64)
+            parts.append(np.flatnonzero(np.isfinite(vals)) + run.first_row)
+        return np.unique(np.concatenate(parts)).tolist() if parts else []
+
+    def extent(self) -> tuple[int, int, int, int] | None:
+        """(top, left, bottom, right) of everything written, or None."""
+        cells = [(r, c) for r, c in self.points] + [(r, c) for r, c in self.modifiers]
+        for run in self.runs:
+            if run.values:
+                cells += [(run.first_row, run.col), (run.last_row, run.col)]
+        if not cells:
+            return None
+        rows = [r for r, _ in cells]
+        cols = [c for _, c in cells]
+        return min(rows), min(cols), max(rows), max(cols)
+
+
+_DELIM = frozenset(b" \t\r\n>/")
+BLOCK = 1 << 16
+
+
+class RowEditor:
+    """Applies :class:`SheetEdits` to the body chunks of a sheet.
+
+    The text of new number cells is made a block of rows at a time with one list
+    comprehension per column (the hot loop of a million-row fill); rows are found with
+    ``bytes.find``, and a row whose existing cells all lie left of the new ones gets
+    them appended without being parsed.
+    """
+
+    def __init__(self, edits: SheetEdits, pat: Patterns) -> None:
+        self.e = edits
+        self.pat = pat
+        self.p = pat.prefix.decode()
+        self.need = edits.rows_needed()
+        self.ni = 0
+        self.rows_done = 0
+        self.by_row_points: dict[int, list[tuple[int, str, bool]]] = {}
+        for (r, c), (xml, repl) in edits.points.items():
+            self.by_row_points.setdefault(r, []).append((c, xml, repl))
+        self.by_row_mods: dict[int, dict[int, Callable]] = {}
+        for (r, c), fn in edits.modifiers.items():
+            self.by_row_mods.setdefault(r, {})[c] = fn
+        self.special = set(self.by_row_points) | set(self.by_row_mods)
+        self._blk_lo = self._blk_hi = 0
+        self._blk: list[str] = []
+        self._run_min = min((run.col for run in edits.runs), default=MAX_COL)
+        self._last_cell = re.compile(rb"<" + re.escape(pat.prefix) + rb'c r="([A-Z]{1,3})\d')
+        self._refresh_ranges()
+
+    def _refresh_ranges(self) -> None:
+        e = self.e
+        ranges = [(c, a, b) for c, a, b in e.drops]
+        ranges += [(c, a, b) for c, a, b, _ in e.guards]
+        ranges += [(run.col, run.replace_from, _INF) for run in e.runs
+                   if run.replace_from is not None]
+        self.check_from = min((a for _, a, _ in ranges), default=_INF)
+        self.check_to = max((b for _, _, b in ranges), default=0)
+        self.ranges = ranges
+        self._seg = (1, 0)  # cached _active() result valid for rows seg[0]..seg[1]
+        self._seg_act: dict[int, bool] = {}
+
+    # -- new cells ---------------------------------------------------------------------
+    def _block(self, r: int) -> list[str]:
+        """Text of the new number cells for rows in the current block (one str per row)."""
+        if self._blk_lo <= r < self._blk_hi:
+            return self._blk
+        lo, hi = r, r + BLOCK
+        p = self.p
+        lists = []
+        for run in sorted(self.e.runs, key=lambda x: x.col):
+            a, b = max(lo, run.first_row), min(hi, run.last_row + 1)
+            if a >= b:
+                continue
+            s = f' s="{run.style}"' if run.style else ""
+            pre, mid, post = f'<{p}c r="{run.letters}', f'"{s}><{p}v>', f"</{p}v></{p}c>"
+            vals = run.values[a - run.first_row : b - run.first_row]
+            # v - v == 0 is False for NaN and +-inf: no cell
+            strs = [f"{pre}{i}{mid}{v!r}{post}" if v - v == 0 else ""
+                    for i, v in zip(range(a, b), vals, strict=True)]
+            lists.append([""] * (a - lo) + strs + [""] * (hi - b))
+        if not lists:
+            blk = [""] * (hi - lo)
+        elif len(lists) == 1:
+            blk = lists[0]
+        else:
+            blk = ["".join(t) for t in zip(*lists, strict=True)]
+        self._blk_lo, self._blk_hi, self._blk = lo, hi, blk
+        return blk
+
+    def new_cells(self, r: int) -> dict[int, tuple[str, bool]]:
+        """New cells of row r: col -> (xml, replacing allowed)."""
+        out: dict[int, tuple[str, bool]] = {}
+        p = self.p
+        for run in self.e.runs:
+            i = r - run.first_row
+            if 0 <= i < len(run.values):
+                v = run.values[i]
+                if v - v == 0:
+                    s = f' s="{run.style}"' if run.style else ""
+                    out[run.col] = (f'<{p}c r="{run.letters}{r}"{s}><{p}v>{v!r}'
+                                    f"</{p}v></{p}c>", run.replace_from is not None)
+        for c, xml, repl in self.by_row_points.get(r, ()):
+            out[c] = (xml, repl)
+        return out
+
+    def _new_row(self, r: int) -> bytes:
+        cells = self.new_cells(r)
+        for c, fn in self.by_row_mods.get(r, {}).items():
+            got = fn(None)
+            if got:
+                cells[c] = (got.decode(), True)
+        p = self.p
+        body = "".join(cells[c][0] for c in sorted(cells))
+        return f'<{p}row r="{r}">{body}</{p}row>'.encode()
+
+    # -- the loop ----------------------------------------------------------------------
+    def process(self, chunks: Iterator[bytes],
+                progress: Callable[[int], None] | None = None) -> Iterator[bytes]:
+        """Yield the edited body, chunk by chunk."""
+        rs, rend = self.pat.row_start, self.pat.row_end
+        rsl, rel = len(rs), len(rend)
+        need = self.need
+        n_need = len(need)
+        special = self.special
+        r = 0
+        for chunk in chunks:
+            out: list[bytes] = []
+            pos = 0
+            scan = 0
+            while True:
+                s = chunk.find(rs, scan)
+                if s < 0:
+                    break
+                if chunk[s + rsl] not in _DELIM:  # not a <row> tag
+                    scan = s + rsl
+                    continue
+                gt = chunk.find(b">", s)
+                if chunk[gt - 1] == 47:  # "/>": an empty row
+                    attrs = chunk[s + rsl : gt - 1]
+                    inner_s = inner_e = gt
+                    end = gt + 1
+                else:
+                    attrs = chunk[s + rsl : gt]
+                    inner_s = gt + 1
+                    inner_e = chunk.find(rend, inner_s)
+                    if inner_e < 0:
+                        raise WorkbookError(f"{self.e.file}: a row of sheet {self.e.sheet!r} "
+                                            "is not closed; the file is damaged.")
+                    end = inner_e + rel
+                scan = end
+                mr = _ATTR_R_ROW.search(attrs)
+                r = int(mr[1]) if mr else r + 1
+                ni = self.ni
+                if ni < n_need and need[ni] < r:
+                    out.append(chunk[pos:s])
+                    pos = s
+                    while ni < n_need and need[ni] < r:
+                        out.append(self._new_row(need[ni]))
+                        ni += 1
+                has_new = ni < n_need and need[ni] == r
+                if has_new:
+                    ni += 1
+                self.ni = ni
+                if not has_new and not (self.check_from <= r <= self.check_to):
+                    continue
+                edited = self.edit_row(r, attrs, chunk[inner_s:inner_e], has_new,
+                                       r in special)
+                if edited is not None:
+                    out.append(chunk[pos:s])
+                    out.append(edited)
+                    pos = end
+            out.append(chunk[pos:])
+            if progress is not None and r > self.rows_done:
+                progress(r - self.rows_done)
+                self.rows_done = r
+            yield b"".join(out)
+        rest = [self._new_row(row) for row in need[self.ni :]]
+        self.ni = n_need
+        if rest:
+            yield b"".join(rest)
+
+    def _active(self, r: int) -> dict[int, bool]:
+        """Columns whose existing cells go at row r: col -> True if that is an error."""
+        lo, hi = self._seg
+        if lo <= r <= hi:
+            return self._seg_act
+        act: dict[int, bool] = {}
+        for c, a, b in self.e.drops:
+            if a <= r <= b:
+                act[c] = False
+        for run in self.e.runs:
+            if run.replace_from is not None and r >= run.replace_from:
+                act.setdefault(run.col, False)
+        for c, a, b, _ in self.e.guards:
+            if a <= r <= b:
+                act.setdefault(c, True)
+        # the same answer holds until the next range starts or ends
+        starts = [a for _, a, _ in self.ranges if a > r]
+        ends = [b for _, a, b in self.ranges if a <= r <= b]
+        nxt = min([*starts, *ends, _INF])
+        prev = max([a for _, a, b in self.ranges if a <= r] + [b + 1 for _, _, b in self.ranges
+                                                               if b < r] + [1])
+        self._seg = (prev, nxt if nxt in ends else nxt - 1)
+        self._seg_act = act
+        return act
+
+    def _last_col(self, inner: bytes) -> int | None:
+        start = self.pat.cell_start
+        pos = len(inner)
+        while True:
+            pos = inner.rfind(start, 0, pos)
+            if pos < 0:
+                return 0
+            nxt = inner[pos + len(start) : pos + len(start) + 1]
+            if nxt == b" ":
+                m = self._last_cell.match(inner, pos)
+                if m:
+                    return col_index(m[1])
+            if nxt in (b" ", b"\t", b"\n", b"\r"):
+                end = inner.find(b">", pos)
+                m = _ATTR_R_CELL.search(inner, pos, end)
+                return col_index(m[1]) if m else None
+            if nxt in (b">", b"/"):
+                return None
+
+    def edit_row(self, r: int, attrs: bytes, inner: bytes, has_new: bool,
+                 special: bool = True) -> bytes | None:
+        """The new bytes of row r, or None when it stays as it is."""
+        act = self._active(r)
+        start = _SPANS.sub(b"", attrs) if b"spans" in attrs else attrs
+        row_open = b"<" + self.pat.prefix + b"row" + start + b">"
+        if not special:
+            # Common case: only number cells of column runs, right of every existing cell.
+            last = self._last_col(inner) if inner else 0
+            if last is not None and last < min(self._run_min, min(act, default=MAX_COL)):
+                if not has_new:
+                    return None
+                tail = self._block(r)[r - self._blk_lo]
+                return row_open + inner + tail.encode() + self.pat.row_end
+        return self._edit_row_slow(r, row_open, inner, has_new, act)
+
+    def _edit_row_slow(self, r: int, row_open: bytes, inner: bytes, has_new: bool,
+                       act: dict[int, bool]) -> bytes | None:
+        new = self.new_cells(r) if has_new else {}
+        mods = dict(self.by_row_mods.get(r, {}))
+        if not new and not mods and not act:
+            return None
+        touched = set(new) | set(mods) | set(act)
+        last = self._last_col(inner) if inner else 0
+        if last is not None and last < min(touched):
+            # everything new goes after the existing cells
+            if not new and not mods:
+                return None
+            for c, fn in mods.items():
+                got = fn(None)
+                if got:
+                    new[c] = (got.decode(), True)
+            tail = "".join(new[c][0] for c in sorted(new)).encode()
+            return row_open + inner + tail + self.pat.row_end
+        cells: list[tuple[int, bytes]] = []
+        c = 0
+        for cm in self.pat.cell.finditer(inner):
+            cattrs = cm[1]
+            mc = _ATTR_R_CELL.search(cattrs)
+            if mc:
+                c = col_index(mc[1])
+                raw = cm[0]
+            else:
+                # keep the position explicit, since new cells may now precede this one
+                c += 1
+                raw = (b"<" + self.pat.prefix + b'c r="' + col_letters(c).encode()
+                       + str(r).encode() + b'"' + cm[0][len(self.pat.cell_start):])
+            if c in mods:
+                got = mods.pop(c)(cm)
+                if got:
+                    cells.append((c, got))
+                continue
+            if c in act and c not in new:
+                if act[c]:
+                    self._guard_error(r, c)
+                continue
+            if c in new:
+                if act.get(c):
+                    self._guard_error(r, c)
+                if not new[c][1] and c not in act:
+                    raise WorkbookError(
+                        f"{self.e.file}: sheet {self.e.sheet!r} cell {cell_name(r, c)} already "
+                        "holds a value; choose an empty column or allow replacing.")
+                continue
+            cells.append((c, raw))
+        for c, fn in mods.items():
+            got = fn(None)
+            if got:
+                cells.append((c, got))
+        for c, (xml, _) in new.items():
+            cells.append((c, xml.encode()))
+        cells.sort(key=lambda item: item[0])
+        body = b"".join(x for _, x in cells)
+        return row_open + body + self.pat.row_end
+
+    def _guard_error(self, r: int, c: int) -> None:
+        label = next((lab for col, a, b, lab in self.e.guards if col == c and a <= r <= b), "")
+        raise WorkbookError(
+            f"{self.e.file}: sheet {self.e.sheet!r} cell {cell_name(r, c)} is not empty, so the "
+            f"result of {label} cannot spill into it; clear the cells below the formula.")
+
+
+def formula_result_cell(cm: re.Match[bytes] | None, pat: Patterns, value: object,
+                        where: str) -> bytes:
+    """An existing formula cell with its stored result replaced (the ``<f>`` kept)."""
+    from sheetvol.workbook.package import CellError
+
+    if cm is None or not cm[3] or pat.f.search(cm[3]) is None:
+        raise WorkbookError(f"{where} holds no formula, so no result can be stored in it.")
+    fm = pat.f.search(cm[3])
+    attrs = _T_ATTR.sub(b"", cm[1])
+    p = pat.prefix
+    t = b""
+    v = b""
+    if isinstance(value, CellError):
+        t, v = b' t="e"', escape_text(str(value)).encode()
+    elif isinstance(value, (bool, np.bool_)):
+        t, v = b' t="b"', b"1" if value else b"0"
+    elif isinstance(value, (int, float, np.integer, np.floating)):
+        x = float(value)
+        if math.isfinite(x):
+            v = number_text(x).encode()
+    elif value is not None:
+        t, v = b' t="str"', escape_text(str(value)).encode()
+    vxml = b"<" + p + b"v>" + v + b"</" + p + b"v>" if v or t else b""
+    return b"<" + p + b"c" + attrs + t + b">" + fm[0] + vxml + b"</" + p + b"c>"
+
+
+def array_anchor_cell(cm: re.Match[bytes] | None, pat: Patterns, ref: str, formula: str,
+                      first: float, style: int | None) -> tuple[bytes, str | None]:
+    """The anchor of a spilled column, and the old array ``ref`` if it had one."""
+    p = pat.prefix
+    old_ref = None
+    keep_style = b""
+    if cm is not None:
+        fm = pat.f.search(cm[3] or b"")
+        if fm is not None:
+            ft = _F_T.search(fm[1])
+            mref = _F_REF.search(fm[1])
+            if ft and ft[1] == b"array" and mref:
+                old_ref = mref[1].decode().replace("$", "")
+        ms = _S_ATTR.search(cm[1])
+        if ms:
+            keep_style = b' s="' + ms[1] + b'"'
+    s = f' s="{style}"'.encode() if style else keep_style
+    v = b""
+    if isinstance(first, float) and math.isfinite(first):
+        v = b"<" + p + b"v>" + number_text(first).encode() + b"</" + p + b"v>"
+    cellref = ref.split(":")[0].encode()
+    return (b"<" + p + b'c r="' + cellref + b'"' + s + b"><" + p + b'f t="array" ref="'
+            + ref.encode() + b'">' + escape_text(formula).encode() + b"</" + p + b"f>" + v
+            + b"</" + p + b"c>"), old_ref

@@ -1,0 +1,291 @@
+"""Scanning worksheet XML as bytes: rows, cells and their values.
+
+A 1,048,576-row sheet is a few hundred MB of XML; a tree parser (or openpyxl) needs
+minutes and gigabytes for it. The grammar of ``<sheetData>`` is small and regular, so
+it is scanned with regular expressions over bytes, chunk by chunk:
+
+- attributes may come in any order and with either quote;
+- rows and cells may be self-closing, and may omit ``r`` (position then implied);
+- the namespace prefix of the main namespace is taken from the ``<sheetData>`` tag,
+  so ``<x:c>`` sheets are read as well as the usual unprefixed ones.
+
+Text never contains a raw ``<``, so element starts found by the patterns are real.
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Iterator
+from functools import lru_cache
+from typing import IO
+
+from sheetvol.workbook._safety import check_prolog
+from sheetvol.workbook.errors import WorkbookError
+
+CHUNK = 1 << 23
+
+_SHEETDATA = re.compile(rb"<([A-Za-z_][\w.\-]*:)?sheetData(?=[\s>/])[^>]*?(/?)>")
+_ATTR_R_ROW = re.compile(rb"""(?:^|\s)r\s*=\s*["'](\d+)["']""")
+_ATTR_R_CELL = re.compile(rb"""(?:^|\s)r\s*=\s*["']([A-Z]{1,3})(\d+)["']""")
+_ATTR_T = re.compile(rb"""(?:^|\s)t\s*=\s*["'](\w+)["']""")
+_ATTR_S = re.compile(rb"""(?:^|\s)s\s*=\s*["'](\d+)["']""")
+_ENTITY = re.compile(r"&(#x[0-9A-Fa-f]+|#\d+|amp|lt|gt|quot|apos);")
+_XESC = re.compile(r"_x([0-9A-Fa-f]{4})_")
+_NAMED = {"amp": "&", "lt": "<", "gt": ">", "quot": '"', "apos": "'"}
+
+
+class Patterns:
+    """Compiled patterns for one namespace prefix (``b""`` or e.g. ``b"x:"``)."""
+
+    def __init__(self, prefix: bytes) -> None:
+        p = re.escape(prefix)
+        self.prefix = prefix
+        self.row = re.compile(rb"<" + p + rb"row(?=[\s>/])([^>]*?)(/>|>(.*?)</" + p + rb"row>)",
+                              re.S)
+        self.cell = re.compile(rb"<" + p + rb"c(?=[\s>/])([^>]*?)(/>|>(.*?)</" + p + rb"c>)",
+                               re.S)
+        self.v = re.compile(rb"<" + p + rb"v(?:\s[^>]*)?>([^<]*)</" + p + rb"v>")
+        self.f = re.compile(rb"<" + p + rb"f(?=[\s>/])([^>]*?)(?:/>|>([^<]*)</" + p + rb"f>)")
+        self.t = re.compile(rb"<" + p + rb"t(?:\s[^>]*)?>([^<]*)</" + p + rb"t>")
+        self.rph = re.compile(rb"<" + p + rb"rPh(?=[\s>/]).*?</" + p + rb"rPh>", re.S)
+        # cells whose first attribute is r, as every common producer writes them
+        self.cell_rfirst = re.compile(rb"<" + p + rb'c r="([A-Z]{1,3})(\d+)"([^>]*?)(?:/>|>(.*?)</'
+                                      + p + rb"c>)", re.S)
+        self.cell_starts = tuple(b"<" + prefix + b"c" + d for d in (b" ", b">", b"/", b"\t",
+                                                                      b"\n", b"\r"))
+        self.row_start = b"<" + prefix + b"row"
+        self.cell_start = b"<" + prefix + b"c"
+        self.row_end = b"</" + prefix + b"row>"
+        self.sheetdata_end = b"</" + prefix + b"sheetData>"
+
+
+@lru_cache(maxsize=8)
+def patterns(prefix: bytes) -> Patterns:
+    """Cached :class:`Patterns` for ``prefix``."""
+    return Patterns(prefix)
+
+
+_COLS: dict[bytes, int] = {}
+
+
+def col_index(letters: bytes) -> int:
+    """1-based column number of column letters (``b"A"`` -> 1, ``b"AA"`` -> 27)."""
+    n = _COLS.get(letters)
+    if n is None:
+        n = 0
+        for ch in letters:
+            n = n * 26 + ch - 64
+        _COLS[letters] = n
+    return n
+
+
+def col_letters(col: int) -> str:
+    """Column letters of a 1-based column number (1 -> ``"A"``)."""
+    if not 1 <= col <= 16384:
+        raise ValueError(f"column {col} is outside 1..16384")
+    out = ""
+    while col:
+        col, rem = divmod(col - 1, 26)
+        out = chr(65 + rem) + out
+    return out
+
+
+def cell_name(row: int, col: int) -> str:
+    """A1-style name of a cell."""
+    return f"{col_letters(col)}{row}"
+
+
+def parse_ref(ref: str) -> tuple[int, int, int, int]:
+    """``"A1:F300"`` -> (top, left, bottom, right); a single cell gives a 1x1 block."""
+    m = re.fullmatch(r"\$?([A-Z]{1,3})\$?(\d+)(?::\$?([A-Z]{1,3})\$?(\d+))?", ref.strip().upper())
+    if not m:
+        raise ValueError(f"not a cell range: {ref!r}")
+    left, top = col_index(m[1].encode()), int(m[2])
+    right, bottom = (col_index(m[3].encode()), int(m[4])) if m[3] else (left, top)
+    return min(top, bottom), min(left, right), max(top, bottom), max(left, right)
+
+
+def unescape(raw: bytes) -> str:
+    """Text of XML character data: entity references and ``_xHHHH_`` escapes decoded."""
+    text = raw.decode("utf-8")
+    if "&" in text:
+        text = _ENTITY.sub(_entity, text)
+    if "_x" in text:
+        text = _XESC.sub(lambda m: chr(int(m[1], 16)), text)
+    return text
+
+
+def _entity(m: re.Match[str]) -> str:
+    body = m[1]
+    if body[0] == "#":
+        return chr(int(body[2:], 16) if body[1] in "xX" else int(body[1:]))
+    return _NAMED[body]
+
+
+def escape_text(text: str) -> str:
+    """Escape text for XML character data or a double-quoted attribute."""
+    text = (text.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
+            .replace('"', "&quot;"))
+    # Control characters are not allowed raw in XML 1.0; OOXML spells them _xHHHH_.
+    if any(ord(ch) < 32 and ch not in "\t\n" for ch in text):
+        text = "".join(f"_x{ord(ch):04X}_" if ord(ch) < 32 and ch not in "\t\n" else ch
+                       for ch in text)
+    return text
+
+
+class SheetStream:
+    """A worksheet part read in chunks: ``head``, then body chunks of whole rows, then ``tail``.
+
+    ``head`` ends with the ``<sheetData>`` start tag (or the self-closing one); the body
+    chunks hold whole ``<row>`` elements (and any whitespace between them); ``tail``
+    starts with ``</sheetData>`` and is complete once :meth:`body` is exhausted.
+    """
+
+    def __init__(self, fh: IO[bytes], part: str, name: str, chunk: int = CHUNK) -> None:
+        self.fh = fh
+        self.part = part
+        self.name = name
+        self.chunk = chunk
+        buf = b""
+        while True:
+            data = fh.read(chunk)
+            buf += data
+            m = _SHEETDATA.search(buf)
+            if m or not data:
+                break
+        check_prolog(buf[:4096], part, name)
+        if not m:
+            raise WorkbookError(f"{name}: part {part} has no <sheetData>; it is not a worksheet.")
+        self.prefix = m[1] or b""
+        self.pat = patterns(self.prefix)
+        self.head = buf[: m.end()]
+        self.empty = m[2] == b"/"
+        self._rest = buf[m.end():]
+        self.tail = b""
+
+    def body(self) -> Iterator[bytes]:
+        """Yield chunks of complete rows; sets :attr:`tail` at the end."""
+        if self.empty:
+            self.tail = self._rest + self.fh.read()
+            return
+        buf = self._rest
+        self._rest = b""
+        end_tag = self.pat.sheetdata_end
+        start = self.pat.row_start
+        eof = False
+        while True:
+            end = buf.find(end_tag)
+            if end >= 0:
+                if end:
+                    yield buf[:end]
+                self.tail = buf[end:] + self.fh.read()
+                return
+            if eof:
+                raise WorkbookError(
+                    f"{self.name}: part {self.part} ends inside <sheetData>; the file is damaged."
+                )
+            cut = _last_row_start(buf, start)
+            if cut > 0:
+                yield buf[:cut]
+                buf = buf[cut:]
+            data = self.fh.read(self.chunk)
+            if not data:
+                eof = True
+            buf += data
+
+
+def _last_row_start(buf: bytes, start: bytes) -> int:
+    """Offset of the last ``<row`` start tag in ``buf`` (0 when none beyond the start)."""
+    pos = len(buf)
+    while True:
+        pos = buf.rfind(start, 0, pos)
+        if pos <= 0:
+            return 0
+        nxt = buf[pos + len(start) : pos + len(start) + 1]
+        if nxt in (b" ", b">", b"/", b"\t", b"\n", b"\r"):
+            return pos
+        if not nxt:  # tag cut at the end of the buffer: wait for more data
+            continue
+
+
+class CellReader:
+    """Turns cell elements into Python values."""
+
+    def __init__(self, pat: Patterns, shared: list[str] | None) -> None:
+        self.pat = pat
+        self.shared = shared
+
+    def value(self, attrs: bytes, inner: bytes | None) -> object:
+        """Value of one cell: float, str, bool, CellError or None."""
+        from sheetvol.workbook.package import CellError
+
+        if not inner:
+            return None
+        m = _ATTR_T.search(attrs) if b"t" in attrs else None
+        t = m[1] if m else b"n"
+        if t == b"inlineStr":
+            return self.inline_text(inner)
+        mv = self.pat.v.search(inner)
+        if mv is None:
+            return None
+        raw = mv[1]
+        if t == b"n":
+            try:
+                return float(raw)
+            except ValueError:
+                return None
+        if t == b"s":
+            try:
+                return self.shared[int(raw)] if self.shared is not None else None
+            except (ValueError, IndexError):
+                return None
+        if t == b"str":
+            return unescape(raw)
+        if t == b"b":
+            return raw.strip() in (b"1", b"true")
+        if t == b"e":
+            return CellError(unescape(raw))
+        return unescape(raw)  # t="d" (ISO date text) and anything unknown: as text
+
+    def inline_text(self, inner: bytes) -> str:
+        """Text of an ``<is>`` inline string (phonetic runs left out)."""
+        if b"rPh" in inner:
+            inner = self.pat.rph.sub(b"", inner)
+        return "".join(unescape(t) for t in self.pat.t.findall(inner))
+
+    def formula(self, inner: bytes | None) -> tuple[bytes, str | None, dict[str, str]] | None:
+        """(attrs, text or None, parsed attrs) of the ``<f>`` of a cell, or None."""
+        if not inner or b"f" not in inner:
+            return None
+        m = self.pat.f.search(inner)
+        if m is None:
+            return None
+        attrs = {k.decode(): unescape(v) for k, _q, v in _ATTRS.findall(m[1])}
+        return m[1], (unescape(m[2]) if m[2] is not None else None), attrs
+
+
+_ATTRS = re.compile(rb"""([\w:.\-]+)\s*=\s*(["'])(.*?)\2""", re.S)
+
+
+def iter_cells(
+    stream: SheetStream, max_row: int | None = None
+) -> Iterator[tuple[int, int, bytes, bytes | None]]:
+    """Yield (row, col, attrs, inner) for each cell, with implied positions filled in."""
+    pat = stream.pat
+    row_re, cell_re = pat.row, pat.cell
+    r = 0
+    for chunk in stream.body():
+        for rm in row_re.finditer(chunk):
+            mr = _ATTR_R_ROW.search(rm[1])
+            r = int(mr[1]) if mr else r + 1
+            if max_row is not None and r > max_row:
+                return
+            inner = rm[3]
+            if not inner:
+                continue
+            c = 0
+            for cm in cell_re.finditer(inner):
+                attrs = cm[1]
+                mc = _ATTR_R_CELL.search(attrs)
+                c = col_index(mc[1]) if mc else c + 1
+                yield r, c, attrs, cm[3]

@@ -1,0 +1,85 @@
+"""What the fill asks the writer to put into a workbook.
+
+These are plain records; :func:`sheetvol.workbook.writer.write_package` applies them to
+a copy of the package. Rows and columns are 1-based, as on screen.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+
+@dataclass
+class NewColumn:
+    """A computed column: a header cell and a run of numbers below it.
+
+    ``values[i]`` goes to row ``first_row + i``; NaN leaves the cell blank (no cell).
+    With ``replace`` any cell already in column ``col`` from ``header_row`` down is
+    dropped first, so a second fill replaces the first one's output.
+    """
+
+    sheet: str
+    col: int
+    header_row: int
+    header: str
+    first_row: int
+    values: np.ndarray
+    number_format: str
+    width: float | None = None
+    replace: bool = True
+
+
+@dataclass
+class CellResult:
+    """A stored result for an existing formula cell; the formula itself is kept."""
+
+    sheet: str
+    row: int
+    col: int
+    value: float | str | None
+
+
+@dataclass
+class SpillResult:
+    """A column result of a typed formula, stored as a classic array formula.
+
+    The anchor cell keeps ``formula`` as ``<f t="array" ref=...>`` and the values fill
+    the cells from (row, col) downwards; NaN gives a blank.
+    """
+
+    sheet: str
+    row: int
+    col: int
+    formula: str
+    values: np.ndarray
+    number_format: str | None = None
+
+
+@dataclass
+class NewSheet:
+    """A sheet written by sheetvol (e.g. the notes); replaces an earlier one of that name."""
+
+    name: str
+    rows: list[list[object]]
+    widths: list[float] | None = None
+
+
+@dataclass
+class LineChart:
+    """A native line chart of columns of ``sheet``, placed on ``anchor_sheet``."""
+
+    sheet: str
+    title: str
+    x_col: int
+    series_cols: list[int]
+    first_row: int
+    last_row: int
+    anchor_sheet: str
+    anchor_cell: str
+
+
+Edit = NewColumn | CellResult | SpillResult | NewSheet | LineChart
+
+__all__ = ["CellResult", "Edit", "LineChart", "NewColumn", "NewSheet", "SpillResult"]

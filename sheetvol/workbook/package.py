@@ -1,0 +1,563 @@
+"""Opening an .xlsx/.xlsm package safely and reading cells from it.
+
+``Package.open`` checks the file (encrypted, not a zip, zip-bomb sizes, entity tricks)
+and reads the workbook part: sheet names and parts, the 1904 date flag, macros.
+Cells are read by scanning the sheet XML as bytes (see ``_sheetxml``), which is fast
+enough for the largest sheets; nothing here ever opens or runs a macro.
+"""
+
+from __future__ import annotations
+
+import posixpath
+import re
+import zipfile
+from dataclasses import dataclass, field
+from pathlib import Path
+from xml.etree.ElementTree import Element
+
+import numpy as np
+
+from sheetvol.workbook import _safety
+from sheetvol.workbook._safety import Limits, local, parse_xml, read_part
+from sheetvol.workbook._sheetxml import (
+    _ATTR_R_CELL,
+    _ATTR_R_ROW,
+    _ATTR_T,
+    CellReader,
+    Patterns,
+    SheetStream,
+    col_index,
+    col_letters,
+    iter_cells,
+    parse_ref,
+    unescape,
+)
+from sheetvol.workbook.errors import WorkbookError
+
+NS_REL = "http://schemas.openxmlformats.org/officeDocument/2006/relationships"
+NS_PKG_REL = "http://schemas.openxmlformats.org/package/2006/relationships"
+MACRO_TYPES = ("macroEnabled", "vbaProject")
+_SV = re.compile(rb"(?i)\bSV_")
+
+
+class CellError(str):
+    """A spreadsheet error value such as ``#N/A`` (a ``t="e"`` cell).
+
+    Examples
+    --------
+    >>> CellError("#N/A") == "#N/A"
+    True
+    """
+
+    __slots__ = ()
+
+    def __repr__(self) -> str:
+        return f"CellError({str.__repr__(self)})"
+
+
+@dataclass(frozen=True)
+class SheetInfo:
+    """A sheet as listed in ``xl/workbook.xml``: tab name, part path, kind."""
+
+    name: str
+    part: str
+    kind: str
+
+
+@dataclass
+class Grid:
+    """All cells of a sheet: row -> column -> value (1-based)."""
+
+    rows: dict[int, dict[int, object]]
+    max_row: int
+    max_col: int
+
+
+@dataclass
+class Column:
+    """One column: ``numbers[i]`` is row ``first_row + i`` (NaN where not a number).
+
+    ``other`` holds the non-numeric values (text, bool, CellError) by row; absent
+    cells are in neither.
+    """
+
+    numbers: np.ndarray
+    other: dict[int, object]
+    first_row: int
+
+
+@dataclass
+class FormulaCell:
+    """A cell whose formula mentions a sheetvol function (``SV_...``).
+
+    ``formula`` is the text as stored, without the leading ``=``. For a cell that
+    shares the formula of another (filled down in the spreadsheet program), the text is
+    the shared formula moved to this cell's position.
+    """
+
+    sheet: str
+    row: int
+    col: int
+    formula: str
+    array_ref: str | None
+
+
+@dataclass
+class TableInfo:
+    """A spreadsheet table: ``ref`` like ``"A1:F300"``; ``header_row`` 0 when it has none."""
+
+    name: str
+    ref: str
+    header_row: int
+    columns: list[str]
+    part: str = ""
+    display_name: str = ""
+    top: int = 0
+    left: int = 0
+    bottom: int = 0
+    right: int = 0
+
+
+@dataclass
+class Package:
+    """An .xlsx/.xlsm opened safely (zip-bomb limits, no XML entities, encrypted refused).
+
+    Use :meth:`open`; the zip file is reopened for each read, so nothing stays locked.
+
+    Examples
+    --------
+    >>> pkg = Package.open("prices.xlsx")            # doctest: +SKIP
+    >>> pkg.read_columns("Prices", [2, 5], first_row=2)  # doctest: +SKIP
+    """
+
+    path: Path
+    sheets: list[SheetInfo] = field(default_factory=list)
+    date1904: bool = False
+    is_macro_enabled: bool = False
+    limits: Limits = field(default_factory=Limits, repr=False)
+    workbook_part: str = "xl/workbook.xml"
+    _shared: list[str] | None = field(default=None, repr=False)
+    _shared_loaded: bool = field(default=False, repr=False)
+
+    @classmethod
+    def open(cls, path: str | Path, *, max_total: int | None = None,
+             max_ratio: float | None = None) -> Package:
+        """Open ``path`` after the safety checks.
+
+        Parameters
+        ----------
+        path : str or Path
+            The .xlsx or .xlsm file.
+        max_total : int, optional
+            Cap on the total inflated size of all parts in bytes (default 2 GiB).
+        max_ratio : float, optional
+            Cap on a part's inflated/stored size ratio (default 200; parts under 1 MiB
+            are not checked).
+
+        Returns
+        -------
+        Package
+
+        Raises
+        ------
+        WorkbookError
+            Encrypted, not a zip, damaged, a possible zip bomb, XML with a DOCTYPE, or
+            not a spreadsheet.
+        """
+        path = Path(path)
+        limits = Limits(
+            max_total=_safety.DEFAULT_MAX_TOTAL if max_total is None else max_total,
+            max_ratio=_safety.DEFAULT_MAX_RATIO if max_ratio is None else max_ratio,
+        )
+        pkg = cls(path=path, limits=limits)
+        with _safety.open_zip(path, limits) as zf:
+            pkg._read_structure(zf)
+        return pkg
+
+    # -- structure -------------------------------------------------------------------
+    def _zip(self) -> zipfile.ZipFile:
+        return _safety.open_zip(self.path, self.limits)
+
+    def _xml(self, zf: zipfile.ZipFile, part: str) -> Element:
+        return parse_xml(read_part(zf, part, self.path.name), part, self.path.name)
+
+    def _read_structure(self, zf: zipfile.ZipFile) -> None:
+        name = self.path.name
+        names = set(zf.namelist())
+        if "[Content_Types].xml" not in names:
+            raise WorkbookError(
+                f"{name} is a zip file but not a workbook (no [Content_Types].xml).")
+        types = self._xml(zf, "[Content_Types].xml")
+        root_rels = self.rels(zf, "") if "_rels/.rels" in names else {}
+        wb_part = next((t for t, k in root_rels.values() if k == "officeDocument"),
+                       "xl/workbook.xml")
+        if wb_part not in names:
+            raise WorkbookError(f"{name} is a zip file but not a spreadsheet workbook "
+                                "(no workbook part); it may be a document of another kind.")
+        self.workbook_part = wb_part
+        wb = self._xml(zf, wb_part)
+        for el in wb.iter():
+            if local(el.tag) == "workbookPr":
+                self.date1904 = el.get("date1904", "0").lower() in ("1", "true")
+        rels = self.rels(zf, wb_part)
+        sheets = []
+        for el in wb.iter():
+            if local(el.tag) != "sheet":
+                continue
+            rid = el.get(f"{{{NS_REL}}}id") or next(
+                (v for k, v in el.attrib.items() if local(k) == "id"), "")
+            target, kind = rels.get(rid, ("", "missing"))
+            sheets.append(SheetInfo(name=el.get("name", ""), part=target, kind=kind))
+        self.sheets = sheets
+        ctypes = " ".join(el.get("ContentType", "") for el in types)
+        self.is_macro_enabled = ("xl/vbaProject.bin" in names
+                                 or any(k in ctypes for k in MACRO_TYPES))
+
+    def rels(self, zf: zipfile.ZipFile, part: str) -> dict[str, tuple[str, str]]:
+        """Relationships of ``part``: id -> (target part path, kind such as "worksheet")."""
+        folder, base = posixpath.split(part)
+        rels_part = posixpath.join(folder, "_rels", base + ".rels")
+        if rels_part not in zf.namelist():
+            return {}
+        out = {}
+        for el in self._xml(zf, rels_part):
+            if el.get("TargetMode") == "External":
+                continue
+            target = el.get("Target", "")
+            if target.startswith("/"):
+                full = target[1:]
+            else:
+                full = posixpath.normpath(posixpath.join(folder, target))
+            out[el.get("Id", "")] = (full, el.get("Type", "").rpartition("/")[2])
+        return out
+
+    def sheet(self, name: str) -> SheetInfo:
+        """The sheet called ``name`` (case-insensitive).
+
+        Parameters
+        ----------
+        name : str
+            Tab name.
+
+        Returns
+        -------
+        SheetInfo
+
+        Raises
+        ------
+        WorkbookError
+            No such sheet; the message lists the sheet names.
+        """
+        for info in self.sheets:
+            if info.name == name:
+                return info
+        for info in self.sheets:
+            if info.name.casefold() == name.casefold():
+                return info
+        listed = ", ".join(repr(s.name) for s in self.sheets)
+        raise WorkbookError(f"{self.path.name} has no sheet {name!r}; its sheets are {listed}.")
+
+    def _worksheet(self, name: str) -> SheetInfo:
+        info = self.sheet(name)
+        if info.kind != "worksheet":
+            raise WorkbookError(f"{self.path.name}: sheet {info.name!r} is a {info.kind}, "
+                                "not a worksheet with cells.")
+        return info
+
+    def shared_strings(self, zf: zipfile.ZipFile | None = None) -> list[str] | None:
+        """The shared-string table (loaded once), or None when the workbook has none."""
+        if self._shared_loaded:
+            return self._shared
+        own = zf is None
+        zf = zf or self._zip()
+        try:
+            rels = self.rels(zf, self.workbook_part)
+            part = next((t for t, k in rels.values() if k == "sharedStrings"), None)
+            shared = None
+            if part and part in zf.namelist():
+                root = self._xml(zf, part)
+                shared = []
+                for si in root:
+                    texts = []
+                    for el in si.iter():
+                        tag = local(el.tag)
+                        if tag == "rPh":
+                            # phonetic runs are hints, not text; their <t> children are skipped
+                            el.clear()
+                        elif tag == "t" and el.text:
+                            texts.append(el.text)
+                    shared.append(unescape("".join(texts).encode()) if texts else "")
+        finally:
+            if own:
+                zf.close()
+        self._shared, self._shared_loaded = shared, True
+        return shared
+
+    # -- cells -----------------------------------------------------------------------
+    def _stream(self, zf: zipfile.ZipFile, info: SheetInfo) -> SheetStream:
+        try:
+            fh = zf.open(info.part)
+        except KeyError:
+            raise WorkbookError(f"{self.path.name}: the part of sheet {info.name!r} "
+                                f"({info.part}) is missing; the workbook is damaged.") from None
+        return SheetStream(fh, info.part, self.path.name)
+
+    def read_grid(self, sheet: str, max_rows: int | None = None) -> Grid:
+        """All cells of a sheet (up to row ``max_rows``), for header detection and small sheets.
+
+        Parameters
+        ----------
+        sheet : str
+            Sheet name.
+        max_rows : int, optional
+            Last row to read.
+
+        Returns
+        -------
+        Grid
+            Values are float, str, bool, CellError; formula cells give their stored result.
+        """
+        info = self._worksheet(sheet)
+        rows: dict[int, dict[int, object]] = {}
+        max_row = max_col = 0
+        with self._zip() as zf:
+            stream = self._stream(zf, info)
+            reader = CellReader(stream.pat, self.shared_strings(zf))
+            for r, c, attrs, inner in iter_cells(stream, max_rows):
+                value = reader.value(attrs, inner)
+                if value is None:
+                    continue
+                rows.setdefault(r, {})[c] = value
+                max_row = max(max_row, r)
+                max_col = max(max_col, c)
+        return Grid(rows=rows, max_row=max_row, max_col=max_col)
+
+    def read_columns(self, sheet: str, cols: list[int], first_row: int = 1) -> dict[int, Column]:
+        """Only the asked columns, rows ``first_row`` to the last row with a cell in any of them.
+
+        Parameters
+        ----------
+        sheet : str
+            Sheet name.
+        cols : list of int
+            1-based column numbers.
+        first_row : int
+            First row to read.
+
+        Returns
+        -------
+        dict of int to Column
+            All columns have the same length, so index i is the same row in each.
+        """
+        info = self._worksheet(sheet)
+        wanted = set(cols)
+        found: dict[int, tuple[list[int], list[float]]] = {c: ([], []) for c in wanted}
+        other: dict[int, dict[int, object]] = {c: {} for c in wanted}
+        last = first_row - 1
+        with self._zip() as zf:
+            stream = self._stream(zf, info)
+            pat = stream.pat
+            reader = CellReader(pat, self.shared_strings(zf))
+            v_open, v_close = b"<" + pat.prefix + b"v>", b"</" + pat.prefix + b"v>"
+            wanted_letters = {col_letters(c).encode(): c for c in wanted}
+            for chunk in stream.body():
+                found_cells = pat.cell_rfirst.findall(chunk)
+                if len(found_cells) != sum(chunk.count(x) for x in pat.cell_starts):
+                    # some cell without r first: the general scan, row by row
+                    found_cells = _cells_general(chunk, pat)
+                for letters, row, attrs, cinner in found_cells:
+                    c = wanted_letters.get(letters)
+                    if c is None or not cinner:
+                        continue
+                    r = int(row)
+                    if r < first_row:
+                        continue
+                    if not attrs or b"t=" not in attrs or _number_type(attrs):
+                        if cinner.startswith(v_open) and cinner.endswith(v_close):
+                            raw = cinner[len(v_open) : -len(v_close)]
+                        else:
+                            mv = pat.v.search(cinner)
+                            if mv is None:
+                                continue
+                            raw = mv[1]
+                        try:
+                            num = float(raw)
+                        except ValueError:
+                            continue
+                        rows_, vals = found[c]
+                        rows_.append(r)
+                        vals.append(num)
+                        if r > last:
+                            last = r
+                    else:
+                        value = reader.value(attrs, cinner)
+                        if value is not None:
+                            other[c][r] = value
+                            if r > last:
+                                last = r
+        n = max(last - first_row + 1, 0)
+        out = {}
+        for c in cols:
+            numbers = np.full(n, np.nan)
+            rows_, vals = found[c]
+            if rows_:
+                numbers[np.asarray(rows_) - first_row] = vals
+            out[c] = Column(numbers=numbers, other=other[c], first_row=first_row)
+        return out
+
+    def read_range(
+        self, sheet: str, top: int, left: int, bottom: int, right: int
+    ) -> list[list[object]]:
+        """Values of a block (1-based, inclusive), row-major, None for absent cells.
+
+        Parameters
+        ----------
+        sheet : str
+            Sheet name.
+        top, left, bottom, right : int
+            Corners of the block.
+
+        Returns
+        -------
+        list of list
+            Formula cells give their stored result.
+        """
+        info = self._worksheet(sheet)
+        out = [[None] * (right - left + 1) for _ in range(bottom - top + 1)]
+        with self._zip() as zf:
+            stream = self._stream(zf, info)
+            reader = CellReader(stream.pat, self.shared_strings(zf))
+            for r, c, attrs, inner in iter_cells(stream, bottom):
+                if r >= top and left <= c <= right:
+                    out[r - top][c - left] = reader.value(attrs, inner)
+        return out
+
+    def formula_cells(self) -> list[FormulaCell]:
+        """Every worksheet cell whose formula text mentions a sheetvol function (``SV_``).
+
+        Returns
+        -------
+        list of FormulaCell
+            In sheet order, then row and column order.
+        """
+        out: list[FormulaCell] = []
+        with self._zip() as zf:
+            for info in self.sheets:
+                if info.kind != "worksheet" or info.part not in zf.namelist():
+                    continue
+                stream = self._stream(zf, info)
+                reader = CellReader(stream.pat, None)
+                masters: dict[str, tuple[int, int, str]] = {}
+                for r, c, _attrs, inner in iter_cells(stream):
+                    if not inner or (b"<f" not in inner and b":f" not in inner):
+                        continue
+                    got = reader.formula(inner)
+                    if got is None:
+                        continue
+                    _raw, text, fattrs = got
+                    kind = fattrs.get("t", "normal")
+                    if kind == "shared" and "si" in fattrs:
+                        if text:
+                            masters[fattrs["si"]] = (r, c, text)
+                        elif fattrs["si"] in masters:
+                            mr_, mc_, mtext = masters[fattrs["si"]]
+                            text = shift_formula(mtext, r - mr_, c - mc_)
+                    if not text or not _SV.search(text.encode()):
+                        continue
+                    array_ref = fattrs.get("ref") if kind == "array" else None
+                    out.append(FormulaCell(sheet=info.name, row=r, col=c,
+                                           formula=text.lstrip("="), array_ref=array_ref))
+        return out
+
+    def tables(self, sheet: str) -> list[TableInfo]:
+        """Spreadsheet tables on a sheet.
+
+        Parameters
+        ----------
+        sheet : str
+            Sheet name.
+
+        Returns
+        -------
+        list of TableInfo
+        """
+        info = self._worksheet(sheet)
+        out = []
+        with self._zip() as zf:
+            for target, kind in self.rels(zf, info.part).values():
+                if kind != "table" or target not in zf.namelist():
+                    continue
+                root = self._xml(zf, target)
+                ref = root.get("ref", "")
+                try:
+                    top, left, bottom, right = parse_ref(ref)
+                except ValueError:
+                    continue
+                header = top if root.get("headerRowCount", "1") != "0" else 0
+                names = [el.get("name", "") for el in root.iter()
+                         if local(el.tag) == "tableColumn"]
+                out.append(TableInfo(name=root.get("name", ""), ref=ref, header_row=header,
+                                     columns=names, part=target,
+                                     display_name=root.get("displayName", ""),
+                                     top=top, left=left, bottom=bottom, right=right))
+        return out
+
+
+def _cells_general(chunk: bytes, pat: Patterns) -> list[tuple[bytes, bytes, bytes, bytes]]:
+    """(letters, row, attrs, inner) of every cell of a chunk, positions implied if needed."""
+    out = []
+    r = 0
+    for rm in pat.row.finditer(chunk):
+        mr = _ATTR_R_ROW.search(rm[1])
+        r = int(mr[1]) if mr else r + 1
+        c = 0
+        for cm in pat.cell.finditer(rm[3] or b""):
+            mc = _ATTR_R_CELL.search(cm[1])
+            c = col_index(mc[1]) if mc else c + 1
+            out.append((col_letters(c).encode(), str(r).encode(), cm[1], cm[3]))
+    return out
+
+
+def _number_type(attrs: bytes) -> bool:
+    m = _ATTR_T.search(attrs)
+    return m is None or m[1] == b"n"
+
+
+_REF_TOKEN = re.compile(
+    r"""("(?:[^"]|"")*")"""  # a string literal: left alone
+    r"""|('(?:[^']|'')*'!|\b[A-Za-z_][\w.]*!)"""  # a sheet qualifier: kept
+    r"""|(?<![\w.$])(\$?)([A-Z]{1,3})(\$?)(\d+)(?![\w(!])"""  # an A1 reference
+)
+
+
+def shift_formula(text: str, drow: int, dcol: int) -> str:
+    """Move the relative references of a shared formula by (drow, dcol).
+
+    Examples
+    --------
+    >>> shift_formula('SV_X(E2:E30,14,"A1")', 3, 1)
+    'SV_X(F5:F33,14,"A1")'
+    """
+    def repl(m: re.Match[str]) -> str:
+        if m[1] or m[2]:
+            return m[0]
+        cabs, letters, rabs, digits = m[3], m[4], m[5], m[6]
+        col = col_index(letters.encode())
+        row = int(digits)
+        if col > 16384 or row > 1048576:
+            return m[0]
+        if not cabs:
+            col += dcol
+        if not rabs:
+            row += drow
+        if col < 1 or row < 1:
+            return "#REF!"
+        from sheetvol.workbook._sheetxml import col_letters
+
+        return f"{cabs}{col_letters(col)}{rabs}{row}"
+
+    return _REF_TOKEN.sub(repl, text)
+
+
+__all__ = ["CellError", "Column", "FormulaCell", "Grid", "Package", "SheetInfo", "TableInfo",
+           "WorkbookError", "shift_formula"]

@@ -1,0 +1,342 @@
+"""The xlwings add-in: generated from the registry, called the way xlwings calls it.
+
+There is no spreadsheet program here. The functions are called with the
+values xlwings hands over (ranges declared ``ndim=2`` arrive as lists of rows;
+blank and error cells as None; numbers as floats; numbers stored as text as
+str; date cells as datetimes, dynamic-array dates as serial numbers), and
+xlwings' Windows registration code (``xlwings.udfs``) is run against the
+generated functions with the COM modules stubbed out, so what Import Functions
+would read and the VBA it would write are checked too.
+
+Outside references: TA-Lib ATR (Wilder) and pandas ``rolling(n).std(ddof=0)``.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import importlib
+import inspect
+import io
+import math
+import re
+import sys
+import types
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+import talib
+import xlwings
+
+from sheetvol import addin, calling
+from sheetvol.registry import FUNCTIONS, get, variant_params, worksheet_names
+
+ALL = list(worksheet_names())
+SERIES = [f for f in FUNCTIONS if f.shape == "series"]
+DOCS = Path(__file__).resolve().parent.parent / "docs" / "functions.md"
+
+
+def bars(n: int = 120, seed: int = 3) -> dict[str, np.ndarray]:
+    """Invented OHLC bars (a geometric random walk)."""
+    rng = np.random.default_rng(seed)
+    close = 100 * np.exp(np.cumsum(rng.normal(0, 0.01, n)))
+    open_ = np.r_[100.0, close[:-1]] * np.exp(rng.normal(0, 0.003, n))
+    high = np.maximum(open_, close) * np.exp(np.abs(rng.normal(0, 0.004, n)))
+    low = np.minimum(open_, close) * np.exp(-np.abs(rng.normal(0, 0.004, n)))
+    return {"open": open_, "high": high, "low": low, "close": close, "prices": close,
+            "values": close}
+
+
+def as_xlwings(a: np.ndarray, text_every: int = 7) -> list[list[object]]:
+    """A column as xlwings passes it with ndim=2: rows of one cell; NaN cells as None,
+    and every ``text_every``-th number stored as text (str)."""
+    out: list[list[object]] = []
+    for i, x in enumerate(a.tolist()):
+        if math.isnan(x):
+            out.append([None])
+        elif i % text_every == 3:
+            out.append([repr(x)])
+        else:
+            out.append([x])
+    return out
+
+
+def from_cells(rows: list[list[object]]) -> np.ndarray:
+    return np.array([math.nan if r[0] is None else r[0] for r in rows], dtype=np.float64)
+
+
+@pytest.fixture(autouse=True)
+def _fresh_cache():
+    calling.CACHE.clear()
+    yield
+    calling.CACHE.clear()
+
+
+# -- generation ------------------------------------------------------------------------------
+def test_module_imports_and_exports_every_worksheet_name():
+    names = [name for name, _, _ in ALL]
+    assert sorted(addin.UDFS) == sorted(names)
+    for name in names:
+        assert getattr(addin, name) is addin.UDFS[name]
+        assert name in addin.__all__
+
+
+@pytest.mark.parametrize(("name", "func", "variant"), ALL, ids=[n for n, _, _ in ALL])
+def test_signature_help_and_options(name, func, variant):
+    udf = addin.UDFS[name]
+    params = variant_params(func, variant)
+    sig = inspect.signature(udf)
+    assert list(sig.parameters) == [addin.addin_arg_name(p.name) for p in params]
+    assert udf.__name__ == name
+    assert 0 < len(udf.__doc__) <= 255
+    meta = udf.__sheetvol__
+    assert meta["func"]["category"] == "sheetvol"
+    assert meta["func"]["call_in_wizard"] is False
+    for p, arg_name in zip(params, sig.parameters, strict=True):
+        opts = meta["args"][arg_name]
+        assert 0 < len(opts["doc"]) <= 255
+        assert p.help.split()[0] in opts["doc"]
+        assert opts.get("ndim") == (2 if p.is_column else None)
+        default = sig.parameters[arg_name].default
+        if not p.required:
+            assert default == p.default
+
+
+def test_argument_names_are_valid_vba_names():
+    # VBA identifiers: a letter, then letters, digits or underscores; no keyword (xlwings
+    # issues #563/#384: a keyword breaks Import Functions for the whole module). Excel's
+    # function dialog breaks when argument count + name lengths exceed 254 (xlwings #1489).
+    for name, udf in addin.UDFS.items():
+        params = list(inspect.signature(udf).parameters)
+        for p in params:
+            assert re.fullmatch(r"[A-Za-z][A-Za-z0-9_]{0,30}", p), (name, p)
+            assert p.lower() not in addin.VBA_KEYWORDS, (name, p)
+        assert len(params) + sum(map(len, params)) <= 254, name
+
+
+def test_xlwings_decorators_are_inert_here_and_module_still_works():
+    assert addin.XLWINGS is True
+    if not sys.platform.startswith("win"):
+        def f(x):
+            return x
+        assert xlwings.func(category="sheetvol", call_in_wizard=False)(f) is f
+        assert xlwings.arg("x", ndim=2, doc="d")(f) is f
+
+
+@pytest.fixture
+def windows_udfs(monkeypatch):
+    """xlwings' Windows UDF registration module, importable with COM stubbed out."""
+    for mod in ("pythoncom", "pywintypes", "win32com", "win32com.client"):
+        monkeypatch.setitem(sys.modules, mod, types.ModuleType(mod))
+    sys.modules["pythoncom"].CoInitialize = lambda: None
+    sys.modules["win32com.client"].Dispatch = lambda *a, **k: None
+    sys.modules["win32com"].client = sys.modules["win32com.client"]
+    monkeypatch.delitem(sys.modules, "xlwings.udfs", raising=False)
+    udfs = importlib.import_module("xlwings.udfs")
+    yield udfs
+    sys.modules.pop("xlwings.udfs", None)
+
+
+def test_windows_registration_sees_help_options_and_writes_valid_vba(windows_udfs):
+    u = windows_udfs
+    built = addin.make_udfs((u.xlfunc, u.xlarg, u.xlret))
+    for name, f in built.items():
+        info = f.__xlfunc__
+        assert info["name"] == name and info["category"] == "sheetvol"
+        assert info["call_in_wizard"] is False
+        assert len(info["ret"]["doc"]) <= 255
+        for a in info["args"]:
+            assert len(a["doc"]) <= 255 and not a["doc"].startswith("Positional argument")
+    atr = built["SV_ATR"].__xlfunc__
+    assert [a["name"] for a in atr["args"]] == ["high", "low", "close_price", "period", "smoothing"]
+    assert atr["args"][0]["options"] == {"ndim": 2}
+    assert atr["args"][3]["optional"] == 14
+    # The VBA wrapper Import Functions would write.
+    module = types.ModuleType("sheetvol_addin_copy")
+    module.__dict__.update(built)
+    buf = io.StringIO()
+    u.generate_vba_wrapper("sheetvol.addin", module, buf, types.SimpleNamespace(Name="a.xlam"))
+    vba = buf.getvalue()
+    assert "Function SV_ATR(high, low, close_price, Optional period, Optional smoothing)" in vba
+    assert vba.count("End Function") == len(built)
+    for header in re.findall(r"^Function \w+\((.*)\)$", vba, flags=re.M):
+        for arg in header.split(", "):
+            assert arg.replace("Optional ", "").lower() not in addin.VBA_KEYWORDS
+
+
+# -- numbers: the add-in against the registry and outside references --------------------------
+@pytest.mark.parametrize("func", SERIES, ids=[f.name for f in SERIES])
+def test_whole_column_equals_the_kernel_with_blanks_and_text_numbers(func):
+    data = bars()
+    clean = {k: v.copy() for k, v in data.items()}
+    for v in clean.values():
+        v[[40, 41, 77]] = np.nan  # blank cells (gaps)
+    cols = {p.name: clean[p.name] for p in func.columns}
+    ref = func(**cols)  # the registry's Python call: the kernel with defaults
+    rows = addin.UDFS[func.name](*(as_xlwings(cols[p.name]) for p in func.columns))
+    assert isinstance(rows, list) and len(rows) == len(data["close"])  # spill height
+    assert all(isinstance(r, list) and len(r) == 1 for r in rows)
+    got = from_cells(rows)
+    np.testing.assert_array_equal(np.isnan(got), np.isnan(ref))
+    np.testing.assert_allclose(got, ref, rtol=0, atol=0)
+    assert rows[0] == [None] or func.name in ("SV_PRICE", "SV_TRUERANGE")  # warm-up blank
+    assert not any(isinstance(r[0], float) and math.isnan(r[0]) for r in rows)
+
+
+@pytest.mark.parametrize("func", SERIES, ids=[f.name for f in SERIES])
+def test_last_form_filled_down_matches_the_kernel_on_each_prefix(func):
+    # Each cell of a filled-down _LAST column sees a longer anchored range ($E$2:E10,
+    # $E$2:E11, ...). The prefix cache must give exactly what the kernel gives on that
+    # prefix, which also checks that every kernel is causal. Equal to rounding: some
+    # kernels centre a window on a value taken from the whole input for accuracy, so the
+    # last bits may depend on the input's length (measured: 4e-16 relative).
+    data = bars(90)
+    cols = [data[p.name] for p in func.columns]
+    udf = addin.UDFS[func.name + "_LAST"]
+    for m in (90, 30, 60, 89, 45):  # the longest first, so later calls hit the cache
+        got = udf(*(as_xlwings(c[:m]) for c in cols))
+        ref = func(*(c[:m] for c in cols))[-1]
+        if math.isnan(ref):
+            assert got is None
+        else:
+            assert got == pytest.approx(ref, rel=1e-12, abs=1e-300), (m, got, ref)
+    assert calling.CACHE.hits >= 4
+
+
+def test_atr_against_talib_after_the_seed():
+    # Source: TA-Lib ATR (Wilder). Our first bar's true range is high-low where TA-Lib
+    # leaves it out, so the seeds differ; the difference decays by (1-1/14) a bar and is
+    # below 1e-12 relative after 30*14 bars (see tests/test_ranges.py).
+    data = bars(1000, seed=11)
+    rows = addin.SV_ATR(as_xlwings(data["high"]), as_xlwings(data["low"]),
+                        as_xlwings(data["close"]), 14)
+    ref = talib.ATR(data["high"], data["low"], data["close"], timeperiod=14)
+    np.testing.assert_allclose(from_cells(rows)[420:], ref[420:], rtol=1e-12)
+
+
+def test_deviation_against_pandas_population_std():
+    # Source: pandas rolling(14).std(ddof=0), the population deviation about the simple mean.
+    close = bars(300, seed=5)["close"]
+    rows = addin.SV_DEVIATION(as_xlwings(close), 14, "simple", "population")
+    ref = pd.Series(close).rolling(14).std(ddof=0).to_numpy()
+    got = from_cells(rows)
+    np.testing.assert_array_equal(np.isnan(got), np.isnan(ref))
+    np.testing.assert_allclose(got, ref, rtol=1e-10)
+    assert rows[12] == [None] and rows[13][0] is not None  # 13 warm-up rows blank
+
+
+def test_dates_and_flat_lists_and_rows_are_accepted():
+    close = bars(40)["close"]
+    ref = get("SV_AVERAGE")(close, 5)
+    flat = addin.SV_AVERAGE(close.tolist(), 5)  # a 1-D range without ndim=2
+    np.testing.assert_allclose(from_cells(flat), ref)
+    row = addin.SV_AVERAGE([close.tolist()], 5)  # a row: the result is a row too
+    assert len(row) == 1 and len(row[0]) == 40
+
+
+def test_on_form_reads_the_last_bar_on_or_before_the_date():
+    data = bars(60)
+    days = [dt.datetime(2025, 1, 6) + dt.timedelta(days=i) for i in range(60)]
+    dates = [[d] for d in days]
+    ref = get("SV_DEVIATION")(data["close"], 14)
+    args = (dates, as_xlwings(data["close"]), 14)
+    assert addin.SV_DEVIATION_ON(days[30], *args) == ref[30]
+    # A time of day later the same day, and a date between bars, still give that bar.
+    assert addin.SV_DEVIATION_ON(days[30] + dt.timedelta(hours=15), *args) == ref[30]
+    # Serial numbers (dynamic-array dates arrive so) and text dates work the same.
+    serial = (days[30] - dt.datetime(1899, 12, 30)).days
+    assert addin.SV_DEVIATION_ON(float(serial), [[(d - dt.datetime(1899, 12, 30)).days]
+                                                 for d in days], *args[1:]) == ref[30]
+    assert addin.SV_DEVIATION_ON(days[30].strftime("%Y-%m-%d"), *args) == ref[30]
+    # Never a later bar: changing bars after the date does not change the answer.
+    later = data["close"].copy()
+    later[31:] *= 3
+    # (Equal to rounding: the kernel centres on a whole-input value, see the _LAST test.)
+    after = addin.SV_DEVIATION_ON(days[30], dates, as_xlwings(later), 14)
+    assert after == pytest.approx(ref[30], rel=1e-12)
+    # Warm-up: blank, not NaN.
+    assert addin.SV_DEVIATION_ON(days[5], *args) is None
+    # Before the first bar: a message.
+    msg = addin.SV_DEVIATION_ON(dt.datetime(2024, 12, 1), *args)
+    assert msg.startswith("SV_DEVIATION_ON: no bar on or before 2024-12-01")
+
+
+def test_on_form_sorts_newest_first_exports_and_skips_a_gap_bar():
+    data = bars(60)
+    days = [dt.datetime(2025, 1, 6) + dt.timedelta(days=i) for i in range(60)]
+    ref = get("SV_ATR")(data["high"], data["low"], data["close"], 14)
+    rev = [as_xlwings(data[k][::-1], text_every=10**9) for k in ("high", "low", "close")]
+    got = addin.SV_ATR_ON(days[40], [[d] for d in days[::-1]], *rev, 14)
+    assert got == pytest.approx(ref[40], rel=1e-15)
+    # Blank prices on the asked bar: the last usable bar before it is used.
+    close = data["close"].copy()
+    close[40] = np.nan
+    ref_gap = get("SV_ATR")(data["high"], data["low"], close, 14)
+    got = addin.SV_ATR_ON(days[40], [[d] for d in days], as_xlwings(data["high"]),
+                          as_xlwings(data["low"]), as_xlwings(close), 14)
+    assert got == ref_gap[39]
+
+
+def test_scalar_functions_single_and_row_by_row():
+    # Hand-worked: long stop = 100 - 2 x 2 = 96; short target = 100 - 3 x 2 = 94.
+    assert addin.SV_STOP(100.0, 2.0) == 96.0
+    assert addin.SV_TARGET(100.0, 2.0, 3, "short") == 94.0
+    rows = addin.SV_STOP([[100.0], [None], ["50"]], [[2.0], [1.0], [1.0]], 2, "long")
+    assert rows == [[96.0], [None], [48.0]]  # the unfilled trade stays blank
+    assert addin.SV_SIZE(250000, 0.01, 105.2, 101.6) == 694.0  # floor(2500 / 3.6) = 694
+
+
+# -- bad arguments ---------------------------------------------------------------------------
+@pytest.mark.parametrize(
+    ("call", "start"),
+    [
+        (lambda c: addin.SV_ATR(c, c, c, 1), "SV_ATR: period must be a whole number from 2"),
+        (lambda c: addin.SV_ATR(c, c, c, "abc"), "SV_ATR: period must be"),
+        (lambda c: addin.SV_ATR_LAST(c, c, c, 2.5), "SV_ATR_LAST: period must be"),
+        (lambda c: addin.SV_AVERAGE(c, 5, "weekly"), 'SV_AVERAGE: kind must be one of "simple"'),
+        (lambda c: addin.SV_ATR([r * 2 for r in c], c, c), "SV_ATR: high must be one column"),
+        (lambda c: addin.SV_ATR(c[:-1], c, c), "SV_ATR: the ranges differ in height"),
+        (lambda c: addin.SV_ATR(None, c, c), "SV_ATR: high is required"),
+        (lambda c: addin.SV_DEVIATION([["x"], *c], 5), None),  # header: accepted
+        (lambda c: addin.SV_DEVIATION([*c, ["oops"]], 5), "SV_DEVIATION: prices item 31 is 'oops'"),
+        (lambda c: addin.SV_DEVIATION_ON("soon", c, c), "SV_DEVIATION_ON: date is 'soon'"),
+        (lambda c: addin.SV_STOP(100.0, -1.0), "SV_STOP: volatility must be"),
+        (lambda c: addin.SV_ATR(c, c, c, 14, "wilder", 3), "SV_ATR: takes"),
+    ],
+)
+def test_bad_arguments_give_a_short_message_not_a_traceback(call, start):
+    c = [[x] for x in bars(30)["close"].tolist()]
+    out = call(c)
+    if start is None:
+        assert isinstance(out, list)
+        return
+    assert isinstance(out, str), out
+    assert out.startswith(start), out
+    assert "Traceback" not in out and "\n" not in out and len(out) <= 255
+
+
+def test_unexpected_exceptions_are_caught_at_the_boundary(monkeypatch):
+    def boom(*a, **k):
+        raise RuntimeError("kernel exploded")
+    monkeypatch.setattr(addin, "call_worksheet", boom)
+    udf = addin.make_udf("SV_ATR", get("SV_ATR"), "column")
+    assert udf([[1.0]], [[1.0]], [[1.0]]) == "SV_ATR: kernel exploded"
+
+
+# -- one source of truth -------------------------------------------------------------------------
+def test_registry_addin_and_docs_agree():
+    # docs/functions.md is generated by sheetvol.docgen from the registry.
+    if not DOCS.exists():
+        pytest.skip("docs/functions.md is not generated yet (python -m sheetvol.docgen)")
+    text = DOCS.read_text(encoding="utf-8")
+    for name, func, variant in ALL:
+        params = variant_params(func, variant)
+        shown = ", ".join(p.name if p.required else f"[{p.name}]" for p in params)
+        assert f"{name}({shown})" in text, f"docs/functions.md lacks {name}({shown})"
+        udf_params = list(inspect.signature(addin.UDFS[name]).parameters)
+        assert udf_params == [addin.addin_arg_name(p.name) for p in params]
+    for f in FUNCTIONS:
+        assert f"### {f.name}" in text
+    documented = set(re.findall(r"^### (SV_\w+)", text, flags=re.M))
+    assert documented == {f.name for f in FUNCTIONS}

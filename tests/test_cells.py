@@ -1,0 +1,96 @@
+"""Cell values to numbers and dates, checked against openpyxl's date conversion and hand cases."""
+
+from __future__ import annotations
+
+import datetime as dt
+import math
+
+import numpy as np
+import pytest
+from openpyxl.utils.datetime import CALENDAR_MAC_1904, CALENDAR_WINDOWS_1900, from_excel, to_excel
+
+from sheetvol import cells
+from sheetvol.cells import CellValueError
+
+
+@pytest.mark.parametrize(
+    ("text", "expected"),
+    [
+        ("1,234.5", 1234.5),
+        ("  42 ", 42.0),
+        ("-0.75", -0.75),
+        ("(12.5)", -12.5),  # accounting-style negative
+        ("1\u00a0234.5", 1234.5),  # non-breaking space as thousands separator
+        ("1e3", 1000.0),
+        (7, 7.0),
+        (np.float32(0.5), 0.5),
+    ],
+)
+def test_numbers_in_the_usual_spellings(text, expected):
+    assert cells.to_number(text) == expected
+
+
+def test_decimal_comma_swaps_separators():
+    assert cells.to_number("1.234,5", decimal_comma=True) == 1234.5
+    assert cells.to_number("0,25", decimal_comma=True) == 0.25
+
+
+@pytest.mark.parametrize("blank", [None, "", "   ", "#N/A", "#DIV/0!", "n/a", "-", float("nan")])
+def test_blanks_and_error_cells_become_nan(blank):
+    assert math.isnan(cells.to_number(blank))
+
+
+@pytest.mark.parametrize("bad", ["abc", "12%", "$12", True])
+def test_text_that_is_not_a_number_is_refused(bad):
+    with pytest.raises(CellValueError):
+        cells.to_number(bad)
+
+
+def test_series_error_names_the_position():
+    with pytest.raises(CellValueError, match="close: item 3: 'x1' is not a number"):
+        cells.to_series([1, "2", "x1"], name="close")
+
+
+@pytest.mark.parametrize("serial", [1, 59, 61, 367, 25569, 44927, 45000.5, 60000.25])
+def test_1900_serials_agree_with_openpyxl(serial):
+    # Reference: openpyxl.utils.datetime.from_excel (1900 system, 1900-02-29 fiction).
+    assert cells.serial_to_datetime(serial) == from_excel(serial, CALENDAR_WINDOWS_1900)
+
+
+@pytest.mark.parametrize("serial", [1, 2, 1462, 43000.75])
+def test_1904_serials_agree_with_openpyxl(serial):
+    assert cells.serial_to_datetime(serial, date1904=True) == from_excel(serial, CALENDAR_MAC_1904)
+
+
+@pytest.mark.parametrize(
+    "when", [dt.datetime(2023, 3, 15), dt.datetime(1999, 12, 31, 18), dt.date(2026, 1, 2)]
+)
+def test_datetime_to_serial_agrees_with_openpyxl(when):
+    assert cells.datetime_to_serial(when) == pytest.approx(to_excel(when), abs=1e-9)
+
+
+@pytest.mark.parametrize(
+    ("value", "kwargs", "expected"),
+    [
+        ("2025-03-14", {}, dt.datetime(2025, 3, 14)),
+        ("14/03/2025", {"dayfirst": True}, dt.datetime(2025, 3, 14)),
+        ("03/14/2025", {}, dt.datetime(2025, 3, 14)),
+        ("Mar 14, 2025", {}, dt.datetime(2025, 3, 14)),
+        ("45730", {}, dt.datetime(2025, 3, 14)),
+        (45730, {}, dt.datetime(2025, 3, 14)),
+        (dt.date(2025, 3, 14), {}, dt.datetime(2025, 3, 14)),
+        (None, {}, None),
+    ],
+)
+def test_dates_from_text_serials_and_dates(value, kwargs, expected):
+    assert cells.to_datetime(value, **kwargs) == expected
+
+
+def test_not_a_date():
+    with pytest.raises(CellValueError, match="is not a date"):
+        cells.to_datetime("someday")
+
+
+def test_day_numbers_sort_like_dates_and_blank_is_nan():
+    days = cells.to_day_numbers(["2025-01-02", None, dt.datetime(2025, 1, 3), 45660])
+    assert days[0] == 45659.0 and math.isnan(days[1]) and days[2] == 45660.0 and days[3] == 45660.0

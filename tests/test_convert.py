@@ -1,0 +1,148 @@
+"""Edge conversion of worksheet arguments (sheetvol._convert), shared by add-in and evaluator.
+
+Sources for the date checks: the 1900 date system numbers 1900-01-01 as 1 and
+counts a fictitious 1900-02-29 as 60, so 1900-03-01 is 61 and 2025-01-01 is
+45658; the 1904 system is 1,462 days behind (Microsoft's support article
+"Differences between the 1900 and the 1904 date system in Excel"; values from
+memory of that article and of typing =DATE(2025,1,1) into a spreadsheet).
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import math
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from sheetvol import _convert, cells
+from sheetvol.registry import ArgumentError
+
+
+# -- shapes ------------------------------------------------------------------------
+@pytest.mark.parametrize(
+    ("value", "expected", "horizontal"),
+    [
+        ([[1.0], [2.0], [3.0]], [1.0, 2.0, 3.0], False),  # a column with ndim=2
+        ([1.0, 2.0, 3.0], [1.0, 2.0, 3.0], False),  # xlwings' flat list for a 1-D range
+        ([[1.0, 2.0, 3.0]], [1.0, 2.0, 3.0], True),  # a row with ndim=2
+        (((1.0,), (2.0,)), [1.0, 2.0], False),  # tuples, as COM hands them over
+        (np.array([1.0, 2.0]), [1.0, 2.0], False),  # a nested sheetvol result
+        (np.array([[1.0], [2.0]]), [1.0, 2.0], False),
+        (5.0, [5.0], False),  # a single cell
+    ],
+)
+def test_column_shapes(value, expected, horizontal):
+    col = _convert.column(value, func="SV_X", param="prices")
+    np.testing.assert_array_equal(col.values, expected)
+    assert col.horizontal is horizontal
+
+
+def test_two_column_block_is_refused_with_the_function_name_first():
+    with pytest.raises(ArgumentError) as err:
+        _convert.column([[1.0, 2.0], [3.0, 4.0], [5.0, 6.0]], func="SV_ATR", param="high")
+    msg = str(err.value)
+    assert msg.startswith("SV_ATR: high must be one column")
+    assert "3 rows x 2 columns" in msg
+
+
+def test_single_unwraps_one_cell_and_refuses_ranges():
+    assert _convert.single([[14.0]], func="SV_ATR", param="period") == 14.0
+    assert _convert.single([14.0], func="SV_ATR", param="period") == 14.0
+    assert _convert.single("simple", func="SV_ATR", param="kind") == "simple"
+    with pytest.raises(ArgumentError, match=r"^SV_ATR: period must be one cell"):
+        _convert.single([[14.0], [15.0]], func="SV_ATR", param="period")
+
+
+# -- cell values ------------------------------------------------------------------------
+def test_blanks_errors_text_numbers_and_headers():
+    # xlwings passes blank and error cells as None; the fill's reader gives error text.
+    raw = [["Close"], [None], ["1,234.5"], [" 7 "], ["#N/A"], [2], [3.5], [None]]
+    got = _convert.column(raw, func="SV_X", param="prices").values
+    expected = [math.nan, math.nan, 1234.5, 7.0, math.nan, 2.0, 3.5, math.nan]
+    np.testing.assert_array_equal(got, expected)
+
+
+def test_decimal_comma_option():
+    got = _convert.column([["1.234,5"], ["2,5"]], func="SV_X", param="p", decimal_comma=True)
+    np.testing.assert_array_equal(got.values, [1234.5, 2.5])
+
+
+@pytest.mark.parametrize("bad", ["abc", True, dt.datetime(2025, 1, 1)])
+def test_non_numbers_among_numbers_are_refused_with_their_position(bad):
+    with pytest.raises(ArgumentError) as err:
+        _convert.column([[1.0], [bad], [2.0]], func="SV_DEVIATION", param="prices")
+    assert str(err.value).startswith("SV_DEVIATION: prices item 2 is ")
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.one_of(st.none(), st.floats(allow_nan=False, allow_infinity=False, width=64),
+                          st.integers(-10**6, 10**6),
+                          st.floats(-1e6, 1e6).map(lambda x: f"{x:,.4f}")),
+                min_size=1, max_size=40))
+def test_vectorised_path_agrees_with_cell_by_cell(values):
+    # Reference: sheetvol.cells.to_number applied cell by cell (the rule for one cell).
+    got = _convert.column([[v] for v in values], func="SV_X", param="p").values
+    ref = np.array([cells.to_number(v) for v in values])
+    np.testing.assert_array_equal(got, ref)
+
+
+# -- dates -------------------------------------------------------------------------------
+def test_day_numbers_from_datetimes_serials_and_text_agree():
+    # 2025-01-01 is serial 45658 in the 1900 system (see module docstring).
+    as_datetimes = [[dt.datetime(2025, 1, 1)], [dt.datetime(2025, 1, 2, 12)], [None]]
+    as_serials = [[45658.0], [45659.5], [None]]
+    as_text = [["2025-01-01"], ["2025-01-02 12:00"], [""]]
+    expected = [45658.0, 45659.5, math.nan]
+    for raw in (as_datetimes, as_serials, as_text):
+        np.testing.assert_array_equal(
+            _convert.day_numbers(raw, func="SV_X_ON", param="dates"), expected)
+
+
+def test_dates_as_date_objects_and_a_header():
+    got = _convert.day_numbers([["Date"], [dt.date(2025, 1, 1)], [dt.date(2025, 1, 2)]],
+                               func="SV_X_ON", param="dates")
+    np.testing.assert_array_equal(got, [math.nan, 45658.0, 45659.0])
+
+
+def test_1904_serials_are_shifted_by_1462_days():
+    # Serial 0 in the 1904 system is 1904-01-01, serial 1462 in the 1900 system.
+    got = _convert.day_numbers([[0.0], [44196.0]], func="SV_X_ON", param="dates", date1904=True)
+    np.testing.assert_array_equal(got, [1462.0, 45658.0])
+    one = _convert.day_number(44196.0, func="SV_X_ON", param="date", date1904=True)
+    assert one == 45658.0
+
+
+def test_early_1900_serials_follow_the_fictitious_leap_day():
+    # Serials 1..60 sit before the fictitious 1900-02-29; 61 is 1900-03-01. Day numbers
+    # count real days, so 59 (1900-02-28) and 61 (1900-03-01) are one day apart.
+    got = _convert.day_numbers([[59.0], [61.0]], func="SV_X_ON", param="dates")
+    assert got[1] - got[0] == 1.0
+    assert cells.serial_to_datetime(59.0) == dt.datetime(1900, 2, 28)
+
+
+def test_date_argument_refuses_non_dates():
+    with pytest.raises(ArgumentError, match=r"^SV_ATR_ON: date is 'soon', not a date"):
+        _convert.day_number("soon", func="SV_ATR_ON", param="date")
+
+
+# -- results ---------------------------------------------------------------------------------
+def test_results_blank_as_none_not_nan():
+    rows = _convert.to_cells(np.array([np.nan, 1.5, np.inf, 2.0]))
+    assert rows == [[None], [1.5], [None], [2.0]]
+    assert _convert.to_cells(np.array([np.nan, 1.0]), horizontal=True) == [[None, 1.0]]
+
+
+def test_text_results_are_kept_and_cut_to_255():
+    rows = _convert.to_cells(np.array(["stop", np.nan, "x" * 300], dtype=object))
+    assert rows[0] == ["stop"] and rows[1] == [None]
+    assert len(rows[2][0]) == 255
+
+
+def test_to_cell():
+    one = _convert.to_cell(np.float64(2.5))
+    assert one == 2.5 and type(one) is float
+    assert _convert.to_cell(float("nan")) is None
+    assert _convert.to_cell("SV_SIZE: no risk budget") == "SV_SIZE: no risk budget"

@@ -1,0 +1,281 @@
+"""The fill end to end on ordinary workbooks: numbers against outside references,
+re-runs, macros, in-place writes, CSV input, typed formulas and the pandas helper."""
+
+from __future__ import annotations
+
+import hashlib
+import math
+import zipfile
+
+import numpy as np
+import pandas as pd
+import pytest
+import talib
+import xlsxwriter
+from openpyxl import load_workbook
+from test_messy_exports import DEV, assert_deviation_on_rows, ohlc, read_column, write_book
+
+from sheetvol.fill import FillError, FillOptions, fill_file
+from sheetvol.frame import add_columns
+from sheetvol.notes import NOTES_SHEET
+from sheetvol.recipe import parse_recipe
+
+
+@pytest.fixture(scope="module")
+def filled(tmp_path_factory):
+    """One newest-first fill of a 300-bar workbook, shared by the reference checks."""
+    tmp = tmp_path_factory.mktemp("ref")
+    df = ohlc(300, seed=11)
+    src = tmp / "prices.xlsx"
+    rows = write_book(src, df, title_rows=2, newest_first=True)
+    report = fill_file(src)
+    return df, rows, report
+
+
+def _on_rows(report, header, df, rows):
+    got = read_column(report.output, header)
+    return np.array([np.nan if got.get(rows[d]) is None else got[rows[d]] for d in df["Date"]])
+
+
+def test_deviation_matches_pandas_population_std(filled):
+    df, rows, report = filled
+    assert_deviation_on_rows(report.output, df, rows)
+
+
+def test_atr_matches_talib_after_the_seeding_transient(filled):
+    # Reference: TA-Lib ATR (Wilder). TA-Lib seeds from true ranges 2..15; sheetvol's first
+    # bar uses high-low, so values agree once the seed has decayed by (13/14)^k.
+    df, rows, report = filled
+    got = _on_rows(report, "ATR 14 (Wilder)", df, rows)
+    ref = talib.ATR(df["High"].to_numpy(float), df["Low"].to_numpy(float),
+                    df["Close"].to_numpy(float), timeperiod=14)
+    assert np.isnan(got[:13]).all() and not np.isnan(got[13])
+    np.testing.assert_allclose(got[250:], ref[250:], rtol=1e-8)
+
+
+def test_bands_and_percent_b_match_talib_bbands(filled):
+    # Reference: TA-Lib BBANDS with a simple average (matype 0) and 2 deviations.
+    df, rows, report = filled
+    close = df["Close"].to_numpy(float)
+    upper, _middle, lower = talib.BBANDS(close, timeperiod=20, nbdevup=2, nbdevdn=2, matype=0)
+    np.testing.assert_allclose(_on_rows(report, "Upper band 20×2", df, rows), upper,
+                               rtol=1e-9, equal_nan=True)
+    np.testing.assert_allclose(_on_rows(report, "Lower band 20×2", df, rows), lower,
+                               rtol=1e-9, equal_nan=True)
+    pctb = (close - lower) / (upper - lower)
+    np.testing.assert_allclose(_on_rows(report, "%b 20×2", df, rows), pctb, rtol=1e-8,
+                               atol=1e-10, equal_nan=True)
+
+
+def test_close_vol_matches_pandas_log_return_std(filled):
+    # Reference: pandas, sample std (ddof=1) of 20 log returns times sqrt(252).
+    df, rows, report = filled
+    ref = np.log(df["Close"]).diff().rolling(20).std(ddof=1) * math.sqrt(252)
+    np.testing.assert_allclose(_on_rows(report, "Close vol 20 (ann.)", df, rows),
+                               ref.to_numpy(), rtol=1e-9, equal_nan=True)
+
+
+def test_formats_headers_and_notes(filled):
+    df, rows, report = filled
+    wb = load_workbook(report.output)
+    ws = wb["Prices"]
+    headers = {c.value: c for c in ws[3] if c.value}
+    assert list(headers)[-6:] == [DEV, "ATR 14 (Wilder)", "Upper band 20×2",
+                                  "Lower band 20×2", "%b 20×2", "Close vol 20 (ann.)"]
+    last = rows[df["Date"].iloc[-1]]
+    assert ws.cell(last, headers[DEV].column).number_format == "0.00"
+    assert ws.cell(last, headers["Close vol 20 (ann.)"].column).number_format == "0.00%"
+    notes = {r[0]: r[1] for r in wb[NOTES_SHEET].iter_rows(values_only=True) if r[0]}
+    assert notes["Input file"] == "prices.xlsx"
+    assert notes["Input SHA-256"] == hashlib.sha256(report.input.read_bytes()).hexdigest()
+    assert notes["Sheet"] == "Prices" and notes["Header row"] == 3
+    assert notes["Columns read"].startswith("Date = A, Open = B")
+    written = [r for r in wb[NOTES_SHEET].iter_rows(values_only=True) if r[2] == "SV_ATR"]
+    assert written[0][1] == "ATR 14 (Wilder)" and written[0][3] == "period=14, smoothing=wilder"
+    assert any("population" in str(k) for k in notes)
+    assert any(str(k).startswith("Not investment advice") for k in notes)
+
+
+def test_rerun_replaces_its_own_columns(tmp_path):
+    df = ohlc(40)
+    src = tmp_path / "p.xlsx"
+    rows = write_book(src, df)
+    first = fill_file(src).output
+    second = fill_file(first, FillOptions(output=tmp_path / "again.xlsx"))
+    assert second.replaced == 6
+    ws = load_workbook(second.output)["Prices"]
+    headers = [c.value for c in ws[1] if c.value]
+    assert headers.count(DEV) == 1 and len(headers) == 12
+    assert_deviation_on_rows(second.output, df, rows)
+    # a different recipe on the third run reuses the freed places, clears the rest
+    recipe = parse_recipe([{"function": "SV_ATR", "options": {"period": 10}}])
+    third = fill_file(second.output, FillOptions(output=tmp_path / "third.xlsx", specs=recipe))
+    ws = load_workbook(third.output)["Prices"]
+    headers = [c.value for c in ws[1] if c.value]
+    assert headers == ["Date", "Open", "High", "Low", "Close", "Volume", "ATR 10 (Wilder)"]
+    assert all(ws.cell(r, 8).value is None for r in range(2, 42))
+
+
+def test_xlsm_in_gives_xlsm_out_with_its_macros(tmp_path):
+    src = tmp_path / "macro.xlsm"
+    vba = b"invented vba project bytes \x00\x01\x02"
+    (tmp_path / "vbaProject.bin").write_bytes(vba)
+    df = ohlc(30)
+    wb = xlsxwriter.Workbook(str(src))
+    ws = wb.add_worksheet("Prices")
+    wb.add_vba_project(str(tmp_path / "vbaProject.bin"))
+    ws.write_row(0, 0, list(df.columns))
+    date_fmt = wb.add_format({"num_format": "yyyy-mm-dd"})
+    for i, row in df.iterrows():
+        ws.write_datetime(i + 1, 0, row["Date"].to_pydatetime(), date_fmt)
+        ws.write_row(i + 1, 1, [float(row[c]) for c in df.columns[1:]])
+    wb.close()
+    report = fill_file(src)
+    assert report.output.name == "macro-filled.xlsm"
+    with zipfile.ZipFile(report.output) as z:
+        assert z.read("xl/vbaProject.bin") == vba
+        assert b"macroEnabled" in z.read("[Content_Types].xml")
+    with pytest.raises(FillError, match=r"must end in \.xlsm"):
+        fill_file(src, FillOptions(output=tmp_path / "plain.xlsx"))
+
+
+def test_in_place_keeps_a_backup(tmp_path):
+    df = ohlc(30)
+    src = tmp_path / "live.xlsx"
+    rows = write_book(src, df)
+    original = src.read_bytes()
+    report = fill_file(src, FillOptions(in_place=True))
+    assert report.output == src and report.backup == tmp_path / "live.bak.xlsx"
+    assert report.backup.read_bytes() == original
+    assert_deviation_on_rows(src, df, rows)
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["live.bak.xlsx", "live.xlsx"]
+
+
+def test_output_never_overwrites_the_input_by_accident(tmp_path):
+    src = tmp_path / "p.xlsx"
+    write_book(src, ohlc(20))
+    with pytest.raises(FillError, match="--in-place"):
+        fill_file(src, FillOptions(output=src))
+
+
+def test_csv_input_with_semicolons_and_decimal_commas(tmp_path):
+    df = ohlc(40)
+    src = tmp_path / "eu.csv"
+    lines = ["Datum;Open;High;Low;Close;Volume"]  # "Datum" is not ours: named with --date-col
+    for _, r in df.iterrows():
+        nums = ";".join(f"{r[c]:.2f}".replace(".", ",") for c in ("Open", "High", "Low", "Close"))
+        lines.append(f"{r['Date']:%d.%m.%Y};{nums};{r['Volume']}")
+    src.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    report = fill_file(src, FillOptions(decimal_comma=True, dayfirst=True,
+                                        columns={"date": "Datum"}))
+    assert report.output == tmp_path / "eu-filled.xlsx"
+    rows = {d: i + 2 for i, d in enumerate(df["Date"])}
+    assert_deviation_on_rows(report.output, df, rows, sheet="eu")
+    ws = load_workbook(report.output)["eu"]
+    assert ws["A2"].value == df["Date"].iloc[0].to_pydatetime()  # real dates, not text
+
+
+def test_typed_formulas_are_evaluated_and_kept(tmp_path):
+    df = ohlc(40)
+    src = tmp_path / "typed.xlsx"
+    write_book(src, df)
+    wb = load_workbook(src)
+    ws = wb["Prices"]
+    ws["H1"] = "typed"
+    ws["H2"] = "=SV_DEVIATION_LAST(E2:E41,14)"
+    ws["H3"] = "=SV_NOSUCH(E2:E41)"
+    wb.save(src)
+    report = fill_file(src)
+    assert report.formulas_ok == 1
+    assert any("H3" in w for w in report.warnings)
+    values = load_workbook(report.output, data_only=True)["Prices"]
+    ref = df["Close"].rolling(14).std(ddof=0).iloc[-1]  # reference: pandas, ddof=0
+    assert values["H2"].value == pytest.approx(ref, rel=1e-9)
+    formulas = load_workbook(report.output)["Prices"]
+    assert formulas["H2"].value == "=SV_DEVIATION_LAST(E2:E41,14)"
+    # the fill's own columns go right of the typed one, not over it
+    assert formulas["I1"].value == DEV
+
+
+def test_add_columns_on_a_newest_first_frame():
+    df = ohlc(60).iloc[::-1].reset_index(drop=True)
+    out = add_columns(df, ["SV_DEVIATION", {"function": "SV_ATR", "options": {"period": 5}}])
+    assert list(out.columns[-2:]) == [DEV, "ATR 5 (Wilder)"]
+    ascending = df.iloc[::-1]
+    ref = ascending["Close"].rolling(14).std(ddof=0).iloc[::-1]  # reference: pandas
+    np.testing.assert_allclose(out[DEV].to_numpy(), ref.to_numpy(), rtol=1e-9, equal_nan=True)
+    lower = pd.DataFrame({"close": [1.0, 2.0, 4.0], "HIGH": [1.5, 2.5, 4.5], "low": [0.5, 1, 3]})
+    assert "ATR 2 (Wilder)" in add_columns(lower, [{"function": "SV_ATR",
+                                                    "options": {"period": 2}}]).columns
+
+
+def test_typed_column_formula_spills_down(tmp_path):
+    df = ohlc(40)
+    src = tmp_path / "spill.xlsx"
+    write_book(src, df)
+    wb = load_workbook(src)
+    wb["Prices"]["H1"] = "typed column"
+    wb["Prices"]["H2"] = "=SV_DEVIATION(E2:E41,14)"
+    wb.save(src)
+    report = fill_file(src)
+    assert report.formulas_ok == 1
+    ws = load_workbook(report.output, data_only=True)["Prices"]
+    ref = df["Close"].rolling(14).std(ddof=0)  # reference: pandas, ddof=0
+    got = [ws.cell(r, 8).value for r in range(2, 42)]
+    assert all(v is None for v in got[:13])
+    np.testing.assert_allclose(np.array(got[13:], dtype=float), ref.to_numpy()[13:], rtol=1e-9)
+    assert load_workbook(report.output)["Prices"]["H2"].value is not None  # formula kept
+
+
+def test_columns_join_a_spreadsheet_table(tmp_path):
+    df = ohlc(30)
+    src = tmp_path / "table.xlsx"
+    wb = xlsxwriter.Workbook(str(src))
+    ws = wb.add_worksheet("Prices")
+    date_fmt = wb.add_format({"num_format": "yyyy-mm-dd"})
+    data = [[r["Date"].to_pydatetime(), *(float(r[c]) for c in df.columns[1:])]
+            for _, r in df.iterrows()]
+    ws.add_table(0, 0, len(df), len(df.columns) - 1, {
+        "name": "Bars", "data": data,
+        "columns": [{"header": "Date", "format": date_fmt},
+                    *({"header": c} for c in df.columns[1:])]})
+    wb.close()
+    report = fill_file(src)
+    assert [w.letter for w in report.written] == list("GHIJKL")
+    table = load_workbook(report.output)["Prices"].tables["Bars"]
+    assert table.ref == "A1:L31"
+    assert [c.name for c in table.tableColumns][-1] == "Close vol 20 (ann.)"
+    rows = {d: i + 2 for i, d in enumerate(df["Date"])}
+    assert_deviation_on_rows(report.output, df, rows)
+
+
+def test_progress_bar_only_on_a_terminal(tmp_path, monkeypatch, capsys):
+    import sys
+
+    import sheetvol.fill as fill_mod
+
+    df = ohlc(60)
+    src = tmp_path / "p.xlsx"
+    write_book(src, df)
+    monkeypatch.setattr(fill_mod, "PROGRESS_MIN_ROWS", 10)
+    fill_file(src, FillOptions(progress=True))
+    assert capsys.readouterr().err == ""  # captured stderr is not a terminal
+    monkeypatch.setattr(sys.stderr, "isatty", lambda: True, raising=False)
+    fill_file(src, FillOptions(progress=True))
+    assert "writing p-filled.xlsx" in capsys.readouterr().err
+    fill_file(src, FillOptions(progress=False))
+    assert capsys.readouterr().err == ""
+
+
+def test_cells_far_below_the_header_are_never_overwritten(tmp_path):
+    df = ohlc(80)
+    src = tmp_path / "note.xlsx"
+    rows = write_book(src, df)
+    wb = load_workbook(src)
+    wb["Prices"]["H70"] = "my note"  # below the rows the header search looks at
+    wb.save(src)
+    report = fill_file(src)
+    assert [w.letter for w in report.written][0] == "I"
+    ws = load_workbook(report.output)["Prices"]
+    assert ws["H70"].value == "my note" and ws["G1"].value is None
+    assert_deviation_on_rows(report.output, df, rows)

@@ -1,0 +1,333 @@
+"""The headless evaluator of sheetvol formulas typed into cells, on real .xlsx files.
+
+Workbooks are written with openpyxl (formulas typed as text, in every form a
+spreadsheet program stores them), then read back two ways: with openpyxl and
+with the fill's own reader (sheetvol.workbook.package). Expected numbers come
+from calling the kernels directly on the same invented prices; outside
+references for the kernels themselves are in their own tests, plus pandas
+here for the simple average (rolling mean) and the population deviation
+(rolling std, ddof=0).
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import math
+from pathlib import Path
+
+import numpy as np
+import openpyxl
+import pandas as pd
+import pytest
+from openpyxl.utils.datetime import CALENDAR_MAC_1904
+
+from sheetvol import calling
+from sheetvol.formulas import (
+    Call,
+    FormulaError,
+    evaluate,
+    evaluate_cells,
+    function_name,
+    mentions_sheetvol,
+    openpyxl_resolver,
+    package_resolver,
+    parse,
+    parse_reference,
+)
+from sheetvol.kernels.dispersion import dispersion
+from sheetvol.kernels.ranges import average_true_range
+from sheetvol.kernels.regime import percentile_rank
+
+N = 120
+FIRST = dt.datetime(2025, 1, 6)
+
+
+def prices(seed: int = 21) -> dict[str, np.ndarray]:
+    """Invented daily bars."""
+    rng = np.random.default_rng(seed)
+    close = 50 * np.exp(np.cumsum(rng.normal(0, 0.012, N)))
+    open_ = np.r_[50.0, close[:-1]] * np.exp(rng.normal(0, 0.003, N))
+    high = np.maximum(open_, close) * np.exp(np.abs(rng.normal(0, 0.004, N)))
+    low = np.minimum(open_, close) * np.exp(-np.abs(rng.normal(0, 0.004, N)))
+    return {"open": open_, "high": high, "low": low, "close": close}
+
+
+P = prices()
+DATES = [FIRST + dt.timedelta(days=i) for i in range(N)]
+ATR14 = average_true_range(P["high"], P["low"], P["close"], 14)
+HLC = "Prices!C2:C121,Prices!D2:D121,Prices!E2:E121"
+
+# (formula typed into Log!<cell>, expected value or column)
+FORMS = {
+    "plain": ("=SV_DEVIATION(Prices!E2:E121,14)", dispersion(P["close"], 14)),
+    "future-function prefix, absolute refs": (
+        '=_xludf.SV_DEVIATION(Prices!$E$2:$E$121,14,"exponential")',
+        dispersion(P["close"], 14, "exponential")),
+    "external-book prefix": (f"=[1]!SV_ATR_LAST({HLC})", ATR14[-1]),
+    "add-in file prefix, lower case, whole columns": (
+        "='sheetvol.xlam'!sv_atr(Prices!C:C,Prices!D:D,Prices!E:E,14)",
+        np.r_[np.nan, ATR14]),
+    "quoted sheet name": ("=SV_AVERAGE_LAST('My Sheet'!B2:B121, 5)",
+                          pd.Series(P["close"]).rolling(5).mean().iloc[-1]),
+    "nested series call": (f"=SV_VOLRANK(SV_ATR({HLC},14),20)", percentile_rank(ATR14, 20)),
+    "nested scalar call": (f'=SV_STOP(Prices!E121, SV_ATR_LAST({HLC},14), 2, "long")',
+                           P["close"][-1] - 2 * ATR14[-1]),
+    "arithmetic and unary minus": ("=-SV_DEVIATION_LAST(Prices!E2:E121,14)/2+1",
+                                   1 - dispersion(P["close"], 14)[-1] / 2),
+    "percent": ("=SV_AVERAGE_LAST(Prices!E2:E121,5)*10%",
+                pd.Series(P["close"]).rolling(5).mean().iloc[-1] / 10),
+    "as-of date in a cell": ("=SV_DEVIATION_ON(B1, Prices!A2:A121, Prices!E2:E121, 14)",
+                             dispersion(P["close"], 14)[60]),
+    "omitted argument takes the default": ("=SV_DEVIATION_LAST(Prices!E2:E121,,)",
+                                           dispersion(P["close"], 14)[-1]),
+}
+ERRORS = {
+    "=IF(B1>0,SV_ATR_LAST(Prices!C2:C9,Prices!D2:D9,Prices!E2:E9),0)":
+        "cannot evaluate IF(...): only sheetvol functions, cells, ranges and numbers are "
+        "supported headless",
+    "=SV_AVERAGE(Closes, 5)": "cannot evaluate Closes: defined names are not supported",
+    "=SV_AVERAGE(Quotes[Close], 5)": "cannot evaluate Quotes[Close]: table references",
+    "=SV_NOPE(Prices!E2:E9)": "cannot evaluate SV_NOPE(...): no sheetvol function named SV_NOPE",
+    "=SV_AVERAGE(Prices!E2:E121, 1)": "SV_AVERAGE: period must be a whole number from 2",
+    "=SV_AVERAGE({1,2,3},2)": "array constants",
+    "=SV_AVERAGE(Prices!E2:E9 Prices!E3:E9,2)": "range intersection",
+    "=SV_ATR_LAST(Prices!C2:D121,Prices!D2:D121,Prices!E2:E121)":
+        "SV_ATR_LAST: high must be one column",
+    "=SV_AVERAGE(Prices!E2:E121,2)^2": "the operator '^' is not supported",
+    "=SV_AVERAGE([other.xlsx]Data!E2:E9,2)": "other workbooks",
+    "=SV_DEVIATION_ON(B1, Prices!A2:A121, Prices!E2:E60)": "SV_DEVIATION_ON: dates has 120 rows",
+}
+
+
+def build(path: Path, *, date1904: bool = False) -> Path:
+    wb = openpyxl.Workbook()
+    if date1904:
+        wb.epoch = CALENDAR_MAC_1904
+    ws = wb.active
+    ws.title = "Prices"
+    ws.append(["Date", "Open", "High", "Low", "Close"])
+    for i in range(N):
+        ws.append([DATES[i], P["open"][i], P["high"][i], P["low"][i], P["close"][i]])
+    ws["J1"] = 5
+    ws["H2"] = "=SV_AVERAGE_LAST(E2:E121, J1)"  # same-sheet references
+    my = wb.create_sheet("My Sheet")
+    my["B1"] = "Close copy"
+    for i in range(N):
+        my.cell(row=i + 2, column=2, value=P["close"][i])
+    log = wb.create_sheet("Log")
+    log["B1"] = DATES[60] + dt.timedelta(hours=20)  # between bars 60 and 61
+    for row, (formula, _) in enumerate(FORMS.values(), start=2):
+        log.cell(row=row, column=1, value=formula)
+    for row, formula in enumerate(ERRORS, start=2):
+        log.cell(row=row, column=3, value=formula)
+    wb.save(path)
+    return path
+
+
+@pytest.fixture(scope="module")
+def book(tmp_path_factory) -> Path:
+    return build(tmp_path_factory.mktemp("formulas") / "typed.xlsx")
+
+
+def check(got, expected):
+    if isinstance(expected, np.ndarray):
+        assert isinstance(got, np.ndarray) and got.shape == expected.shape
+        np.testing.assert_array_equal(np.isnan(got), np.isnan(expected))
+        np.testing.assert_allclose(got, expected, rtol=1e-12)
+    else:
+        assert got == pytest.approx(float(expected), rel=1e-12)
+
+
+@pytest.mark.parametrize("label", list(FORMS))
+def test_forms_read_with_openpyxl(book, label):
+    calling.CACHE.clear()
+    formulas = openpyxl.load_workbook(book)
+    values = openpyxl.load_workbook(book, data_only=True)
+    row = list(FORMS).index(label) + 2
+    text = formulas["Log"].cell(row=row, column=1).value
+    assert text == FORMS[label][0]
+    assert mentions_sheetvol(text)
+    got = evaluate(text, openpyxl_resolver(values), current_sheet="Log")
+    check(got, FORMS[label][1])
+
+
+def test_same_sheet_references_and_a_period_from_a_cell(book):
+    wb = openpyxl.load_workbook(book)
+    text = wb["Prices"]["H2"].value
+    got = evaluate(text, openpyxl_resolver(openpyxl.load_workbook(book, data_only=True)),
+                   current_sheet="Prices")
+    assert got == pytest.approx(pd.Series(P["close"]).rolling(5).mean().iloc[-1], rel=1e-12)
+
+
+@pytest.mark.parametrize("text", list(ERRORS))
+def test_what_cannot_be_evaluated_says_why(book, text):
+    values = openpyxl.load_workbook(book, data_only=True)
+    with pytest.raises(FormulaError) as err:
+        evaluate(text, openpyxl_resolver(values), current_sheet="Log")
+    assert ERRORS[text] in str(err.value)
+
+
+def test_defined_names_when_given():
+    def cells(sheet, top, left, bottom, right):
+        assert sheet == "Prices" and (top, left, bottom, right) == (2, 5, 121, 5)
+        return [[x] for x in P["close"].tolist()]
+    got = evaluate("=SV_AVERAGE_LAST(Closes, 5)", cells, names={"closes": "Prices!$E$2:$E$121"})
+    assert got == pytest.approx(pd.Series(P["close"]).rolling(5).mean().iloc[-1], rel=1e-12)
+
+
+def test_the_fill_reader_finds_and_evaluates_the_same_formulas(book):
+    # The fill reads with sheetvol.workbook.package: stored results, raw serial dates.
+    package_mod = pytest.importorskip("sheetvol.workbook.package")
+    pkg = package_mod.Package.open(book)
+    found = {(fc.sheet, fc.row, fc.col): fc for fc in pkg.formula_cells()}
+    resolve = package_resolver(pkg)
+    for row, (formula, expected) in enumerate(FORMS.values(), start=2):
+        fc = found[("Log", row, 1)]
+        assert "=" + fc.formula == formula
+        check(evaluate(fc.formula, resolve, current_sheet=fc.sheet, date1904=pkg.date1904),
+              expected)
+
+
+def test_1904_workbook_dates(tmp_path):
+    package_mod = pytest.importorskip("sheetvol.workbook.package")
+    path = build(tmp_path / "mac.xlsx", date1904=True)
+    pkg = package_mod.Package.open(path)
+    assert pkg.date1904
+    text = FORMS["as-of date in a cell"][0]
+    got = evaluate(text, package_resolver(pkg), current_sheet="Log", date1904=True)
+    assert got == pytest.approx(dispersion(P["close"], 14)[60], rel=1e-12)
+    # A date typed as text is absolute; the dates column holds 1904 serials. Only with
+    # the workbook's date system do the two meet on the right bar. Read as 1900 serials
+    # the bars would seem 1,462 days earlier, all before the date: the last bar is used.
+    typed = '=SV_DEVIATION_ON("' + DATES[60].strftime("%Y-%m-%d") + '", Prices!A2:A121, ' \
+        "Prices!E2:E121, 14)"
+    right = evaluate(typed, package_resolver(pkg), current_sheet="Log", date1904=True)
+    assert right == pytest.approx(dispersion(P["close"], 14)[60], rel=1e-12)
+    wrong = evaluate(typed, package_resolver(pkg), current_sheet="Log", date1904=False)
+    assert wrong == pytest.approx(dispersion(P["close"], 14)[-1], rel=1e-12)
+    assert wrong != pytest.approx(right, rel=1e-6)
+
+
+def test_whole_column_result_is_a_column_and_pandas_agrees():
+    # Reference: pandas rolling(14).std(ddof=0).
+    def cells(sheet, top, left, bottom, right):
+        assert bottom is None  # whole column: the resolver reads to the last used row
+        return [["Close"]] + [[x] for x in P["close"].tolist()]
+    got = evaluate("=SV_DEVIATION(E:E,14)", cells, current_sheet="Prices")
+    ref = np.r_[np.nan, pd.Series(P["close"]).rolling(14).std(ddof=0).to_numpy()]
+    np.testing.assert_allclose(got, ref, rtol=1e-10)
+    np.testing.assert_array_equal(np.isnan(got), np.isnan(ref))
+
+
+def test_scalar_function_over_ranges_gives_a_column():
+    def cells(sheet, top, left, bottom, right):
+        return [[100.0], [50.0], [None]] if left == 1 else [[2.0], [1.0], [1.0]]
+    got = evaluate('=SV_STOP(A1:A3, B1:B3, 2, "long")', cells)
+    # Hand-worked: 100 - 2*2 = 96, 50 - 2*1 = 48; the blank trade stays blank.
+    np.testing.assert_array_equal(got, [96.0, 48.0, np.nan])
+
+
+# -- parsing ---------------------------------------------------------------------------------
+@pytest.mark.parametrize(
+    ("token", "name"),
+    [("SV_ATR(", "SV_ATR"), ("_xludf.SV_ATR(", "SV_ATR"), ("[1]!SV_ATR(", "SV_ATR"),
+     ("'addin.xlam'!sv_atr_on(", "SV_ATR_ON"), ("sheetvol.xlam!SV_ATR(", "SV_ATR"),
+     ("_xlfn.STDEV.P(", "STDEV.P")],
+)
+def test_function_name_forms(token, name):
+    assert function_name(token) == name
+
+
+def test_mentions_sheetvol():
+    assert mentions_sheetvol("=[1]!SV_ATR(A1:A9,B1:B9,C1:C9)")
+    assert mentions_sheetvol("ROUND(_xludf.sv_deviation(E2:E9,5),2)")
+    assert not mentions_sheetvol('=CONCAT("SV_ATR(", A1)')
+    assert not mentions_sheetvol("=SUM(SV_RANGE)")  # a defined name, not a call
+    assert not mentions_sheetvol("=SUM(A1:A3)")
+
+
+@pytest.mark.parametrize(
+    ("text", "sheet", "box"),
+    [
+        ("A1", None, (1, 1, 1, 1)),
+        ("$B$2:$C$10", None, (2, 2, 10, 3)),
+        ("C10:A2", None, (2, 1, 10, 3)),
+        ("Prices!E2:E300", "Prices", (2, 5, 300, 5)),
+        ("'My Sheet'!E2", "My Sheet", (2, 5, 2, 5)),
+        ("'It''s'!A1:A2", "It's", (1, 1, 2, 1)),
+        ("E:E", None, (1, 5, None, 5)),
+        ("Prices!$C:$E", "Prices", (1, 3, None, 5)),
+        ("2:3", None, (2, 1, 3, None)),
+    ],
+)
+def test_parse_reference(text, sheet, box):
+    ref = parse_reference(text)
+    assert ref.sheet == sheet
+    assert (ref.top, ref.left, ref.bottom, ref.right) == box
+
+
+def test_parse_tree():
+    node = parse("SV_STOP(E9, SV_ATR_LAST(C2:C9,D2:D9,E2:E9), 2)")
+    assert isinstance(node, Call) and node.name == "SV_STOP"
+    assert isinstance(node.args[1], Call) and node.args[1].name == "SV_ATR_LAST"
+
+
+def test_bare_range_and_literal_top_level():
+    def cells(sheet, top, left, bottom, right):
+        return [[7.0]]
+    assert evaluate("=A1", cells) == 7.0
+    assert evaluate("=1+2*3", cells) == 7.0
+    assert math.isnan(evaluate("=SV_AVERAGE(A1:A1, 2)", cells)[0])
+
+
+# -- many cells ----------------------------------------------------------------------------
+def test_evaluate_cells_orders_dependencies_and_overlays_spills(tmp_path):
+    # A trade log: ATR at entry (an _ON formula), then a stop reading that cell; and a
+    # whole-column ATR whose spilled values a _LAST formula reads. openpyxl-written files
+    # store no results, so without ordering the later formulas would read blanks.
+    from types import SimpleNamespace
+
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.title = "Prices"
+    ws.append(["Date", "Open", "High", "Low", "Close"])
+    for i in range(N):
+        ws.append([DATES[i], P["open"][i], P["high"][i], P["low"][i], P["close"][i]])
+    path = tmp_path / "log.xlsx"
+    wb.save(path)
+    resolve = openpyxl_resolver(openpyxl.load_workbook(path, data_only=True))
+    cells = [
+        SimpleNamespace(sheet="Log", row=2, col=5, formula='SV_STOP(C2, D2, 2, "long")'),
+        SimpleNamespace(sheet="Log", row=2, col=4,
+                        formula="SV_ATR_ON(A2, Prices!A2:A121, Prices!C2:C121, Prices!D2:D121,"
+                                " Prices!E2:E121, 14)"),
+        SimpleNamespace(sheet="Prices", row=2, col=9, formula="SV_AVERAGE_LAST(H2:H121, 3)"),
+        SimpleNamespace(sheet="Prices", row=2, col=8, formula="SV_ATR(C2:C121,D2:D121,E2:E121)"),
+        SimpleNamespace(sheet="Log", row=3, col=1, formula="SV_STOP(A3, B3)"),
+        SimpleNamespace(sheet="Log", row=3, col=2, formula="SV_STOP(B3, A3)"),
+    ]
+    log_values = {(2, 1): DATES[70], (2, 3): 55.0}
+
+    def read(sheet, top, left, bottom, right):
+        if sheet == "Log":
+            return [[log_values.get((r, c)) for c in range(left, right + 1)]
+                    for r in range(top, bottom + 1)]
+        return resolve(sheet, top, left, bottom, right)
+
+    out = evaluate_cells(cells, read)
+    assert out[("Log", 2, 4)] == pytest.approx(ATR14[70], rel=1e-12)
+    assert out[("Log", 2, 5)] == pytest.approx(55.0 - 2 * ATR14[70], rel=1e-12)
+    np.testing.assert_allclose(out[("Prices", 2, 8)], ATR14, rtol=1e-12)
+    assert out[("Prices", 2, 9)] == pytest.approx(ATR14[-3:].mean(), rel=1e-12)
+    for key in (("Log", 3, 1), ("Log", 3, 2)):
+        assert isinstance(out[key], FormulaError) and "circular" in str(out[key])
+
+
+def test_docstring_examples():
+    import doctest
+
+    from sheetvol import _convert, addin, calling, formulas
+
+    for module in (formulas, calling, _convert, addin):
+        result = doctest.testmod(module)
+        assert result.failed == 0 and result.attempted > 0, module.__name__

@@ -1,0 +1,200 @@
+"""Build workbooks/template.xlsx: sheetvol formulas typed in, results already stored.
+
+Invented scenario: daily bars of "Larkspur Tin", a made-up instrument, and a
+small trade log. The price sheet holds whole-column formulas (ATR, bands) and a
+filled-down ``_LAST`` column; the trade log reads volatility on each trade's
+date (``_ON``) and derives stop, target, size and outcome. The formulas are
+written with openpyxl, then their results are computed by the headless
+evaluator (``sheetvol.formulas.evaluate_cells``, the code the fill uses) and
+stored with the workbook layer, keeping the formulas. Opened without the
+add-in, the template shows numbers; with the add-in, the same formulas
+recalculate live.
+
+Run: ``python workbooks/make_template.py [--out PATH]`` from the project root
+(deterministic: the same content every time, apart from zip timestamps).
+"""
+
+from __future__ import annotations
+
+import argparse
+import datetime as dt
+import math
+import sys
+import tempfile
+from pathlib import Path
+
+import numpy as np
+import openpyxl
+from openpyxl.styles import Font
+
+HERE = Path(__file__).resolve().parent
+if str(HERE.parent) not in sys.path:  # run from a checkout without installing the package
+    sys.path.insert(0, str(HERE.parent))
+
+from sheetvol import formulas  # noqa: E402
+from sheetvol.workbook.edits import CellResult, SpillResult  # noqa: E402
+from sheetvol.workbook.package import Package  # noqa: E402
+from sheetvol.workbook.writer import write_package  # noqa: E402
+
+OUT = HERE / "template.xlsx"
+ROWS = 260  # trading days
+LAST = ROWS + 1  # last price row on the sheet
+SEED = 20250102
+
+
+def bars() -> tuple[list[dt.datetime], dict[str, np.ndarray]]:
+    """Invented weekday bars: a geometric random walk with gaps and wicks."""
+    rng = np.random.default_rng(SEED)
+    days: list[dt.datetime] = []
+    day = dt.datetime(2025, 1, 2)
+    while len(days) < ROWS:
+        if day.weekday() < 5:
+            days.append(day)
+        day += dt.timedelta(days=1)
+    close = 31.5 * np.exp(np.cumsum(rng.normal(0.0002, 0.013, ROWS)))
+    open_ = np.r_[31.5, close[:-1]] * np.exp(rng.normal(0, 0.004, ROWS))
+    high = np.maximum(open_, close) * np.exp(np.abs(rng.normal(0, 0.006, ROWS)))
+    low = np.minimum(open_, close) * np.exp(-np.abs(rng.normal(0, 0.006, ROWS)))
+    volume = rng.integers(20_000, 90_000, ROWS)
+    cols = {"open": open_, "high": high, "low": low, "close": close, "volume": volume}
+    return days, {k: np.round(v, 3) if k != "volume" else v for k, v in cols.items()}
+
+
+def _col(letter: str) -> str:
+    return f"Prices!${letter}$2:${letter}${LAST}"
+
+
+TRADES = [  # (bar index of the trade date, side)
+    (40, "long"), (71, "short"), (102, "long"), (133, "long"), (160, "short"),
+    (188, "long"), (215, "short"), (240, "long"),
+]
+
+
+def raw_workbook(path: Path) -> None:
+    """Write the workbook with formulas only (no stored results yet)."""
+    days, p = bars()
+    wb = openpyxl.Workbook()
+    bold = Font(bold=True)
+
+    about = wb.active
+    about.title = "About"
+    lines = [
+        "sheetvol template (invented data: Larkspur Tin is not a real instrument)",
+        "",
+        "Prices: daily bars with sheetvol formulas in columns H to K.",
+        "  H, I, J: whole-column formulas (one formula, a column of results).",
+        "  K: SV_CLOSEVOL_LAST filled down, one formula per row.",
+        "Trades: a trade log; volatility on each trade's date (SV_ATR_ON), stop, target,",
+        "  size (from Settings) and the outcome read from the bars after entry.",
+        "",
+        "The results were computed and stored by sheetvol's headless evaluator, so the",
+        "numbers show without the add-in. With the add-in installed (docs/addin.md) the",
+        "same formulas recalculate live when prices change.",
+    ]
+    for i, text in enumerate(lines, start=1):
+        about.cell(row=i, column=1, value=text)
+    about["A1"].font = bold
+    about.column_dimensions["A"].width = 90
+
+    ws = wb.create_sheet("Prices")
+    ws.append(["Date", "Open", "High", "Low", "Close", "Volume", None,
+               "ATR 14", "Upper band 20/2", "Lower band 20/2", "Volatility 20 (ann.)"])
+    for c in ws[1]:
+        c.font = bold
+    for i, d in enumerate(days):
+        r = i + 2
+        ws.cell(row=r, column=1, value=d).number_format = "yyyy-mm-dd"
+        for j, key in enumerate(("open", "high", "low", "close"), start=2):
+            ws.cell(row=r, column=j, value=float(p[key][i])).number_format = "0.000"
+        ws.cell(row=r, column=6, value=int(p["volume"][i]))
+        ws.cell(row=r, column=11, value=f"=SV_CLOSEVOL_LAST($E$2:E{r},20,252)").number_format = \
+            "0.0%"
+    ws["H2"] = f"=SV_ATR(C2:C{LAST},D2:D{LAST},E2:E{LAST},14)"
+    ws["I2"] = f'=SV_BAND(E2:E{LAST},"upper",20,2)'
+    ws["J2"] = f'=SV_BAND(E2:E{LAST},"lower",20,2)'
+    ws.freeze_panes = "B2"
+    for letter, width in zip("ABCDEFGHIJK", (12, 9, 9, 9, 9, 9, 3, 10, 15, 15, 19), strict=True):
+        ws.column_dimensions[letter].width = width
+
+    st = wb.create_sheet("Settings")
+    for r, (label, value, fmt) in enumerate([
+        ("Account equity", 100_000, "#,##0"),
+        ("Risk per trade", 0.01, "0.0%"),
+        ("Stop distance (ATR multiples)", 2, "0.0"),
+        ("Target distance (ATR multiples)", 3, "0.0"),
+    ], start=1):
+        st.cell(row=r, column=1, value=label)
+        st.cell(row=r, column=2, value=value).number_format = fmt
+    st.column_dimensions["A"].width = 32
+
+    tr = wb.create_sheet("Trades")
+    tr.append(["Trade date", "Side", "Entry", "ATR at entry", "Stop", "Target", "Size",
+               "Outcome", "R"])
+    for c in tr[1]:
+        c.font = bold
+    bars_ = ", ".join(_col(x) for x in "ABCDE")
+    for k, (i, side) in enumerate(TRADES):
+        r = k + 2
+        tr.cell(row=r, column=1, value=days[i]).number_format = "yyyy-mm-dd"
+        tr.cell(row=r, column=2, value=side)
+        tr.cell(row=r, column=3, value=float(p["close"][i])).number_format = "0.000"
+        tr.cell(row=r, column=4, value=(
+            f"=SV_ATR_ON(A{r}, {_col('A')}, {_col('C')}, {_col('D')}, {_col('E')}, 14)"
+        )).number_format = "0.000"
+        tr.cell(row=r, column=5, value=f"=SV_STOP(C{r}, D{r}, Settings!$B$3, B{r})")
+        tr.cell(row=r, column=6, value=f"=SV_TARGET(C{r}, D{r}, Settings!$B$4, B{r})")
+        tr.cell(row=r, column=7, value=f"=SV_SIZE(Settings!$B$1, Settings!$B$2, C{r}, E{r})")
+        tr.cell(row=r, column=8, value=(
+            f'=SV_OUTCOME({bars_}, A{r}, C{r}, B{r}, E{r}, F{r}, "result")'))
+        tr.cell(row=r, column=9, value=f'=SV_OUTCOME({bars_}, A{r}, C{r}, B{r}, E{r}, F{r}, "r")')
+        for c in (5, 6):
+            tr.cell(row=r, column=c).number_format = "0.000"
+        tr.cell(row=r, column=9).number_format = "0.00"
+    for letter, width in zip("ABCDEFGHI", (12, 7, 9, 12, 9, 9, 8, 10, 7), strict=True):
+        tr.column_dimensions[letter].width = width
+    # openpyxl asks for a full recalculation on open by default, which would replace the
+    # stored results with errors wherever the add-in is missing.
+    wb.calculation.fullCalcOnLoad = False
+    wb.save(path)
+
+
+def store_results(raw: Path, out: Path) -> list[str]:
+    """Evaluate every sheetvol formula and store the results; return problems found."""
+    pkg = Package.open(raw)
+    cells = pkg.formula_cells()
+    results = formulas.evaluate_cells(cells, formulas.package_resolver(pkg),
+                                      date1904=pkg.date1904)
+    edits: list = []
+    problems: list[str] = []
+    for fc in cells:
+        value = results[(fc.sheet, fc.row, fc.col)]
+        if isinstance(value, formulas.FormulaError):
+            problems.append(f"{fc.sheet}!R{fc.row}C{fc.col}: {value}")
+        elif isinstance(value, np.ndarray):
+            edits.append(SpillResult(fc.sheet, fc.row, fc.col, fc.formula,
+                                     np.asarray(value, dtype=np.float64), "0.000"))
+        else:
+            if isinstance(value, float) and not math.isfinite(value):
+                value = None
+            edits.append(CellResult(fc.sheet, fc.row, fc.col, value))
+    write_package(pkg, out, edits)
+    return problems
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Build the template; print what was stored."""
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    parser.add_argument("--out", type=Path, default=OUT)
+    ns = parser.parse_args(argv)
+    with tempfile.TemporaryDirectory(prefix="sheetvol-template-") as tmp:
+        raw = Path(tmp) / "raw.xlsx"
+        raw_workbook(raw)
+        problems = store_results(raw, ns.out)
+    for line in problems:
+        print("not evaluated:", line, file=sys.stderr)
+    print(f"wrote {ns.out}")
+    return 1 if problems else 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
