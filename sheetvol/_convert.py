@@ -170,6 +170,7 @@ def column(value: Any, *, func: str, param: str, decimal_comma: bool = False) ->
         return Column(np.array(flat, dtype=np.float64), horizontal)
     out = np.empty(len(flat), dtype=np.float64)
     seen_number = False
+    header: int | None = None
     for i, v in enumerate(flat):
         if type(v) in _PLAIN:
             out[i] = math.nan if v is None else float(v)
@@ -180,11 +181,16 @@ def column(value: Any, *, func: str, param: str, decimal_comma: bool = False) ->
         except cells.CellValueError:
             if isinstance(v, str) and not seen_number:
                 out[i] = math.nan  # a header above the numbers
+                header = i if header is None else header
                 continue
             raise ArgumentError(
                 f"{func}: {param} item {i + 1} is {_show(v)}, not a number"
             ) from None
         seen_number = seen_number or not math.isnan(out[i])
+    if header is not None and not seen_number:
+        raise ArgumentError(
+            f"{func}: {param} item {header + 1} is {_show(flat[header])}, not a number"
+        )
     return Column(out, horizontal)
 
 
@@ -224,16 +230,21 @@ def day_numbers(value: Any, *, func: str, param: str, date1904: bool = False) ->
             return np.asarray(days, dtype=np.float64)
     out = np.empty(len(flat), dtype=np.float64)
     seen = False
+    header: int | None = None
     for i, v in enumerate(flat):
         try:
             when = cells.to_datetime(v, date1904=date1904)
         except cells.CellValueError:
             if isinstance(v, str) and not seen:
                 out[i] = math.nan
+                header = i if header is None else header
                 continue
             raise ArgumentError(f"{func}: {param} item {i + 1} is {_show(v)}, not a date") from None
         out[i] = math.nan if when is None else cells.datetime_to_serial(when)
         seen = seen or when is not None
+    if header is not None and not seen:
+        raise ArgumentError(f"{func}: {param} item {header + 1} is {_show(flat[header])}, "
+                            "not a date")
     return out
 
 

@@ -93,11 +93,41 @@ def run(rows: int = 100_000, repeat: int = 7) -> dict[str, tuple[float, float]]:
     return out
 
 
+def fill_down(rows: int = 2_000) -> dict[str, float]:
+    """Seconds to compute a column of ``rows`` filled-down ``SV_VOLRANK_LAST`` cells.
+
+    Cell r passes the anchored range of rows 1..r. Which order a spreadsheet
+    program calculates the cells in is its own business, so both orders are
+    timed, with the column cache and with it cleared before every cell.
+    """
+    from sheetvol import addin
+    from sheetvol.calling import CACHE
+
+    close = _inputs(rows)["close"]
+    udf = addin.UDFS["SV_VOLRANK_LAST"]
+    out = {}
+    for order, sizes in (("top row first", range(1, rows + 1)),
+                         ("bottom row first", range(rows, 0, -1))):
+        for cached in (True, False):
+            CACHE.clear()
+            t0 = time.perf_counter()
+            for m in sizes:
+                if not cached:
+                    CACHE.clear()
+                udf(close[:m], 252)
+            label = f"{order}, {'with' if cached else 'without'} the cache"
+            out[label] = time.perf_counter() - t0
+    CACHE.clear()
+    return out
+
+
 def main(argv: list[str] | None = None) -> int:
     """Print the per-call cost; exit 1 when a whole-column call is over budget."""
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--rows", type=int, default=100_000)
     parser.add_argument("--repeat", type=int, default=7)
+    parser.add_argument("--fill-down", type=int, default=2_000, metavar="ROWS",
+                        help="rows of the filled-down _LAST column to time (0 to skip)")
     ns = parser.parse_args(argv)
     results = run(ns.rows, ns.repeat)
     print(f"add-in per-call Python time, {ns.rows:,} rows, best / median of {ns.repeat}:")
@@ -108,6 +138,11 @@ def main(argv: list[str] | None = None) -> int:
         if "whole column" in label and median > BUDGET_MS and ns.rows <= 100_000:
             flag, over = f"  OVER the {BUDGET_MS:.0f} ms budget", True
         print(f"  {label:<{width}}  {best:7.1f} ms / {median:7.1f} ms{flag}")
+    if ns.fill_down:
+        print(f"a column of {ns.fill_down:,} filled-down SV_VOLRANK_LAST cells "
+              "(each over rows 1..r):")
+        for label, seconds in fill_down(ns.fill_down).items():
+            print(f"  {label:<35} {seconds:6.2f} s")
     return 1 if over else 0
 
 

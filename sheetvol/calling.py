@@ -262,7 +262,8 @@ class _PrefixCache:
                 e for e in self._entries
                 if not (e[0] == key and len(e[1][0]) <= m and _is_prefix(e[1], inputs))
             ]
-            self._entries.insert(0, (key, tuple(a.copy() for a in inputs), out))
+            # The inputs were converted for this call alone, so they are not copied.
+            self._entries.insert(0, (key, inputs, out))
             del self._entries[self.size:]
 
     def clear(self) -> None:

@@ -8,6 +8,7 @@ command line that cannot be understood.
 from __future__ import annotations
 
 import argparse
+import glob
 import sys
 from collections.abc import Sequence
 from pathlib import Path
@@ -47,8 +48,8 @@ Default columns:
 
 FILL_EPILOG = """\
 rows the fill skips or leaves blank:
-  blank rows; dated rows without prices (holidays); trailing summary rows
-  ("Total", "Average", or prices without a date after the last bar); price
+  blank rows; dated rows without prices (holidays); summary and footer rows
+  ("Total", "Average", or anything without a date after the last bar); price
   cells holding errors (#N/A) or blank words ("n/a", "-") are gaps: that
   bar's results are blank and the windows continue over the other bars.
   Text that is not a number ("abc"), High below Low, the same date twice or
@@ -74,6 +75,7 @@ examples:
   sheetvol fill export.csv -o report.xlsx
   sheetvol fill exports/*.xlsx --out-dir filled/
   sheetvol fill book.xlsm --sheet Daily --close-col "Settle" --header-row 4
+  sheetvol fill desk.xlsx --all-sheets          one sheet of bars per instrument
   sheetvol fill prices.xlsx --close-col F --date-col A
   sheetvol fill eu-export.csv --decimal-comma --dayfirst
   sheetvol fill prices.xlsx --recipe my-columns.toml --chart
@@ -126,8 +128,12 @@ def build_parser() -> argparse.ArgumentParser:
     cols = fill.add_argument_group(
         "where the prices are (found by their headers unless given)"
     )
-    cols.add_argument("--sheet", metavar="NAME", help="sheet to read (default: the first "
-                      "sheet with a Close column)")
+    pick = cols.add_mutually_exclusive_group()
+    pick.add_argument("--sheet", metavar="NAME", action="append",
+                      help="sheet to fill (default: the first sheet with a Close column); "
+                           "repeat for several")
+    pick.add_argument("--all-sheets", action="store_true",
+                      help="fill every sheet with Date and Close columns")
     cols.add_argument("--header-row", type=int, metavar="N",
                       help="row of the column headers (default: searched in the first 50 rows)")
     for role, letter in zip(ROLES, "ABCDEF", strict=True):
@@ -214,8 +220,21 @@ def _show_default(value: object) -> str:
     return str(value)
 
 
+def _expand(files: Sequence[Path]) -> list[Path]:
+    """Expand wildcards the shell left alone (Windows shells pass ``*.xlsx`` as typed)."""
+    out: list[Path] = []
+    for f in files:
+        text = str(f)
+        if not f.exists() and any(ch in text for ch in "*?["):
+            matches = sorted(Path(p) for p in glob.glob(text))
+            out.extend(matches or [f])
+        else:
+            out.append(f)
+    return out
+
+
 def _run_fill(args: argparse.Namespace, parser: argparse.ArgumentParser) -> int:
-    files: list[Path] = args.files
+    files = _expand(args.files)
     if args.output is not None and len(files) > 1:
         parser.error("-o/--output takes one input; use --out-dir for several")
     if args.out_dir is not None and not args.out_dir.is_dir():
@@ -231,7 +250,8 @@ def _run_fill(args: argparse.Namespace, parser: argparse.ArgumentParser) -> int:
             return 1
     columns = {role: getattr(args, f"{role}_col") for role in ROLES}
     options = FillOptions(
-        output=args.output, out_dir=args.out_dir, sheet=args.sheet,
+        output=args.output, out_dir=args.out_dir, sheets=tuple(args.sheet or ()),
+        all_sheets=args.all_sheets,
         header_row=args.header_row, columns={k: v for k, v in columns.items() if v},
         specs=specs, decimal_comma=args.decimal_comma, dayfirst=args.dayfirst,
         in_place=args.in_place, formulas=args.formulas, chart=args.chart,

@@ -19,11 +19,13 @@ import re
 import shutil
 import sys
 import tempfile
+import warnings
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
+import pandas as pd
 
 from sheetvol import cells, registry
 from sheetvol.frame import ComputeError, compute_columns, needed_roles
@@ -45,8 +47,14 @@ from sheetvol.notes import (
     read_record,
     sha256_of,
 )
-from sheetvol.prices_table import PriceTable, PriceTableError, build_price_table
-from sheetvol.recipe import DEFAULT_RECIPE, ColumnSpec, RecipeError, default_specs, load_recipe
+from sheetvol.prices_table import (
+    PriceTable,
+    PriceTableError,
+    build_price_table,
+    date_order_problem,
+    suspect_separator,
+)
+from sheetvol.recipe import ColumnSpec, RecipeError, default_specs
 from sheetvol.workbook import (
     CellResult,
     Column,
@@ -197,6 +205,17 @@ def _describe_counts(counts: Mapping[str, int]) -> str:
 def output_path(src: Path, options: FillOptions) -> Path:
     """Where the output of ``src`` goes: ``-o``, ``--out-dir``, in place, or beside it.
 
+    Parameters
+    ----------
+    src : Path
+        The input file.
+    options : FillOptions
+        ``output``, ``out_dir`` and ``in_place`` decide.
+
+    Returns
+    -------
+    Path
+
     Examples
     --------
     >>> output_path(Path("exports/prices.csv"), FillOptions()).as_posix()
@@ -214,7 +233,22 @@ def output_path(src: Path, options: FillOptions) -> Path:
 
 
 def backup_path(src: Path) -> Path:
-    """``prices.xlsx`` -> ``prices.bak.xlsx`` beside it."""
+    """Where ``--in-place`` keeps the old file: ``prices.xlsx`` -> ``prices.bak.xlsx``.
+
+    Parameters
+    ----------
+    src : Path
+        The input file.
+
+    Returns
+    -------
+    Path
+
+    Examples
+    --------
+    >>> backup_path(Path("a/prices.xlsx")).as_posix()
+    'a/prices.bak.xlsx'
+    """
     return src.with_name(f"{src.stem}.bak{src.suffix}")
 
 
@@ -248,6 +282,7 @@ def _csv_to_workbook(src: Path, dest: Path, options: FillOptions) -> None:
     except LocateError:
         pass  # the workbook path reports it with the same words
     sheet_name = re.sub(r"[\[\]:*?/\\]", "_", src.stem)[:31] or "Prices"
+    when = _csv_dates(rows[header_row:], date_col, options.dayfirst) if date_col else {}
     wb = xlsxwriter.Workbook(str(dest), {"constant_memory": True, "strings_to_numbers": False})
     try:
         ws = wb.add_worksheet(sheet_name)
@@ -257,15 +292,11 @@ def _csv_to_workbook(src: Path, dest: Path, options: FillOptions) -> None:
             for j, value in enumerate(row):
                 if not value.strip():
                     continue
-                if i + 1 > header_row and date_col == j + 1:
-                    try:
-                        when = cells.to_datetime(value, dayfirst=options.dayfirst)
-                    except cells.CellValueError:
-                        when = None
-                    if when is not None:
-                        fmt = time_fmt if when.time() != dt.time() else date_fmt
-                        ws.write_datetime(i, j, when, fmt)
-                        continue
+                stamp = when.get(i - header_row) if j + 1 == date_col else None
+                if stamp is not None:
+                    fmt = time_fmt if stamp.time() != dt.time() else date_fmt
+                    ws.write_datetime(i, j, stamp, fmt)
+                    continue
                 number = _csv_number(value, options.decimal_comma) if i + 1 > header_row else None
                 if number is not None:
                     ws.write_number(i, j, number)
@@ -273,6 +304,32 @@ def _csv_to_workbook(src: Path, dest: Path, options: FillOptions) -> None:
                     ws.write_string(i, j, value)
     finally:
         wb.close()
+
+
+def _csv_dates(rows: Sequence[Sequence[str]], col: int, dayfirst: bool
+               ) -> dict[int, dt.datetime]:
+    """Text dates of one CSV column parsed in one pass (cell by cell only where that fails)."""
+    texts = [row[col - 1].strip() if len(row) >= col else "" for row in rows]
+    try:
+        with warnings.catch_warnings():  # "could not infer format": handled below
+            warnings.simplefilter("ignore", UserWarning)
+            stamps = pd.to_datetime(pd.Series(texts), dayfirst=dayfirst, errors="coerce")
+    except (ValueError, TypeError, OverflowError):
+        stamps = pd.Series([pd.NaT] * len(texts))
+    out: dict[int, dt.datetime] = {}
+    for k, (text, stamp) in enumerate(zip(texts, stamps, strict=True)):
+        if not text or cells.is_blank(text) or date_order_problem(text, dayfirst):
+            continue  # left as text: the price reader names the cell
+        if not pd.isna(stamp):
+            out[k] = stamp.to_pydatetime()
+            continue
+        try:
+            parsed = cells.to_datetime(text, dayfirst=dayfirst)
+        except cells.CellValueError:
+            continue  # left as text: the price reader names the cell if it matters
+        if parsed is not None:
+            out[k] = parsed
+    return out
 
 
 def _is_utf8(raw: bytes) -> bool:
@@ -284,9 +341,7 @@ def _is_utf8(raw: bytes) -> bool:
 
 
 def _csv_number(value: str, decimal_comma: bool) -> float | None:
-    from sheetvol.prices_table import _suspect_separator
-
-    if cells.is_blank(value) or _suspect_separator(value, decimal_comma):
+    if cells.is_blank(value) or suspect_separator(value, decimal_comma):
         return None
     try:
         number = cells.to_number(value, decimal_comma=decimal_comma)
@@ -338,7 +393,8 @@ def fill_file(src: str | Path, options: FillOptions | None = None) -> FillReport
                         "to mean that (a backup is kept)")
     want_xlsm = src.suffix.lower() == ".xlsm"
     if want_xlsm and out.suffix.lower() != ".xlsm":
-        raise FillError(f"{src.name} has macros; its output must end in .xlsm, not {out.name}")
+        raise FillError(f"{src.name} is macro-enabled; its output must end in .xlsm to keep "
+                        f"the macros, not {out.name}")
     if not want_xlsm and out.suffix.lower() not in (".xlsx",):
         raise FillError(f"output {out.name}: use a name ending in .xlsx")
     if not out.parent.exists():
@@ -492,7 +548,7 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport) -> 
         specs = _select_specs(options, match, _where(src, sheet), report)
         typed_cols = [fc.col for fc in typed if fc.sheet == sheet]
         cols, targets = _plan_sheet(pkg, src, options, sr, specs, max_col, typed_cols,
-                                    recorded.get(sheet.casefold(), {}))
+                                    recorded.get(sheet.casefold(), {}), report.warnings)
         edits.extend(cols)
         taken[sheet] = {e.col for e in cols}
         specs_by_sheet.append((sr, specs, targets))
@@ -509,7 +565,8 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport) -> 
 
 def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
                 specs: list[ColumnSpec], max_col: int, typed_cols: list[int],
-                recorded: Mapping[str, str]) -> tuple[list[NewColumn], list[int]]:
+                recorded: Mapping[str, str], warnings: list[str]
+                ) -> tuple[list[NewColumn], list[int]]:
     """Read one price sheet, compute its columns and say where each one goes."""
     sheet, match = sr.sheet, sr.match
     where = _where(src, sheet)
@@ -547,6 +604,7 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
         decimal_comma=options.decimal_comma, dayfirst=options.dayfirst, where=where,
     )
     sr.table = table
+    warnings.extend(f"{where}: {w}" for w in table.warnings)
     if not len(table):
         raise FillError(f"{where}: no price rows below the header row {match.row}")
     results = compute_columns(specs, table.prices)
@@ -566,19 +624,13 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
         ))
         sr.written.append(WrittenColumn(sheet, col_letter(col), spec, letters))
         if not np.isfinite(values).any():
-            sr_warn = f"{where}: {spec.header} is blank on every row ({len(table)} bars"
-            sr_warn += " are not enough for its window)"
-            _warn(sr, sr_warn)
+            warnings.append(f"{where}: {spec.header} is blank on every row ({len(table)} bars "
+                            "are not enough for its window)")
     for col in free:  # earlier columns this recipe no longer has: cleared
         columns.append(NewColumn(sheet=sheet, col=col, header_row=match.row, header="",
                                  first_row=first_row, values=np.full(1, np.nan),
                                  number_format="General"))
     return columns, targets
-
-
-def _warn(sr: SheetReport, message: str) -> None:
-    assert sr.table is not None
-    sr.table.warnings.append(message)
 
 
 def _notes_rows(src: Path, report: FillReport) -> list[list[object]]:
@@ -687,10 +739,3 @@ def _write(pkg: Package, out: Path, edits: list, report: FillReport,
     finally:
         if bar is not None:
             bar.close()
-
-
-def recipe_options(recipe: str | Path | None) -> tuple[list[ColumnSpec] | None, str]:
-    """Specs and a label for the summary: the recipe file's, or the defaults."""
-    if recipe is None:
-        return None, f"default columns ({len(DEFAULT_RECIPE)})"
-    return load_recipe(recipe), Path(recipe).name

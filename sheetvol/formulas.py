@@ -699,9 +699,24 @@ def openpyxl_resolver(workbook: Any, *, default_sheet: str | None = None) -> Res
 def package_resolver(package: Any) -> Resolver:
     """A resolver over a :class:`sheetvol.workbook.package.Package` (the fill's reader).
 
-    Whole columns are read with ``read_columns`` (to the last used row of
-    those columns); other blocks with ``read_range``.
+    Columns are read once per sheet with ``Package.read_columns`` (one pass
+    over the sheet's XML for all the columns asked so far) and blocks are cut
+    from them, so a sheet of many formulas over the same columns is not
+    re-read for each formula. Whole columns end at the last used row of the
+    columns asked.
     """
+    cache: dict[str, dict[int, tuple[list[object], int]]] = {}
+
+    def columns(sheet: str, cols: list[int]) -> dict[int, tuple[list[object], int]]:
+        have = cache.setdefault(sheet.lower(), {})
+        missing = [c for c in cols if c not in have]
+        if missing:
+            for c, col in package.read_columns(sheet, missing, first_row=1).items():
+                values: list[object] = [None if x != x else x for x in col.numbers.tolist()]
+                for r, v in col.other.items():
+                    values[r - 1] = v
+                have[c] = (values, len(values))
+        return {c: have[c] for c in cols}
 
     def resolve(sheet: str | None, top: int, left: int, bottom: int | None,
                 right: int | None) -> list[list[object]]:
@@ -709,19 +724,13 @@ def package_resolver(package: Any) -> Resolver:
             raise FormulaError("cannot evaluate: a reference without a sheet and no current sheet")
         if right is None:
             right = max(package.read_grid(sheet, max_rows=bottom).max_col, left)
+        cols = list(range(left, right + 1))
+        found = columns(sheet, cols)
         if bottom is None:
-            cols = list(range(left, right + 1))
-            found = package.read_columns(sheet, cols, first_row=top)
-            n = len(found[cols[0]].numbers) if cols else 0
-            rows: list[list[object]] = [[None] * len(cols) for _ in range(n)]
-            for j, c in enumerate(cols):
-                col = found[c]
-                for i, x in enumerate(col.numbers.tolist()):
-                    if x == x:  # not NaN
-                        rows[i][j] = x
-                for r, v in col.other.items():
-                    rows[r - top][j] = v
-            return rows
-        return package.read_range(sheet, top, left, bottom, right)
+            bottom = max(n for _, n in found.values())
+        rows: list[list[object]] = []
+        for r in range(top - 1, bottom):
+            rows.append([found[c][0][r] if r < found[c][1] else None for c in cols])
+        return rows
 
     return resolve

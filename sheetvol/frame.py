@@ -18,7 +18,8 @@ from sheetvol import registry
 from sheetvol.locate import role_of
 from sheetvol.recipe import ColumnSpec, default_specs, load_recipe, parse_recipe
 
-__all__ = ["ComputeError", "add_columns", "as_specs", "compute_columns", "find_roles"]
+__all__ = ["ComputeError", "add_columns", "as_specs", "compute_columns", "find_roles",
+           "needed_roles"]
 
 ColumnsArg = str | Path | Sequence[ColumnSpec | Mapping[str, Any] | str] | None
 
@@ -29,6 +30,16 @@ class ComputeError(ValueError):
 
 def as_specs(columns: ColumnsArg) -> list[ColumnSpec]:
     """Column specs from ``None`` (the default set), a TOML path or a list.
+
+    Parameters
+    ----------
+    columns : None, str, Path or sequence
+        ``None`` for the default set, a TOML recipe path, or function names,
+        recipe dicts or ColumnSpec objects.
+
+    Returns
+    -------
+    list of ColumnSpec
 
     Examples
     --------
@@ -47,7 +58,22 @@ def as_specs(columns: ColumnsArg) -> list[ColumnSpec]:
 
 
 def needed_roles(specs: Iterable[ColumnSpec]) -> set[str]:
-    """Price roles the specs read (``close``, ``high``...)."""
+    """Price roles the specs read (``close``, ``high``...).
+
+    Parameters
+    ----------
+    specs : iterable of ColumnSpec
+        The columns.
+
+    Returns
+    -------
+    set of str
+
+    Examples
+    --------
+    >>> sorted(needed_roles(as_specs(["SV_ATR"])))
+    ['close', 'high', 'low']
+    """
     ids = {s.id for s in specs if s.id}
     return {src for s in specs for src in s.inputs.values() if src not in ids}
 
@@ -79,7 +105,7 @@ def compute_columns(
     >>> from sheetvol.recipe import make_spec
     >>> out = compute_columns([make_spec("SV_DEVIATION", {"period": 2})],
     ...                       {"close": np.array([1.0, 3.0, 3.0])})
-    >>> out[0].tolist()  # doctest: +SKIP
+    >>> out[0].tolist()
     [nan, 1.0, 0.0]
     """
     results: dict[str, np.ndarray] = {}
@@ -108,6 +134,18 @@ def compute_columns(
 
 def find_roles(names: Iterable[str], overrides: Mapping[str, str] | None = None) -> dict[str, str]:
     """Match DataFrame column names to price roles (case-insensitive synonyms).
+
+    Parameters
+    ----------
+    names : iterable of str
+        Column names.
+    overrides : mapping, optional
+        role -> column name, taking precedence.
+
+    Returns
+    -------
+    dict
+        role -> column name.
 
     Examples
     --------
@@ -161,7 +199,7 @@ def add_columns(
     --------
     >>> df = pd.DataFrame({"Close": np.linspace(100, 120, 30),
     ...                    "High": np.linspace(101, 121, 30), "Low": np.linspace(99, 119, 30)})
-    >>> list(add_columns(df, ["SV_ATR"]).columns)  # doctest: +SKIP
+    >>> list(add_columns(df, ["SV_ATR"]).columns)
     ['Close', 'High', 'Low', 'ATR 14 (Wilder)']
     """
     specs = as_specs(columns)

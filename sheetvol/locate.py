@@ -66,6 +66,15 @@ class LocateError(ValueError):
 def normalize_header(text: object) -> str:
     """Lower-case a header and strip decorations, units and separators.
 
+    Parameters
+    ----------
+    text : object
+        A header cell's value.
+
+    Returns
+    -------
+    str
+
     Examples
     --------
     >>> normalize_header("  Close* (USD) ")
@@ -83,6 +92,16 @@ def normalize_header(text: object) -> str:
 
 def role_of(text: object) -> tuple[str, int] | None:
     """The price role a header stands for and its preference rank, or None.
+
+    Parameters
+    ----------
+    text : object
+        A header cell's value.
+
+    Returns
+    -------
+    tuple of (str, int) or None
+        The role and its rank (0 is the most usual spelling).
 
     Examples
     --------
@@ -116,6 +135,15 @@ class HeaderMatch:
 def col_letter(col: int) -> str:
     """1-based column number to letters.
 
+    Parameters
+    ----------
+    col : int
+        1-based column number.
+
+    Returns
+    -------
+    str
+
     Examples
     --------
     >>> col_letter(28)
@@ -130,6 +158,15 @@ def col_letter(col: int) -> str:
 
 def col_number(letters: str) -> int:
     """Column letters to a 1-based number.
+
+    Parameters
+    ----------
+    letters : str
+        Column letters, any case.
+
+    Returns
+    -------
+    int
 
     Examples
     --------
@@ -244,6 +281,24 @@ def resolve_column(
     given: str, header_cells: Mapping[int, str], *, role: str, row: int, where: str = ""
 ) -> int:
     """A user's column choice: header text (case-insensitive) first, else a column letter.
+
+    Parameters
+    ----------
+    given : str
+        What the user typed after ``--<role>-col``.
+    header_cells : mapping
+        column -> header text of the header row.
+    role : str
+        The role, for the message.
+    row : int
+        The header row, for the message.
+    where : str
+        ``file, sheet`` prefix for messages.
+
+    Returns
+    -------
+    int
+        1-based column.
 
     Examples
     --------

@@ -92,6 +92,16 @@ class FormulaNote:
 def sha256_of(path: str | Path) -> str:
     """SHA-256 of a file, read in blocks.
 
+    Parameters
+    ----------
+    path : str or Path
+        The file.
+
+    Returns
+    -------
+    str
+        Hex digest.
+
     Examples
     --------
     >>> import tempfile, os

@@ -10,8 +10,9 @@ price sheet is and what the fill does with it:
   :mod:`sheetvol.kernels._gaps`) and its results are blank;
 * **blank**: nothing in any price column, skipped;
 * **no prices**: a date without any price (holiday rows), skipped;
-* **summary**: a trailing row such as ``Total``/``Average`` (a summary word
-  in the date column, or prices without a date below the last bar), skipped.
+* **summary or footer**: a row such as ``Total``/``Average`` (a summary word
+  in the date column), or any row without a date below the last bar (sums,
+  "Source: ..." lines), skipped.
 
 Anything else that cannot be read is an error naming the cell: a price that is
 neither a number nor blank (``abc``), a date that is not a date, High below
@@ -23,6 +24,7 @@ from __future__ import annotations
 import datetime as dt
 import math
 import re
+import warnings
 from collections import Counter
 from collections.abc import Mapping
 from dataclasses import dataclass, field
@@ -34,7 +36,8 @@ import pandas as pd
 from sheetvol import cells
 from sheetvol.workbook.package import CellError
 
-__all__ = ["PriceTable", "PriceTableError", "build_price_table", "price_decimals"]
+__all__ = ["PriceTable", "PriceTableError", "build_price_table", "date_order_problem",
+           "price_decimals", "suspect_separator"]
 
 PRICE_ROLES = ("open", "high", "low", "close", "volume")
 SUMMARY = re.compile(
@@ -42,6 +45,7 @@ SUMMARY = re.compile(
     r"count|summary|st\.?\s*dev|std\.?\s*dev|change|result)\b",
     re.IGNORECASE,
 )
+SUMMARY_LABEL = "summary or footer row"
 _DATE_1904_OFFSET = 1462.0  # days between the 1900 and 1904 epochs
 
 
@@ -101,8 +105,28 @@ def _is_error(value: object) -> bool:
     return isinstance(value, str) and value.strip().upper() in cells.ERROR_TEXTS
 
 
-def _suspect_separator(text: str, decimal_comma: bool) -> bool:
-    """True for text numbers that read differently with the other decimal mark."""
+def suspect_separator(text: str, decimal_comma: bool) -> bool:
+    """True for text numbers that read differently with the other decimal mark.
+
+    ``101,25`` without ``--decimal-comma`` (or ``101.25`` with it) would
+    silently become 10125, so such text is refused instead of read.
+
+    Parameters
+    ----------
+    text : str
+        A cell's text.
+    decimal_comma : bool
+        Whether ``--decimal-comma`` was given.
+
+    Returns
+    -------
+    bool
+
+    Examples
+    --------
+    >>> suspect_separator("101,25", decimal_comma=False), suspect_separator("1,234", False)
+    (True, False)
+    """
     t = text.strip().replace("\u00a0", "").replace(" ", "").lstrip("+-(")
     if decimal_comma:
         return bool(re.fullmatch(r"\d+\.(\d{1,2}|\d{4,})\)?", t)
@@ -233,7 +257,7 @@ def build_price_table(
             if isinstance(v, str) and cells.is_blank(v):
                 gap_cells[f'"{v.strip()}"' if v.strip() else "blank text"] += 1
                 continue
-            if isinstance(v, str) and _suspect_separator(v, decimal_comma):
+            if isinstance(v, str) and suspect_separator(v, decimal_comma):
                 flag = "without --decimal-comma" if decimal_comma else "with --decimal-comma"
                 mark = "a decimal point" if decimal_comma else "a decimal comma"
                 raise PriceTableError(
@@ -251,11 +275,9 @@ def build_price_table(
     dates = np.full(n, np.nan)
     summary = np.zeros(n, dtype=bool)
     if has_dates:
-        nums, other = aligned(columns["date"])
-        if date1904:
-            nums = nums + _DATE_1904_OFFSET
-        as_ymd = _yyyymmdd(nums if not date1904 else nums - _DATE_1904_OFFSET)
-        dates = as_ymd if as_ymd is not None else nums
+        raw, other = aligned(columns["date"])
+        as_ymd = _yyyymmdd(raw)
+        dates = as_ymd if as_ymd is not None else raw + (_DATE_1904_OFFSET if date1904 else 0.0)
         content |= np.isfinite(dates)
         texts: dict[int, str] = {}
         for r, v in other.items():
@@ -273,6 +295,10 @@ def build_price_table(
                 texts[r] = v.strip()
             else:
                 bad.setdefault(r, ("date", v))
+        for r, text in texts.items():
+            problem = date_order_problem(text, dayfirst)
+            if problem:
+                raise PriceTableError(f"{prefix}{cell('date', r)} holds {text!r}, {problem}")
         if texts:
             _parse_text_dates(texts, dates, first, dayfirst, date1904, bad)
         if "time" in columns:  # a separate time-of-day column (intraday exports)
@@ -305,7 +331,7 @@ def build_price_table(
                 summary[r - first] = True
         keep = content & ~summary
     skipped["blank"] = int(np.count_nonzero(~content))
-    skipped["summary row (Total, Average...)"] = int(np.count_nonzero(summary & content))
+    skipped[SUMMARY_LABEL] = int(np.count_nonzero(summary & content))
 
     for r, (role, v) in sorted(bad.items()):
         if summary[r - first]:
@@ -370,6 +396,48 @@ def build_price_table(
     )
 
 
+_NUMERIC_DATE = re.compile(r"^\s*(\d{1,2})[/.\-](\d{1,2})[/.\-](\d{2,4})\b")
+
+
+def date_order_problem(text: str, dayfirst: bool) -> str | None:
+    """Why a numeric text date cannot be read in the chosen day/month order, or None.
+
+    Mixed readings (month first where possible, day first where not) would put
+    bars in the wrong order without any error, so a date that only fits the
+    other order stops the fill.
+
+    Parameters
+    ----------
+    text : str
+        A date cell's text.
+    dayfirst : bool
+        Whether ``--dayfirst`` was given.
+
+    Returns
+    -------
+    str or None
+        The end of an error message, or None when the text is fine.
+
+    Examples
+    --------
+    >>> date_order_problem("14/03/2024", dayfirst=False)
+    'which reads as day/month/year; run again with --dayfirst'
+    >>> date_order_problem("03/14/2024", dayfirst=True) is not None
+    True
+    >>> date_order_problem("2024-03-14", dayfirst=True) is None
+    True
+    """
+    m = _NUMERIC_DATE.match(text)
+    if m is None:
+        return None
+    a, b = int(m[1]), int(m[2])
+    if not dayfirst and a > 12 and b <= 12:
+        return "which reads as day/month/year; run again with --dayfirst"
+    if dayfirst and b > 12 and a <= 12:
+        return "which reads as month/day/year; run again without --dayfirst"
+    return None
+
+
 def _time_fractions(nums: np.ndarray, other: Mapping[int, object], first: int,
                     bad: dict[int, tuple[str, object]]) -> np.ndarray:
     """Times of day as fractions of a day: serial fractions, HHMM/HHMMSS numbers or text."""
@@ -416,7 +484,9 @@ def _parse_text_dates(
     numeric = [bool(cells._NUMBER.match(v)) for v in values]
     if not any(numeric):
         try:
-            stamps = pd.Series(pd.to_datetime(values, dayfirst=dayfirst, errors="coerce"))
+            with warnings.catch_warnings():  # "could not infer format": handled below
+                warnings.simplefilter("ignore", UserWarning)
+                stamps = pd.Series(pd.to_datetime(values, dayfirst=dayfirst, errors="coerce"))
         except (ValueError, TypeError, OverflowError):
             stamps = pd.Series([pd.NaT] * len(values))
         days = _stamps_to_days(stamps)
@@ -468,6 +538,17 @@ def _check_duplicates(dates: np.ndarray, rows: np.ndarray, cell: Any, prefix: st
 
 def price_decimals(close: np.ndarray, *, cap: int = 6) -> int:
     """Decimals the prices are quoted with (from the close column; at least 2).
+
+    Parameters
+    ----------
+    close : numpy.ndarray
+        Close prices (NaN ignored; the first 5,000 are looked at).
+    cap : int
+        Most decimals to look for.
+
+    Returns
+    -------
+    int
 
     Examples
     --------

@@ -208,6 +208,19 @@ def _w(x: Any) -> str:
 def default_header(function: str, options: Mapping[str, Any], inputs: Mapping[str, str]) -> str:
     """Header text of our own wording that says what a column is and its parameters.
 
+    Parameters
+    ----------
+    function : str
+        Registry name.
+    options : mapping
+        Bound options (every one, defaults filled in).
+    inputs : mapping
+        Column argument -> price role or earlier column id.
+
+    Returns
+    -------
+    str
+
     Examples
     --------
     >>> default_header("SV_BAND", {"line": "upper", "period": 20, "width": 2.0,
@@ -381,5 +394,16 @@ DEFAULT_RECIPE: tuple[dict[str, Any], ...] = (
 
 
 def default_specs() -> list[ColumnSpec]:
-    """The default column set as specs."""
+    """The default column set as specs.
+
+    Returns
+    -------
+    list of ColumnSpec
+        Deviation 14, ATR 14, upper and lower bands 20×2, %b 20×2, close vol 20.
+
+    Examples
+    --------
+    >>> len(default_specs())
+    6
+    """
     return parse_recipe(list(DEFAULT_RECIPE), source="default columns")

@@ -12,7 +12,7 @@ import talib
 
 from sheetvol import registry
 from sheetvol.kernels import averages
-from sheetvol.kernels.averages import moving_average
+from sheetvol.kernels.averages import linear_recurrence, moving_average
 
 KINDS = ("simple", "exponential", "wilder", "linear")
 
@@ -108,6 +108,18 @@ def test_first_seed_converges_to_average_seed(walk):
     f = moving_average(x, 10, "wilder", seed="first")
     assert abs(a[20] - f[20]) > 1e-6  # still different early on
     np.testing.assert_allclose(a[-1], f[-1], rtol=1e-12)
+
+
+@pytest.mark.parametrize("n", [1, 31, 32, 33, 64, 1025, 40_000])
+@pytest.mark.parametrize("r", [0.0, 1 / 3, 0.9, 0.999, 1.0])
+def test_blocked_recurrence_equals_plain_loop(n, r):
+    # Blocks of 32, carries solved recursively (three levels at 40,000): plain loop oracle.
+    u = np.random.default_rng(n).normal(0.0, 1.0, n)
+    want, acc = [], 0.0
+    for value in u:
+        acc = r * acc + value
+        want.append(acc)
+    np.testing.assert_allclose(linear_recurrence(u, r), want, rtol=1e-11, atol=1e-11)
 
 
 # -- accuracy on long series ---------------------------------------------------------------

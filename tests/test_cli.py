@@ -66,7 +66,7 @@ def test_fill_prints_a_summary(tmp_path, capsys):
     out = capsys.readouterr().out
     assert f"prices.xlsx -> {tmp_path / 'prices-filled.xlsx'}" in out
     assert "rows read: 41; 40 bars (2024-01-02 to 2024-02-26), oldest first" in out
-    assert "rows skipped: 1 summary row" in out
+    assert "rows skipped: 1 summary or footer row" in out
     assert "columns written: G Std dev 14 (simple, close), H ATR 14 (Wilder)" in out
     assert "Not advice; see the notes sheet" in out
     assert len(out.splitlines()) <= 24  # one screen
@@ -154,3 +154,14 @@ def test_python_dash_m_sheetvol(tmp_path):
 def test_usage_errors_exit_2(argv, capsys):
     assert main(argv) == 2
     assert "usage:" in capsys.readouterr().err
+
+
+def test_wildcards_and_sheet_choice(tmp_path, capsys):
+    for name, seed in (("x1.xlsx", 1), ("x2.xlsx", 2)):
+        write_book(tmp_path / name, ohlc(30, seed=seed), sheet="Bars")
+    # a quoted pattern reaches the program unexpanded, as on Windows shells
+    assert main(["fill", str(tmp_path / "x*.xlsx"), "--sheet", "BARS", "-q"]) == 0
+    assert (tmp_path / "x1-filled.xlsx").exists() and (tmp_path / "x2-filled.xlsx").exists()
+    assert main(["fill", str(tmp_path / "x1.xlsx"), "--sheet", "Nope", "-q"]) == 1
+    assert "no sheet 'Nope'; its sheets are 'Bars'" in capsys.readouterr().err
+    assert main(["fill", str(tmp_path / "x1.xlsx"), "--sheet", "Bars", "--all-sheets"]) == 2

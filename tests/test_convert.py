@@ -146,3 +146,10 @@ def test_to_cell():
     assert one == 2.5 and type(one) is float
     assert _convert.to_cell(float("nan")) is None
     assert _convert.to_cell("SV_SIZE: no risk budget") == "SV_SIZE: no risk budget"
+
+
+def test_text_alone_is_not_taken_for_a_header():
+    with pytest.raises(ArgumentError, match=r"^SV_X: prices item 1 is 'abc', not a number"):
+        _convert.column("abc", func="SV_X", param="prices")
+    with pytest.raises(ArgumentError, match=r"^SV_X_ON: dates item 1 is 'Date', not a date"):
+        _convert.day_numbers([["Date"], [None]], func="SV_X_ON", param="dates")

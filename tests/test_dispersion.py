@@ -143,8 +143,11 @@ def test_million_bar_walk_near_1e7_agrees_with_two_pass(long_walk_1e7):
 
 
 # -- properties (hypothesis) -----------------------------------------------------------------
+# Values below 1e-100 in size become 0: their squares would be subnormal (under 1e-308)
+# and keep only a few bits, which no price column comes near.
 prices_lists = st.lists(
-    st.floats(min_value=-1e3, max_value=1e3, allow_nan=False, allow_infinity=False),
+    st.floats(min_value=-1e3, max_value=1e3, allow_nan=False, allow_infinity=False).map(
+        lambda v: 0.0 if abs(v) < 1e-100 else v),
     min_size=2, max_size=60,
 )
 

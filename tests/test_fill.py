@@ -85,13 +85,16 @@ def test_formats_headers_and_notes(filled):
     last = rows[df["Date"].iloc[-1]]
     assert ws.cell(last, headers[DEV].column).number_format == "0.00"
     assert ws.cell(last, headers["Close vol 20 (ann.)"].column).number_format == "0.00%"
-    notes = {r[0]: r[1] for r in wb[NOTES_SHEET].iter_rows(values_only=True) if r[0]}
+    lines = list(wb[NOTES_SHEET].iter_rows(values_only=True))
+    notes = {r[0]: r[1] for r in lines if r[0]}
     assert notes["Input file"] == "prices.xlsx"
     assert notes["Input SHA-256"] == hashlib.sha256(report.input.read_bytes()).hexdigest()
-    assert notes["Sheet"] == "Prices" and notes["Header row"] == 3
-    assert notes["Columns read"].startswith("Date = A, Open = B")
-    written = [r for r in wb[NOTES_SHEET].iter_rows(values_only=True) if r[2] == "SV_ATR"]
-    assert written[0][1] == "ATR 14 (Wilder)" and written[0][3] == "period=14, smoothing=wilder"
+    read = next(r for r in lines if r[0] == "Prices")
+    assert read[1] == 3 and read[2].startswith("Date = A, Open = B")
+    assert read[3].startswith("300 (2024-01-02 to ") and "newest first" in read[3]
+    written = next(r for r in lines if r[3] == "SV_ATR")
+    assert written[:3] == ("Prices", "H", "ATR 14 (Wilder)")
+    assert written[4] == "period=14, smoothing=wilder"
     assert any("population" in str(k) for k in notes)
     assert any(str(k).startswith("Not investment advice") for k in notes)
 
@@ -275,7 +278,54 @@ def test_cells_far_below_the_header_are_never_overwritten(tmp_path):
     wb["Prices"]["H70"] = "my note"  # below the rows the header search looks at
     wb.save(src)
     report = fill_file(src)
-    assert [w.letter for w in report.written][0] == "I"
+    assert report.written[0].letter == "I"
     ws = load_workbook(report.output)["Prices"]
     assert ws["H70"].value == "my note" and ws["G1"].value is None
     assert_deviation_on_rows(report.output, df, rows)
+
+
+def test_all_sheets_fills_every_price_sheet(tmp_path):
+    a, b = ohlc(30, seed=3), ohlc(40, seed=4)
+    src = tmp_path / "desk.xlsx"
+    rows_a = write_book(src, a, sheet="ALPHA")
+    wb = load_workbook(src)
+    ws = wb.create_sheet("BETA")
+    ws.append(list(b.columns))
+    for _, r in b.iterrows():
+        ws.append([r["Date"].to_pydatetime(), *(float(r[c]) for c in b.columns[1:])])
+    log = wb.create_sheet("Log", 0)
+    log.append(["Date", "Instrument", "Entry"])  # no Close: not a price sheet
+    wb.save(src)
+    first = fill_file(src)
+    assert [s.sheet for s in first.sheets] == ["ALPHA"]
+    assert first.other_price_sheets == ["BETA"]
+    assert any("--all-sheets" in line for line in first.summary())
+    both = fill_file(src, FillOptions(all_sheets=True, output=tmp_path / "both.xlsx"))
+    assert [s.sheet for s in both.sheets] == ["ALPHA", "BETA"]
+    assert_deviation_on_rows(both.output, a, rows_a, sheet="ALPHA")
+    assert_deviation_on_rows(both.output, b, {d: i + 2 for i, d in enumerate(b["Date"])},
+                             sheet="BETA")
+    again = fill_file(both.output, FillOptions(all_sheets=True, output=tmp_path / "again.xlsx"))
+    assert [s.replaced for s in again.sheets] == [6, 6]
+
+
+def test_typed_formula_on_another_sheet_with_a_stored_prefix(tmp_path):
+    df = ohlc(40)
+    src = tmp_path / "dash.xlsx"
+    write_book(src, df)
+    wb = load_workbook(src)
+    dash = wb.create_sheet("Dash board")
+    # as saved by a program without the add-in: the name carries the _xludf. prefix
+    dash["B2"] = "=_xludf.SV_DEVIATION_LAST(Prices!$E$2:$E$41, 20, \"simple\")"
+    dash["B3"] = "=SV_ATR_LAST(Prices!C2:C41,Prices!D2:D41,Prices!E2:E41,0)"  # bad period
+    wb.save(src)
+    report = fill_file(src)
+    assert report.formulas_ok == 1
+    bad = [w for w in report.warnings if "'Dash board'!B3" in w]
+    assert bad and "period must be a whole number from 2 to 5000" in bad[0]
+    values = load_workbook(report.output, data_only=True)["Dash board"]
+    ref = df["Close"].rolling(20).std(ddof=0).iloc[-1]  # reference: pandas, ddof=0
+    assert values["B2"].value == pytest.approx(ref, rel=1e-9)
+    notes = [r for r in load_workbook(report.output)[NOTES_SHEET].iter_rows(values_only=True)
+             if r[0] == "'Dash board'!B3"]
+    assert notes and notes[0][2].startswith("not evaluated")

@@ -331,3 +331,70 @@ def test_docstring_examples():
     for module in (formulas, calling, _convert, addin):
         result = doctest.testmod(module)
         assert result.failed == 0 and result.attempted > 0, module.__name__
+
+
+# -- the template workbook --------------------------------------------------------------------
+TEMPLATE = Path(__file__).resolve().parent.parent / "workbooks" / "template.xlsx"
+
+
+@pytest.fixture(scope="module")
+def template():
+    if not TEMPLATE.exists():
+        pytest.skip("workbooks/template.xlsx not built (python workbooks/make_template.py)")
+    return TEMPLATE
+
+
+def test_template_stored_results_are_current(template):
+    # Every stored result equals a fresh headless evaluation of its formula.
+    from sheetvol.formulas import evaluate_cells
+    from sheetvol.workbook.package import Package
+
+    pkg = Package.open(template)
+    cells = pkg.formula_cells()
+    assert len(cells) > 900
+    fresh = evaluate_cells(cells, package_resolver(pkg), date1904=pkg.date1904)
+    stored = openpyxl.load_workbook(template, data_only=True)
+    for fc in cells:
+        value = fresh[(fc.sheet, fc.row, fc.col)]
+        assert not isinstance(value, (FormulaError, np.ndarray)), (fc, value)
+        kept = stored[fc.sheet].cell(row=fc.row, column=fc.col).value
+        if isinstance(value, str):
+            assert kept == value
+        else:
+            assert kept == pytest.approx(value, rel=1e-15), fc
+
+
+def test_template_trade_levels_follow_the_settings(template):
+    # Hand relations from the Settings sheet: equity 100,000, risk 1% (1,000 a trade),
+    # stop 2 ATR and target 3 ATR from entry, size = floor(1,000 / |entry - stop|).
+    wb = openpyxl.load_workbook(template, data_only=True)
+    rows = list(wb["Trades"].iter_rows(min_row=2, values_only=True))
+    assert len(rows) == 8
+    for _date, side, entry, atr, stop, target, size, outcome, r in rows:
+        sign = 1 if side == "long" else -1
+        assert stop == pytest.approx(entry - sign * 2 * atr, rel=1e-12)
+        assert target == pytest.approx(entry + sign * 3 * atr, rel=1e-12)
+        assert size == math.floor(1000 / abs(entry - stop))
+        assert outcome in ("stop", "target", "trail", "closed", "open", "ambiguous")
+        if outcome == "stop":
+            assert r <= -1 + 1e-9  # a stop costs at least 1 R (more when it gaps through)
+        if outcome == "target":
+            assert r >= 1.5 - 1e-9  # 3 ATR of reward for 2 ATR of risk
+
+
+@pytest.mark.slow
+def test_template_shows_numbers_in_libreoffice(template, tmp_path):
+    # LibreOffice opens the template without the add-in: no cell may show an error.
+    import shutil
+    import subprocess
+
+    soffice = shutil.which("soffice")
+    if soffice is None:
+        pytest.skip("LibreOffice (soffice) is not installed here")
+    subprocess.run([soffice, "--headless", "--convert-to", "xlsx", "--outdir", str(tmp_path),
+                    str(template)], check=True, capture_output=True, timeout=180)
+    wb = openpyxl.load_workbook(tmp_path / "template.xlsx", data_only=True)
+    errors = [f"{ws.title}!{c.coordinate}" for ws in wb.worksheets for row in ws.iter_rows()
+              for c in row if isinstance(c.value, str) and c.value.startswith("#")]
+    assert errors == []
+    assert isinstance(wb["Trades"]["D2"].value, float)

@@ -203,6 +203,11 @@ def test_text_dates_day_first_and_unsorted(tmp_path):
         ws.cell(a, c).value, ws.cell(b, c).value = ws.cell(b, c).value, ws.cell(a, c).value
     wb.save(src)
     rows[df["Date"].iloc[5]], rows[df["Date"].iloc[30]] = b, a
+    # read month first, 02/01 would be 1 February while 13/02 cannot be: refused, not mixed
+    late_day = r"A\d+ holds '(1[3-9]|2\d|3[01])/\d\d/2024', "
+    with pytest.raises(PriceTableError,
+                       match=late_day + "which reads as day/month/year; run again with --dayfirst"):
+        fill_file(src)
     report = fill_file(src, FillOptions(dayfirst=True))
     assert report.table.order == "not in date order"
     assert report.table.first_last_dates() == (
@@ -228,9 +233,10 @@ def test_trailing_total_and_average_rows_are_skipped(tmp_path):
         [], ["Total", None, None, None, float(df["Close"].sum()), 12345],
         ["Average", None, None, None, float(df["Close"].mean()), None],
         [None, None, None, None, float(df["Close"].max()), None],
+        ["Source: invented data for a test"],
     ])
     report = fill_file(src)
-    assert report.table.skipped["summary row (Total, Average...)"] == 3
+    assert report.table.skipped["summary or footer row"] == 4
     assert len(report.table) == 30
     got = read_column(report.output, DEV)
     assert all(got.get(r) is None for r in range(33, 36))
@@ -315,7 +321,7 @@ def test_sheet_not_found_lists_sheets(tmp_path):
     src = tmp_path / "book.xlsx"
     write_book(src, ohlc(20))
     with pytest.raises(WorkbookError, match=r"no sheet 'Daily'; its sheets are 'Prices'"):
-        fill_file(src, FillOptions(sheet="Daily"))
+        fill_file(src, FillOptions(sheets=("Daily",)))
 
 
 def test_corrupt_and_encrypted_files_are_refused(tmp_path):

@@ -202,11 +202,11 @@ def test_chunking_and_layouts_do_not_change_results(walk, monkeypatch, chunk, mi
 
 
 def test_deviation_about_a_given_level_matches_two_pass(walk):
-    x = walk(300, start=1e7, step=0.01, seed=3)
-    level = x + np.sin(np.arange(300)) * 0.05  # any centre near the prices
+    x = walk(303, start=1e7, step=0.01, seed=3)  # 303: the last block is partial
+    level = x + np.sin(np.arange(303)) * 0.05  # any centre near the prices
     for sample in (False, True):
         got = window_deviation(x, 10, level, sample=sample)
-        for t in range(9, 300):
+        for t in range(9, 303):
             d = x[t - 9 : t + 1] - level[t]  # exact (nearby floats)
             want = math.sqrt(math.fsum(d * d) / (9 if sample else 10))
             assert got[t] == pytest.approx(want, rel=1e-12)
@@ -238,6 +238,28 @@ def test_flat_stretch_after_a_jump_is_exactly_zero():
         _, var = window_mean_var(x, period)
         assert np.all(var[23 + period - 1 :] == 0.0), period
         assert np.all(window_deviation(x, period)[23 + period - 1 :] == 0.0), period
+
+
+def test_stale_tick_rounded_prices(walk):
+    # Prices rounded to a 0.01 tick with moves far below it: long flat runs. Flat
+    # windows are exactly 0 (definition); about a level v - L on every bar of a flat
+    # window, so the deviation is |v - L| * sqrt(N/D) (worked by hand). Other windows:
+    # Python statistics / fsum two-pass.
+    x = np.round(walk(20_000, start=100.0, step=0.0005, seed=12), 2)
+    period = 60
+    flat = np.ptp(np.lib.stride_tricks.sliding_window_view(x, period), axis=1) == 0
+    assert flat.sum() > 2000  # the situation under test
+    _, var = window_mean_var(x, period)
+    assert np.all(var[period - 1 :][flat] == 0.0)
+    level = x + 0.003
+    dev = window_deviation(x, period, level, sample=True)
+    ends = np.arange(period - 1, len(x))
+    np.testing.assert_allclose(dev[ends[flat]], 0.003 * math.sqrt(60 / 59), rtol=1e-12)
+    for t in np.random.default_rng(1).choice(ends[~flat], 200, replace=False):
+        window = x[t - period + 1 : t + 1]
+        assert var[t] == pytest.approx(statistics.pvariance(window.tolist()), rel=1e-12)
+        d = window - level[t]
+        assert dev[t] == pytest.approx(math.sqrt(math.fsum(d * d) / 59), rel=1e-12)
 
 
 def test_nearly_equal_neighbours_keep_relative_accuracy(walk):

@@ -1,8 +1,8 @@
 """Build workbooks/template.xlsx: sheetvol formulas typed in, results already stored.
 
 Invented scenario: daily bars of "Larkspur Tin", a made-up instrument, and a
-small trade log. The price sheet holds whole-column formulas (ATR, bands) and a
-filled-down ``_LAST`` column; the trade log reads volatility on each trade's
+small trade log. The price sheet holds filled-down ``_LAST`` formulas (ATR, bands,
+close-to-close volatility); the trade log reads volatility on each trade's
 date (``_ON``) and derives stop, target, size and outcome. The formulas are
 written with openpyxl, then their results are computed by the headless
 evaluator (``sheetvol.formulas.evaluate_cells``, the code the fill uses) and
@@ -32,6 +32,7 @@ if str(HERE.parent) not in sys.path:  # run from a checkout without installing t
     sys.path.insert(0, str(HERE.parent))
 
 from sheetvol import formulas  # noqa: E402
+from sheetvol.registry import get  # noqa: E402
 from sheetvol.workbook.edits import CellResult, SpillResult  # noqa: E402
 from sheetvol.workbook.package import Package  # noqa: E402
 from sheetvol.workbook.writer import write_package  # noqa: E402
@@ -81,21 +82,35 @@ def raw_workbook(path: Path) -> None:
     lines = [
         "sheetvol template (invented data: Larkspur Tin is not a real instrument)",
         "",
-        "Prices: daily bars with sheetvol formulas in columns H to K.",
-        "  H, I, J: whole-column formulas (one formula, a column of results).",
-        "  K: SV_CLOSEVOL_LAST filled down, one formula per row.",
+        "Prices: daily bars; columns H to K hold sheetvol formulas filled down, one per row",
+        "  (the _LAST form: the value on the last row of the ranges, e.g. $C$2:C30),",
+        "  starting on the first row that has a value (earlier rows are the warm-up).",
         "Trades: a trade log; volatility on each trade's date (SV_ATR_ON), stop, target,",
         "  size (from Settings) and the outcome read from the bars after entry.",
         "",
         "The results were computed and stored by sheetvol's headless evaluator, so the",
         "numbers show without the add-in. With the add-in installed (docs/addin.md) the",
         "same formulas recalculate live when prices change.",
+        "",
+        "With the add-in, try the whole-column form in an empty column of Prices, e.g. in M2:",
+        "  =SV_ATR(C2:C261, D2:D261, E2:E261, 14)",
+        "It returns the whole column at once (it spills down in Excel 365; blank warm-up rows).",
+        "Whole-column results are stored as array formulas, which LibreOffice always",
+        "recalculates on opening, so this template uses the filled-down form throughout.",
     ]
     for i, text in enumerate(lines, start=1):
         about.cell(row=i, column=1, value=text)
     about["A1"].font = bold
     about.column_dimensions["A"].width = 90
 
+    first = {  # first bar with a value, per formula column
+        col: int(np.argmax(np.isfinite(values))) for col, values in (
+            (8, get("SV_ATR")(p["high"], p["low"], p["close"], 14)),
+            (9, get("SV_BAND")(p["close"], "upper", 20, 2)),
+            (10, get("SV_BAND")(p["close"], "lower", 20, 2)),
+            (11, get("SV_CLOSEVOL")(p["close"], 20, 252)),
+        )
+    }
     ws = wb.create_sheet("Prices")
     ws.append(["Date", "Open", "High", "Low", "Close", "Volume", None,
                "ATR 14", "Upper band 20/2", "Lower band 20/2", "Volatility 20 (ann.)"])
@@ -107,11 +122,16 @@ def raw_workbook(path: Path) -> None:
         for j, key in enumerate(("open", "high", "low", "close"), start=2):
             ws.cell(row=r, column=j, value=float(p[key][i])).number_format = "0.000"
         ws.cell(row=r, column=6, value=int(p["volume"][i]))
-        ws.cell(row=r, column=11, value=f"=SV_CLOSEVOL_LAST($E$2:E{r},20,252)").number_format = \
-            "0.0%"
-    ws["H2"] = f"=SV_ATR(C2:C{LAST},D2:D{LAST},E2:E{LAST},14)"
-    ws["I2"] = f'=SV_BAND(E2:E{LAST},"upper",20,2)'
-    ws["J2"] = f'=SV_BAND(E2:E{LAST},"lower",20,2)'
+        for col, text, fmt in (
+            (8, f"=SV_ATR_LAST($C$2:C{r},$D$2:D{r},$E$2:E{r},14)", "0.000"),
+            (9, f'=SV_BAND_LAST($E$2:E{r},"upper",20,2)', "0.000"),
+            (10, f'=SV_BAND_LAST($E$2:E{r},"lower",20,2)', "0.000"),
+            (11, f"=SV_CLOSEVOL_LAST($E$2:E{r},20,252)", "0.0%"),
+        ):
+            # Warm-up rows stay empty: a formula cell whose stored result is blank is
+            # recalculated by LibreOffice on opening (#NAME? without the add-in).
+            if i >= first[col]:
+                ws.cell(row=r, column=col, value=text).number_format = fmt
     ws.freeze_panes = "B2"
     for letter, width in zip("ABCDEFGHIJK", (12, 9, 9, 9, 9, 9, 3, 10, 15, 15, 19), strict=True):
         ws.column_dimensions[letter].width = width
@@ -174,8 +194,10 @@ def store_results(raw: Path, out: Path) -> list[str]:
             edits.append(SpillResult(fc.sheet, fc.row, fc.col, fc.formula,
                                      np.asarray(value, dtype=np.float64), "0.000"))
         else:
-            if isinstance(value, float) and not math.isfinite(value):
-                value = None
+            if value is None or (isinstance(value, float) and not math.isfinite(value)):
+                # A formula cell without a stored value is recalculated on opening by
+                # LibreOffice (#NAME? without the add-in); empty text shows as blank.
+                value = ""
             edits.append(CellResult(fc.sheet, fc.row, fc.col, value))
     write_package(pkg, out, edits)
     return problems

@@ -19,16 +19,23 @@ Deviations are small, so the variance ``S2/N - (S1/N)^2`` loses almost no
 digits, and nothing accumulates along the series, so there is no drift after a
 million bars. Constant prices give exactly zero (every deviation is 0).
 
-For short periods the blocks are laid out transposed, one row per position
-inside a block and one column per block, so the cumulative sums are ``period``
-vectorised row additions instead of a sequential scan (several times faster in
-numpy); long periods keep each block contiguous and use numpy's cumulative sum.
-Either way the work runs over chunks of blocks small enough to stay in the CPU
-cache, and the cost per bar does not grow with the period.
+When a window is much flatter than its neighbourhood (a flat stretch after a
+jump, two nearly equal prices at period 2), the one-pass variance could lose
+relative digits; such windows are detected from the size of the cancelling terms
+and recomputed by two passes (exactly flat ones in O(n) by counting price
+changes), see ``_refine``.
+
+The blocks are laid out transposed, one row per position inside a block and one
+column per block, so the cumulative sums are vectorised row additions across all
+blocks instead of a sequential scan (several times faster in numpy); long periods
+group the rows so the number of numpy calls grows only like sqrt(period). The
+work runs over chunks of blocks small enough to stay in the CPU cache, and the
+cost per bar does not grow with the period.
 """
 
 from __future__ import annotations
 
+import math
 import operator
 from collections.abc import Iterable
 from typing import Any
@@ -43,10 +50,14 @@ from sheetvol.kernels._types import FloatArray
 # _CHUNK_ELEMENTS values otherwise (measured on 1e6 bars, see docs/performance.md).
 _CHUNK_ELEMENTS = 32768
 _MIN_COLUMNS = 1024
-# With fewer blocks than this (long periods), the row loop costs more than numpy's own
+# With fewer blocks than this (short series), the row loop costs more than numpy's own
 # cumulative sum down each block, which is then run on blocks stored contiguously.
 _ROW_LOOP_MIN_COLUMNS = 256
 _ROW_LOOP_MAX_PERIOD = 64
+# Longer periods: rows are grouped (see _cumsum_rows); each call covers about this many
+# values. _GROUPED_ROWS False falls back to numpy's cumulative sum on contiguous blocks.
+_GROUPED_CALL = 2048
+_GROUPED_ROWS = True
 # A window is recomputed by two passes when its variance is below this share of the
 # terms that cancel in the one-pass formula: the one-pass relative error is a few
 # eps divided by this share, so 1e-3 keeps it near 1e-12 or better.
@@ -123,12 +134,30 @@ def check_choice(value: Any, name: str, allowed: Iterable[str]) -> str:
 
 # -- the block engine ------------------------------------------------------------------
 def _cumsum_rows(a: FloatArray) -> FloatArray:
-    """Cumulative sums down each column (one column per block), in place."""
-    if a.flags.c_contiguous and a.shape[1] >= _ROW_LOOP_MIN_COLUMNS:
-        for j in range(1, a.shape[0]):
+    """Cumulative sums down each column (one column per block), in place.
+
+    Short blocks: one numpy call per row. Long blocks: rows are grouped by about
+    sqrt(period); sums run within all groups at once, then each group gets the
+    total of the groups before it, so the calls number about 2 sqrt(period).
+    """
+    rows = a.shape[0]
+    if not a.flags.c_contiguous:
+        return np.cumsum(a, axis=0, out=a)
+    if rows <= _ROW_LOOP_MAX_PERIOD:
+        for j in range(1, rows):
             np.add(a[j - 1], a[j], out=a[j])
         return a
-    return np.cumsum(a, axis=0, out=a)
+    size = math.isqrt(rows)
+    groups = rows // size
+    main = groups * size
+    grouped = a[:main].reshape(groups, size, a.shape[1])
+    for r in range(1, size):
+        np.add(grouped[:, r - 1], grouped[:, r], out=grouped[:, r])
+    for g in range(1, groups):
+        grouped[g] += grouped[g - 1, -1]
+    for j in range(main, rows):
+        np.add(a[j - 1], a[j], out=a[j])
+    return a
 
 
 def _older(prefix: FloatArray) -> FloatArray:
@@ -136,13 +165,33 @@ def _older(prefix: FloatArray) -> FloatArray:
     return prefix[-1, :-1] - prefix[:, :-1]
 
 
-def _grid(values: FloatArray, period: int, fill: float) -> FloatArray:
-    """``values`` padded to whole blocks and viewed as (position in block, block)."""
-    n = len(values)
-    n_blocks = -(-n // period)
-    if n_blocks * period != n:
-        values = np.concatenate([values, np.full(n_blocks * period - n, fill)])
-    return values.reshape(n_blocks, period).T
+class _Grid:
+    """A series viewed as blocks of ``period`` bars, (position in block, block).
+
+    Whole blocks are a view of the input (no copy); only a last, partial block is
+    copied and padded with ``fill``.
+    """
+
+    def __init__(self, values: FloatArray, period: int, fill: float) -> None:
+        n = len(values)
+        self.whole = n // period
+        self.n_blocks = -(-n // period)
+        self.view = values[: self.whole * period].reshape(self.whole, period).T
+        self.last = None
+        if self.n_blocks > self.whole:
+            self.last = np.full(period, fill)
+            self.last[: n - self.whole * period] = values[self.whole * period :]
+
+    def column(self, b: int) -> FloatArray:
+        return self.view[:, b] if b < self.whole else self.last  # type: ignore[return-value]
+
+    def put(self, out: FloatArray, b0: int, b1: int) -> None:
+        """Copy blocks b0..b1-1 into the columns of ``out``."""
+        top = min(b1, self.whole)
+        if top > b0:
+            out[:, : top - b0] = self.view[:, b0:top]
+        if b1 > self.whole:
+            out[:, -1] = self.last
 
 
 def _engine(
@@ -155,19 +204,26 @@ def _engine(
     or about the window mean) or ``"linear"`` (linearly weighted mean).
     """
     n, big_n = len(x), float(period)
-    gx = _grid(x, period, x[-1])  # padding only feeds rows that are cut off again
-    n_blocks = gx.shape[1]
-    gl = None if level is None else _grid(level, period, np.nan)
+    gx = _Grid(x, period, x[-1])  # padding only feeds rows that are cut off again
+    n_blocks = gx.n_blocks
+    gl = None if level is None else _Grid(level, period, np.nan)
     # The shift of each block is one of its own prices: deviations from it are exact
     # (Sterbenz) for prices of one sign, and 0 for constant prices.
-    shift = gx[period // 2].copy()
+    shift = np.empty(n_blocks)
+    shift[: gx.whole] = gx.view[period // 2]
+    if gx.last is not None:
+        shift[-1] = gx.last[period // 2]
     n_out = {"moments": 2, "frame": 3}.get(mode, 1)
     outs = [np.empty(n_blocks * period) for _ in range(n_out)]
     grids = [o.reshape(n_blocks, period).T for o in outs]
     pos = np.arange(period, dtype=np.float64)[:, None]
     k = (period - 1.0) - pos  # bars of each window that lie in the previous block
-    wide = period <= _ROW_LOOP_MAX_PERIOD and n_blocks >= _ROW_LOOP_MIN_COLUMNS
-    cols = max(_MIN_COLUMNS if wide else 4, _CHUNK_ELEMENTS // period)
+    if period <= _ROW_LOOP_MAX_PERIOD:
+        wide = n_blocks >= _ROW_LOOP_MIN_COLUMNS
+        cols = max(_MIN_COLUMNS if wide else 4, _CHUNK_ELEMENTS // period)
+    else:  # grouped rows: keep each numpy call over a few thousand values
+        wide = _GROUPED_ROWS
+        cols = max(_GROUPED_CALL // math.isqrt(period), _CHUNK_ELEMENTS // period)
     cols = min(n_blocks, cols)
     flagged: list[np.ndarray] = []
     for b0 in range(0, n_blocks, cols):
@@ -180,8 +236,8 @@ def _engine(
         # Wide chunks: one row per position (row loop); narrow: one contiguous block
         # per column (numpy's cumulative sum); every later step follows this order.
         y = np.empty((period, b1 - b0 + 1), order="C" if wide else "F")
-        y[:, 1:] = gx[:, here]
-        y[:, 0] = gx[:, b0 - 1] if b0 else sh[0]
+        gx.put(y[:, 1:], b0, b1)
+        y[:, 0] = gx.column(b0 - 1) if b0 else sh[0]
         y -= sh
         d = sh[:-1] - sh[1:]  # moves the older part onto the newer block's shift
         kd = k * d
@@ -209,42 +265,48 @@ def _engine(
             s1 += big_n * sh[1:]
             grids[0][:, here] = s1
             continue
-        s1 /= big_n  # now the window mean minus the shift
+        mean = s1 / big_n  # the window mean minus the shift
         if y2 is None:
-            s1 += sh[1:]
-            grids[0][:, here] = s1
+            mean += sh[1:]
+            grids[0][:, here] = mean
             continue
         p2 = _cumsum_rows(y2)
+        # Size of the terms that cancel in s2, per block: block sums of squares, the
+        # cross term bounded by Cauchy-Schwarz (sum|y| <= sqrt(N sum y^2)) and N d^2.
+        # The variance's rounding error is a few eps times this, which only matters
+        # when a window is much flatter than its neighbourhood (see _refine).
         prev_total = p2[-1, :-1]
+        bound = p2[-1, 1:] + prev_total
+        bound += 2.0 * np.abs(d) * np.sqrt(big_n * prev_total)
+        bound += big_n * d * d
+        bound *= _REFINE_RATIO
         s2 = p2[:, 1:] + _older(p2)
         s2 += (2.0 * d) * q1
-        square = kd * d
-        s2 += square
-        # Size of the terms that cancel in s2 (an upper bound by Cauchy-Schwarz on
-        # sum|y| <= sqrt(N sum y^2)); the rounding error of the variance is a few
-        # eps times this, which only matters when the window is much flatter than
-        # its neighbourhood (see _refine).
-        size = p2[:, 1:] + square
-        size += prev_total + 2.0 * np.abs(d) * np.sqrt(big_n * prev_total)
-        s2 /= big_n
-        s2 -= s1 * s1  # population variance
-        np.maximum(s2, 0.0, out=s2)  # rounding may leave -1e-30 on a flat window
+        s2 += kd * d
+        s2 -= s1 * mean  # minus N * (mean - shift)^2
+        np.maximum(s2, 0.0, out=s2)  # N * population variance; rounding may give -1e-30
         if mode == "deviation" and gl is not None:
             # mean - level in the local frame: (level - shift) is exact nearby.
-            s1 -= gl[:, here] - sh[1:]
-            s1 *= s1
-            s2 += s1
-        rows, cols_ = np.nonzero(s2 * big_n < _REFINE_RATIO * size)
-        if len(rows):
+            gap = np.empty_like(mean)
+            gl.put(gap, b0, b1)
+            gap -= sh[1:]
+            np.subtract(mean, gap, out=gap)
+            gap *= gap
+            gap *= big_n
+            s2 += gap
+        low = s2 < bound
+        if low.any():
+            rows, cols_ = np.nonzero(low)
             flagged.append((b0 + cols_) * period + rows)
         if mode == "moments":
-            grids[0][:, here] = s1 + sh[1:]
-            grids[1][:, here] = s2
+            grids[0][:, here] = mean + sh[1:]
+            grids[1][:, here] = s2 / big_n
         elif mode == "frame":
             grids[0][:, here] = sh[1:]
-            grids[1][:, here] = s1
-            grids[2][:, here] = s2
+            grids[1][:, here] = mean
+            grids[2][:, here] = s2 / big_n
         else:
+            s2 /= big_n  # the same roundings as window_mean_var, so callers can mix them
             if sample:
                 s2 *= big_n / (big_n - 1.0)
             grids[0][:, here] = np.sqrt(s2, out=s2)
@@ -273,8 +335,21 @@ def _refine(
     the block shift (a flat stretch after a jump, two nearly equal prices in a short
     window). There the one-pass formula could lose relative digits; two passes over
     just those windows restore full accuracy. For random walks this is a few percent
-    of the windows at period 2 and almost none at longer periods.
+    of the windows at period 2 and almost none at longer periods; stale prices give
+    many exactly flat windows, which are recognised in O(n) and need no second pass.
     """
+    if len(ends) * period > 4 * len(x):
+        # Many flagged windows (stale, tick-rounded prices): the flat ones, those with
+        # no price change inside, are settled without a second pass.
+        changes = np.flatnonzero(x[1:] != x[:-1])  # i: x[i] differs from x[i + 1]
+        flat = np.searchsorted(changes, ends) == np.searchsorted(changes, ends - (period - 1))
+        t = ends[flat]
+        if mode == "deviation" and level is not None:
+            scale = math.sqrt(period / (period - 1.0)) if sample else 1.0
+            out[t] = np.abs(x[t] - level[t]) * scale
+        else:
+            out[t] = 0.0
+        ends = ends[~flat]
     offsets = np.arange(1 - period, 1)
     batch = max(1, _CHUNK_ELEMENTS // period)
     for i in range(0, len(ends), batch):

@@ -51,19 +51,19 @@ def smoothing_factor(kind: str, period: int) -> float:
     return 2.0 / (period + 1.0) if kind == "exponential" else 1.0 / period
 
 
-# Block length of the vectorised recursion: long enough that the row loop is a few
-# hundred numpy calls, short enough that the carried powers r^j stay representable.
-_RECURSION_BLOCK = 256
+# Block length of the vectorised recursion: short blocks make each numpy call a
+# long strided pass over all blocks at once (measured fastest at 8-32 on 1e6 bars).
+_RECURSION_BLOCK = 32
 
 
 def linear_recurrence(u: FloatArray, r: float) -> FloatArray:
     """Solve ``y_t = r * y_{t-1} + u_t`` with ``y_{-1} = 0``, vectorised and O(n).
 
-    The series is cut into blocks of 256. Each block runs the recursion from zero,
+    The series is cut into blocks of 32. Each block runs the recursion from zero,
     all blocks at once (one numpy call per position in the block). The true value
-    carried into each block is then itself a recursion over the block ends with
-    factor ``r^256``, solved the same way (recursively, so a Python loop only ever
-    runs over at most 256 values), and added back as ``r^(j+1) * carry``.
+    carried into each block is itself a recursion over the block ends with factor
+    ``r^32``, solved the same way (recursively, so a Python loop only ever runs
+    over at most 32 values), and added back as ``r^(j+1) * carry``.
 
     Parameters
     ----------
@@ -82,28 +82,41 @@ def linear_recurrence(u: FloatArray, r: float) -> FloatArray:
     >>> linear_recurrence([1.0, 1.0, 1.0], 0.5)
     array([1.  , 1.5 , 1.75])
     """
-    u = as_series(u)
-    n, size = len(u), _RECURSION_BLOCK
-    if n <= size:
-        out = np.empty(n)
-        acc = 0.0
-        for i, value in enumerate(u.tolist()):
+    out = as_series(u).copy()
+    _recur_in_place(out, r)
+    return out
+
+
+def _recur_in_place(y: FloatArray, r: float) -> None:
+    """:func:`linear_recurrence` overwriting ``y`` (a contiguous 1-D float64 array)."""
+    n, size = len(y), _RECURSION_BLOCK
+    full = (n // size) * size
+    if full > size:
+        n_blocks = full // size
+        grid = y[:full].reshape(n_blocks, size)  # one row per block, a view of y
+        tmp = np.empty(n_blocks)
+        for j in range(1, size):
+            np.multiply(grid[:, j - 1], r, out=tmp)
+            grid[:, j] += tmp
+        # True value at the end of each block: local end plus r^size times the previous.
+        ends = grid[:, -1].copy()
+        _recur_in_place(ends, r**size)
+        powers = r ** np.arange(1.0, size + 1.0)
+        powers[powers < 1e-30] = 0.0  # negligible, and avoids slow subnormal arithmetic
+        carry = tmp[:-1]
+        for j in range(size):
+            if powers[j] == 0.0:
+                break
+            np.multiply(ends[:-1], powers[j], out=carry)
+            grid[1:, j] += carry
+        start, acc = full, float(y[full - 1])
+    else:
+        start, acc = 0, 0.0
+    if start < n:  # what is left (short series, or the last partial block): plain loop
+        tail = y[start:]
+        for i, value in enumerate(tail.tolist()):
             acc = r * acc + value
-            out[i] = acc
-        return out
-    n_blocks = -(-n // size)
-    padded = np.zeros(n_blocks * size)
-    padded[:n] = u
-    grid = padded.reshape(n_blocks, size).T.copy()  # (position in block, block)
-    tmp = np.empty(n_blocks)
-    for j in range(1, size):
-        np.multiply(grid[j - 1], r, out=tmp)
-        grid[j] += tmp
-    # True value at the end of each block: local end plus r^size times the previous.
-    ends = linear_recurrence(grid[-1].copy(), r**size)
-    powers = r ** np.arange(1.0, size + 1.0)
-    grid[:, 1:] += np.multiply.outer(powers, ends[:-1])
-    return grid.T.reshape(-1)[:n]
+            tail[i] = acc
 
 
 def recursive_average(
@@ -141,11 +154,12 @@ def recursive_average(
     out = np.full(len(x), np.nan)
     if start >= len(x):
         return out
-    u = x[start:] - seed_value
-    u *= alpha
-    u[0] = 0.0  # the seed itself: no deviation
-    out[start:] = linear_recurrence(u, 1.0 - alpha)
-    out[start:] += seed_value
+    work = out[start:]
+    np.subtract(x[start:], seed_value, out=work)
+    work *= alpha
+    work[0] = 0.0  # the seed itself: no deviation
+    _recur_in_place(work, 1.0 - alpha)
+    work += seed_value
     return out
 
 

@@ -142,6 +142,7 @@ class SheetEdits:
         return min(rows), min(cols), max(rows), max(cols)
 
 
+_LETTERS = re.compile(rb"[A-Z]{1,3}")
 _DELIM = frozenset(b" \t\r\n>/")
 BLOCK = 1 << 16
 
@@ -186,6 +187,7 @@ class RowEditor:
         self.ranges = ranges
         self._seg = (1, 0)  # cached _active() result valid for rows seg[0]..seg[1]
         self._seg_act: dict[int, bool] = {}
+        self._seg_min = MAX_COL + 1
 
     # -- new cells ---------------------------------------------------------------------
     def _block(self, r: int) -> list[str]:
@@ -250,6 +252,12 @@ class RowEditor:
         need = self.need
         n_need = len(need)
         special = self.special
+        prefix = self.pat.prefix
+        run_min = self._run_min
+        cr = b"<" + prefix + b'c r="'
+        crl = len(cr)
+        cs = self.pat.cell_start
+        letters_re = _LETTERS
         r = 0
         for chunk in chunks:
             out: list[bytes] = []
@@ -291,8 +299,39 @@ class RowEditor:
                 self.ni = ni
                 if not has_new and not (self.check_from <= r <= self.check_to):
                     continue
-                edited = self.edit_row(r, attrs, chunk[inner_s:inner_e], has_new,
-                                       r in special)
+                if r not in special:
+                    # Fast path: new number cells all right of the existing ones.
+                    if self.check_from <= r <= self.check_to:
+                        self._active(r)
+                        limit = min(run_min, self._seg_min)
+                    else:
+                        limit = run_min
+                    if inner_s == inner_e:
+                        last = 0
+                    else:
+                        lp = chunk.rfind(cr, inner_s, inner_e)
+                        if lp >= 0 and chunk.find(cs, lp + 1, inner_e) < 0:
+                            m = letters_re.match(chunk, lp + crl)
+                            last = col_index(m[0]) if m else None
+                        else:
+                            last = self._last_col(chunk[inner_s:inner_e])
+                    if last is not None and last < limit:
+                        if not has_new:
+                            continue
+                        tail = self._block(r)[r - self._blk_lo].encode()
+                        if inner_s == inner_e or b"spans" in attrs:
+                            out.append(chunk[pos:s])
+                            out.append(b"<" + prefix + b"row" + _SPANS.sub(b"", attrs) + b">")
+                            out.append(chunk[inner_s:inner_e])
+                            out.append(tail)
+                            out.append(rend)
+                            pos = end
+                        else:  # splice just before </row>
+                            out.append(chunk[pos:inner_e])
+                            out.append(tail)
+                            pos = inner_e
+                        continue
+                edited = self.edit_row(r, attrs, chunk[inner_s:inner_e], has_new)
                 if edited is not None:
                     out.append(chunk[pos:s])
                     out.append(edited)
@@ -322,13 +361,11 @@ class RowEditor:
         for c, a, b, _ in self.e.guards:
             if a <= r <= b:
                 act.setdefault(c, True)
-        # the same answer holds until the next range starts or ends
-        starts = [a for _, a, _ in self.ranges if a > r]
-        ends = [b for _, a, b in self.ranges if a <= r <= b]
-        nxt = min([*starts, *ends, _INF])
-        prev = max([a for _, a, b in self.ranges if a <= r] + [b + 1 for _, _, b in self.ranges
-                                                               if b < r] + [1])
-        self._seg = (prev, nxt if nxt in ends else nxt - 1)
+        # the same answer holds until the next range starts or the row after one ends
+        seg_end = min([a - 1 for _, a, _ in self.ranges if a > r]
+                      + [b for _, a, b in self.ranges if a <= r <= b] + [_INF])
+        self._seg = (r, seg_end)
+        self._seg_min = min(act, default=MAX_COL + 1)
         self._seg_act = act
         return act
 
@@ -351,20 +388,11 @@ class RowEditor:
             if nxt in (b">", b"/"):
                 return None
 
-    def edit_row(self, r: int, attrs: bytes, inner: bytes, has_new: bool,
-                 special: bool = True) -> bytes | None:
+    def edit_row(self, r: int, attrs: bytes, inner: bytes, has_new: bool) -> bytes | None:
         """The new bytes of row r, or None when it stays as it is."""
         act = self._active(r)
         start = _SPANS.sub(b"", attrs) if b"spans" in attrs else attrs
         row_open = b"<" + self.pat.prefix + b"row" + start + b">"
-        if not special:
-            # Common case: only number cells of column runs, right of every existing cell.
-            last = self._last_col(inner) if inner else 0
-            if last is not None and last < min(self._run_min, min(act, default=MAX_COL)):
-                if not has_new:
-                    return None
-                tail = self._block(r)[r - self._blk_lo]
-                return row_open + inner + tail.encode() + self.pat.row_end
         return self._edit_row_slow(r, row_open, inner, has_new, act)
 
     def _edit_row_slow(self, r: int, row_open: bytes, inner: bytes, has_new: bool,

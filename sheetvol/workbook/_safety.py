@@ -9,6 +9,7 @@ or fetched. Macros (``vbaProject.bin``) are never opened, only copied.
 from __future__ import annotations
 
 import zipfile
+import zlib
 from dataclasses import dataclass
 from pathlib import Path
 from xml.etree.ElementTree import Element
@@ -95,7 +96,7 @@ def read_part(zf: zipfile.ZipFile, part: str, name: str) -> bytes:
         return zf.read(part)
     except KeyError:
         raise WorkbookError(f"{name}: part {part} is missing; the workbook is damaged.") from None
-    except (zipfile.BadZipFile, OSError, EOFError) as exc:
+    except (zipfile.BadZipFile, zlib.error, OSError, EOFError) as exc:
         raise WorkbookError(f"{name}: part {part} is damaged ({exc}).") from None
 
 

@@ -15,7 +15,9 @@ Text never contains a raw ``<``, so element starts found by the patterns are rea
 from __future__ import annotations
 
 import re
-from collections.abc import Iterator
+import zipfile
+import zlib
+from collections.abc import Callable, Iterator
 from functools import lru_cache
 from typing import IO
 
@@ -148,7 +150,7 @@ class SheetStream:
         self.chunk = chunk
         buf = b""
         while True:
-            data = fh.read(chunk)
+            data = self._read(chunk)
             buf += data
             m = _SHEETDATA.search(buf)
             if m or not data:
@@ -163,10 +165,17 @@ class SheetStream:
         self._rest = buf[m.end():]
         self.tail = b""
 
+    def _read(self, n: int) -> bytes:
+        try:
+            return self.fh.read(n)
+        except (zipfile.BadZipFile, zlib.error, EOFError, OSError) as exc:
+            raise WorkbookError(f"{self.name}: part {self.part} is damaged ({exc}); open the "
+                                "file in your spreadsheet program and save it again.") from None
+
     def body(self) -> Iterator[bytes]:
         """Yield chunks of complete rows; sets :attr:`tail` at the end."""
         if self.empty:
-            self.tail = self._rest + self.fh.read()
+            self.tail = self._rest + self._read(-1)
             return
         buf = self._rest
         self._rest = b""
@@ -178,7 +187,7 @@ class SheetStream:
             if end >= 0:
                 if end:
                     yield buf[:end]
-                self.tail = buf[end:] + self.fh.read()
+                self.tail = buf[end:] + self._read(-1)
                 return
             if eof:
                 raise WorkbookError(
@@ -188,7 +197,7 @@ class SheetStream:
             if cut > 0:
                 yield buf[:cut]
                 buf = buf[cut:]
-            data = self.fh.read(self.chunk)
+            data = self._read(self.chunk)
             if not data:
                 eof = True
             buf += data
@@ -268,13 +277,27 @@ _ATTRS = re.compile(rb"""([\w:.\-]+)\s*=\s*(["'])(.*?)\2""", re.S)
 
 
 def iter_cells(
-    stream: SheetStream, max_row: int | None = None
+    stream: SheetStream,
+    max_row: int | None = None,
+    skip_chunk: Callable[[bytes], bool] | None = None,
 ) -> Iterator[tuple[int, int, bytes, bytes | None]]:
-    """Yield (row, col, attrs, inner) for each cell, with implied positions filled in."""
+    """Yield (row, col, attrs, inner) for each cell, with implied positions filled in.
+
+    ``skip_chunk(chunk)`` True passes over a whole chunk of rows unparsed (when its last
+    row states its number, so later implied row numbers stay right).
+    """
     pat = stream.pat
     row_re, cell_re = pat.row, pat.cell
     r = 0
     for chunk in stream.body():
+        if skip_chunk is not None and skip_chunk(chunk):
+            last = _last_row_start(chunk, pat.row_start)
+            m = _ATTR_R_ROW.search(chunk, last, chunk.find(b">", last))
+            if m:
+                r = int(m[1])
+                if max_row is not None and r > max_row:
+                    return
+                continue
         for rm in row_re.finditer(chunk):
             mr = _ATTR_R_ROW.search(rm[1])
             r = int(mr[1]) if mr else r + 1

@@ -351,57 +351,64 @@ class Package:
         """
         info = self._worksheet(sheet)
         wanted = set(cols)
-        found: dict[int, tuple[list[int], list[float]]] = {c: ([], []) for c in wanted}
+        for c in wanted:
+            if not 1 <= c <= 16384:
+                raise WorkbookError(f"{self.path.name}: column {c} is outside the sheet.")
+        pieces: dict[int, list[tuple[np.ndarray, np.ndarray]]] = {c: [] for c in wanted}
         other: dict[int, dict[int, object]] = {c: {} for c in wanted}
         last = first_row - 1
         with self._zip() as zf:
             stream = self._stream(zf, info)
             pat = stream.pat
             reader = CellReader(pat, self.shared_strings(zf))
-            v_open, v_close = b"<" + pat.prefix + b"v>", b"</" + pat.prefix + b"v>"
             wanted_letters = {col_letters(c).encode(): c for c in wanted}
+            p = re.escape(pat.prefix)
+            alt = b"|".join(sorted(wanted_letters))
+            # plain number cells of the wanted columns, converted by numpy in bulk ...
+            simple = re.compile(rb"<" + p + rb'c r="(' + alt + rb')(\d+)"(?: s="\d+")?><' + p
+                                + rb"v>([^<]*)</" + p + rb"v></" + p + rb"c>")
+            # ... and every other cell of those columns, one by one
+            rest = re.compile(rb"<" + p + rb'c r="(' + alt + rb')(\d+)"(?!(?: s="\d+")?><' + p
+                              + rb"v>[^<]*</" + p + rb"v></" + p + rb"c>)([^>]*?)(?:/>|>(.*?)</"
+                              + p + rb"c>)", re.S)
+            r_first = b"<" + pat.prefix + b'c r="'
+            c_any = b"<" + pat.prefix + b"c"
             for chunk in stream.body():
-                found_cells = pat.cell_rfirst.findall(chunk)
-                if len(found_cells) != sum(chunk.count(x) for x in pat.cell_starts):
-                    # some cell without r first: the general scan, row by row
-                    found_cells = _cells_general(chunk, pat)
-                for letters, row, attrs, cinner in found_cells:
-                    c = wanted_letters.get(letters)
-                    if c is None or not cinner:
-                        continue
-                    r = int(row)
-                    if r < first_row:
-                        continue
-                    if not attrs or b"t=" not in attrs or _number_type(attrs):
-                        if cinner.startswith(v_open) and cinner.endswith(v_close):
-                            raw = cinner[len(v_open) : -len(v_close)]
+                # every "<c" starting a cell with r first? (rich text runs such as <color>
+                # also count, and merely send the chunk down the general path)
+                if chunk.count(r_first) == chunk.count(c_any):
+                    found = simple.findall(chunk)
+                    others = rest.findall(chunk)
+                    if found:
+                        got = _bulk_numbers(found, wanted_letters, first_row)
+                        if got is None:  # some text that numpy cannot read: one by one
+                            others = [(lt, row, b"", b"<v>" + v + b"</v>")
+                                      for lt, row, v in found] + others
                         else:
-                            mv = pat.v.search(cinner)
-                            if mv is None:
-                                continue
-                            raw = mv[1]
-                        try:
-                            num = float(raw)
-                        except ValueError:
-                            continue
-                        rows_, vals = found[c]
-                        rows_.append(r)
-                        vals.append(num)
-                        if r > last:
-                            last = r
+                            for c, rows_, vals in got:
+                                pieces[c].append((rows_, vals))
+                                last = max(last, int(rows_[-1]))
+                else:  # some cell without r as its first attribute: the general scan
+                    others = [x for x in _cells_general(chunk, pat) if x[0] in wanted_letters]
+                for letters, row, attrs, cinner in others:
+                    r = int(row)
+                    if r < first_row or not cinner:
+                        continue
+                    c = wanted_letters[letters]
+                    value = reader.value(attrs, cinner)
+                    if value is None:
+                        continue
+                    if isinstance(value, float):
+                        pieces[c].append((np.array([r]), np.array([value])))
                     else:
-                        value = reader.value(attrs, cinner)
-                        if value is not None:
-                            other[c][r] = value
-                            if r > last:
-                                last = r
+                        other[c][r] = value
+                    last = max(last, r)
         n = max(last - first_row + 1, 0)
         out = {}
         for c in cols:
             numbers = np.full(n, np.nan)
-            rows_, vals = found[c]
-            if rows_:
-                numbers[np.asarray(rows_) - first_row] = vals
+            for rows_, vals in pieces[c]:
+                numbers[rows_ - first_row] = vals
             out[c] = Column(numbers=numbers, other=other[c], first_row=first_row)
         return out
 
@@ -448,7 +455,14 @@ class Package:
                 stream = self._stream(zf, info)
                 reader = CellReader(stream.pat, None)
                 masters: dict[str, tuple[int, int, str]] = {}
-                for r, c, _attrs, inner in iter_cells(stream):
+                f_tag = b"<" + stream.pat.prefix + b"f"
+
+                def skip(chunk: bytes, f_tag: bytes = f_tag,
+                         masters: dict[str, tuple[int, int, str]] = masters) -> bool:
+                    # no formula at all, or no sheetvol name and no shared formula to follow
+                    return f_tag not in chunk or (not masters and not _SV.search(chunk))
+
+                for r, c, _attrs, inner in iter_cells(stream, skip_chunk=skip):
                     if not inner or (b"<f" not in inner and b":f" not in inner):
                         continue
                     got = reader.formula(inner)
@@ -457,7 +471,7 @@ class Package:
                     _raw, text, fattrs = got
                     kind = fattrs.get("t", "normal")
                     if kind == "shared" and "si" in fattrs:
-                        if text:
+                        if text and _SV.search(text.encode()):
                             masters[fattrs["si"]] = (r, c, text)
                         elif fattrs["si"] in masters:
                             mr_, mc_, mtext = masters[fattrs["si"]]
@@ -515,6 +529,30 @@ def _cells_general(chunk: bytes, pat: Patterns) -> list[tuple[bytes, bytes, byte
             mc = _ATTR_R_CELL.search(cm[1])
             c = col_index(mc[1]) if mc else c + 1
             out.append((col_letters(c).encode(), str(r).encode(), cm[1], cm[3]))
+    return out
+
+
+def _bulk_numbers(
+    found: list[tuple[bytes, bytes, bytes]], wanted: dict[bytes, int], first_row: int
+) -> list[tuple[int, np.ndarray, np.ndarray]] | None:
+    """(col, rows, values) arrays from (letters, row, value text) triples; None if unreadable."""
+    try:
+        vals = np.array([x[2] for x in found]).astype(np.float64)
+    except ValueError:
+        return None
+    rows = np.array([x[1] for x in found]).astype(np.int64)
+    keep = rows >= first_row
+    out = []
+    if len(wanted) == 1:
+        (c,) = wanted.values()
+        if keep.any():
+            out.append((c, rows[keep], vals[keep]))
+        return out
+    letters = np.array([x[0] for x in found])
+    for lt, c in wanted.items():
+        m = (letters == lt) & keep
+        if m.any():
+            out.append((c, rows[m], vals[m]))
     return out
 
 

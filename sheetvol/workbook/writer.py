@@ -30,6 +30,18 @@ from pathlib import Path
 
 import numpy as np
 
+from sheetvol.workbook._chart import (
+    CT_CHART,
+    CT_DRAWING,
+    REL_CHART,
+    REL_DRAWING,
+    add_anchors,
+    anchor_xml,
+    chart_xml,
+    drawing_xml,
+    insert_drawing,
+    rel_prefix_of,
+)
 from sheetvol.workbook._rowedit import (
     ColumnRun,
     RowEditor,
@@ -51,7 +63,7 @@ from sheetvol.workbook._sheetxml import (
 from sheetvol.workbook._styles import MINIMAL_STYLES, StyleBook
 from sheetvol.workbook.edits import CellResult, LineChart, NewColumn, NewSheet, SpillResult
 from sheetvol.workbook.errors import WorkbookError
-from sheetvol.workbook.package import NS_REL, Package, SheetInfo, TableInfo
+from sheetvol.workbook.package import NS_PKG_REL, NS_REL, Package, SheetInfo, TableInfo
 
 # zlib level for rewritten sheets: level 1 deflates sheet XML about 3x faster than the
 # default 6 for a file about 20% larger (measured, see docs/performance.md).
@@ -142,8 +154,8 @@ class _Job:
                 self.charts.append(edit)
             else:
                 raise TypeError(f"not a workbook edit: {edit!r}")
-        if self.charts:
-            raise WorkbookError("native charts are not written yet; run without the chart option.")
+        self.new_sheet_parts: dict[str, str] = {}  # casefolded name -> part written here
+        self.sheet_drawing: dict[str, str] = {}  # streamed sheet part -> drawing rel id
         self.styles: StyleBook | None = None
         self.styles_part: str | None = None
         self.wb_rels = pkg.rels(zin, pkg.workbook_part)
@@ -195,9 +207,26 @@ class _Job:
                                                 + text[m.start():]).encode("utf-8")
 
     def _workbook_rel(self, rel_type: str, target: str) -> str:
-        folder, base = self.pkg.workbook_part.rsplit("/", 1)
-        rels_part = f"{folder}/_rels/{base}.rels"
-        text = self.part(rels_part).decode("utf-8")
+        return self.append_rel(self.pkg.workbook_part, rel_type, target)
+
+    def has_part(self, name: str) -> bool:
+        return name in self.added or name in self.replaced or name in self.names
+
+    def unique_part(self, pattern: str) -> str:
+        k = 1
+        while self.has_part(pattern.format(k)):
+            k += 1
+        return pattern.format(k)
+
+    def append_rel(self, source: str, rel_type: str, target: str) -> str:
+        """Add a relationship from part ``source`` (creating its .rels); return its id."""
+        folder, base = source.rsplit("/", 1) if "/" in source else ("", source)
+        rels_part = f"{folder}/_rels/{base}.rels" if folder else f"_rels/{base}.rels"
+        if self.has_part(rels_part):
+            text = self.part(rels_part).decode("utf-8")
+        else:
+            text = ('<?xml version="1.0" encoding="UTF-8" standalone="yes"?>\n<Relationships '
+                    f'xmlns="{NS_PKG_REL}"></Relationships>')
         used = set(re.findall(r'Id\s*=\s*["\']([^"\']+)', text))
         k = 1
         while f"rId{k}" in used:
@@ -208,7 +237,11 @@ class _Job:
             raise WorkbookError(f"{self.file}: {rels_part} is damaged.")
         p = m[1] or ""
         entry = f'<{p}Relationship Id="{rid}" Type="{rel_type}" Target="{target}"/>'
-        self.replaced[rels_part] = (text[: m.start()] + entry + text[m.start():]).encode("utf-8")
+        data = (text[: m.start()] + entry + text[m.start():]).encode("utf-8")
+        if rels_part in self.names:
+            self.replaced[rels_part] = data
+        else:
+            self.added[rels_part] = data
         return rid
 
     # -- preparing ---------------------------------------------------------------------
@@ -217,6 +250,8 @@ class _Job:
             self._tables(part, [e for e in edits if isinstance(e, NewColumn)])
         for sheet in self.new_sheets:
             self._new_sheet(sheet)
+        if self.charts:
+            self._charts()
         # styles used by sheet edits are resolved now so the styles part is final
         self.sheet_styles: dict[int, tuple[int, int]] = {}
         for edits in self.sheet_edits.values():
@@ -306,6 +341,7 @@ class _Job:
                     f"{self.file} already has a sheet named {existing.name!r} that sheetvol did "
                     "not write; rename that sheet or choose another name.")
             self.replaced[existing.part] = xml
+            self.new_sheet_parts[name.casefold()] = existing.part
             return
         k = 1
         while f"{SHEETVOL_PART}{k}.xml" in self.names or f"{SHEETVOL_PART}{k}.xml" in self.added:
@@ -314,7 +350,72 @@ class _Job:
         folder = self.pkg.workbook_part.rsplit("/", 1)[0]
         target = part[len(folder) + 1:] if part.startswith(folder + "/") else "/" + part
         rid = self.add_part(part, xml, CT_WORKSHEET, REL_WORKSHEET, target)
+        self.new_sheet_parts[name.casefold()] = part
         self._workbook_sheet(name, rid)
+
+    def _charts(self) -> None:
+        """Chart parts, a drawing per anchor sheet, and the sheet's ``<drawing>``."""
+        by_anchor: dict[str, list[LineChart]] = {}
+        for ch in self.charts:
+            data = self.pkg._worksheet(ch.sheet)
+            _check_cell(self.file, data.name, ch.last_row, max([ch.x_col, *ch.series_cols]))
+            if not ch.series_cols or ch.first_row > ch.last_row or ch.first_row < 1:
+                raise WorkbookError(f"{self.file}: chart {ch.title!r} has no data to draw.")
+            try:
+                parse_ref(ch.anchor_cell)
+            except ValueError:
+                raise WorkbookError(f"{self.file}: chart {ch.title!r}: {ch.anchor_cell!r} is not "
+                                    "a cell.") from None
+            part = self.new_sheet_parts.get(ch.anchor_sheet.casefold())
+            if part is None:
+                part = self.pkg._worksheet(ch.anchor_sheet).part
+            by_anchor.setdefault(part, []).append(ch)
+        for part, charts in by_anchor.items():
+            self._chart_drawing(part, charts)
+
+    def _chart_drawing(self, sheet_part: str, charts: list[LineChart]) -> None:
+        ours = sheet_part in self.added or sheet_part in self.replaced
+        existing = None
+        if not ours and sheet_part in self.names:
+            existing = next((t for t, k in self.pkg.rels(self.zin, sheet_part).values()
+                             if k == "drawing" and t in self.names), None)
+        if existing is not None:
+            drawing_part = existing
+            text = self.part(drawing_part)
+            ids = [int(x) for x in re.findall(rb'cNvPr[^>]*?\sid\s*=\s*["\'](\d+)', text)]
+            next_id = max(ids, default=1) + 1
+        else:
+            drawing_part = self.unique_part("xl/drawings/drawing{}.xml")
+            next_id = 2
+        anchors = []
+        for i, ch in enumerate(charts):
+            chart_part = self.unique_part("xl/charts/chart{}.xml")
+            self.added[chart_part] = chart_xml(ch, date_axis=False)
+            self._content_type(chart_part, CT_CHART)
+            target = "../charts/" + chart_part.rsplit("/")[-1]
+            rid = self.append_rel(drawing_part, REL_CHART, target)
+            anchors.append(anchor_xml(ch.anchor_cell, rid, next_id + i))
+        if existing is not None:
+            self.replaced[drawing_part] = add_anchors(self.part(drawing_part), anchors)
+            return
+        self.added[drawing_part] = drawing_xml(anchors)
+        self._content_type(drawing_part, CT_DRAWING)
+        rid = self.append_rel(sheet_part, REL_DRAWING,
+                              "../drawings/" + drawing_part.rsplit("/")[-1])
+        if ours:
+            xml = self.part(sheet_part)
+            new = insert_drawing(xml, b"", rel_prefix_of(xml[:2000]) or "", rid)
+            (self.added if sheet_part in self.added else self.replaced)[sheet_part] = new
+        elif sheet_part in self.sheet_edits:
+            self.sheet_drawing[sheet_part] = rid  # put in while the sheet streams
+        else:
+            xml = self.part(sheet_part)
+            cut = xml.rfind(b"sheetData>")
+            cut = cut + len(b"sheetData>") if cut >= 0 else 0
+            m = re.search(rb"<([A-Za-z_][\w.\-]*:)?worksheet[\s>]", xml)
+            prefix = (m[1] or b"") if m else b""
+            self.replaced[sheet_part] = xml[:cut] + insert_drawing(
+                xml[cut:], prefix, rel_prefix_of(xml[: xml.find(b">", m.end()) if m else 0]), rid)
 
     def _is_ours(self, info: SheetInfo, ns: NewSheet) -> bool:
         """Written by sheetvol: our part name, or the same title in A1."""
@@ -392,7 +493,13 @@ class _Job:
                 w.write(head)
                 for piece in editor.process(stream.body(), progress):
                     w.write(piece)
-                w.write(stream.tail)
+                tail = stream.tail
+                rid = self.sheet_drawing.get(info.filename)
+                if rid:
+                    root_end = stream.head.find(b">", stream.head.find(b"worksheet"))
+                    tail = insert_drawing(tail, stream.prefix,
+                                          rel_prefix_of(stream.head[:root_end]), rid)
+                w.write(tail)
 
     def _widths(self, sheet: SheetInfo) -> dict[int, float]:
         return {e.col: float(e.width) for e in self.sheet_edits[sheet.part]

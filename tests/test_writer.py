@@ -1,0 +1,279 @@
+"""Writing into a package (sheetvol.workbook.writer).
+
+Each test writes a real workbook (made by xlsxwriter, or edited by hand for producer
+variants) and reads the result back with openpyxl, an outside reader, or checks the
+XML against the rules of ECMA-376 Part 1 section 18.3 (rows ascending, cells in column
+order within a row, array formulas with a ref).
+"""
+
+from __future__ import annotations
+
+import re
+import zipfile
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from sheetvol.workbook import (
+    CellResult,
+    LineChart,
+    NewColumn,
+    NewSheet,
+    Package,
+    SpillResult,
+    WorkbookError,
+    write_package,
+)
+from sheetvol.workbook._sheetxml import col_index
+
+xlsxwriter = pytest.importorskip("xlsxwriter")
+openpyxl = pytest.importorskip("openpyxl")
+
+
+def book(path: Path, rows: int = 8) -> Path:
+    wb = xlsxwriter.Workbook(str(path))
+    ws = wb.add_worksheet("Data")
+    ws.write_row(0, 0, ["Date", "Close", "Vol"])
+    for i in range(rows):
+        ws.write_number(i + 1, 0, 45000 + i)
+        ws.write_number(i + 1, 1, 100 + i * 0.5)
+        ws.write_number(i + 1, 2, 1000 + i)
+    ws.write_formula(rows + 2, 1, "=SV_ATR(B2:B9,3)", None, 0)
+    ws.write_formula(rows + 3, 1, "=SV_NAME(B2)", None, "")
+    ws.write_number(rows + 3, 4, 42)  # an obstacle in column E
+    wb.add_worksheet("Notes")
+    wb.close()
+    return path
+
+
+def sheet_xml(path: Path, part: str = "xl/worksheets/sheet1.xml") -> bytes:
+    with zipfile.ZipFile(path) as zf:
+        return zf.read(part)
+
+
+def check_order(xml: bytes) -> None:
+    """Rows ascending by r; cells ascending by column within each row (ECMA-376 18.3.1)."""
+    rows = re.findall(rb'<row r="(\d+)"[^>]*?(?:/>|>(.*?)</row>)', xml, re.S)
+    numbers = [int(r) for r, _ in rows]
+    assert numbers == sorted(numbers) and len(set(numbers)) == len(numbers)
+    for r, inner in rows:
+        cols = [col_index(c) for c, rr in re.findall(rb'<c r="([A-Z]+)(\d+)"', inner)]
+        assert cols == sorted(cols) and len(set(cols)) == len(cols), r
+        assert all(rr == r for _, rr in re.findall(rb'<c r="([A-Z]+)(\d+)"', inner))
+
+
+def test_new_column_bit_for_bit(tmp_path: Path) -> None:
+    src = book(tmp_path / "in.xlsx", rows=8)
+    # doubles across many binades plus edge values: repr() is the shortest text that
+    # reads back to the same double (Python docs, float.__repr__; David Gay's algorithm)
+    rng = np.random.default_rng(0)
+    values = rng.standard_normal(8) * 10.0 ** rng.integers(-300, 300, 8)
+    values[[0, 3]] = [5e-324, -0.0]
+    values[5] = np.nan  # -> no cell
+    out = tmp_path / "out.xlsx"
+    write_package(Package.open(src), out, [NewColumn(
+        "Data", col=4, header_row=1, header="σ 3 <close> & co", first_row=2, values=values,
+        number_format="0.000000", width=14.0)])
+    ws = openpyxl.load_workbook(out)["Data"]
+    assert ws["D1"].value == "σ 3 <close> & co"
+    assert ws["D1"].font.b is True
+    for i, v in enumerate(values):
+        got = ws.cell(2 + i, 4).value
+        if np.isnan(v):
+            assert got is None
+        else:
+            assert np.float64(got).view(np.int64) == np.float64(v).view(np.int64)
+            assert ws.cell(2 + i, 4).number_format == "0.000000"
+    assert ws.column_dimensions["D"].width == 14.0
+    assert ws["A2"].value == 45000 and ws["C9"].value == 1007  # old cells intact
+    xml = sheet_xml(out)
+    assert b'<dimension ref="A1:E12"/>' in xml
+    check_order(xml)
+
+
+def test_columns_between_existing_and_missing_rows(tmp_path: Path) -> None:
+    """New cells land in column order inside rows and create missing rows in order."""
+    src = book(tmp_path / "in.xlsx", rows=3)
+    out = tmp_path / "out.xlsx"
+    # Data has rows 1-4, 6 and 7; column D gets rows 2-15. Notes is an empty sheet.
+    values = np.arange(14, dtype=float) + 0.25
+    edits = [NewColumn("Data", 4, 1, "x", 2, values, "0.00"),
+             NewColumn("Notes", 2, 3, "y", 4, np.array([1.5, np.nan, 2.5]), "0.0")]
+    write_package(Package.open(src), out, edits)
+    check_order(sheet_xml(out))
+    check_order(sheet_xml(out, "xl/worksheets/sheet2.xml"))
+    wb = openpyxl.load_workbook(out)
+    assert [wb["Data"].cell(r, 4).value for r in range(2, 16)] == values.tolist()
+    assert wb["Data"]["B6"].value == "=SV_ATR(B2:B9,3)"  # rows that existed keep their cells
+    assert wb["Notes"]["B3"].value == "y" and wb["Notes"]["B4"].value == 1.5
+    assert wb["Notes"]["B5"].value is None and wb["Notes"]["B6"].value == 2.5
+
+
+def test_insert_left_of_existing_cells(tmp_path: Path) -> None:
+    """Writing into column B when A and C are used keeps A, B, C order in every row."""
+    src = book(tmp_path / "in.xlsx", rows=4)
+    out = tmp_path / "out.xlsx"
+    edit = NewColumn("Data", 2, 1, "new B", 2, np.array([7.0, 8.0, np.nan, 9.0]), "0.0")
+    write_package(Package.open(src), out, [edit])
+    check_order(sheet_xml(out))
+    ws = openpyxl.load_workbook(out)["Data"]
+    assert [ws.cell(r, 2).value for r in range(1, 6)] == ["new B", 7.0, 8.0, None, 9.0]
+    assert [ws.cell(r, 3).value for r in range(2, 6)] == [1000, 1001, 1002, 1003]
+    # replace=True dropped the old Close values in B from the header row down,
+    # including the formulas below (they were in column B)
+    assert ws["B7"].value is None
+
+
+def test_replace_false_refuses_to_overwrite(tmp_path: Path) -> None:
+    src = book(tmp_path / "in.xlsx", rows=4)
+    out = tmp_path / "out.xlsx"
+    edit = NewColumn("Data", 3, 1, "again", 2, np.ones(4), "0", replace=False)
+    with pytest.raises(WorkbookError, match=r"sheet 'Data' cell C1 already holds a value"):
+        write_package(Package.open(src), out, [edit])
+    assert not out.exists()
+    assert [p.name for p in tmp_path.iterdir()] == ["in.xlsx"]  # no temp file left
+
+
+def test_cell_result_keeps_formula(tmp_path: Path) -> None:
+    src = book(tmp_path / "in.xlsx", rows=8)
+    out = tmp_path / "out.xlsx"
+    write_package(Package.open(src), out, [CellResult("Data", 11, 2, 1.0 / 3.0),
+                                           CellResult("Data", 12, 2, 'text "q" & <b>')])
+    wb = openpyxl.load_workbook(out)
+    assert wb["Data"]["B11"].value == "=SV_ATR(B2:B9,3)"
+    assert wb["Data"]["B12"].value == "=SV_NAME(B2)"
+    values = openpyxl.load_workbook(out, data_only=True)["Data"]
+    assert values["B11"].value == 1.0 / 3.0
+    assert values["B12"].value == 'text "q" & <b>'
+    assert b't="str"' in sheet_xml(out)
+    with pytest.raises(WorkbookError, match=r"cell A2 holds no formula"):
+        write_package(Package.open(src), tmp_path / "x.xlsx", [CellResult("Data", 2, 1, 1.0)])
+
+
+def test_spill_result_and_obstacle(tmp_path: Path) -> None:
+    src = book(tmp_path / "in.xlsx", rows=8)
+    # put a formula at E2 that spills 4 values down: E2..E5 are free
+    out = tmp_path / "out.xlsx"
+    xml_src = sheet_xml(src)
+    assert b'r="E2"' not in xml_src
+    spill = SpillResult("Data", 2, 5, "SV_SERIES(B2:B9)", np.array([1.5, np.nan, 2.5, 3.5]),
+                        number_format="0.00")
+    write_package(Package.open(src), out, [spill])
+    xml = sheet_xml(out)
+    assert b'<f t="array" ref="E2:E5">SV_SERIES(B2:B9)</f><v>1.5</v>' in xml
+    check_order(xml)
+    ws = openpyxl.load_workbook(out, data_only=True)["Data"]
+    assert [ws.cell(r, 5).value for r in range(2, 6)] == [1.5, None, 2.5, 3.5]
+    # a longer spill runs into the number 42 at E12: refused, naming the cell
+    long = SpillResult("Data", 2, 5, "SV_SERIES(B2:B9)", np.ones(12))
+    with pytest.raises(WorkbookError, match=r"cell E12 is not empty.*formula in E2"):
+        write_package(Package.open(out), tmp_path / "x.xlsx", [long])
+    # a shorter spill over its own earlier result removes the leftover cells
+    short = SpillResult("Data", 2, 5, "SV_SERIES(B2:B9)", np.array([9.0, 8.0]))
+    out2 = tmp_path / "out2.xlsx"
+    write_package(Package.open(out), out2, [short])
+    ws = openpyxl.load_workbook(out2, data_only=True)["Data"]
+    assert [ws.cell(r, 5).value for r in range(2, 6)] == [9.0, 8.0, None, None]
+    assert b'ref="E2:E3"' in sheet_xml(out2)
+
+
+def test_new_sheet_rules(tmp_path: Path) -> None:
+    src = book(tmp_path / "in.xlsx")
+    out = tmp_path / "out.xlsx"
+    rows = [["Item", "Value"], ["rows", 8.0], ["flag", True], ["blank", None]]
+    write_package(Package.open(src), out, [NewSheet("sheetvol notes", rows, widths=[20, 9])])
+    wb = openpyxl.load_workbook(out)
+    ws = wb["sheetvol notes"]
+    assert [[c.value for c in r] for r in ws.iter_rows()] == [
+        ["Item", "Value"], ["rows", 8], ["flag", True], ["blank", None]]
+    assert ws["A1"].font.b is True and ws.column_dimensions["A"].width == 20
+    with pytest.raises(WorkbookError, match=r"'Notes'.*did not write"):
+        write_package(Package.open(src), tmp_path / "x.xlsx", [NewSheet("notes", rows)])
+    with pytest.raises(WorkbookError, match="cannot be a sheet name"):
+        write_package(Package.open(src), tmp_path / "x.xlsx", [NewSheet("a/b", rows)])
+
+
+def test_unknown_sheet_and_atomic_output(tmp_path: Path) -> None:
+    src = book(tmp_path / "in.xlsx")
+    out = tmp_path / "out.xlsx"
+    out.write_bytes(b"previous output")
+    with pytest.raises(WorkbookError, match=r"no sheet 'Prices'; its sheets are 'Data', 'Notes'"):
+        write_package(Package.open(src), out, [NewColumn("Prices", 4, 1, "h", 2, np.ones(3),
+                                                         "0")])
+    # a failure half-way through the sheet leaves the old output and no temp file
+    bad = [NewColumn("Data", 4, 1, "h", 2, np.ones(3), "0"),
+           SpillResult("Data", 2, 5, "SV_X()", np.ones(20))]
+    with pytest.raises(WorkbookError, match="E12 is not empty"):
+        write_package(Package.open(src), out, bad)
+    assert out.read_bytes() == b"previous output"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["in.xlsx", "out.xlsx"]
+
+
+def test_progress_reports_rows(tmp_path: Path) -> None:
+    src = book(tmp_path / "in.xlsx", rows=50)
+    seen: list[int] = []
+    write_package(Package.open(src), tmp_path / "out.xlsx",
+                  [NewColumn("Data", 4, 1, "h", 2, np.ones(50), "0")], progress=seen.append)
+    assert sum(seen) == 54 and all(n > 0 for n in seen)  # up to the last row, row 54
+
+
+def test_prefixed_sheet_write(tmp_path: Path) -> None:
+    """A sheet whose main namespace carries a prefix gets prefixed new cells."""
+    src = book(tmp_path / "in.xlsx", rows=4)
+    xml = sheet_xml(src).replace(
+        b'xmlns="http://schemas.openxmlformats.org/spreadsheetml/2006/main"',
+        b'xmlns:x="http://schemas.openxmlformats.org/spreadsheetml/2006/main"')
+    xml = re.sub(rb"<(/?)([A-Za-z]+)(?=[\s/>])", rb"<\1x:\2", xml)
+    with zipfile.ZipFile(src) as zf:
+        items = [(i.filename, zf.read(i)) for i in zf.infolist()]
+    pre = tmp_path / "prefixed.xlsx"
+    with zipfile.ZipFile(pre, "w", zipfile.ZIP_DEFLATED) as zf:
+        for name, data in items:
+            zf.writestr(name, xml if name == "xl/worksheets/sheet1.xml" else data)
+    out = tmp_path / "out.xlsx"
+    write_package(Package.open(pre), out, [NewColumn("Data", 4, 1, "h", 2,
+                                                     np.array([0.1, 0.2]), "0.0", width=9)])
+    new = sheet_xml(out)
+    assert b'<x:c r="D2" s=' in new and b"<x:cols>" in new and b"<c " not in new
+    ws = openpyxl.load_workbook(out)["Data"]
+    assert ws["D1"].value == "h" and ws["D2"].value == 0.1 and ws["D3"].value == 0.2
+
+
+def test_line_charts(tmp_path: Path) -> None:
+    """Charts on a new sheet, on the sheet being filled and on a sheet that already has a
+    drawing (an image): openpyxl, an outside reader, finds each with its cell ranges."""
+    src = tmp_path / "in.xlsx"
+    wb = xlsxwriter.Workbook(str(src))
+    ws = wb.add_worksheet("Data")
+    ws.write_row(0, 0, ["Date", "Close"])
+    for i in range(30):
+        ws.write_number(i + 1, 0, 45000 + i)
+        ws.write_number(i + 1, 1, 100 + i)
+    pics = wb.add_worksheet("Pictures")
+    from test_nothing_lost import tiny_png
+
+    (tmp_path / "dot.png").write_bytes(tiny_png())
+    pics.insert_image("B2", str(tmp_path / "dot.png"))
+    wb.close()
+    out = tmp_path / "out.xlsx"
+    edits = [NewColumn("Data", 3, 1, "double", 2, np.arange(30.0) * 2, "0"),
+             NewSheet("Charts", [["charts"]]),
+             LineChart("Data", "close & double", 1, [2, 3], 2, 31, "Charts", "A3"),
+             LineChart("Data", "close", 1, [2], 2, 31, "Charts", "A25"),
+             LineChart("Data", "on the data", 1, [2], 2, 31, "Data", "E2"),
+             LineChart("Data", "beside the image", 1, [3], 2, 31, "Pictures", "D2")]
+    write_package(Package.open(src), out, edits)
+    book = openpyxl.load_workbook(out)
+    assert [len(book[n]._charts) for n in ["Data", "Pictures", "Charts"]] == [1, 1, 2]
+    # the image is still there, in the same drawing part as the new chart
+    with zipfile.ZipFile(out) as zf:
+        drawing = zf.read("xl/drawings/drawing1.xml")
+        rels = zf.read("xl/drawings/_rels/drawing1.xml.rels")
+    assert drawing.count(b"<xdr:pic>") == 1 and drawing.count(b"<xdr:graphicFrame") == 1
+    assert b"../media/image1.png" in rels and b"../charts/chart" in rels
+    chart = book["Charts"]._charts[0]
+    refs = [(s.tx.strRef.f, s.cat.numRef.f, s.val.numRef.f) for s in chart.series]
+    assert refs == [("'Data'!$B$1", "'Data'!$A$2:$A$31", "'Data'!$B$2:$B$31"),
+                    ("'Data'!$C$1", "'Data'!$A$2:$A$31", "'Data'!$C$2:$C$31")]
+    assert book["Data"]["C31"].value == 58
