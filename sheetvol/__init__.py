@@ -15,6 +15,7 @@ Examples
 """
 
 from sheetvol._version import __version__
+from sheetvol.frame import add_columns
 from sheetvol.kernels.averages import moving_average
 from sheetvol.kernels.bands import atr_bands, bandwidth, deviation_bands, envelope, percent_b
 from sheetvol.kernels.dispersion import dispersion
@@ -39,6 +40,7 @@ from sheetvol.kernels.risk import (
 
 __all__ = [
     "__version__",
+    "add_columns",
     "atr_bands",
     "atr_percent",
     "average_true_range",

@@ -8,6 +8,7 @@ command line that cannot be understood.
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import glob
 import sys
 from collections.abc import Sequence
@@ -16,7 +17,14 @@ from pathlib import Path
 from sheetvol import registry
 from sheetvol._version import __version__
 from sheetvol.fill import USER_ERRORS, FillOptions, fill_file, output_path
-from sheetvol.recipe import RecipeError, default_specs, load_recipe
+from sheetvol.recipe import (
+    TRADE_KEYS,
+    RecipeError,
+    TradeRecipe,
+    check_trade_number,
+    default_specs,
+    read_recipe,
+)
 
 __all__ = ["build_parser", "main"]
 
@@ -33,14 +41,32 @@ def _default_lines() -> str:
 FILL_DESCRIPTION = """\
 Add volatility columns to price exports (.xlsx, .xlsm or .csv) and write a copy.
 
-The price sheet and its Date/Open/High/Low/Close(/Volume) columns are found by
-their headers (any case, usual spellings such as "Close*", "Close/Last", "Last
-Price", "<CLOSE>"; the header row may be below a title). Rows are computed in
-date order (newest-first exports too) and each result is written on its bar's
-row; warm-up rows stay blank. Everything else in the workbook is kept as it was.
+Every sheet that looks like bars is filled (--sheet picks some). Its
+Date/Open/High/Low/Close(/Volume) columns are found by their headers (any
+case, usual spellings such as "Close*", "Close/Last", "Last Price", "<CLOSE>";
+the header row may be below a title; a separate Time column of an intraday
+export is joined to the date). Rows are computed in date order (newest-first
+exports too) and each result is written on its bar's row; warm-up rows stay
+blank. Everything else in the workbook is kept as it was.
 A notes sheet ("sheetvol notes") records the input file and its SHA-256, the
 columns read and each column's function and parameters. Sheetvol formulas typed
-into cells (=SV_...) are evaluated too; the formula text stays in the cell.
+into cells (=SV_...) are evaluated too, each after the sheetvol cells it reads;
+the formula text stays in the cell.
+
+Trade log: a sheet headed Date, Instrument and Side (optionally Entry, Exit,
+Exit date, Quantity, Equity) is reviewed against the bars of each instrument
+(a sheet named like the instrument, or one long sheet with an Instrument
+column). To the right of the log go: volatility on the entry bar, stop and
+target at a multiple of it, the size that risks a share of equity (rounded
+down to the lot step; point value, lot step, min/max quantity and FX rate
+from a sheet headed Instrument + Point value), the trailing stop, the
+reviewed exit, R, bars held and the largest moves against and for the
+trade (numbers only, blank where nothing applies; a re-run replaces them).
+A "Trade review" sheet holds each trade's outcome and notes, the summary
+(hit rates, average and total R, expectancy, largest losing streak, open
+risk as a share of equity), the settings and the cautions. Defaults: ATR
+14, stop 2, target 3, trail 3 units, risk 1% of equity (common practice,
+no source).
 
 Default columns:
 {defaults}
@@ -70,12 +96,28 @@ recipe file (TOML), for any registry function (see `sheetvol functions`):
   function = "SV_VOLRANK"
   inputs = { values = "atr" }     # a price column or an earlier column's id
 
+  [trades]                        # the trade-log review (every key optional)
+  sheet = "Trades"                # default: the sheet headed Date/Instrument/Side
+  instruments = "Instruments"     # default: the sheet headed Instrument/Point value
+  measure = "atr"                 # or "deviation", or e.g. "SV_ATR"
+  options = { period = 20 }
+  stop_multiple = 2
+  target_multiple = 3
+  trail_multiple = 3              # 0 turns the trailing stop off
+  risk = 0.01                     # share of equity per trade
+  equity = 100000                 # where the log has no Equity column
+  columns = { side = "B/S" }      # the log's own header for a role
+  A recipe with only [trades] keeps the default columns.
+
 examples:
   sheetvol fill prices.xlsx                     writes prices-filled.xlsx beside it
   sheetvol fill export.csv -o report.xlsx
   sheetvol fill exports/*.xlsx --out-dir filled/
   sheetvol fill book.xlsm --sheet Daily --close-col "Settle" --header-row 4
-  sheetvol fill desk.xlsx --all-sheets          one sheet of bars per instrument
+  sheetvol fill workbooks/demo-desk.xlsx        every price sheet and the trade log
+  sheetvol fill desk.xlsx --sheet KESTREL       only that sheet (its trades still reviewed)
+  sheetvol fill desk.xlsx --risk 0.005 --stop-multiple 1.5 --target-multiple 4
+  sheetvol fill desk.xlsx --no-trades           volatility columns only
   sheetvol fill prices.xlsx --close-col F --date-col A
   sheetvol fill eu-export.csv --decimal-comma --dayfirst
   sheetvol fill prices.xlsx --recipe my-columns.toml --chart
@@ -83,7 +125,9 @@ examples:
 
 exit status: 0 all files filled, 1 any file failed (each reports its own
 error; the others are still filled), 2 bad command line.
-Not advice: volatility figures describe the past.
+Not advice: volatility figures describe the past. A stop does not guarantee
+the exit price (gaps, slippage); check sizes against your broker's margin
+rules and local regulation.
 """
 
 
@@ -130,10 +174,11 @@ def build_parser() -> argparse.ArgumentParser:
     )
     pick = cols.add_mutually_exclusive_group()
     pick.add_argument("--sheet", metavar="NAME", action="append",
-                      help="sheet to fill (default: the first sheet with a Close column); "
+                      help="sheet to fill (default: every sheet that looks like bars); "
                            "repeat for several")
     pick.add_argument("--all-sheets", action="store_true",
-                      help="fill every sheet with Date and Close columns")
+                      help="fill every sheet with Date and Close columns (the default; "
+                           "kept so that older scripts still run)")
     cols.add_argument("--header-row", type=int, metavar="N",
                       help="row of the column headers (default: searched in the first 50 rows)")
     for role, letter in zip(ROLES, "ABCDEF", strict=True):
@@ -144,6 +189,24 @@ def build_parser() -> argparse.ArgumentParser:
     what = fill.add_argument_group("what to compute")
     what.add_argument("--recipe", type=Path, metavar="FILE.toml",
                       help="columns to add instead of the defaults (format below)")
+
+    trade = fill.add_argument_group(
+        "trade log (reviewed when the workbook has one; flags override the recipe)")
+    trade.add_argument("--no-trades", action="store_true",
+                       help="do not review a trade log")
+    trade.add_argument("--trades-sheet", metavar="NAME",
+                       help="the trade-log sheet (default: found by its headers)")
+    trade.add_argument("--risk", type=float, metavar="SHARE",
+                       help="share of equity risked per trade (default 0.01 = 1%%)")
+    trade.add_argument("--stop-multiple", type=float, metavar="K",
+                       help="stop at K volatility units from entry (default 2)")
+    trade.add_argument("--target-multiple", type=float, metavar="K",
+                       help="target at K volatility units from entry (default 3)")
+    trade.add_argument("--trail-multiple", type=float, metavar="K",
+                       help="trailing stop K units from the best price since entry "
+                            "(default 3; 0 = off)")
+    trade.add_argument("--equity", type=float, metavar="AMOUNT",
+                       help="account equity where the log has no Equity column")
 
     read = fill.add_argument_group("reading")
     read.add_argument("--decimal-comma", action="store_true",
@@ -242,12 +305,25 @@ def _run_fill(args: argparse.Namespace, parser: argparse.ArgumentParser) -> int:
     if args.header_row is not None and args.header_row < 1:
         parser.error("--header-row must be 1 or more")
     specs = None
+    trades = TradeRecipe()
     if args.recipe is not None:
         try:
-            specs = load_recipe(args.recipe)
+            recipe = read_recipe(args.recipe)
         except RecipeError as exc:
             print(f"{PROG}: error: {exc}", file=sys.stderr)
             return 1
+        specs, trades = recipe.columns, recipe.trades or trades
+    changes: dict[str, object] = {}
+    for key in ("risk", "stop_multiple", "target_multiple", "trail_multiple", "equity"):
+        value = getattr(args, key)
+        if value is not None:
+            try:
+                changes[key] = check_trade_number(key, value)
+            except RecipeError:
+                parser.error(f"--{key.replace('_', '-')} {value:g}: {TRADE_KEYS[key]}")
+    if args.trades_sheet:
+        changes["sheet"] = args.trades_sheet
+    trades = dataclasses.replace(trades, **changes)
     columns = {role: getattr(args, f"{role}_col") for role in ROLES}
     options = FillOptions(
         output=args.output, out_dir=args.out_dir, sheets=tuple(args.sheet or ()),
@@ -255,7 +331,7 @@ def _run_fill(args: argparse.Namespace, parser: argparse.ArgumentParser) -> int:
         header_row=args.header_row, columns={k: v for k, v in columns.items() if v},
         specs=specs, decimal_comma=args.decimal_comma, dayfirst=args.dayfirst,
         in_place=args.in_place, formulas=args.formulas, chart=args.chart,
-        progress=not args.quiet,
+        progress=not args.quiet, trades=trades, review_trades=not args.no_trades,
     )
     outputs = [output_path(f, options) for f in files]
     if len(set(outputs)) < len(outputs):

@@ -5,8 +5,9 @@ columns (:mod:`sheetvol.locate`), read the bars in date order
 (:mod:`sheetvol.prices_table`), compute the recipe's columns through the
 registry (:func:`sheetvol.frame.compute_columns`, the same path as the
 pandas helper), evaluate typed sheetvol formulas (:mod:`sheetvol.formulas`),
-and ask the package writer for exactly those edits plus a notes sheet. The
-input is only ever read; the output is written atomically by the writer.
+review a trade log when the workbook has one (:mod:`sheetvol.trade_fill`), and
+ask the package writer for exactly those edits plus a notes sheet. The input
+is only ever read; the output is written atomically by the writer.
 """
 
 from __future__ import annotations
@@ -36,6 +37,7 @@ from sheetvol.locate import (
     col_letter,
     col_number,
     find_header,
+    normalize_header,
 )
 from sheetvol.notes import (
     CAUTION_LINE,
@@ -52,10 +54,25 @@ from sheetvol.prices_table import (
     PriceTableError,
     build_price_table,
     date_order_problem,
+    price_decimals,
     suspect_separator,
 )
-from sheetvol.recipe import ColumnSpec, RecipeError, default_specs
+from sheetvol.recipe import ColumnSpec, RecipeError, TradeRecipe, default_specs
+from sheetvol.trade_fill import (
+    REVIEW_SHEET,
+    TRADE_CAUTION_LINE,
+    TRADE_CAUTIONS,
+    TradeLog,
+    TradeLogError,
+    TradeReport,
+    find_instruments,
+    find_trade_log,
+    instrument_key,
+    plan_trade_review,
+)
+from sheetvol.trades import LOG_COLUMNS
 from sheetvol.workbook import (
+    CellError,
     CellResult,
     Column,
     FormulaCell,
@@ -71,7 +88,7 @@ from sheetvol.workbook import (
 __all__ = ["FillError", "FillOptions", "FillReport", "fill_file", "output_path"]
 
 CHART_SHEET = "sheetvol charts"
-OWN_SHEETS = {NOTES_SHEET.casefold(), CHART_SHEET.casefold()}
+OWN_SHEETS = {NOTES_SHEET.casefold(), CHART_SHEET.casefold(), REVIEW_SHEET.casefold()}
 WORKBOOK_SUFFIXES = {".xlsx", ".xlsm"}
 TEXT_SUFFIXES = {".csv", ".txt", ".tsv"}
 PROGRESS_MIN_ROWS = 20_000
@@ -82,17 +99,21 @@ class FillError(ValueError):
 
 
 # Every error a fill reports to the user as one message (no traceback).
-USER_ERRORS = (FillError, WorkbookError, LocateError, PriceTableError, RecipeError, ComputeError)
+USER_ERRORS = (FillError, WorkbookError, LocateError, PriceTableError, RecipeError, ComputeError,
+               TradeLogError)
 
 
 @dataclass
 class FillOptions:
     """What the command line (or a script) asks of one fill.
 
-    ``sheets`` names the price sheets (default: the first sheet with a Close
-    column, or every such sheet with ``all_sheets``). ``columns`` maps a role
-    (``date``, ``open``, ``high``, ``low``, ``close``, ``volume``) to a header
-    text or column letter.
+    ``sheets`` names the price sheets (default: every sheet that looks like
+    bars: a Close column, and a Date column beyond the first such sheet);
+    ``all_sheets`` is kept for old scripts and changes nothing. ``columns`` maps
+    a role (``date``, ``open``, ``high``, ``low``, ``close``, ``volume``) to a
+    header text or column letter. ``trades`` holds the trade-log settings
+    (None: the defaults); a trade log found in the workbook is reviewed unless
+    ``review_trades`` is False.
     """
 
     output: Path | None = None
@@ -108,6 +129,8 @@ class FillOptions:
     formulas: bool = True
     chart: bool = False
     progress: bool = False
+    trades: TradeRecipe | None = None
+    review_trades: bool = True
 
 
 @dataclass
@@ -119,9 +142,12 @@ class SheetReport:
     table: PriceTable | None = None
     written: list[WrittenColumn] = field(default_factory=list)
     replaced: int = 0
+    long_sheet: str = ""  # instruments of one long price sheet: read for the trade review only
 
     def summary(self) -> list[str]:
         lines = [f'  sheet "{self.sheet}", header row {self.match.row}: {self.match.describe()}']
+        if self.long_sheet:
+            lines.append(f"    {self.long_sheet}")
         t = self.table
         if t is not None:
             span = t.first_last_dates()
@@ -151,6 +177,7 @@ class FillReport:
     warnings: list[str] = field(default_factory=list)
     other_price_sheets: list[str] = field(default_factory=list)
     backup: Path | None = None
+    trades: TradeReport | None = None
 
     # The first (often only) price sheet, for short access.
     @property
@@ -163,7 +190,7 @@ class FillReport:
 
     @property
     def table(self) -> PriceTable:
-        table = self.sheets[0].table
+        table = next((s.table for s in self.sheets if s.table is not None), None)
         assert table is not None
         return table
 
@@ -182,7 +209,9 @@ class FillReport:
             lines.extend(s.summary())
         if self.other_price_sheets:
             names = ", ".join(f'"{n}"' for n in self.other_price_sheets)
-            lines.append(f"  also price columns on {names}: add --all-sheets to fill them too")
+            lines.append(f"  also price columns on {names} (not filled: --sheet chose others)")
+        if self.trades is not None:
+            lines.extend(self.trades.lines())
         if self.formulas:
             failed = len(self.formulas) - self.formulas_ok
             lines.append(
@@ -193,6 +222,8 @@ class FillReport:
             lines.append(f"  warning: {w}")
         if self.backup is not None:
             lines.append(f"  backup of the input: {self.backup}")
+        if self.trades is not None:
+            lines.append(f"  {TRADE_CAUTION_LINE}")
         lines.append(f"  {CAUTION_LINE}")
         return lines
 
@@ -422,9 +453,13 @@ def _where(src: Path, sheet: str) -> str:
     return f'{src.name}, sheet "{sheet}"'
 
 
-def _choose_sheets(pkg: Package, src: Path, options: FillOptions,
-                   report: FillReport) -> list[tuple[str, HeaderMatch, int]]:
-    """The price sheets with their header match and the rightmost used column near the top."""
+def _choose_sheets(pkg: Package, src: Path, options: FillOptions, report: FillReport,
+                   exclude: frozenset[str] = frozenset()) -> list[tuple[str, HeaderMatch, int]]:
+    """The price sheets with their header match and the rightmost used column near the top.
+
+    By default every sheet that looks like bars (``exclude``: the trade log and
+    the instrument details, casefolded); ``--sheet`` names restrict the choice.
+    """
     def locate(name: str) -> tuple[str, HeaderMatch, int]:
         grid = pkg.read_grid(name, max_rows=HEADER_SCAN_ROWS)
         match = find_header(grid.rows, header_row=options.header_row,
@@ -437,7 +472,7 @@ def _choose_sheets(pkg: Package, src: Path, options: FillOptions,
     tried: list[str] = []
     first_error: LocateError | None = None
     for info in pkg.sheets:
-        if info.kind != "worksheet" or info.name.casefold() in OWN_SHEETS:
+        if info.kind != "worksheet" or info.name.casefold() in OWN_SHEETS | exclude:
             continue
         try:
             hit = locate(info.name)
@@ -449,9 +484,6 @@ def _choose_sheets(pkg: Package, src: Path, options: FillOptions,
         if not found or "date" in hit[1].columns:
             found.append(hit)
     if found:
-        if not options.all_sheets:
-            report.other_price_sheets = [name for name, m, _ in found[1:]]
-            return found[:1]
         return found
     if len(tried) == 1 and first_error is not None:
         raise first_error
@@ -534,17 +566,46 @@ def _select_specs(options: FillOptions, match: HeaderMatch, where: str,
     )
 
 
+def _find_log(pkg: Package, src: Path, options: FillOptions
+              ) -> tuple[TradeLog | None, tuple[str, dict]]:
+    """The trade log and instrument details, when the fill reviews trades."""
+    recipe = options.trades or TradeRecipe()
+    if not (options.review_trades and recipe.enabled):
+        return None, ("", {})
+    own = [s.name for s in pkg.sheets if s.name.casefold() in OWN_SHEETS]
+    log = find_trade_log(pkg, recipe, skip=own, where=src.name)
+    if log is None:
+        return None, ("", {})
+    return log, find_instruments(pkg, recipe, skip=[*own, log.sheet], where=src.name)
+
+
 def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport) -> list:
     """Every edit of the fill, computed before anything is written."""
-    chosen = _choose_sheets(pkg, src, options, report)
+    log, instruments = _find_log(pkg, src, options)
+    exclude = frozenset(n.casefold() for n in (log.sheet if log else "", instruments[0]) if n)
+    chosen = _choose_sheets(pkg, src, options, report, exclude)
     typed = pkg.formula_cells() if options.formulas else []
     recorded = _recorded(pkg)
     edits: list = []
     taken: dict[str, set[int]] = {}
     specs_by_sheet: list[tuple[SheetReport, list[ColumnSpec], list[int]]] = []
+    bars: dict[str, pd.DataFrame] = {}
+    decimals: dict[str, int] = {}
     for sheet, match, max_col in chosen:
         sr = SheetReport(sheet=sheet, match=match)
         report.sheets.append(sr)
+        inst_col = _instrument_column(match)
+        if inst_col is not None:  # one long sheet of several instruments
+            found = _long_sheet_bars(pkg, sr, inst_col)
+            for key, (frame, places) in found.items():
+                bars.setdefault(key, frame)
+                decimals.setdefault(key, places)
+            sr.long_sheet = (
+                f"instrument column {col_letter(inst_col)}: {len(found)} instruments read for "
+                "the trade review; no volatility columns written here (one column would mix "
+                "instruments; give each instrument its own sheet for those)")
+            report.warnings.append(f"{_where(src, sheet)}: {sr.long_sheet}")
+            continue
         specs = _select_specs(options, match, _where(src, sheet), report)
         typed_cols = [fc.col for fc in typed if fc.sheet == sheet]
         cols, targets = _plan_sheet(pkg, src, options, sr, specs, max_col, typed_cols,
@@ -552,9 +613,20 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport) -> 
         edits.extend(cols)
         taken[sheet] = {e.col for e in cols}
         specs_by_sheet.append((sr, specs, targets))
+        assert sr.table is not None
+        bars[instrument_key(sheet)] = _bars_frame(sr.table)
+        decimals[instrument_key(sheet)] = sr.table.decimals
+    if log is not None:
+        trade_edits, report.trades = plan_trade_review(
+            pkg, log, options.trades or TradeRecipe(), bars, decimals, instruments=instruments,
+            recorded=recorded.get(log.sheet.casefold(), {}), where=src.name)
+        edits.extend(trade_edits)
+        taken.setdefault(log.sheet, set()).update(
+            e.col for e in trade_edits if isinstance(e, NewColumn))
+        report.warnings.extend(report.trades.problems)
     if typed:
         edits.extend(_evaluate_formulas(pkg, typed, taken, report))
-    if options.chart:
+    if options.chart and specs_by_sheet:
         edits.append(NewSheet(name=CHART_SHEET, rows=[["Charts of the filled sheets"]]))
         for k, (sr, specs, targets) in enumerate(specs_by_sheet):
             edits.extend(_charts(sr, specs, targets, top=3 + 44 * k))
@@ -633,11 +705,74 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
     return columns, targets
 
 
+def _instrument_column(match: HeaderMatch) -> int | None:
+    """The column of a price sheet that names the instrument of each bar, if any."""
+    names = {normalize_header(n) for n in LOG_COLUMNS["instrument"]}
+    used = set(match.columns.values())
+    return next((c for c, text in sorted(match.headers.items())
+                 if c not in used and normalize_header(text) in names), None)
+
+
+def _bars_frame(table: PriceTable) -> pd.DataFrame:
+    """A price table as the trade review reads bars: Date and the price columns."""
+    data: dict[str, object] = {
+        "Date": [pd.Timestamp(cells.serial_to_datetime(d)) if math.isfinite(d) else pd.NaT
+                 for d in table.dates.tolist()]}
+    for role in ("open", "high", "low", "close"):
+        if role in table.prices:
+            data[role.capitalize()] = table.prices[role]
+    return pd.DataFrame(data)
+
+
+def _long_sheet_bars(pkg: Package, sr: SheetReport, inst_col: int
+                     ) -> dict[str, tuple[pd.DataFrame, int]]:
+    """Bars of each instrument on one long price sheet, and their price decimals."""
+    roles = [r for r in ("date", "open", "high", "low", "close") if r in sr.match.columns]
+    cols = [sr.match.columns[r] for r in roles] + [inst_col]
+    first = sr.match.row + 1
+    read = pkg.read_columns(sr.sheet, cols, first_row=first)
+
+    def values(col: int) -> list[object]:
+        column = read[col]
+        out: list[object] = [None if x != x else x for x in column.numbers.tolist()]
+        for r, v in column.other.items():
+            if 0 <= r - first < len(out):
+                out[r - first] = None if isinstance(v, CellError) else v
+            elif r - first >= len(out):
+                out.extend([None] * (r - first - len(out) + 1))
+                out[r - first] = v
+        return out
+
+    raw = {role: values(sr.match.columns[role]) for role in roles}
+    names = values(inst_col)
+    n = max([len(names), *(len(v) for v in raw.values())])
+    for key in raw:
+        raw[key] += [None] * (n - len(raw[key]))
+    names += [None] * (n - len(names))
+    if "date" in raw:
+        raw["date"] = [pd.Timestamp(cells.serial_to_datetime(float(v), date1904=pkg.date1904))
+                       if isinstance(v, float) else v for v in raw["date"]]
+    frame = pd.DataFrame({role.capitalize(): raw[role] for role in roles})
+    keys = pd.Series([instrument_key(x) if isinstance(x, str) and x.strip() else ""
+                      for x in names])
+    out: dict[str, tuple[pd.DataFrame, int]] = {}
+    for key in dict.fromkeys(keys):
+        if not key:
+            continue
+        part = frame[(keys == key).to_numpy()].reset_index(drop=True)
+        close = pd.to_numeric(part.get("Close"), errors="coerce").to_numpy(dtype=float)
+        out[key] = (part, price_decimals(close[np.isfinite(close)]))
+    return out
+
+
 def _notes_rows(src: Path, report: FillReport) -> list[list[object]]:
     notes = []
     for sr in report.sheets:
         table = sr.table
-        assert table is not None
+        if table is None:
+            notes.append(SheetNote(sr.sheet, sr.match.row, sr.match.describe(), sr.long_sheet,
+                                   "none"))
+            continue
         span = table.first_last_dates()
         bars = f"{len(table)}" + (f" ({span[0]} to {span[1]})" if span else "")
         bars += f", {table.order}"
@@ -645,6 +780,7 @@ def _notes_rows(src: Path, report: FillReport) -> list[list[object]]:
             bars += "; computed oldest first, written back on each bar's row"
         notes.append(SheetNote(sr.sheet, sr.match.row, sr.match.describe(), bars,
                                _describe_counts(table.skipped) or "none"))
+    trades = report.trades
     return build_notes(
         input_name=src.name,
         input_sha256=sha256_of(src),
@@ -652,6 +788,14 @@ def _notes_rows(src: Path, report: FillReport) -> list[list[object]]:
         written=report.written,
         formulas=report.formulas,
         warnings=report.warnings,
+        trade_columns=[] if trades is None else [
+            (trades.sheet, letter, header, meaning) for letter, header, meaning in trades.written],
+        trade_settings=[] if trades is None else [
+            ("Trade log", f'sheet "{trades.sheet}", header row {trades.header_row}, '
+                          f"{trades.trades} trades"),
+            *trades.settings,
+            ("Summary and outcomes", f'sheet "{REVIEW_SHEET}"')],
+        extra_cautions=TRADE_CAUTIONS if trades is not None else (),
     )
 
 
@@ -663,15 +807,25 @@ def _evaluate_formulas(pkg: Package, found: Sequence[FormulaCell],
     except ImportError:  # the evaluator ships with the package; guard for partial installs
         report.warnings.append("typed sheetvol formulas found but the evaluator is missing")
         return []
+    kept = [fc for fc in found if fc.col not in taken.get(fc.sheet, set())]  # others replaced
     resolver = formulas.package_resolver(pkg)
+    # All cells at once, each after the sheetvol cells it reads (a stop reading an ATR cell
+    # sees the fresh ATR); one cell at a time only if that pass itself cannot run.
+    results: dict = {}
+    try:
+        results = formulas.evaluate_cells(kept, resolver, date1904=pkg.date1904)
+    except (WorkbookError, ValueError) as exc:
+        report.warnings.append(f"typed formulas evaluated one by one ({exc})")
     edits: list = []
-    for fc in found:
-        if fc.col in taken.get(fc.sheet, set()):
-            continue  # replaced by the fill's own column
+    for fc in kept:
         ref = f"{_quote(fc.sheet)}!{col_letter(fc.col)}{fc.row}"
         try:
-            value = formulas.evaluate(fc.formula, resolver, current_sheet=fc.sheet,
-                                      date1904=pkg.date1904)
+            value = results.get((fc.sheet, fc.row, fc.col))
+            if value is None and (fc.sheet, fc.row, fc.col) not in results:
+                value = formulas.evaluate(fc.formula, resolver, current_sheet=fc.sheet,
+                                          date1904=pkg.date1904)
+            if isinstance(value, formulas.FormulaError):
+                raise value
         except (formulas.FormulaError, registry.ArgumentError, WorkbookError, ValueError) as exc:
             report.warnings.append(f"{ref}: formula left as it was: {exc}")
             report.formulas.append(FormulaNote(ref, fc.formula, f"not evaluated: {exc}"))
@@ -727,11 +881,12 @@ def _write(pkg: Package, out: Path, edits: list, report: FillReport,
            options: FillOptions) -> None:
     bar = None
     callback: Callable[[int], None] | None = None
-    rows = len(report.table) if report.table is not None else 0
+    tables = [s.table for s in report.sheets if s.table is not None and len(s.table)]
+    rows = max((len(t) for t in tables), default=0)
     if options.progress and rows >= PROGRESS_MIN_ROWS and sys.stderr.isatty():
         from tqdm import tqdm
 
-        bar = tqdm(total=int(report.table.rows.max()), desc=f"writing {out.name}",
+        bar = tqdm(total=sum(int(t.rows.max()) for t in tables), desc=f"writing {out.name}",
                    unit=" rows", file=sys.stderr, leave=False)
         callback = bar.update
     try:

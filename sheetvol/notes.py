@@ -32,6 +32,8 @@ __all__ = [
 NOTES_SHEET = "sheetvol notes"
 RECORD_TITLE = "Columns written"
 SHEETS_TITLE = "Sheets read"
+TRADES_TITLE = "Trade review"
+TRADE_FUNCTION = "trade review"
 CAUTION_LINE = f'Not advice; see the notes sheet "{NOTES_SHEET}".'
 
 CONVENTIONS = (
@@ -127,6 +129,9 @@ def build_notes(
     formulas: Sequence[FormulaNote] = (),
     warnings: Sequence[str] = (),
     run_at: dt.datetime | None = None,
+    trade_columns: Sequence[tuple[str, str, str, str]] = (),
+    trade_settings: Sequence[tuple[str, str]] = (),
+    extra_cautions: Sequence[str] = (),
 ) -> list[list[object]]:
     """Rows of the notes sheet (first row is the title, shown bold).
 
@@ -145,6 +150,13 @@ def build_notes(
         Anything the reader should know (e.g. unsorted rows).
     run_at : datetime, optional
         Time of the run (UTC now by default).
+    trade_columns : sequence of tuple
+        Trade-review columns written: (sheet, letter, header, meaning); they
+        join the ``Columns written`` record so a later fill replaces them.
+    trade_settings : sequence of tuple
+        (setting, value) of the trade review, listed in a block of their own.
+    extra_cautions : sequence of str
+        Cautions added after the usual ones (the trade review's).
 
     Returns
     -------
@@ -177,7 +189,13 @@ def build_notes(
         )
         rows.append([w.sheet, w.letter, w.spec.header, w.spec.function,
                      w.spec.describe_options(), inputs])
+    rows.extend([sheet, letter, header, TRADE_FUNCTION, meaning, "the trade log's columns"]
+                for sheet, letter, header, meaning in trade_columns)
     rows.append([])
+    if trade_settings:
+        rows.append([TRADES_TITLE])
+        rows.extend([k, v] for k, v in trade_settings)
+        rows.append([])
     if formulas:
         rows.append(["Typed formulas"])
         rows.append(["Cell", "Formula", "Result"])
@@ -192,6 +210,7 @@ def build_notes(
     rows.append([])
     rows.append(["Cautions"])
     rows.extend([c] for c in CAUTIONS)
+    rows.extend([c] for c in extra_cautions)
     return rows
 
 

@@ -28,9 +28,10 @@ read their own column.
 
 from __future__ import annotations
 
+import math
 import sys
 from collections.abc import Iterable, Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
@@ -47,12 +48,16 @@ __all__ = [
     "DEFAULT_RECIPE",
     "ROLES",
     "ColumnSpec",
+    "Recipe",
     "RecipeError",
+    "TradeRecipe",
     "default_header",
     "default_specs",
     "load_recipe",
     "make_spec",
     "parse_recipe",
+    "parse_trades",
+    "read_recipe",
 ]
 
 ROLES = ("open", "high", "low", "close", "volume")
@@ -306,11 +311,11 @@ def parse_recipe(data: Mapping[str, Any] | list, *, source: str = "recipe") -> l
     ['Close vol 20 (ann.)']
     """
     if isinstance(data, Mapping):
-        unknown = set(data) - {"column"}
+        unknown = set(data) - {"column", "trades"}
         if unknown:
             raise RecipeError(
                 f"{source}: unknown table(s) {', '.join(sorted(unknown))}; a recipe holds "
-                "[[column]] entries only"
+                "[[column]] entries and a [trades] table only"
             )
         entries = data.get("column", [])
     else:
@@ -357,7 +362,7 @@ def parse_recipe(data: Mapping[str, Any] | list, *, source: str = "recipe") -> l
 
 
 def load_recipe(path: str | Path) -> list[ColumnSpec]:
-    """Read a TOML recipe file.
+    """Read the columns of a TOML recipe file (a ``[trades]`` table is allowed and ignored).
 
     Parameters
     ----------
@@ -373,13 +378,16 @@ def load_recipe(path: str | Path) -> list[ColumnSpec]:
     >>> load_recipe("my-columns.toml")  # doctest: +SKIP
     """
     path = Path(path)
+    return parse_recipe(_read_toml(path), source=path.name)
+
+
+def _read_toml(path: Path) -> dict[str, Any]:
     try:
-        data = tomllib.loads(path.read_text(encoding="utf-8"))
+        return tomllib.loads(path.read_text(encoding="utf-8"))
     except FileNotFoundError:
         raise RecipeError(f"{path}: recipe file not found") from None
     except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
         raise RecipeError(f"{path.name}: not a valid TOML recipe ({exc})") from None
-    return parse_recipe(data, source=path.name)
 
 
 DEFAULT_RECIPE: tuple[dict[str, Any], ...] = (
@@ -407,3 +415,231 @@ def default_specs() -> list[ColumnSpec]:
     6
     """
     return parse_recipe(list(DEFAULT_RECIPE), source="default columns")
+
+
+# -- the trade-log part of a recipe ---------------------------------------------------------
+@dataclass(frozen=True)
+class TradeRecipe:
+    """How the fill reviews a trade log (the ``[trades]`` table of a recipe).
+
+    The defaults (ATR 14, stop 2, target 3, trail 3 volatility units, 1 % risk)
+    are common practice, no source. ``sheet`` and ``instruments`` name the log
+    and the instrument-details sheet (empty: found by their headers);
+    ``columns`` maps a log role (``date``, ``instrument``, ``side``, ``entry``,
+    ``exit``, ``exit_date``, ``quantity``, ``equity``) to the log's own header.
+    """
+
+    enabled: bool = True
+    sheet: str = ""
+    instruments: str = ""
+    measure: str = "atr"
+    options: Mapping[str, Any] = field(default_factory=lambda: {"period": 14})
+    stop_multiple: float = 2.0
+    target_multiple: float = 3.0
+    trail_multiple: float = 3.0
+    risk: float = 0.01
+    equity: float = math.nan
+    columns: Mapping[str, str] = field(default_factory=dict)
+
+
+#: Keys of ``[trades]`` and what each accepts (for messages and ``--help``).
+TRADE_KEYS = {
+    "enabled": "true or false",
+    "sheet": "the trade-log sheet's name",
+    "instruments": "the instrument-details sheet's name",
+    "measure": '"atr", "deviation" or a sheetvol column function in price units',
+    "options": "a table of the measure's options, e.g. { period = 20 }",
+    "stop_multiple": "volatility units from entry to the stop, above 0",
+    "target_multiple": "volatility units from entry to the target, above 0",
+    "trail_multiple": "volatility units of the trailing stop, 0 (off) or more",
+    "risk": "share of equity risked per trade, above 0 and at most 1 (0.01 = 1 %)",
+    "equity": "account equity where the log has none, above 0",
+    "columns": 'a table of log roles to headers, e.g. { side = "B/S" }',
+}
+_LOG_ROLES = ("date", "instrument", "side", "entry", "exit", "exit_date", "quantity", "equity")
+_NUMBER_RULES = {
+    "stop_multiple": (0.0, False, math.inf),
+    "target_multiple": (0.0, False, math.inf),
+    "trail_multiple": (0.0, True, math.inf),
+    "risk": (0.0, False, 1.0),
+    "equity": (0.0, False, math.inf),
+}
+
+
+def check_trade_number(key: str, value: Any, where: str = "[trades]") -> float:
+    """A multiple, risk share or equity checked against its valid range.
+
+    Parameters
+    ----------
+    key : str
+        One of ``stop_multiple``, ``target_multiple``, ``trail_multiple``,
+        ``risk``, ``equity``.
+    value : Any
+        The value given.
+    where : str
+        Prefix of the message (file and table, or a command-line flag).
+
+    Returns
+    -------
+    float
+
+    Examples
+    --------
+    >>> check_trade_number("risk", 0.02)
+    0.02
+    >>> check_trade_number("risk", 2)
+    Traceback (most recent call last):
+    ...
+    sheetvol.recipe.RecipeError: [trades] risk: share of equity risked per trade, above 0 \
+and at most 1 (0.01 = 1 %); got 2
+    """
+    low, low_ok, high = _NUMBER_RULES[key]
+    number = math.nan
+    if isinstance(value, (int, float)) and not isinstance(value, bool):
+        number = float(value)
+    ok = math.isfinite(number) and (number > low or (low_ok and number == low)) and number <= high
+    if not ok:
+        raise RecipeError(f"{where} {key}: {TRADE_KEYS[key]}; got {value!r}")
+    return number
+
+
+def parse_trades(table: Any, *, source: str = "recipe") -> TradeRecipe:
+    """Check a ``[trades]`` table and turn it into a :class:`TradeRecipe`.
+
+    Parameters
+    ----------
+    table : mapping
+        The ``[trades]`` table as read from TOML.
+    source : str
+        Name used in messages (usually the file name).
+
+    Returns
+    -------
+    TradeRecipe
+
+    Raises
+    ------
+    RecipeError
+        Naming the file and the key, with what the key accepts.
+
+    Examples
+    --------
+    >>> parse_trades({"stop_multiple": 1.5, "risk": 0.005}).stop_multiple
+    1.5
+    >>> parse_trades({"stop": 2}, source="desk.toml")
+    Traceback (most recent call last):
+    ...
+    sheetvol.recipe.RecipeError: desk.toml, [trades]: unknown key 'stop' (keys: enabled, \
+sheet, instruments, measure, options, stop_multiple, target_multiple, trail_multiple, risk, \
+equity, columns)
+    """
+    where = f"{source}, [trades]"
+    if not isinstance(table, Mapping):
+        raise RecipeError(f"{where}: expected a table ([trades] with key = value lines)")
+    for key in table:
+        if key not in TRADE_KEYS:
+            raise RecipeError(f"{where}: unknown key {key!r} (keys: {', '.join(TRADE_KEYS)})")
+    values: dict[str, Any] = {}
+    for key, value in table.items():
+        if key == "enabled":
+            if not isinstance(value, bool):
+                raise RecipeError(f"{where} enabled: {TRADE_KEYS[key]}; got {value!r}")
+            values[key] = value
+        elif key in ("sheet", "instruments", "measure"):
+            if not isinstance(value, str) or not value.strip():
+                raise RecipeError(f"{where} {key}: {TRADE_KEYS[key]} as text; got {value!r}")
+            values[key] = value.strip()
+        elif key in _NUMBER_RULES:
+            values[key] = check_trade_number(key, value, where)
+        elif key in ("options", "columns"):
+            if not isinstance(value, Mapping):
+                raise RecipeError(f"{where} {key}: {TRADE_KEYS[key]}; got {value!r}")
+            values[key] = dict(value)
+    for role, header in values.get("columns", {}).items():
+        if role not in _LOG_ROLES:
+            raise RecipeError(f"{where} columns: no log role {role!r} (roles: "
+                              f"{', '.join(_LOG_ROLES)})")
+        if not isinstance(header, str) or not header.strip():
+            raise RecipeError(f"{where} columns.{role}: a header text; got {header!r}")
+    recipe = TradeRecipe(**values)
+    check_measure(recipe, where)
+    return recipe
+
+
+def check_measure(recipe: TradeRecipe, where: str = "[trades]") -> registry.Function:
+    """The registry function of ``recipe.measure``, with its options validated.
+
+    Parameters
+    ----------
+    recipe : TradeRecipe
+        The settings to check.
+    where : str
+        Prefix of the message.
+
+    Returns
+    -------
+    registry.Function
+
+    Examples
+    --------
+    >>> check_measure(TradeRecipe(measure="deviation", options={"period": 20})).name
+    'SV_DEVIATION'
+    """
+    name = {"atr": "SV_ATR", "deviation": "SV_DEVIATION"}.get(recipe.measure.lower(),
+                                                               recipe.measure)
+    try:
+        func = registry.get(name)
+    except KeyError:
+        raise RecipeError(f"{where} measure: {TRADE_KEYS['measure']}; got "
+                          f"{recipe.measure!r}") from None
+    if func.shape != "series" or func.unit != "price":
+        raise RecipeError(f"{where} measure: {func.name} is not a column function in price "
+                          "units (use SV_ATR, SV_DEVIATION or similar)")
+    for key in recipe.options:
+        if key not in {p.name for p in func.options}:
+            names = ", ".join(p.name for p in func.options)
+            raise RecipeError(f"{where} options: {func.name} has no option {key!r} "
+                              f"(options: {names})")
+    try:
+        func.bind(kwargs={**{p.name: np.zeros(1) for p in func.columns}, **recipe.options})
+    except registry.ArgumentError as exc:
+        raise RecipeError(f"{where} options: {exc}") from None
+    return func
+
+
+@dataclass(frozen=True)
+class Recipe:
+    """A whole recipe file: columns (None: the default set) and the trade-log settings."""
+
+    columns: list[ColumnSpec] | None
+    trades: TradeRecipe | None
+
+
+def read_recipe(path: str | Path) -> Recipe:
+    """Read a TOML recipe: ``[[column]]`` entries and/or a ``[trades]`` table.
+
+    Parameters
+    ----------
+    path : str or Path
+        The ``.toml`` file.
+
+    Returns
+    -------
+    Recipe
+        ``columns`` is None when the file has no ``[[column]]`` entries (the
+        fill then writes its default set); ``trades`` is None without ``[trades]``.
+
+    Examples
+    --------
+    >>> read_recipe("desk.toml").trades.risk  # doctest: +SKIP
+    0.005
+    """
+    path = Path(path)
+    data = _read_toml(path)
+    trades = parse_trades(data["trades"], source=path.name) if "trades" in data else None
+    if "column" not in data and trades is not None:
+        unknown = set(data) - {"trades"}
+        if unknown:
+            parse_recipe(data, source=path.name)  # names the unknown table
+        return Recipe(columns=None, trades=trades)
+    return Recipe(columns=parse_recipe(data, source=path.name), trades=trades)

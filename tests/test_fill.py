@@ -284,7 +284,7 @@ def test_cells_far_below_the_header_are_never_overwritten(tmp_path):
     assert_deviation_on_rows(report.output, df, rows)
 
 
-def test_all_sheets_fills_every_price_sheet(tmp_path):
+def test_default_fills_every_price_sheet(tmp_path):
     a, b = ohlc(30, seed=3), ohlc(40, seed=4)
     src = tmp_path / "desk.xlsx"
     rows_a = write_book(src, a, sheet="ALPHA")
@@ -296,16 +296,18 @@ def test_all_sheets_fills_every_price_sheet(tmp_path):
     log = wb.create_sheet("Log", 0)
     log.append(["Date", "Instrument", "Entry"])  # no Close: not a price sheet
     wb.save(src)
-    first = fill_file(src)
+    # --sheet restricts; the default (and the old --all-sheets, now a no-op) fills both
+    first = fill_file(src, FillOptions(sheets=("alpha",)))
     assert [s.sheet for s in first.sheets] == ["ALPHA"]
-    assert first.other_price_sheets == ["BETA"]
-    assert any("--all-sheets" in line for line in first.summary())
-    both = fill_file(src, FillOptions(all_sheets=True, output=tmp_path / "both.xlsx"))
+    assert fill_file(src, FillOptions(all_sheets=True, output=tmp_path / "old.xlsx")
+                     ).sheets[1].sheet == "BETA"
+    both = fill_file(src, FillOptions(output=tmp_path / "both.xlsx"))
     assert [s.sheet for s in both.sheets] == ["ALPHA", "BETA"]
+    assert both.trades is None  # the Log sheet has no Side column: not a trade log
     assert_deviation_on_rows(both.output, a, rows_a, sheet="ALPHA")
     assert_deviation_on_rows(both.output, b, {d: i + 2 for i, d in enumerate(b["Date"])},
                              sheet="BETA")
-    again = fill_file(both.output, FillOptions(all_sheets=True, output=tmp_path / "again.xlsx"))
+    again = fill_file(both.output, FillOptions(output=tmp_path / "again.xlsx"))
     assert [s.replaced for s in again.sheets] == [6, 6]
 
 
@@ -329,3 +331,20 @@ def test_typed_formula_on_another_sheet_with_a_stored_prefix(tmp_path):
     notes = [r for r in load_workbook(report.output)[NOTES_SHEET].iter_rows(values_only=True)
              if r[0] == "'Dash board'!B3"]
     assert notes and notes[0][2].startswith("not evaluated")
+
+
+def test_chart_option_draws_close_with_bands_and_dispersion_with_atr(tmp_path):
+    df = ohlc(40)
+    src = tmp_path / "chart.xlsx"
+    write_book(src, df)
+    report = fill_file(src, FillOptions(chart=True))
+    with zipfile.ZipFile(report.output) as z:
+        charts = sorted(n for n in z.namelist() if n.startswith("xl/charts/chart"))
+        refs = [z.read(n).decode() for n in charts]
+    assert len(charts) == 2
+    # close (E) with the upper (I) and lower (J) bands; deviation (G) with ATR (H)
+    for col in "EIJ":
+        assert f"Prices!${col}$2:${col}$41" in refs[0].replace("'", "")
+    for col in "GH":
+        assert f"Prices!${col}$2:${col}$41" in refs[1].replace("'", "")
+    assert "sheetvol charts" in load_workbook(report.output).sheetnames

@@ -189,6 +189,13 @@ def test_every_other_part_unchanged(tmp_path: Path, macros: bool) -> None:
     for name, data in a.items():
         if name not in allowed:
             assert b[name] == data, f"{name} changed"
+    # and they were copied as stored (same compressed size and CRC), not re-deflated
+    with zipfile.ZipFile(src) as za, zipfile.ZipFile(out) as zb:
+        for name in set(a) - allowed:
+            ia, ib = za.getinfo(name), zb.getinfo(name)
+            assert (ia.compress_size, ia.CRC, ia.compress_type) == (
+                ib.compress_size, ib.CRC, ib.compress_type), name
+        assert zb.testzip() is None  # every entry's CRC checks out
     if macros:
         assert b["xl/vbaProject.bin"] == a["xl/vbaProject.bin"]
     # sharedStrings, drawings, comments (with their box size), charts, media: untouched

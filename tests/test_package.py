@@ -34,6 +34,7 @@ def make_book(path: Path, date_1904: bool = False) -> Path:
     ws.write_formula(3, 2, "=NA()", None, "#N/A")
     ws.write_formula(4, 2, '="a"&"b"', None, "ab")
     ws.write_formula(5, 2, "=B2*2", None, 200.5)
+    ws.write_string(6, 2, "keep &lt; as typed")  # stored as &amp;lt; (shared string)
     ws.write_formula(7, 1, "=SV_ATR(B2:B6,14)", None, 1.5)
     ws.write_formula(8, 1, "=_xludf.SV_BANDS(B2:B6,20,2)", None, 2.5)
     ws.write_array_formula("D2:D4", "{=SV_SPREAD(B2:B4)}", None, 7)
@@ -96,6 +97,7 @@ def test_read_grid_value_types(tmp_path: Path) -> None:
     assert g.rows[4][3] == CellError("#N/A") and isinstance(g.rows[4][3], CellError)
     assert g.rows[5][3] == "ab"  # t="str" formula result
     assert g.rows[6][3] == 200.5  # number formula result
+    assert g.rows[7][3] == "keep &lt; as typed"  # entities decoded once, not twice
     assert g.rows[8][2] == 1.5
     assert g.max_row == 9 and g.max_col == 7
     assert pkg.read_grid("Prices", max_rows=2).max_row == 2
@@ -114,7 +116,8 @@ def test_read_columns_matches_openpyxl(tmp_path: Path) -> None:
                 assert col.numbers[r - 2] == v
             else:
                 assert np.isnan(col.numbers[r - 2])
-    assert cols[3].other == {2: "text & <more>", 3: True, 4: "#N/A", 5: "ab"}
+    assert cols[3].other == {2: "text & <more>", 3: True, 4: "#N/A", 5: "ab",
+                             7: "keep &lt; as typed"}
     assert cols[3].numbers[6 - 2] == 200.5
 
 

@@ -14,6 +14,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from test_package import prefixed, replace_part
 
 from sheetvol.workbook import (
     CellResult,
@@ -221,16 +222,8 @@ def test_progress_reports_rows(tmp_path: Path) -> None:
 def test_prefixed_sheet_write(tmp_path: Path) -> None:
     """A sheet whose main namespace carries a prefix gets prefixed new cells."""
     src = book(tmp_path / "in.xlsx", rows=4)
-    xml = sheet_xml(src).replace(
-        b'xmlns="http://schemas.openxmlformats.org/spreadsheetml/2006/main"',
-        b'xmlns:x="http://schemas.openxmlformats.org/spreadsheetml/2006/main"')
-    xml = re.sub(rb"<(/?)([A-Za-z]+)(?=[\s/>])", rb"<\1x:\2", xml)
-    with zipfile.ZipFile(src) as zf:
-        items = [(i.filename, zf.read(i)) for i in zf.infolist()]
-    pre = tmp_path / "prefixed.xlsx"
-    with zipfile.ZipFile(pre, "w", zipfile.ZIP_DEFLATED) as zf:
-        for name, data in items:
-            zf.writestr(name, xml if name == "xl/worksheets/sheet1.xml" else data)
+    pre = replace_part(src, "xl/worksheets/sheet1.xml", prefixed(sheet_xml(src)),
+                       tmp_path / "prefixed.xlsx")
     out = tmp_path / "out.xlsx"
     write_package(Package.open(pre), out, [NewColumn("Data", 4, 1, "h", 2,
                                                      np.array([0.1, 0.2]), "0.0", width=9)])
@@ -277,3 +270,126 @@ def test_line_charts(tmp_path: Path) -> None:
     assert refs == [("'Data'!$B$1", "'Data'!$A$2:$A$31", "'Data'!$B$2:$B$31"),
                     ("'Data'!$C$1", "'Data'!$A$2:$A$31", "'Data'!$C$2:$C$31")]
     assert book["Data"]["C31"].value == 58
+
+
+def test_write_over_the_input(tmp_path: Path) -> None:
+    """In-place use: the output path may be the input itself (renamed after closing it)."""
+    src = book(tmp_path / "in.xlsx", rows=4)
+    write_package(Package.open(src), src, [NewColumn("Data", 4, 1, "h", 2, np.ones(4), "0")])
+    ws = openpyxl.load_workbook(src)["Data"]
+    assert ws["D1"].value == "h" and ws["D5"].value == 1 and ws["B2"].value == 100
+    assert [p.name for p in tmp_path.iterdir()] == ["in.xlsx"]
+
+
+def with_calc_chain(src: Path, out: Path, entries: bytes) -> Path:
+    """Add an xl/calcChain.xml part (as Excel writes one) with its relationship and type."""
+    with zipfile.ZipFile(src) as zf:
+        items = [(i.filename, zf.read(i)) for i in zf.infolist()]
+    chain = (b'<?xml version="1.0" encoding="UTF-8" standalone="yes"?>\n<calcChain xmlns='
+             b'"http://schemas.openxmlformats.org/spreadsheetml/2006/main">' + entries
+             + b"</calcChain>")
+    with zipfile.ZipFile(out, "w", zipfile.ZIP_DEFLATED) as zf:
+        for name, data in items:
+            if name == "[Content_Types].xml":
+                data = data.replace(b"</Types>", b'<Override PartName="/xl/calcChain.xml" '
+                                    b'ContentType="application/vnd.openxmlformats-officedocument'
+                                    b'.spreadsheetml.calcChain+xml"/></Types>')
+            if name == "xl/_rels/workbook.xml.rels":
+                data = data.replace(b"</Relationships>", b'<Relationship Id="rId99" Type="http:'
+                                    b"//schemas.openxmlformats.org/officeDocument/2006/"
+                                    b'relationships/calcChain" Target="calcChain.xml"/>'
+                                    b"</Relationships>")
+            zf.writestr(name, data)
+        zf.writestr("xl/calcChain.xml", chain)
+    return out
+
+
+def test_calc_chain_loses_removed_formulas(tmp_path: Path) -> None:
+    """A replaced column that held formulas takes them out of xl/calcChain.xml too
+    (ECMA-376 Part 1, 18.6: each chain entry names a formula cell; "i" carries over
+    to the following entries)."""
+    src = book(tmp_path / "in.xlsx", rows=4)  # formulas at B7 and B8 of sheet 1
+    chained = with_calc_chain(src, tmp_path / "chain.xlsx",
+                              b'<c r="B7" i="1"/><c r="B8"/><c r="C8"/><c r="A1" i="2"/>')
+    out = tmp_path / "out.xlsx"
+    write_package(Package.open(chained), out, [NewColumn("Data", 2, 1, "B", 2, np.ones(2), "0")])
+    with zipfile.ZipFile(out) as zf:
+        assert b'<calcChain xmlns="http://schemas.openxmlformats.org/spreadsheetml/2006/main">'\
+               b'<c i="1" r="C8"/><c r="A1" i="2"/></calcChain>' in zf.read("xl/calcChain.xml")
+    # when no entry is left the part goes, with its relationship and content type
+    only = with_calc_chain(src, tmp_path / "only.xlsx", b'<c r="B7" i="1"/><c r="B8"/>')
+    write_package(Package.open(only), out, [NewColumn("Data", 2, 1, "B", 2, np.ones(2), "0")])
+    with zipfile.ZipFile(out) as zf:
+        assert "xl/calcChain.xml" not in zf.namelist()
+        assert b"calcChain" not in zf.read("[Content_Types].xml")
+        assert b"calcChain" not in zf.read("xl/_rels/workbook.xml.rels")
+    assert openpyxl.load_workbook(out)["Data"]["B3"].value == 1
+    # a column written elsewhere leaves the chain as it was
+    write_package(Package.open(chained), out, [NewColumn("Data", 6, 1, "F", 2, np.ones(2), "0")])
+    with zipfile.ZipFile(out) as zf, zipfile.ZipFile(chained) as zc:
+        assert zf.read("xl/calcChain.xml") == zc.read("xl/calcChain.xml")
+
+
+@pytest.mark.parametrize("seed", range(12))
+def test_random_sparse_sheets_match_a_model(tmp_path: Path, seed: int) -> None:
+    """Random sparse sheets and random columns: openpyxl (outside reader) sees exactly
+    the cells of a plain dict model of the edit (drop the column from the header row
+    down, then put the header and the finite values)."""
+    rng = np.random.default_rng(seed)
+    src = tmp_path / "in.xlsx"
+    wb = xlsxwriter.Workbook(str(src))
+    ws = wb.add_worksheet("S")
+    for _ in range(int(rng.integers(5, 60))):
+        r, c = int(rng.integers(1, 40)), int(rng.integers(1, 9))
+        value: object = float(rng.normal()) if rng.random() < 0.7 else f"t{r}_{c}"
+        ws.write(r - 1, c - 1, value)
+    wb.close()
+    # the model starts from what openpyxl reads in the input (xlsxwriter stores 16 digits)
+    model = {(c.row, c.column): c.value for row in openpyxl.load_workbook(src)["S"].iter_rows()
+             for c in row if c.value is not None}
+    header_row = int(rng.integers(1, 5))
+    cols = rng.choice(np.arange(1, 12), size=int(rng.integers(1, 4)), replace=False)
+    edits = []
+    for col in cols.tolist():
+        first = header_row + 1
+        values = rng.normal(size=int(rng.integers(1, 50)))
+        values[rng.random(len(values)) < 0.3] = np.nan
+        edits.append(NewColumn("S", col, header_row, f"h{col}", first, values, "0.00"))
+        for key in [k for k in model if k[1] == col and k[0] >= header_row]:
+            del model[key]
+        model[(header_row, col)] = f"h{col}"
+        for i, v in enumerate(values.tolist()):
+            if not np.isnan(v):
+                model[(first + i, col)] = v
+    out = tmp_path / "out.xlsx"
+    write_package(Package.open(src), out, edits)
+    check_order(sheet_xml(out))
+    got = {(c.row, c.column): c.value for row in openpyxl.load_workbook(out)["S"].iter_rows()
+           for c in row if c.value is not None}
+    assert got == model
+
+
+def test_producer_variants_write(tmp_path: Path) -> None:
+    """Rows and cells without r, attributes in another order with single quotes,
+    self-closing rows and cells, spans: new cells still land where they belong."""
+    src = book(tmp_path / "in.xlsx", rows=2)
+    body = (b"<sheetData>"
+            b"<row r='1' spans='1:3'><c t='inlineStr' r='A1'><is><t>a</t></is></c>"
+            b"<c s='0' r='C1'><v>3</v></c></row>"
+            b"<row><c><v>1.5</v></c><c/><c><v>3.5</v></c></row>"
+            b'<row r="4"/>'
+            b'<row spans="1:1" r="6"><c r="A6" s="0"/></row>'
+            b"</sheetData>")
+    xml = re.sub(rb"<sheetData>.*</sheetData>", body, sheet_xml(src), flags=re.S)
+    odd = replace_part(src, "xl/worksheets/sheet1.xml", xml, tmp_path / "odd.xlsx")
+    out = tmp_path / "out.xlsx"
+    write_package(Package.open(odd), out, [
+        NewColumn("Data", 2, 1, "B!", 2, np.array([7.0, 8.0, 9.0, np.nan, 10.0]), "0")])
+    new = sheet_xml(out)
+    check_order(new)
+    assert b"spans" not in new  # both rows that had spans were edited: the hint goes
+    ws = openpyxl.load_workbook(out)["Data"]
+    got = {(c.row, c.column): c.value for row in ws.iter_rows() for c in row
+           if c.value is not None}
+    assert got == {(1, 1): "a", (1, 2): "B!", (1, 3): 3, (2, 1): 1.5, (2, 2): 7.0,
+                   (2, 3): 3.5, (3, 2): 8.0, (4, 2): 9.0, (6, 2): 10.0}

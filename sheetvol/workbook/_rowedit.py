@@ -18,6 +18,7 @@ import numpy as np
 from sheetvol.workbook._sheetxml import (
     _ATTR_R_CELL,
     _ATTR_R_ROW,
+    _COLS,
     Patterns,
     cell_name,
     col_index,
@@ -33,6 +34,16 @@ _F_REF = re.compile(rb"""(?:^|\s)ref\s*=\s*["']([A-Z$]+\d+(?::[A-Z$]+\d+)?)["']"
 _F_T = re.compile(rb"""(?:^|\s)t\s*=\s*["'](\w+)["']""")
 _INF = float("inf")
 MAX_COL = 16_384
+
+
+def _drop_spans(attrs: bytes) -> bytes:
+    """Row attributes without the ``spans`` hint (which new cells would contradict)."""
+    i = attrs.find(b' spans="')
+    if i >= 0:
+        j = attrs.find(b'"', i + 8)
+        if j > 0:
+            return attrs[:i] + attrs[j + 1 :]
+    return _SPANS.sub(b"", attrs)
 
 
 def number_text(value: float) -> str:
@@ -80,8 +91,6 @@ class ColumnRun:
     style: int
     letters: str = ""
     replace_from: int | None = None  # drop existing cells of the column from this row down
-    must_be_empty: bool = False  # spill targets: an existing cell is an error
-    label: str = ""
 
     def __post_init__(self) -> None:
         self.letters = col_letters(self.col)
@@ -127,7 +136,14 @@ class SheetEdits:
         for run in self.runs:
             vals = np.asarray(run.values, dtype=np.float64)
             parts.append(np.flatnonzero(np.isfinite(vals)) + run.first_row)
-        return np.unique(np.concatenate(parts)).tolist() if parts else []
+        rows = np.concatenate(parts)
+        if not len(rows):
+            return []
+        # a mask over the row range: linear, where np.unique sorts or hashes
+        lo = int(rows.min())
+        mask = np.zeros(int(rows.max()) - lo + 1, dtype=bool)
+        mask[rows - lo] = True
+        return (np.flatnonzero(mask) + lo).tolist()
 
     def extent(self) -> tuple[int, int, int, int] | None:
         """(top, left, bottom, right) of everything written, or None."""
@@ -204,9 +220,12 @@ class RowEditor:
             s = f' s="{run.style}"' if run.style else ""
             pre, mid, post = f'<{p}c r="{run.letters}', f'"{s}><{p}v>', f"</{p}v></{p}c>"
             vals = run.values[a - run.first_row : b - run.first_row]
-            # v - v == 0 is False for NaN and +-inf: no cell
-            strs = [f"{pre}{i}{mid}{v!r}{post}" if v - v == 0 else ""
-                    for i, v in zip(range(a, b), vals, strict=True)]
+            if np.isfinite(np.asarray(vals)).all():  # the usual block: no test per cell
+                strs = [f"{pre}{i}{mid}{v!r}{post}" for i, v in zip(range(a, b), vals,
+                                                                    strict=True)]
+            else:  # v - v == 0 is False for NaN and +-inf: no cell
+                strs = [f"{pre}{i}{mid}{v!r}{post}" if v - v == 0 else ""
+                        for i, v in zip(range(a, b), vals, strict=True)]
             lists.append([""] * (a - lo) + strs + [""] * (hi - b))
         if not lists:
             blk = [""] * (hi - lo)
@@ -246,31 +265,46 @@ class RowEditor:
     # -- the loop ----------------------------------------------------------------------
     def process(self, chunks: Iterator[bytes],
                 progress: Callable[[int], None] | None = None) -> Iterator[bytes]:
-        """Yield the edited body, chunk by chunk."""
+        """Yield the edited body, chunk by chunk.
+
+        This loop runs once per row of the sheet, so it keeps its state in local
+        variables and calls out only for rows that need more than an append.
+        """
         rs, rend = self.pat.row_start, self.pat.row_end
         rsl, rel = len(rs), len(rend)
         need = self.need
         n_need = len(need)
+        ni = self.ni
         special = self.special
         prefix = self.pat.prefix
+        row_open = b"<" + prefix + b"row"
         run_min = self._run_min
         cr = b"<" + prefix + b'c r="'
         crl = len(cr)
         cs = self.pat.cell_start
-        letters_re = _LETTERS
+        letters_match = _LETTERS.match
+        row_number = _ATTR_R_ROW.search
+        known_cols = _COLS
+        check_from, check_to = self.check_from, self.check_to
+        seg_end: float = -1  # rows up to seg_end share the cached self._active() answer
+        limit = run_min
+        blk: list[str] = []
+        blk_lo = blk_hi = 0
         r = 0
         for chunk in chunks:
+            find = chunk.find
             out: list[bytes] = []
+            append = out.append
             pos = 0
             scan = 0
             while True:
-                s = chunk.find(rs, scan)
+                s = find(rs, scan)
                 if s < 0:
                     break
                 if chunk[s + rsl] not in _DELIM:  # not a <row> tag
                     scan = s + rsl
                     continue
-                gt = chunk.find(b">", s)
+                gt = find(b">", s)
                 if chunk[gt - 1] == 47:  # "/>": an empty row
                     attrs = chunk[s + rsl : gt - 1]
                     inner_s = inner_e = gt
@@ -278,70 +312,86 @@ class RowEditor:
                 else:
                     attrs = chunk[s + rsl : gt]
                     inner_s = gt + 1
-                    inner_e = chunk.find(rend, inner_s)
+                    inner_e = find(rend, inner_s)
                     if inner_e < 0:
                         raise WorkbookError(f"{self.e.file}: a row of sheet {self.e.sheet!r} "
                                             "is not closed; the file is damaged.")
                     end = inner_e + rel
                 scan = end
-                mr = _ATTR_R_ROW.search(attrs)
+                mr = row_number(attrs)
                 r = int(mr[1]) if mr else r + 1
-                ni = self.ni
-                if ni < n_need and need[ni] < r:
-                    out.append(chunk[pos:s])
-                    pos = s
-                    while ni < n_need and need[ni] < r:
-                        out.append(self._new_row(need[ni]))
+                has_new = False
+                if ni < n_need:
+                    if need[ni] < r:
+                        append(chunk[pos:s])
+                        pos = s
+                        while ni < n_need and need[ni] < r:
+                            append(self._new_row(need[ni]))
+                            ni += 1
+                    if ni < n_need and need[ni] == r:
+                        has_new = True
                         ni += 1
-                has_new = ni < n_need and need[ni] == r
-                if has_new:
-                    ni += 1
-                self.ni = ni
-                if not has_new and not (self.check_from <= r <= self.check_to):
+                in_check = check_from <= r <= check_to
+                if not has_new and not in_check:
                     continue
-                if r not in special:
-                    # Fast path: new number cells all right of the existing ones.
-                    if self.check_from <= r <= self.check_to:
+                if r in special:
+                    edited = self.edit_row(r, attrs, chunk[inner_s:inner_e], has_new)
+                    if edited is not None:
+                        append(chunk[pos:s])
+                        append(edited)
+                        pos = end
+                    # a spill anchor may have added a range: refresh what is cached
+                    check_from, check_to = self.check_from, self.check_to
+                    seg_end = -1
+                    continue
+                # Fast path: new number cells all right of the existing ones.
+                if in_check:
+                    if r > seg_end:
                         self._active(r)
+                        seg_end = self._seg[1]
                         limit = min(run_min, self._seg_min)
+                    lim = limit
+                else:
+                    lim = run_min
+                if inner_s == inner_e:
+                    last: int | None = 0
+                else:
+                    lp = chunk.rfind(cr, inner_s, inner_e)
+                    if lp >= 0 and find(cs, lp + 1, inner_e) < 0:
+                        m = letters_match(chunk, lp + crl)
+                        last = (known_cols.get(m[0]) or col_index(m[0])) if m else None
                     else:
-                        limit = run_min
-                    if inner_s == inner_e:
-                        last = 0
-                    else:
-                        lp = chunk.rfind(cr, inner_s, inner_e)
-                        if lp >= 0 and chunk.find(cs, lp + 1, inner_e) < 0:
-                            m = letters_re.match(chunk, lp + crl)
-                            last = col_index(m[0]) if m else None
-                        else:
-                            last = self._last_col(chunk[inner_s:inner_e])
-                    if last is not None and last < limit:
-                        if not has_new:
-                            continue
-                        tail = self._block(r)[r - self._blk_lo].encode()
-                        if inner_s == inner_e or b"spans" in attrs:
-                            out.append(chunk[pos:s])
-                            out.append(b"<" + prefix + b"row" + _SPANS.sub(b"", attrs) + b">")
-                            out.append(chunk[inner_s:inner_e])
-                            out.append(tail)
-                            out.append(rend)
-                            pos = end
-                        else:  # splice just before </row>
-                            out.append(chunk[pos:inner_e])
-                            out.append(tail)
-                            pos = inner_e
-                        continue
-                edited = self.edit_row(r, attrs, chunk[inner_s:inner_e], has_new)
-                if edited is not None:
-                    out.append(chunk[pos:s])
-                    out.append(edited)
+                        last = self._last_col(chunk[inner_s:inner_e])
+                if last is None or last >= lim:
+                    edited = self.edit_row(r, attrs, chunk[inner_s:inner_e], has_new)
+                    if edited is not None:
+                        append(chunk[pos:s])
+                        append(edited)
+                        pos = end
+                    continue
+                if not has_new:
+                    continue
+                if r >= blk_hi:
+                    blk = self._block(r)
+                    blk_lo, blk_hi = self._blk_lo, self._blk_hi
+                tail = blk[r - blk_lo].encode()
+                if inner_s == inner_e or b"spans" in attrs:
+                    append(chunk[pos:s])
+                    append(row_open + _drop_spans(attrs) + b">")
+                    append(chunk[inner_s:inner_e])
+                    append(tail)
+                    append(rend)
                     pos = end
-            out.append(chunk[pos:])
+                else:  # splice just before </row>
+                    append(chunk[pos:inner_e])
+                    append(tail)
+                    pos = inner_e
+            append(chunk[pos:])
             if progress is not None and r > self.rows_done:
                 progress(r - self.rows_done)
                 self.rows_done = r
             yield b"".join(out)
-        rest = [self._new_row(row) for row in need[self.ni :]]
+        rest = [self._new_row(row) for row in need[ni:]]
         self.ni = n_need
         if rest:
             yield b"".join(rest)
@@ -391,7 +441,7 @@ class RowEditor:
     def edit_row(self, r: int, attrs: bytes, inner: bytes, has_new: bool) -> bytes | None:
         """The new bytes of row r, or None when it stays as it is."""
         act = self._active(r)
-        start = _SPANS.sub(b"", attrs) if b"spans" in attrs else attrs
+        start = _drop_spans(attrs) if b"spans" in attrs else attrs
         row_open = b"<" + self.pat.prefix + b"row" + start + b">"
         return self._edit_row_slow(r, row_open, inner, has_new, act)
 

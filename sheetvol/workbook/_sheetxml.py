@@ -117,6 +117,11 @@ def unescape(raw: bytes) -> str:
     return text
 
 
+def unescape_ooxml(text: str) -> str:
+    """Decode the ``_xHHHH_`` escapes OOXML uses for characters XML cannot carry."""
+    return _XESC.sub(lambda m: chr(int(m[1], 16)), text) if "_x" in text else text
+
+
 def _entity(m: re.Match[str]) -> str:
     body = m[1]
     if body[0] == "#":

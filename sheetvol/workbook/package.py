@@ -30,7 +30,7 @@ from sheetvol.workbook._sheetxml import (
     col_letters,
     iter_cells,
     parse_ref,
-    unescape,
+    unescape_ooxml,
 )
 from sheetvol.workbook.errors import WorkbookError
 
@@ -62,6 +62,7 @@ class SheetInfo:
     name: str
     part: str
     kind: str
+    sheet_id: int = 0  # sheetId in workbook.xml (calcChain entries refer to it)
 
 
 @dataclass
@@ -207,7 +208,12 @@ class Package:
             rid = el.get(f"{{{NS_REL}}}id") or next(
                 (v for k, v in el.attrib.items() if local(k) == "id"), "")
             target, kind = rels.get(rid, ("", "missing"))
-            sheets.append(SheetInfo(name=el.get("name", ""), part=target, kind=kind))
+            try:
+                sheet_id = int(el.get("sheetId", "0"))
+            except ValueError:
+                sheet_id = 0
+            sheets.append(SheetInfo(name=el.get("name", ""), part=target, kind=kind,
+                                    sheet_id=sheet_id))
         self.sheets = sheets
         ctypes = " ".join(el.get("ContentType", "") for el in types)
         self.is_macro_enabled = ("xl/vbaProject.bin" in names
@@ -286,7 +292,8 @@ class Package:
                             el.clear()
                         elif tag == "t" and el.text:
                             texts.append(el.text)
-                    shared.append(unescape("".join(texts).encode()) if texts else "")
+                    # the parser has decoded entities; only OOXML's _xHHHH_ escapes remain
+                    shared.append(unescape_ooxml("".join(texts)) if texts else "")
         finally:
             if own:
                 zf.close()
@@ -536,11 +543,12 @@ def _bulk_numbers(
     found: list[tuple[bytes, bytes, bytes]], wanted: dict[bytes, int], first_row: int
 ) -> list[tuple[int, np.ndarray, np.ndarray]] | None:
     """(col, rows, values) arrays from (letters, row, value text) triples; None if unreadable."""
+    n = len(found)
     try:
-        vals = np.array([x[2] for x in found]).astype(np.float64)
+        vals = np.fromiter((float(x[2]) for x in found), np.float64, n)
     except ValueError:
         return None
-    rows = np.array([x[1] for x in found]).astype(np.int64)
+    rows = np.fromiter((int(x[1]) for x in found), np.int64, n)
     keep = rows >= first_row
     out = []
     if len(wanted) == 1:
@@ -548,9 +556,9 @@ def _bulk_numbers(
         if keep.any():
             out.append((c, rows[keep], vals[keep]))
         return out
-    letters = np.array([x[0] for x in found])
-    for lt, c in wanted.items():
-        m = (letters == lt) & keep
+    cols = np.fromiter((wanted[x[0]] for x in found), np.int64, n)
+    for c in wanted.values():
+        m = (cols == c) & keep
         if m.any():
             out.append((c, rows[m], vals[m]))
     return out

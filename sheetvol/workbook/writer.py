@@ -10,11 +10,16 @@ load-and-save through a spreadsheet object model:
   existing indices never move),
 - table parts whose table a new column joins,
 - ``[Content_Types].xml``, ``xl/workbook.xml`` and its relationships only when a sheet
-  is added.
+  or chart is added (new parts go at the end of the zip),
+- ``xl/calcChain.xml`` only when a replaced column removes formula cells: sheetvol
+  never turns a formula into a value (results are stored beside the formula), but
+  ``NewColumn(replace=True)`` drops whatever its column held, and a chain entry for a
+  cell without a formula makes a spreadsheet program offer a repair.
 
-``xl/calcChain.xml`` is left alone: sheetvol never turns a formula cell into a value,
-so every chain entry still points at a formula. ``fullCalcOnLoad`` is not set, so a
-program without the add-in shows the stored results instead of errors.
+``fullCalcOnLoad`` is never set (nor removed when the input has it), so a program
+without the add-in shows the stored results instead of errors. ``docProps/app.xml``
+(the sheet titles some programs show in file properties) is not updated for new sheets;
+spreadsheet programs rebuild it on save.
 """
 
 from __future__ import annotations
@@ -49,24 +54,32 @@ from sheetvol.workbook._rowedit import (
     array_anchor_cell,
     formula_result_cell,
     text_cell,
-    value_cell,
 )
 from sheetvol.workbook._safety import read_part
+from sheetvol.workbook._sheetparts import edit_head, new_sheet_xml, set_first_attr
 from sheetvol.workbook._sheetxml import (
     Patterns,
     SheetStream,
     cell_name,
+    col_index,
     col_letters,
     escape_text,
     parse_ref,
 )
 from sheetvol.workbook._styles import MINIMAL_STYLES, StyleBook
+from sheetvol.workbook._zipcopy import (
+    clone_info,
+    raw_copy,
+    set_level,
+    unlink_quietly,
+    write_entry,
+)
 from sheetvol.workbook.edits import CellResult, LineChart, NewColumn, NewSheet, SpillResult
 from sheetvol.workbook.errors import WorkbookError
 from sheetvol.workbook.package import NS_PKG_REL, NS_REL, Package, SheetInfo, TableInfo
 
-# zlib level for rewritten sheets: level 1 deflates sheet XML about 3x faster than the
-# default 6 for a file about 20% larger (measured, see docs/performance.md).
+# zlib level for rewritten sheets: level 1 deflates sheet XML about 4x faster than the
+# default 6 for a part about 20% larger (measured, see docs/performance.md).
 SHEET_LEVEL = 1
 SMALL_LEVEL = 6
 MAX_ROW = 1_048_576
@@ -76,7 +89,6 @@ CT_WORKSHEET = "application/vnd.openxmlformats-officedocument.spreadsheetml.work
 CT_STYLES = "application/vnd.openxmlformats-officedocument.spreadsheetml.styles+xml"
 REL_WORKSHEET = NS_REL + "/worksheet"
 REL_STYLES = NS_REL + "/styles"
-NS_MAIN = "http://schemas.openxmlformats.org/spreadsheetml/2006/main"
 _BAD_SHEET_CHARS = set("[]:*?/\\")
 
 
@@ -127,7 +139,13 @@ def write_package(
     with pkg._zip() as zin:
         job = _Job(pkg, zin, edits, compresslevel)
         job.prepare()
-        job.write(out_path, progress)
+        tmp = job.write(out_path, progress)
+    # renamed once the input is closed, so writing over the input itself also works
+    try:
+        os.replace(tmp, out_path)
+    except OSError as exc:
+        unlink_quietly(tmp)
+        raise WorkbookError(f"cannot write {out_path}: {exc.strerror}.") from None
 
 
 class _Job:
@@ -140,6 +158,7 @@ class _Job:
         self.level = level
         self.names = zin.namelist()
         self.replaced: dict[str, bytes] = {}
+        self.removed: set[str] = set()
         self.added: dict[str, bytes] = {}
         self.sheet_edits: dict[str, list] = {}
         self.new_sheets: list[NewSheet] = []
@@ -252,6 +271,7 @@ class _Job:
             self._new_sheet(sheet)
         if self.charts:
             self._charts()
+        self._calc_chain()
         # styles used by sheet edits are resolved now so the styles part is final
         self.sheet_styles: dict[int, tuple[int, int]] = {}
         for edits in self.sheet_edits.values():
@@ -316,7 +336,7 @@ class _Job:
             table.columns.append(nc.header)
             new_ref = (f"{col_letters(table.left)}{table.top}:"
                        f"{col_letters(table.right)}{table.bottom}")
-            text = _set_first_attr(text, "table", "ref", new_ref)
+            text = set_first_attr(text, "table", "ref", new_ref)
             ma = re.search(r"<([\w.\-]+:)?autoFilter(?=[\s>/])[^>]*?\sref\s*=\s*[\"']([^\"']+)",
                            text)
             if ma:
@@ -333,7 +353,7 @@ class _Job:
             raise WorkbookError(f"{name!r} cannot be a sheet name (1-31 characters, none of "
                                 "[ ] : * ? / \\, no quote at either end).")
         hdr = self.header_style()
-        xml = _sheet_xml(ns, hdr)
+        xml = new_sheet_xml(ns, hdr)
         existing = next((s for s in self.pkg.sheets if s.name.casefold() == name.casefold()), None)
         if existing is not None:
             if not self._is_ours(existing, ns):
@@ -417,6 +437,64 @@ class _Job:
             self.replaced[sheet_part] = xml[:cut] + insert_drawing(
                 xml[cut:], prefix, rel_prefix_of(xml[: xml.find(b">", m.end()) if m else 0]), rid)
 
+    def _calc_chain(self) -> None:
+        """Drop calculation-chain entries of formula cells that a replaced column removes.
+
+        A chain entry pointing at a cell that no longer holds a formula makes a
+        spreadsheet program offer to repair the file. Only ``NewColumn(replace=True)``
+        removes cells (CellResult and SpillResult keep their formulas).
+        """
+        part = next((t for t, k in self.wb_rels.values() if k == "calcChain"), None)
+        if part is None or part not in self.names:
+            return
+        drops: dict[int, list[tuple[int, int]]] = {}
+        for sheet_part, edits in self.sheet_edits.items():
+            info = next(s for s in self.pkg.sheets if s.part == sheet_part)
+            for e in edits:
+                if isinstance(e, NewColumn) and e.replace:
+                    drops.setdefault(info.sheet_id, []).append((e.col, e.header_row))
+        if not drops:
+            return
+        text = self.part(part).decode("utf-8")
+        entries = list(re.finditer(r"<([\w.\-]+:)?c(?=[\s/>])([^>]*?)(?:/>|>\s*</\1?c>)",
+                                   text))
+        kept: list[str] = []
+        current: int | None = None
+        previous: int | None = None
+        for m in entries:
+            mi = re.search(r"""(?:^|\s)i\s*=\s*["'](\d+)["']""", m[2])
+            if mi:
+                current = int(mi[1])
+            mr = re.search(r"""(?:^|\s)r\s*=\s*["']([A-Z]{1,3})(\d+)["']""", m[2])
+            if mr and current in drops:
+                col, row = col_index(mr[1].encode()), int(mr[2])
+                if any(col == c and row >= r0 for c, r0 in drops[current]):
+                    continue
+            element = m[0]
+            if not mi and current is not None and current != previous:
+                # the entry inherited its sheet from one that is gone: say it
+                cut = len(m[1] or "") + 2
+                element = element[:cut] + f' i="{current}"' + element[cut:]
+            kept.append(element)
+            previous = current
+        if len(kept) == len(entries):
+            return
+        if kept:
+            new = text[: entries[0].start()] + "".join(kept) + text[entries[-1].end():]
+            self.replaced[part] = new.encode("utf-8")
+            return
+        # nothing left: the part goes, with its relationship and content type
+        self.removed.add(part)
+        folder, base = self.pkg.workbook_part.rsplit("/", 1)
+        rels_part = f"{folder}/_rels/{base}.rels"
+        rels = self.part(rels_part).decode("utf-8")
+        rels = re.sub(r"<([\w.\-]+:)?Relationship\b[^>]*?/calcChain[\"'][^>]*?/>", "", rels)
+        self.replaced[rels_part] = rels.encode("utf-8")
+        types = self.part("[Content_Types].xml").decode("utf-8")
+        types = re.sub(r"<([\w.\-]+:)?Override\b[^>]*?PartName=[\"']/" + re.escape(part)
+                       + r"[\"'][^>]*?/>", "", types)
+        self.replaced["[Content_Types].xml"] = types.encode("utf-8")
+
     def _is_ours(self, info: SheetInfo, ns: NewSheet) -> bool:
         """Written by sheetvol: our part name, or the same title in A1."""
         if info.part.startswith(SHEETVOL_PART):
@@ -444,7 +522,8 @@ class _Job:
         self.replaced[part] = (text[: m.start()] + entry + text[m.start():]).encode("utf-8")
 
     # -- writing -----------------------------------------------------------------------
-    def write(self, out_path: Path, progress: Callable[[int], None] | None) -> None:
+    def write(self, out_path: Path, progress: Callable[[int], None] | None) -> str:
+        """Write the new package to a temporary file next to ``out_path``; return its path."""
         folder = out_path.parent if str(out_path.parent) else Path(".")
         if not folder.is_dir():
             raise WorkbookError(f"cannot write {out_path}: folder {folder} does not exist.")
@@ -454,28 +533,27 @@ class _Job:
             with zipfile.ZipFile(tmp, "w", allowZip64=True) as zout:
                 for info in self.zin.infolist():
                     name = info.filename
+                    if name in self.removed:
+                        continue
                     if name in self.sheet_edits:
                         self._write_sheet(zout, info, progress)
                     elif name in self.replaced:
-                        _write(zout, _clone(info), self.replaced[name], SMALL_LEVEL)
-                    else:
-                        _write(zout, _clone(info), self.zin.read(info), SMALL_LEVEL)
+                        write_entry(zout, clone_info(info), self.replaced[name], SMALL_LEVEL)
+                    elif not raw_copy(zout, self.zin, info):
+                        write_entry(zout, clone_info(info), self.zin.read(info), SMALL_LEVEL)
                 now = dt.datetime.now().timetuple()[:6]
                 for name, data in self.added.items():
                     zi = zipfile.ZipInfo(name, date_time=now)
                     zi.compress_type = zipfile.ZIP_DEFLATED
-                    _write(zout, zi, data, SMALL_LEVEL)
+                    write_entry(zout, zi, data, SMALL_LEVEL)
             try:
                 os.chmod(tmp, os.stat(self.pkg.path).st_mode & 0o777)
             except OSError:
                 pass
-            os.replace(tmp, out_path)
         except BaseException:
-            try:
-                os.unlink(tmp)
-            except OSError:
-                pass
+            unlink_quietly(tmp)
             raise
+        return tmp
 
     def _write_sheet(self, zout: zipfile.ZipFile, info: zipfile.ZipInfo,
                      progress: Callable[[int], None] | None) -> None:
@@ -485,10 +563,10 @@ class _Job:
             edits = self._sheet_edits(sheet, stream)
             editor = RowEditor(edits, stream.pat)
             edits.on_change = editor._refresh_ranges
-            head = _edit_head(stream, edits, self._widths(sheet))
-            zi = _clone(info)
+            head = edit_head(stream, edits, self._widths(sheet))
+            zi = clone_info(info)
             zi.compress_type = zipfile.ZIP_DEFLATED
-            _set_level(zi, self.level)
+            set_level(zi, self.level)
             with zout.open(zi, "w", force_zip64=info.file_size > 1 << 30) as w:
                 w.write(head)
                 for piece in editor.process(stream.body(), progress):
@@ -514,6 +592,11 @@ class _Job:
                 _check_cell(self.file, sheet.name, e.header_row, e.col)
                 values = np.asarray(e.values, dtype=np.float64).ravel()
                 _check_cell(self.file, sheet.name, e.first_row + max(len(values), 1) - 1, e.col)
+                if e.first_row <= e.header_row:
+                    raise WorkbookError(
+                        f"{self.file}: sheet {sheet.name!r} column {col_letters(e.col)}: values "
+                        f"start on row {e.first_row}, not below the header on row "
+                        f"{e.header_row}.")
                 num_style, hdr_style = self.sheet_styles[id(e)]
                 se.claim(e.header_row, e.col, f"header {e.header!r}")
                 for run in se.runs:
@@ -562,7 +645,7 @@ class _Job:
                     raise WorkbookError(f"{self.file}: sheet {sheet.name!r} cells below "
                                         f"{cell_name(e.row, e.col)} are written twice.")
             se.runs.append(ColumnRun(col=e.col, first_row=e.row + 1, values=values[1:].tolist(),
-                                     style=style, label=label))
+                                     style=style))
             se.guards.append((e.col, e.row + 1, e.row + n - 1, label))
 
 
@@ -576,135 +659,6 @@ def _check_cell(file: str, sheet: str, row: int, col: int) -> None:
     if not (1 <= row <= MAX_ROW and 1 <= col <= MAX_COL):
         raise WorkbookError(f"{file}: sheet {sheet!r}: row {row}, column {col} is outside the "
                             f"sheet (at most {MAX_ROW} rows and {MAX_COL} columns).")
-
-
-def _set_first_attr(text: str, element: str, attr: str, value: str) -> str:
-    m = re.search(rf"<([\w.\-]+:)?{element}(?=[\s>])[^>]*>", text)
-    if m is None:
-        return text
-    tag = m[0]
-    new_tag, n = re.subn(rf'(\s{attr}\s*=\s*)(["\']).*?\2', rf'\g<1>"{value}"', tag, count=1)
-    if not n:
-        new_tag = tag[:-1] + f' {attr}="{value}">' if not tag.endswith("/>") else tag
-    return text[: m.start()] + new_tag + text[m.end():]
-
-
-def _edit_head(stream: SheetStream, edits: SheetEdits, widths: dict[int, float]) -> bytes:
-    """Grow ``dimension`` and add ``<col>`` widths in the part before ``<sheetData>``."""
-    head = stream.head
-    p = re.escape(stream.prefix)
-    ext = edits.extent()
-    if ext is not None:
-        m = re.search(rb"<" + p + rb"dimension(?=[\s>/])[^>]*?\sref\s*=\s*[\"']([^\"']*)[\"']",
-                      head)
-        if m:
-            try:
-                top, left, bottom, right = parse_ref(m[1].decode())
-            except ValueError:
-                top, left, bottom, right = ext
-            if m[1] == b"A1" and head.count(b"<" + stream.prefix + b"row") == 0:
-                top, left, bottom, right = ext  # an empty sheet says A1
-            top, left = min(top, ext[0]), min(left, ext[1])
-            bottom, right = max(bottom, ext[2]), max(right, ext[3])
-            ref = f"{col_letters(left)}{top}:{col_letters(right)}{bottom}".encode()
-            head = head[: m.start(1)] + ref + head[m.end(1):]
-    if widths:
-        head = _edit_cols(head, stream.prefix, widths)
-    return head
-
-
-def _edit_cols(head: bytes, prefix: bytes, widths: dict[int, float]) -> bytes:
-    p = re.escape(prefix)
-    pre = prefix.decode()
-    m = re.search(rb"<" + p + rb"cols(?=[\s>/])[^>]*?(/>|>(.*?)</" + p + rb"cols>)", head, re.S)
-    existing: list[tuple[int, int, bytes]] = []
-    if m and m[2]:
-        for cm in re.finditer(rb"<" + p + rb"col(?=[\s>/])[^>]*?(?:/>|>.*?</" + p + rb"col>)",
-                              m[2], re.S):
-            lo = re.search(rb"""\smin\s*=\s*["'](\d+)""", cm[0])
-            hi = re.search(rb"""\smax\s*=\s*["'](\d+)""", cm[0])
-            if lo and hi:
-                existing.append((int(lo[1]), int(hi[1]), cm[0]))
-            else:
-                existing.append((0, 0, cm[0]))
-    items = list(existing)
-    for col, width in sorted(widths.items()):
-        new = (f'<{pre}col min="{col}" max="{col}" width="{width!r}" customWidth="1"/>').encode()
-        same = [i for i, (lo, hi, _) in enumerate(items) if lo == hi == col]
-        if same:
-            items[same[0]] = (col, col, new)
-        elif not any(lo <= col <= hi for lo, hi, _ in items):
-            items.append((col, col, new))
-    items.sort(key=lambda x: x[0])
-    body = b"".join(x for _, _, x in items)
-    block = b"<" + prefix + b"cols>" + body + b"</" + prefix + b"cols>"
-    if m:
-        return head[: m.start()] + block + head[m.end():]
-    ms = re.search(rb"<" + p + rb"sheetData(?=[\s>/])", head)
-    at = ms.start() if ms else len(head)
-    return head[:at] + block + head[at:]
-
-
-def _sheet_xml(ns: NewSheet, header_style: int) -> bytes:
-    """A plain worksheet part for a :class:`NewSheet` (first row bold, inline strings)."""
-    rows_xml = []
-    max_col = 0
-    for i, row in enumerate(ns.rows, start=1):
-        cells = []
-        for j, value in enumerate(row, start=1):
-            style = header_style if i == 1 else None
-            ref = cell_name(i, j)
-            xml = value_cell(ref, value, style) if not isinstance(value, str) else text_cell(
-                ref, value, style)
-            if xml is None and isinstance(value, (dt.date, dt.datetime)):
-                xml = text_cell(ref, value.isoformat(), style)
-            if xml:
-                cells.append(xml)
-                max_col = max(max_col, j)
-        if cells:
-            rows_xml.append(f'<row r="{i}">{"".join(cells)}</row>')
-    dim = f"A1:{cell_name(max(len(ns.rows), 1), max(max_col, 1))}"
-    cols = ""
-    if ns.widths:
-        cols = "<cols>" + "".join(
-            f'<col min="{j}" max="{j}" width="{float(w)!r}" customWidth="1"/>'
-            for j, w in enumerate(ns.widths, start=1) if w) + "</cols>"
-        if cols == "<cols></cols>":
-            cols = ""
-    return (
-        '<?xml version="1.0" encoding="UTF-8" standalone="yes"?>\n'
-        f'<worksheet xmlns="{NS_MAIN}" xmlns:r="{NS_REL}">'
-        f'<dimension ref="{dim}"/><sheetViews><sheetView workbookViewId="0"/></sheetViews>'
-        f'<sheetFormatPr defaultRowHeight="15"/>{cols}<sheetData>{"".join(rows_xml)}</sheetData>'
-        '<pageMargins left="0.7" right="0.7" top="0.75" bottom="0.75" header="0.3" footer="0.3"/>'
-        "</worksheet>"
-    ).encode()
-
-
-def _clone(info: zipfile.ZipInfo) -> zipfile.ZipInfo:
-    """Same name, date, type and attributes; sizes are recomputed on write."""
-    zi = zipfile.ZipInfo(info.filename, date_time=info.date_time)
-    zi.compress_type = info.compress_type
-    zi.external_attr = info.external_attr
-    zi.internal_attr = info.internal_attr
-    zi.create_system = info.create_system
-    zi.comment = info.comment
-    zi.flag_bits = info.flag_bits & 0x800  # keep only the UTF-8 name flag
-    return zi
-
-
-def _set_level(zi: zipfile.ZipInfo, level: int) -> None:
-    # the slot is ``_compresslevel`` before Python 3.13 and ``compress_level`` after
-    for attr in ("compress_level", "_compresslevel"):
-        if attr in zipfile.ZipInfo.__slots__:
-            setattr(zi, attr, level)
-            return
-
-
-def _write(zout: zipfile.ZipFile, zi: zipfile.ZipInfo, data: bytes, level: int) -> None:
-    if zi.compress_type == zipfile.ZIP_DEFLATED:
-        _set_level(zi, level)
-    zout.writestr(zi, data)
 
 
 __all__ = ["SHEET_LEVEL", "write_package"]

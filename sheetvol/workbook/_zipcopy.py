@@ -1,0 +1,87 @@
+"""Copying zip entries: as stored when unchanged, deflated when new.
+
+Unchanged parts are copied as their stored (compressed) bytes, so they come out
+byte-identical without an inflate/deflate round trip; rewritten parts keep the name,
+date and attributes of the entry they replace.
+"""
+
+from __future__ import annotations
+
+import os
+import struct
+import zipfile
+
+from sheetvol.workbook.errors import WorkbookError
+
+
+def unlink_quietly(path: str) -> None:
+    try:
+        os.unlink(path)
+    except OSError:
+        pass
+
+
+def clone_info(info: zipfile.ZipInfo) -> zipfile.ZipInfo:
+    """Same name, date, type and attributes; sizes are recomputed on write."""
+    zi = zipfile.ZipInfo(info.filename, date_time=info.date_time)
+    zi.compress_type = info.compress_type
+    zi.external_attr = info.external_attr
+    zi.internal_attr = info.internal_attr
+    zi.create_system = info.create_system
+    zi.comment = info.comment
+    zi.flag_bits = info.flag_bits & 0x800  # keep only the UTF-8 name flag
+    return zi
+
+
+def raw_copy(zout: zipfile.ZipFile, zin: zipfile.ZipFile, info: zipfile.ZipInfo) -> bool:
+    """Copy an unchanged entry's compressed bytes as they are (no inflate, no deflate).
+
+    This is what ``writestr`` does after compressing, done with the stored bytes; it
+    uses zipfile's writer state (``fp``, ``start_dir``, ``filelist``), stable since
+    Python 3.6. Returns False (the caller then re-deflates) for anything unusual.
+    """
+    if info.flag_bits & 0x1 or getattr(zout, "_writing", False):
+        return False  # zip-level encryption, or a write handle open
+    fp = zin.fp
+    if fp is None:
+        return False
+    fp.seek(info.header_offset)
+    head = fp.read(30)
+    if len(head) != 30 or head[:4] != b"PK\x03\x04":
+        return False
+    name_len, extra_len = struct.unpack("<HH", head[26:30])
+    zi = clone_info(info)
+    zi.file_size, zi.compress_size, zi.CRC = info.file_size, info.compress_size, info.CRC
+    zip64 = max(zi.file_size, zi.compress_size) > zipfile.ZIP64_LIMIT
+    out = zout.fp
+    out.seek(zout.start_dir)
+    zi.header_offset = out.tell()
+    zout._writecheck(zi)
+    zout._didModify = True
+    out.write(zi.FileHeader(zip64))
+    fp.seek(info.header_offset + 30 + name_len + extra_len)
+    left = info.compress_size
+    while left:
+        buf = fp.read(min(left, 1 << 22))
+        if not buf:
+            raise WorkbookError(f"part {info.filename} is cut short; the file is damaged.")
+        out.write(buf)
+        left -= len(buf)
+    zout.start_dir = out.tell()
+    zout.filelist.append(zi)
+    zout.NameToInfo[zi.filename] = zi
+    return True
+
+
+def set_level(zi: zipfile.ZipInfo, level: int) -> None:
+    # the slot is ``_compresslevel`` before Python 3.13 and ``compress_level`` after
+    for attr in ("compress_level", "_compresslevel"):
+        if attr in zipfile.ZipInfo.__slots__:
+            setattr(zi, attr, level)
+            return
+
+
+def write_entry(zout: zipfile.ZipFile, zi: zipfile.ZipInfo, data: bytes, level: int) -> None:
+    if zi.compress_type == zipfile.ZIP_DEFLATED:
+        set_level(zi, level)
+    zout.writestr(zi, data)
