@@ -48,6 +48,7 @@ __all__ = [
     "find_trade_log",
     "instrument_key",
     "plan_trade_review",
+    "scaled_format",
     "settings_from",
 ]
 
@@ -114,9 +115,11 @@ class TradeReport:
         out.append(f"    outcomes: {', '.join(shown) or 'none'}")
         if self.summary is not None:
             s = self.summary
+            share = _fmt(100 * s[SUMMARY_LABELS['open_risk_share']], '.2f')
             out.append(f"    total R {_fmt(s[SUMMARY_LABELS['total_r']], '.2f')}, expectancy "
                        f"{_fmt(s[SUMMARY_LABELS['expectancy']], '.2f')} R, open risk "
-                       f"{_fmt(100 * s[SUMMARY_LABELS['open_risk_share']], '.2f')}% of equity")
+                       + (f"{share}% of equity" if share != "n/a" else
+                          "share n/a (no equity: add an Equity column or --equity)"))
         if self.written:
             again = f" ({self.replaced} replaced from an earlier fill)" if self.replaced else ""
             out.append(f"    columns written{again}: "

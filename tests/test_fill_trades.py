@@ -9,6 +9,7 @@ the same data.
 from __future__ import annotations
 
 import datetime as dt
+import doctest
 import math
 import shutil
 from collections import Counter
@@ -20,11 +21,13 @@ import pytest
 import talib
 from openpyxl import Workbook, load_workbook
 
+from sheetvol import recipe as recipe_module
+from sheetvol import trade_fill
 from sheetvol.cli import main
 from sheetvol.fill import FillOptions, fill_file
 from sheetvol.notes import NOTES_SHEET
 from sheetvol.recipe import RecipeError, TradeRecipe, parse_trades, read_recipe
-from sheetvol.trade_fill import REVIEW_SHEET, TradeLogError
+from sheetvol.trade_fill import REVIEW_SHEET, TradeLogError, scaled_format
 from sheetvol.trades import TradeSettings, instruments_from_frame, review_log
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -356,3 +359,22 @@ def test_typed_formulas_in_dependency_order(tmp_path):
     assert values["B1"].value == 9 and values["C1"].value == 82
     assert report.formulas_ok == 2
     assert any("typed formulas evaluated: 2" in line for line in report.summary())
+
+
+def test_scaled_format_by_hand():
+    # Hand-worked: 1.1 (5 decimals) | 95-2010 (2 decimals) | 39,000 (1 decimal). The power of
+    # ten between 1.1 and 95 is 10; between 2010 and 39,000 it is 10,000.
+    fmt = scaled_format(np.array([1.1, 95.0, 2010.0, 39_000.0, np.nan]), [5, 2, 2, 1, 2])
+    assert fmt == "[<10]#,##0.00000;[<10000]#,##0.00;#,##0.0"
+    # No power of ten between 1.056 and 3: the cut is a round number between them (1.8).
+    assert scaled_format(np.array([1.056, 3.0, 82_000.0]), [3, 0, 0]) == (
+        "[<1.8]#,##0.000;[>=1.8]#,##0")
+    # Zeros fit any section; negative values or overlapping ranges take the most decimals.
+    assert scaled_format(np.array([0.0, 0.5, 50.0]), [2, 5, 2]).startswith("[<1]")
+    assert scaled_format(np.array([-1.0, 50.0]), [5, 2]) == "#,##0.00000"
+    assert scaled_format(np.array([1.0, 1.5, 2.0]), [5, 2, 5]) == "#,##0.00000"
+
+
+@pytest.mark.parametrize("module", [recipe_module, trade_fill], ids=lambda m: m.__name__)
+def test_docstring_examples_run(module):
+    assert doctest.testmod(module, optionflags=doctest.NORMALIZE_WHITESPACE).failed == 0
