@@ -222,9 +222,8 @@ class FillReport:
             lines.append(f"  warning: {w}")
         if self.backup is not None:
             lines.append(f"  backup of the input: {self.backup}")
-        if self.trades is not None:
-            lines.append(f"  {TRADE_CAUTION_LINE}")
-        lines.append(f"  {CAUTION_LINE}")
+        # Sizes were printed: spell the cautions out; otherwise point at the notes sheet.
+        lines.append(f"  {TRADE_CAUTION_LINE if self.trades is not None else CAUTION_LINE}")
         return lines
 
 

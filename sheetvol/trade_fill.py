@@ -24,6 +24,7 @@ import pandas as pd
 
 from sheetvol import cells
 from sheetvol.locate import HEADER_SCAN_ROWS, col_letter, col_number, normalize_header
+from sheetvol.notes import NOTES_SHEET
 from sheetvol.recipe import TradeRecipe, check_measure, default_header
 from sheetvol.trades import (
     LOG_COLUMNS,
@@ -61,7 +62,8 @@ TRADE_CAUTIONS = (
     "local regulation before trading.",
 )
 TRADE_CAUTION_LINE = ("Not advice; stops do not guarantee exit prices (gaps, slippage); check "
-                      "sizes against your broker's margin rules and local regulation.")
+                      "sizes against your broker's margin rules and local regulation. "
+                      f'More on the notes sheet "{NOTES_SHEET}".')
 # Canonical log headers: the frame handed to review_log uses these names.
 _CANONICAL = {"date": "Date", "instrument": "Instrument", "side": "Side", "entry": "Entry",
               "exit": "Exit", "exit_date": "Exit date", "quantity": "Quantity",

@@ -4,7 +4,14 @@
 sheetvol's edits applied, every other part byte for byte as it was.
 """
 
-from sheetvol.workbook.edits import CellResult, LineChart, NewColumn, NewSheet, SpillResult
+from sheetvol.workbook.edits import (
+    CellResult,
+    LineChart,
+    NewColumn,
+    NewSheet,
+    SpillResult,
+    ValueResult,
+)
 from sheetvol.workbook.errors import WorkbookError
 from sheetvol.workbook.package import (
     CellError,
@@ -30,6 +37,7 @@ __all__ = [
     "SheetInfo",
     "SpillResult",
     "TableInfo",
+    "ValueResult",
     "WorkbookError",
     "write_package",
 ]

@@ -32,6 +32,14 @@ _T_ATTR = re.compile(rb"""\s+t\s*=\s*(["'])[^"']*\1""")
 _S_ATTR = re.compile(rb"""(?:^|\s)s\s*=\s*["'](\d+)["']""")
 _F_REF = re.compile(rb"""(?:^|\s)ref\s*=\s*["']([A-Z$]+\d+(?::[A-Z$]+\d+)?)["']""")
 _F_T = re.compile(rb"""(?:^|\s)t\s*=\s*["'](\w+)["']""")
+_F_SI = re.compile(rb"""(?:^|\s)si\s*=\s*["'](\d+)["']""")
+# attributes of a formula cell that mean nothing once it holds a plain value: the
+# value type (written anew), cell metadata (dynamic arrays) and value metadata
+_FORMULA_CELL_ATTRS = re.compile(rb"""\s+(?:t|cm|vm)\s*=\s*(["'])[^"']*\1""")
+# <f> attributes that a plain (non-shared) formula does not carry
+_SHARED_ATTRS = re.compile(rb"""\s+(?:t|si|ref)\s*=\s*(["'])[^"']*\1""")
+# whole-column (E:E) and whole-row (2:5) references: not moved by shift_formula
+_LINE_REF = re.compile(r"""(?<![\w$.:])\$?(?:[A-Z]{1,3}:\$?[A-Z]{1,3}|\d+:\$?\d+)(?![\w(!:])""")
 _INF = float("inf")
 MAX_COL = 16_384
 
@@ -101,6 +109,30 @@ class ColumnRun:
 
 
 @dataclass
+class SharedMove:
+    """A shared formula whose master cell became a value: its group needs a new master.
+
+    The first remaining cell of group ``si`` (rows are read in order, so it follows the
+    old master) gets the formula text, moved by the offset, and ``ref`` from itself to
+    the bottom right of the old ``ref``; a cell of the group outside that new range
+    (left of it, in a later row of a 2-D group) gets a plain formula of its own.
+    """
+
+    si: bytes
+    text: str  # the old master's formula text, unescaped
+    row: int
+    col: int
+    top: int
+    left: int
+    bottom: int
+    right: int
+    new_ref: tuple[int, int, int, int] | None = None
+
+    def covers(self, r: int, c: int) -> bool:
+        return self.top <= r <= self.bottom and self.left <= c <= self.right
+
+
+@dataclass
 class SheetEdits:
     """All edits of one sheet, in a form the row loop can use quickly."""
 
@@ -114,8 +146,11 @@ class SheetEdits:
         default_factory=dict)
     # drop ranges: (col, from_row, to_row) with existing cells removed silently
     drops: list[tuple[int, int, float]] = field(default_factory=list)
-    # guarded ranges: (col, from_row, to_row, label); existing cells are an error
+    # guarded ranges: (col, from_row, to_row, label); an existing cell is an error unless
+    # it is blank (no value, no formula): a blank keeps its style under the new value
     guards: list[tuple[int, int, int, str]] = field(default_factory=list)
+    # shared formulas whose master became a value (found while the rows stream)
+    shared: list[SharedMove] = field(default_factory=list)
     prefix: str = ""
     # called when a spill anchor reveals an older, longer spill whose cells must go
     on_change: Callable[[], None] = lambda: None
@@ -198,6 +233,10 @@ class RowEditor:
         ranges += [(c, a, b) for c, a, b, _ in e.guards]
         ranges += [(run.col, run.replace_from, _INF) for run in e.runs
                    if run.replace_from is not None]
+        # rows of a shared group whose master went: each is read for the new master
+        self.watch_from = min((m.row for m in e.shared), default=_INF)
+        self.watch_to = max((m.bottom for m in e.shared), default=0)
+        ranges += [(m.left, m.row, m.bottom) for m in e.shared]
         self.check_from = min((a for _, a, _ in ranges), default=_INF)
         self.check_to = max((b for _, _, b in ranges), default=0)
         self.ranges = ranges
@@ -286,6 +325,7 @@ class RowEditor:
         row_number = _ATTR_R_ROW.search
         known_cols = _COLS
         check_from, check_to = self.check_from, self.check_to
+        watch_from, watch_to = self.watch_from, self.watch_to
         seg_end: float = -1  # rows up to seg_end share the cached self._active() answer
         limit = run_min
         blk: list[str] = []
@@ -334,7 +374,7 @@ class RowEditor:
                 in_check = check_from <= r <= check_to
                 if not has_new and not in_check:
                     continue
-                if r in special:
+                if r in special or watch_from <= r <= watch_to:
                     edited = self.edit_row(r, attrs, chunk[inner_s:inner_e], has_new)
                     if edited is not None:
                         append(chunk[pos:s])
@@ -342,6 +382,7 @@ class RowEditor:
                         pos = end
                     # a spill anchor may have added a range: refresh what is cached
                     check_from, check_to = self.check_from, self.check_to
+                    watch_from, watch_to = self.watch_from, self.watch_to
                     seg_end = -1
                     continue
                 # Fast path: new number cells all right of the existing ones.
@@ -449,9 +490,10 @@ class RowEditor:
                        act: dict[int, bool]) -> bytes | None:
         new = self.new_cells(r) if has_new else {}
         mods = dict(self.by_row_mods.get(r, {}))
-        if not new and not mods and not act:
+        moves = [m.left for m in self.e.shared if m.top <= r <= m.bottom]
+        if not new and not mods and not act and not moves:
             return None
-        touched = set(new) | set(mods) | set(act)
+        touched = set(new) | set(mods) | set(act) | set(moves)
         last = self._last_col(inner) if inner else 0
         if last is not None and last < min(touched):
             # everything new goes after the existing cells
@@ -481,13 +523,20 @@ class RowEditor:
                 if got:
                     cells.append((c, got))
                 continue
+            if self.e.shared and cm[3]:  # (a master converted earlier in this row counts)
+                raw = self._move_shared(r, c, raw)
             if c in act and c not in new:
                 if act[c]:
-                    self._guard_error(r, c)
+                    if not self._blank(cm[3]):
+                        self._guard_error(r, c)
+                    cells.append((c, raw))  # a blank cell where no value goes: kept
                 continue
             if c in new:
                 if act.get(c):
-                    self._guard_error(r, c)
+                    if not self._blank(cm[3]):
+                        self._guard_error(r, c)
+                    cells.append((c, _onto_blank(raw, new.pop(c)[0], self.pat)))
+                    continue
                 if not new[c][1] and c not in act:
                     raise WorkbookError(
                         f"{self.e.file}: sheet {self.e.sheet!r} cell {cell_name(r, c)} already "
@@ -503,6 +552,52 @@ class RowEditor:
         cells.sort(key=lambda item: item[0])
         body = b"".join(x for _, x in cells)
         return row_open + body + self.pat.row_end
+
+    def _blank(self, inner: bytes | None) -> bool:
+        """No value, no formula, no text: a cell that only carries a style."""
+        if not inner or not inner.strip():
+            return True
+        if self.pat.f.search(inner) or b"is>" in inner:
+            return False
+        mv = self.pat.v.search(inner)
+        return mv is None or not mv[1].strip()
+
+    def _move_shared(self, r: int, c: int, raw: bytes) -> bytes:
+        """Cell (r, c) as it must be now that its shared group may have lost its master."""
+        fm = self.pat.f.search(raw)
+        if fm is None or fm[2]:  # no formula, or one with its own text
+            return raw
+        ft, fsi = _F_T.search(fm[1]), _F_SI.search(fm[1])
+        if not ft or ft[1] != b"shared" or not fsi:
+            return raw
+        move = next((m for m in self.e.shared if m.si == fsi[1] and m.covers(r, c)), None)
+        if move is None:
+            return raw
+        nr = move.new_ref
+        if nr is not None and nr[0] <= r <= nr[2] and nr[1] <= c <= nr[3]:
+            return raw  # follows the new master
+        if _LINE_REF.search(move.text):
+            raise WorkbookError(
+                f"{self.e.file}: sheet {self.e.sheet!r} cell {cell_name(r, c)} shares the "
+                f"formula of {cell_name(move.row, move.col)}, which is being replaced by its "
+                "result, and its whole-row or whole-column references cannot be moved "
+                "safely; let sheetvol replace every cell filled from that formula, or type the "
+                f"formula into {cell_name(r, c)} again.")
+        from sheetvol.workbook.package import shift_formula
+
+        text = escape_text(shift_formula(move.text, r - move.row, c - move.col)).encode()
+        p = self.pat.prefix
+        attrs = _SHARED_ATTRS.sub(b"", fm[1])
+        if nr is None and (r, c) != (move.bottom, move.right):
+            move.new_ref = (r, c, move.bottom, move.right)
+            ref = f"{cell_name(r, c)}:{cell_name(move.bottom, move.right)}".encode()
+            f = (b"<" + p + b'f t="shared" ref="' + ref + b'" si="' + move.si + b'"' + attrs
+                 + b">" + text + b"</" + p + b"f>")
+        else:  # outside the new group, or a group of one: a plain formula
+            if nr is None:
+                move.new_ref = (r, c, r, c)
+            f = b"<" + p + b"f" + attrs + b">" + text + b"</" + p + b"f>"
+        return raw[: fm.start()] + f + raw[fm.end():]
 
     def _guard_error(self, r: int, c: int) -> None:
         label = next((lab for col, a, b, lab in self.e.guards if col == c and a <= r <= b), "")
@@ -535,6 +630,76 @@ def formula_result_cell(cm: re.Match[bytes] | None, pat: Patterns, value: object
         t, v = b' t="str"', escape_text(str(value)).encode()
     vxml = b"<" + p + b"v>" + v + b"</" + p + b"v>" if v or t else b""
     return b"<" + p + b"c" + attrs + t + b">" + fm[0] + vxml + b"</" + p + b"c>"
+
+
+def _onto_blank(raw: bytes, new_xml: str, pat: Patterns) -> bytes:
+    """A new value cell put where a blank cell was: the blank's own style wins."""
+    head_end = raw.find(b">")
+    attrs = raw[len(pat.cell_start) : head_end].rstrip(b"/")
+    mnew = re.match(r'<[^>]*?c r="[^"]*"(?: s="(\d+)")?( t="\w+")?>', new_xml)
+    if mnew is None:  # not one of ours: nothing to merge
+        return new_xml.encode()
+    attrs = _FORMULA_CELL_ATTRS.sub(b"", attrs)
+    ms = _S_ATTR.search(attrs)
+    if mnew[1] and (ms is None or ms[1] == b"0"):
+        if ms is not None:
+            attrs = attrs[: ms.start(1) - 3] + attrs[ms.end(1) + 1 :]
+        attrs += b' s="' + mnew[1].encode() + b'"'
+    return (b"<" + pat.prefix + b"c" + attrs + (mnew[2] or "").encode() + b">"
+            + new_xml[mnew.end():].encode())
+
+
+def plain_value_cell(cm: re.Match[bytes] | None, pat: Patterns, value: object,
+                     style: int | None, where: str) -> tuple[bytes, re.Match[bytes]]:
+    """An existing formula cell turned into a plain value, and the ``<f>`` it lost.
+
+    The cell keeps its attributes (position, style) except the value type and metadata;
+    ``style`` applies only when the cell has no style of its own. None, NaN and inf
+    leave the cell without a value.
+    """
+    from sheetvol.workbook.package import CellError
+
+    fm = pat.f.search(cm[3]) if cm is not None and cm[3] else None
+    if cm is None or fm is None:
+        raise WorkbookError(f"{where} holds no formula, so it cannot be replaced by its result.")
+    attrs = _FORMULA_CELL_ATTRS.sub(b"", cm[1]).rstrip(b"/")
+    ms = _S_ATTR.search(attrs)
+    if style and (ms is None or ms[1] == b"0"):
+        if ms is not None:
+            attrs = attrs[: ms.start(1)].rstrip(b"\"'").rstrip().rstrip(b"=").rstrip()
+            attrs = attrs[:-1] + attrs[ms.end(1) + 1 :]  # the attribute name s goes too
+        attrs += f' s="{style}"'.encode()
+    p = pat.prefix
+    t = body = b""
+    if isinstance(value, CellError):
+        t, body = b' t="e"', b"<" + p + b"v>" + escape_text(str(value)).encode()
+    elif isinstance(value, (bool, np.bool_)):
+        t, body = b' t="b"', b"<" + p + b"v>" + (b"1" if value else b"0")
+    elif isinstance(value, (int, float, np.integer, np.floating)):
+        x = float(value)
+        if math.isfinite(x):
+            body = b"<" + p + b"v>" + number_text(x).encode()
+    elif value is not None:
+        text = str(value)
+        space = b' xml:space="preserve"' if text != text.strip() or "\n" in text else b""
+        t = b' t="inlineStr"'
+        body = (b"<" + p + b"is><" + p + b"t" + space + b">" + escape_text(text).encode()
+                + b"</" + p + b"t></" + p + b"is>")
+        return b"<" + p + b"c" + attrs + t + b">" + body + b"</" + p + b"c>", fm
+    if not body:
+        return b"<" + p + b"c" + attrs + b"/>", fm
+    return b"<" + p + b"c" + attrs + t + b">" + body + b"</" + p + b"v></" + p + b"c>", fm
+
+
+def formula_info(fm: re.Match[bytes]) -> tuple[str, str | None, bytes | None, str | None]:
+    """(kind, ref, si, text) of an ``<f>`` match: kind is "normal", "array", "shared"..."""
+    ft, mref, msi = _F_T.search(fm[1]), _F_REF.search(fm[1]), _F_SI.search(fm[1])
+    from sheetvol.workbook._sheetxml import unescape
+
+    return ((ft[1].decode() if ft else "normal"),
+            mref[1].decode().replace("$", "") if mref else None,
+            msi[1] if msi else None,
+            unescape(fm[2]) if fm[2] is not None else None)
 
 
 def array_anchor_cell(cm: re.Match[bytes] | None, pat: Patterns, ref: str, formula: str,

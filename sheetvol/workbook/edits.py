@@ -58,6 +58,35 @@ class SpillResult:
 
 
 @dataclass
+class ValueResult:
+    """A typed formula replaced by its result as plain values (the formula is dropped).
+
+    The cell at (row, col) must hold a formula. ``values`` is a scalar (number, text,
+    bool, :class:`~sheetvol.workbook.CellError` or None) for that cell alone, or a 1-D
+    array: ``values[0]`` goes to (row, col) and the rest to the cells below it.
+
+    - NaN/inf/None: the anchor cell stays, with its style, but without a value; below
+      it, no cell is written.
+    - Existing styles are kept; ``number_format`` styles only cells that have none (an
+      unstyled anchor, new cells below, unstyled blank cells below).
+    - The cells below must be blank (no value, no formula; a style alone is fine), or
+      belong to the anchor's own earlier array formula; anything else is refused.
+    - The anchor's calculation-chain entry goes. If the anchor was the master of a
+      shared formula, the next cell of that group still holding the formula becomes
+      the master (formula text moved to it), so the rest keep their formulas.
+
+    Stored values show in any spreadsheet program, with or without the add-in, even
+    one that recalculates on opening (array formulas, ``fullCalcOnLoad``).
+    """
+
+    sheet: str
+    row: int
+    col: int
+    values: np.ndarray | float | str | None
+    number_format: str | None = None
+
+
+@dataclass
 class NewSheet:
     """A sheet written by sheetvol (e.g. the notes); replaces an earlier one of that name."""
 
@@ -80,6 +109,7 @@ class LineChart:
     anchor_cell: str
 
 
-Edit = NewColumn | CellResult | SpillResult | NewSheet | LineChart
+Edit = NewColumn | CellResult | SpillResult | ValueResult | NewSheet | LineChart
 
-__all__ = ["CellResult", "Edit", "LineChart", "NewColumn", "NewSheet", "SpillResult"]
+__all__ = ["CellResult", "Edit", "LineChart", "NewColumn", "NewSheet", "SpillResult",
+           "ValueResult"]
