@@ -282,6 +282,20 @@ _OPEN = Param("open", "series", "opening prices, oldest bar first")
 _HIGH = Param("high", "series", "high prices, oldest bar first")
 _LOW = Param("low", "series", "low prices, oldest bar first")
 _CLOSE = Param("close", "series", "closing prices, oldest bar first")
+_SEED = Param(
+    "seed",
+    "choice",
+    "start of exponential/Wilder averages: simple average of the first N bars, or the first bar",
+    "average",
+    choices=("average", "first"),
+)
+_FIRST_BAR = Param(
+    "first_bar",
+    "choice",
+    "the first bar has no previous close: use its high-low, or leave it blank",
+    "high-low",
+    choices=("high-low", "blank"),
+)
 _SMOOTHING = Param(
     "smoothing",
     "choice",
@@ -304,6 +318,7 @@ FUNCTIONS: tuple[Function, ...] = (
             _prices(),
             _period(14),
             Param("kind", "choice", "which moving average", "simple", choices=AVERAGES),
+            _SEED,
         ),
         f"{_K}.averages:moving_average",
         "the average on each bar; blank until a full window",
@@ -329,7 +344,7 @@ FUNCTIONS: tuple[Function, ...] = (
         "SV_DEVIATION",
         "dispersion",
         "Rolling standard deviation of the last N prices about the current value of a moving average.",
-        (_prices(), _period(14), _average(), _DIVISOR),
+        (_prices(), _period(14), _average(), _DIVISOR, _SEED),
         f"{_K}.dispersion:dispersion",
         "deviation in price units; blank until a full window",
         example='=SV_DEVIATION(E2:E400, 14, "simple")',
@@ -344,13 +359,7 @@ FUNCTIONS: tuple[Function, ...] = (
             _HIGH,
             _LOW,
             _CLOSE,
-            Param(
-                "first_bar",
-                "choice",
-                "the first bar has no previous close: use its high-low, or leave it blank",
-                "high-low",
-                choices=("high-low", "blank"),
-            ),
+            _FIRST_BAR,
         ),
         f"{_K}.ranges:true_range",
         "true range in price units",
@@ -359,7 +368,7 @@ FUNCTIONS: tuple[Function, ...] = (
         "SV_ATR",
         "ranges",
         "Average true range: true ranges averaged over N bars (Wilder smoothing by default).",
-        (_HIGH, _LOW, _CLOSE, _period(14), _SMOOTHING),
+        (_HIGH, _LOW, _CLOSE, _period(14), _SMOOTHING, _SEED, _FIRST_BAR),
         f"{_K}.ranges:average_true_range",
         "ATR in price units; blank until a full window",
         example="=SV_ATR(C2:C400, D2:D400, E2:E400, 14)",
@@ -368,7 +377,7 @@ FUNCTIONS: tuple[Function, ...] = (
         "SV_ATRPCT",
         "ranges",
         "Average true range as a percentage of the close.",
-        (_HIGH, _LOW, _CLOSE, _period(14), _SMOOTHING),
+        (_HIGH, _LOW, _CLOSE, _period(14), _SMOOTHING, _SEED, _FIRST_BAR),
         f"{_K}.ranges:atr_percent",
         "ATR divided by close (format as %)",
         unit="percent",

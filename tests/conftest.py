@@ -1,9 +1,16 @@
-"""Shared test data: invented random walks (no market data is needed by the tests)."""
+"""Shared test helpers: invented random walks, and LibreOffice as the stand-in spreadsheet."""
 
 from __future__ import annotations
 
+import shutil
+import subprocess
+from collections.abc import Callable
+from pathlib import Path
+
 import numpy as np
 import pytest
+
+SOFFICE = shutil.which("soffice") or shutil.which("libreoffice")
 
 
 def make_walk(n: int, start: float = 100.0, step: float = 1.0, seed: int = 0) -> np.ndarray:
@@ -22,3 +29,30 @@ def walk():
 def long_walk_1e7() -> np.ndarray:
     """1,000,000 bars near 1e7 with moves of about 0.01 (the issue's accuracy case)."""
     return make_walk(1_000_000, start=1e7, step=0.01, seed=20260101)
+
+
+@pytest.fixture
+def libreoffice(tmp_path: Path) -> Callable[..., Path]:
+    """Convert a workbook with LibreOffice headless, as a user opening it would.
+
+    Each test gets a throw-away user profile, so parallel or repeated runs never
+    share LibreOffice's lock files. Skips, saying why, where LibreOffice is absent.
+    LibreOffice exits 0 even on a damaged file: callers must compare content.
+    """
+    if SOFFICE is None:
+        pytest.skip("LibreOffice (soffice) is not installed; .ci/run installs it")
+    profile = (tmp_path / "lo-profile").as_uri()
+
+    def convert(path: Path, to: str = "xlsx") -> Path:
+        out_dir = tmp_path / "lo-out"
+        out_dir.mkdir(exist_ok=True)
+        subprocess.run(
+            [SOFFICE, f"-env:UserInstallation={profile}", "--headless", "--norestore",
+             "--convert-to", to, "--outdir", str(out_dir), str(path)],
+            check=True, capture_output=True, timeout=180,
+        )
+        got = out_dir / (Path(path).stem + "." + to.split(":")[0])
+        assert got.exists(), f"LibreOffice wrote nothing for {path}"
+        return got
+
+    return convert

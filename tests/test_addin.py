@@ -149,7 +149,9 @@ def test_windows_registration_sees_help_options_and_writes_valid_vba(windows_udf
         for a in info["args"]:
             assert len(a["doc"]) <= 255 and not a["doc"].startswith("Positional argument")
     atr = built["SV_ATR"].__xlfunc__
-    assert [a["name"] for a in atr["args"]] == ["high", "low", "close_price", "period", "smoothing"]
+    assert [a["name"] for a in atr["args"]] == [
+        "high", "low", "close_price", "period", "smoothing", "seed", "first_bar"
+    ]
     assert atr["args"][0]["options"] == {"ndim": 2}
     assert atr["args"][3]["optional"] == 14
     # The VBA wrapper Import Functions would write.
@@ -158,7 +160,10 @@ def test_windows_registration_sees_help_options_and_writes_valid_vba(windows_udf
     buf = io.StringIO()
     u.generate_vba_wrapper("sheetvol.addin", module, buf, types.SimpleNamespace(Name="a.xlam"))
     vba = buf.getvalue()
-    assert "Function SV_ATR(high, low, close_price, Optional period, Optional smoothing)" in vba
+    assert (
+        "Function SV_ATR(high, low, close_price, Optional period, Optional smoothing, "
+        "Optional seed, Optional first_bar)"
+    ) in vba
     assert vba.count("End Function") == len(built)
     for header in re.findall(r"^Function \w+\((.*)\)$", vba, flags=re.M):
         for arg in header.split(", "):
@@ -302,7 +307,7 @@ def test_scalar_functions_single_and_row_by_row():
         (lambda c: addin.SV_DEVIATION([*c, ["oops"]], 5), "SV_DEVIATION: prices item 31 is 'oops'"),
         (lambda c: addin.SV_DEVIATION_ON("soon", c, c), "SV_DEVIATION_ON: date is 'soon'"),
         (lambda c: addin.SV_STOP(100.0, -1.0), "SV_STOP: volatility must be"),
-        (lambda c: addin.SV_ATR(c, c, c, 14, "wilder", 3), "SV_ATR: takes"),
+        (lambda c: addin.SV_ATR(c, c, c, 14, "wilder", "average", "blank", 3), "SV_ATR: takes"),
     ],
 )
 def test_bad_arguments_give_a_short_message_not_a_traceback(call, start):

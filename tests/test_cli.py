@@ -50,7 +50,7 @@ def test_functions_lists_every_registry_function(capsys):
 def test_functions_shows_one_with_arguments(capsys):
     assert main(["functions", "sv_atr"]) == 0
     out = capsys.readouterr().out
-    assert out.startswith("SV_ATR(high, low, close, [period], [smoothing])")
+    assert out.startswith("SV_ATR(high, low, close, [period], [smoothing], [seed], [first_bar])")
     assert "period       a whole number from 2 to 5000 (default 14)" in out
     assert main(["functions", "SV_ATR_ON"]) == 0
     assert capsys.readouterr().out.startswith("SV_ATR_ON(date, dates, high,")

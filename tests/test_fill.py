@@ -94,7 +94,7 @@ def test_formats_headers_and_notes(filled):
     assert read[3].startswith("300 (2024-01-02 to ") and "newest first" in read[3]
     written = next(r for r in lines if r[3] == "SV_ATR")
     assert written[:3] == ("Prices", "H", "ATR 14 (Wilder)")
-    assert written[4] == "period=14, smoothing=wilder"
+    assert written[4] == "period=14, smoothing=wilder, seed=average, first_bar=high-low"
     assert any("population" in str(k) for k in notes)
     assert any(str(k).startswith("Not investment advice") for k in notes)
 

@@ -383,17 +383,10 @@ def test_template_trade_levels_follow_the_settings(template):
 
 
 @pytest.mark.slow
-def test_template_shows_numbers_in_libreoffice(template, tmp_path):
+def test_template_shows_numbers_in_libreoffice(template, libreoffice):
     # LibreOffice opens the template without the add-in: no cell may show an error.
-    import shutil
-    import subprocess
-
-    soffice = shutil.which("soffice")
-    if soffice is None:
-        pytest.skip("LibreOffice (soffice) is not installed here")
-    subprocess.run([soffice, "--headless", "--convert-to", "xlsx", "--outdir", str(tmp_path),
-                    str(template)], check=True, capture_output=True, timeout=180)
-    wb = openpyxl.load_workbook(tmp_path / "template.xlsx", data_only=True)
+    converted = libreoffice(template)
+    wb = openpyxl.load_workbook(converted, data_only=True)
     errors = [f"{ws.title}!{c.coordinate}" for ws in wb.worksheets for row in ws.iter_rows()
               for c in row if isinstance(c.value, str) and c.value.startswith("#")]
     assert errors == []

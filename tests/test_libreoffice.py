@@ -25,6 +25,7 @@ from sheetvol.workbook import (
     NewSheet,
     Package,
     SpillResult,
+    ValueResult,
     write_package,
 )
 
@@ -58,9 +59,9 @@ def convert(path: Path, tmp: Path) -> Path:
 def test_libreoffice_reads_what_was_written(tmp_path: Path) -> None:
     built = tmp_path / "built.xlsx"
     build_rich(built, tmp_path)
-    # xlsxwriter asks for a full recalculation on load (it stores no computed results);
-    # files saved by a spreadsheet program do not, and with it LibreOffice recomputes the
-    # add-in formulas to #NAME?. Remove the flag, as such a program's save would.
+    # xlsxwriter asks for a full recalculation on load; files saved by a spreadsheet
+    # program do not. Remove the flag, as such a program's save would (LibreOffice 7.4.7
+    # keeps stored results either way, measured; programs that honour the flag do not).
     src = replace_part(built, "xl/workbook.xml",
                        part(built, "xl/workbook.xml").replace(b' fullCalcOnLoad="1"', b""),
                        tmp_path / "rich.xlsx")
@@ -117,3 +118,70 @@ def test_libreoffice_reads_what_was_written(tmp_path: Path) -> None:
     formulas = openpyxl.load_workbook(converted)["Summary"]
     anchor = formulas.cell(20, 1).value
     assert anchor.ref == "A20:A23" and anchor.text.upper() == "=SV_SERIES(PRICES!E2:E5)"
+
+
+def convert_all(paths: list[Path], tmp: Path) -> list[Path]:
+    """LibreOffice's re-save of several workbooks at once (one start of the program)."""
+    out_dir = tmp / "lo-all"
+    out_dir.mkdir(exist_ok=True)
+    profile = (tmp / "lo-profile").as_uri()
+    subprocess.run([SOFFICE, f"-env:UserInstallation={profile}", "--headless", "--norestore",
+                    "--convert-to", "xlsx", "--outdir", str(out_dir), *map(str, paths)],
+                   check=True, capture_output=True, timeout=180)
+    got = [out_dir / p.name for p in paths]
+    assert all(g.exists() for g in got), "LibreOffice wrote nothing"
+    return got
+
+
+def test_libreoffice_shows_values_without_the_addin(tmp_path: Path) -> None:
+    """Typed sheetvol formulas replaced by their values show as numbers in LibreOffice
+    (which does not have the add-in), with or without the workbook's request for a full
+    recalculation on opening; a result kept beside its formula (CellResult) survives in
+    a copy written with calc_on_load=False from a workbook that had the request."""
+    from test_value_results import ROWS, shared_book, typed_book
+
+    book = typed_book(tmp_path / "typed.xlsx")  # openpyxl writes fullCalcOnLoad="1"
+    assert b'fullCalcOnLoad="1"' in part(book, "xl/workbook.xml")
+    wb = openpyxl.load_workbook(book)
+    wb["Data"]["H2"] = f"=SV_DEVIATION_LAST(C2:C{ROWS + 1},14)"
+    wb.save(book)
+    rng = np.random.default_rng(9)
+    dev = rng.standard_normal(ROWS) * 10.0 ** rng.integers(-12, 12, ROWS)
+    dev[:13] = np.nan
+    edits = [ValueResult("Data", 2, 4, 1.0 / 7.0), ValueResult("Data", 2, 6, dev, "0.0000"),
+             CellResult("Data", 2, 8, 1.75)]
+    kept, flagged = tmp_path / "kept.xlsx", tmp_path / "flagged.xlsx"
+    write_package(Package.open(book), kept, edits, calc_on_load=False)
+    write_package(Package.open(book), flagged, edits)  # fullCalcOnLoad="1" left in
+    # a shared group whose master became a value; LibreOffice recalculates it on opening
+    shared = tmp_path / "shared.xlsx"
+    write_package(Package.open(shared_book(tmp_path)), shared,
+                  [ValueResult("Data", 2, 4, 0.25), ValueResult("Data", 2, 5, 9.5)])
+
+    lo_kept, lo_flagged, lo_shared = convert_all([kept, flagged, shared], tmp_path)
+    for path in (lo_kept, lo_flagged):
+        ws = openpyxl.load_workbook(path, data_only=True)["Data"]
+        # LibreOffice 7.4 saves 15 significant digits (measured), hence rel=1e-14
+        assert ws["D2"].value == pytest.approx(1.0 / 7.0, rel=1e-14, abs=0)
+        for i, v in enumerate(dev):
+            got = ws.cell(2 + i, 6).value
+            assert got is None if np.isnan(v) else got == pytest.approx(v, rel=1e-14, abs=0)
+        formulas = openpyxl.load_workbook(path)["Data"]
+        assert formulas["D2"].value == pytest.approx(1.0 / 7.0, rel=1e-14, abs=0)
+        assert formulas["G2"].value == f"=SUM(C2:C{ROWS + 1})"
+    assert openpyxl.load_workbook(lo_kept, data_only=True)["Data"]["H2"].value == 1.75
+    # Measured with LibreOffice 7.4.7: it recomputes formula cells that have no stored
+    # result (openpyxl stores none: its typed D2 and F2 read #NAME? after LibreOffice
+    # opens the input as it is) but keeps stored results even with fullCalcOnLoad="1",
+    # so H2 of the flagged copy is not checked here; the flag matters to programs that
+    # honour it (ECMA-376 Part 1, 18.2.2 calcPr: a full calculation on load).
+
+    # LibreOffice computed the group from its new masters: E3 = A3*2+$B$1 = 4.5*2+0.5,
+    # E4 = 6*2+0.5, F2..F4 = (blank B)*2+0.5 (worked by hand from shared_book's data)
+    ws = openpyxl.load_workbook(lo_shared, data_only=True)["Data"]
+    assert [[ws.cell(r, c).value for c in (5, 6)] for r in (2, 3, 4)] == [
+        [9.5, 0.5], [9.5, 0.5], [12.5, 0.5]]
+    assert ws["D2"].value == 0.25
+    formulas = openpyxl.load_workbook(lo_shared)["Data"]
+    assert [formulas.cell(r, 4).value.upper() for r in (3, 11)] == [
+        "=SV_ATR_LAST(A3:A12,3)", "=SV_ATR_LAST(A11:A20,3)"]

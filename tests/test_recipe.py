@@ -28,7 +28,9 @@ def test_default_set_is_the_documented_one():
     ]
     assert len(DEFAULT_RECIPE) == 6
     dev = default_specs()[0]
-    assert dict(dev.options) == {"period": 14, "average": "simple", "divisor": "population"}
+    assert dict(dev.options) == {
+        "period": 14, "average": "simple", "divisor": "population", "seed": "average"
+    }
     assert dict(dev.inputs) == {"prices": "close"}
     assert dict(default_specs()[1].inputs) == {"high": "high", "low": "low", "close": "close"}
 

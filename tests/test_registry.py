@@ -71,13 +71,13 @@ def test_choice_message_lists_the_choices():
 def test_required_argument_and_too_many_arguments():
     with pytest.raises(ArgumentError, match="SV_ATR: close is required"):
         registry.get("SV_ATR").bind(([1.0], [1.0]))
-    with pytest.raises(ArgumentError, match="takes at most 5 arguments, got 6"):
-        registry.get("SV_ATR").bind(([1.0], [1.0], [1.0], 14, "wilder", 3))
+    with pytest.raises(ArgumentError, match="takes at most 7 arguments, got 8"):
+        registry.get("SV_ATR").bind(([1.0], [1.0], [1.0], 14, "wilder", "average", "blank", 3))
 
 
 def test_options_accept_text_numbers_and_any_case():
     bound = registry.get("SV_AVERAGE").bind(([1.0], "20", "Exponential"))
-    assert bound == {"prices": [1.0], "period": 20, "kind": "exponential"}
+    assert bound == {"prices": [1.0], "period": 20, "kind": "exponential", "seed": "average"}
 
 
 def test_blank_options_take_defaults():

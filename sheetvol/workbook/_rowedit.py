@@ -127,6 +127,7 @@ class SharedMove:
     bottom: int
     right: int
     new_ref: tuple[int, int, int, int] | None = None
+    done: bool = False  # every cell still to come follows the new master
 
     def covers(self, r: int, c: int) -> bool:
         return self.top <= r <= self.bottom and self.left <= c <= self.right
@@ -234,9 +235,10 @@ class RowEditor:
         ranges += [(run.col, run.replace_from, _INF) for run in e.runs
                    if run.replace_from is not None]
         # rows of a shared group whose master went: each is read for the new master
-        self.watch_from = min((m.row for m in e.shared), default=_INF)
-        self.watch_to = max((m.bottom for m in e.shared), default=0)
-        ranges += [(m.left, m.row, m.bottom) for m in e.shared]
+        watched = [m for m in e.shared if not m.done]
+        self.watch_from = min((m.row for m in watched), default=_INF)
+        self.watch_to = max((m.bottom for m in watched), default=0)
+        ranges += [(m.left, m.row, m.bottom) for m in watched]
         self.check_from = min((a for _, a, _ in ranges), default=_INF)
         self.check_to = max((b for _, _, b in ranges), default=0)
         self.ranges = ranges
@@ -490,7 +492,7 @@ class RowEditor:
                        act: dict[int, bool]) -> bytes | None:
         new = self.new_cells(r) if has_new else {}
         mods = dict(self.by_row_mods.get(r, {}))
-        moves = [m.left for m in self.e.shared if m.top <= r <= m.bottom]
+        moves = [m.left for m in self.e.shared if m.top <= r <= m.bottom and not m.done]
         if not new and not mods and not act and not moves:
             return None
         touched = set(new) | set(mods) | set(act) | set(moves)
@@ -590,12 +592,17 @@ class RowEditor:
         attrs = _SHARED_ATTRS.sub(b"", fm[1])
         if nr is None and (r, c) != (move.bottom, move.right):
             move.new_ref = (r, c, move.bottom, move.right)
+            if c == move.left or r == move.bottom:  # no cell of the group can fall outside
+                move.done = True
+                self._refresh_ranges()
             ref = f"{cell_name(r, c)}:{cell_name(move.bottom, move.right)}".encode()
             f = (b"<" + p + b'f t="shared" ref="' + ref + b'" si="' + move.si + b'"' + attrs
                  + b">" + text + b"</" + p + b"f>")
         else:  # outside the new group, or a group of one: a plain formula
             if nr is None:
                 move.new_ref = (r, c, r, c)
+                move.done = True
+                self._refresh_ranges()
             f = b"<" + p + b"f" + attrs + b">" + text + b"</" + p + b"f>"
         return raw[: fm.start()] + f + raw[fm.end():]
 
@@ -632,19 +639,27 @@ def formula_result_cell(cm: re.Match[bytes] | None, pat: Patterns, value: object
     return b"<" + p + b"c" + attrs + t + b">" + fm[0] + vxml + b"</" + p + b"c>"
 
 
+_S_WHOLE = re.compile(rb"""\s+s\s*=\s*(["'])(\d+)\1""")
+
+
+def _style_if_none(attrs: bytes, style: int) -> bytes:
+    """Cell attributes with style ``style`` when they have none (or style 0)."""
+    ms = _S_WHOLE.search(attrs)
+    if not style or (ms is not None and ms[2] != b"0"):
+        return attrs
+    if ms is not None:
+        attrs = attrs[: ms.start()] + attrs[ms.end():]
+    return attrs + f' s="{style}"'.encode()
+
+
 def _onto_blank(raw: bytes, new_xml: str, pat: Patterns) -> bytes:
     """A new value cell put where a blank cell was: the blank's own style wins."""
     head_end = raw.find(b">")
-    attrs = raw[len(pat.cell_start) : head_end].rstrip(b"/")
+    attrs = raw[len(pat.cell_start) : head_end].rstrip(b"/").rstrip()
     mnew = re.match(r'<[^>]*?c r="[^"]*"(?: s="(\d+)")?( t="\w+")?>', new_xml)
     if mnew is None:  # not one of ours: nothing to merge
         return new_xml.encode()
-    attrs = _FORMULA_CELL_ATTRS.sub(b"", attrs)
-    ms = _S_ATTR.search(attrs)
-    if mnew[1] and (ms is None or ms[1] == b"0"):
-        if ms is not None:
-            attrs = attrs[: ms.start(1) - 3] + attrs[ms.end(1) + 1 :]
-        attrs += b' s="' + mnew[1].encode() + b'"'
+    attrs = _style_if_none(_FORMULA_CELL_ATTRS.sub(b"", attrs), int(mnew[1] or 0))
     return (b"<" + pat.prefix + b"c" + attrs + (mnew[2] or "").encode() + b">"
             + new_xml[mnew.end():].encode())
 
@@ -662,13 +677,7 @@ def plain_value_cell(cm: re.Match[bytes] | None, pat: Patterns, value: object,
     fm = pat.f.search(cm[3]) if cm is not None and cm[3] else None
     if cm is None or fm is None:
         raise WorkbookError(f"{where} holds no formula, so it cannot be replaced by its result.")
-    attrs = _FORMULA_CELL_ATTRS.sub(b"", cm[1]).rstrip(b"/")
-    ms = _S_ATTR.search(attrs)
-    if style and (ms is None or ms[1] == b"0"):
-        if ms is not None:
-            attrs = attrs[: ms.start(1)].rstrip(b"\"'").rstrip().rstrip(b"=").rstrip()
-            attrs = attrs[:-1] + attrs[ms.end(1) + 1 :]  # the attribute name s goes too
-        attrs += f' s="{style}"'.encode()
+    attrs = _style_if_none(_FORMULA_CELL_ATTRS.sub(b"", cm[1]).rstrip(b"/").rstrip(), style or 0)
     p = pat.prefix
     t = body = b""
     if isinstance(value, CellError):

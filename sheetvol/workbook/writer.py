@@ -11,13 +11,17 @@ load-and-save through a spreadsheet object model:
 - table parts whose table a new column joins,
 - ``[Content_Types].xml``, ``xl/workbook.xml`` and its relationships only when a sheet
   or chart is added (new parts go at the end of the zip),
-- ``xl/calcChain.xml`` only when a replaced column removes formula cells: sheetvol
-  never turns a formula into a value (results are stored beside the formula), but
-  ``NewColumn(replace=True)`` drops whatever its column held, and a chain entry for a
-  cell without a formula makes a spreadsheet program offer a repair.
+- ``xl/calcChain.xml`` only when formula cells go: a :class:`ValueResult` turns a
+  formula into its value and ``NewColumn(replace=True)`` drops whatever its column
+  held; a chain entry for a cell without a formula makes a spreadsheet program offer a
+  repair. A chain left empty goes, with its relationship and content type.
 
-``fullCalcOnLoad`` is never set (nor removed when the input has it), so a program
-without the add-in shows the stored results instead of errors. ``docProps/app.xml``
+``<calcPr fullCalcOnLoad="1">`` (xlsxwriter and openpyxl write it) asks a spreadsheet
+program to recalculate every formula on opening (ECMA-376 Part 1, 18.2.2); one that
+does so without the add-in shows errors instead of the results stored in sheetvol's
+formulas (LibreOffice 7.4.7 was measured to keep stored results regardless). ``calc_on_load=False`` removes
+that one attribute (nothing else in ``workbook.xml`` changes); by default the part is
+left as it is. ``docProps/app.xml``
 (the sheet titles some programs show in file properties) is not updated for new sheets;
 spreadsheet programs rebuild it on save.
 """
@@ -50,9 +54,12 @@ from sheetvol.workbook._chart import (
 from sheetvol.workbook._rowedit import (
     ColumnRun,
     RowEditor,
+    SharedMove,
     SheetEdits,
     array_anchor_cell,
+    formula_info,
     formula_result_cell,
+    plain_value_cell,
     text_cell,
 )
 from sheetvol.workbook._safety import read_part
@@ -74,7 +81,14 @@ from sheetvol.workbook._zipcopy import (
     unlink_quietly,
     write_entry,
 )
-from sheetvol.workbook.edits import CellResult, LineChart, NewColumn, NewSheet, SpillResult
+from sheetvol.workbook.edits import (
+    CellResult,
+    LineChart,
+    NewColumn,
+    NewSheet,
+    SpillResult,
+    ValueResult,
+)
 from sheetvol.workbook.errors import WorkbookError
 from sheetvol.workbook.package import NS_PKG_REL, NS_REL, Package, SheetInfo, TableInfo
 
@@ -99,6 +113,7 @@ def write_package(
     *,
     progress: Callable[[int], None] | None = None,
     compresslevel: int = SHEET_LEVEL,
+    calc_on_load: bool | None = None,
 ) -> None:
     """Write a copy of ``pkg`` with only ``edits`` applied.
 
@@ -115,12 +130,19 @@ def write_package(
         Output file; written to a temporary file in the same folder, then renamed over
         ``out_path`` (atomic), so no half-written file is ever left behind.
     edits : list
-        :class:`NewColumn`, :class:`CellResult`, :class:`SpillResult`, :class:`NewSheet`.
+        :class:`NewColumn`, :class:`CellResult`, :class:`SpillResult`,
+        :class:`ValueResult`, :class:`NewSheet`, :class:`LineChart`.
     progress : callable, optional
         Called with the number of sheet rows processed since the previous call (pass a
         ``tqdm`` bar's ``update``).
     compresslevel : int
         zlib level for the rewritten sheets (1 fastest, 9 smallest).
+    calc_on_load : bool or None
+        ``False`` removes ``fullCalcOnLoad`` from ``<calcPr>`` in ``workbook.xml``, so
+        a spreadsheet program opening the copy shows the stored results rather than
+        recalculating sheetvol's formulas (errors without the add-in); ``True`` sets
+        ``fullCalcOnLoad="1"`` (every formula recalculated on opening); ``None`` (the
+        default) leaves ``workbook.xml`` as it is.
 
     Raises
     ------
@@ -139,6 +161,8 @@ def write_package(
     with pkg._zip() as zin:
         job = _Job(pkg, zin, edits, compresslevel)
         job.prepare()
+        if calc_on_load is not None:
+            job.calc_on_load(calc_on_load)
         tmp = job.write(out_path, progress)
     # renamed once the input is closed, so writing over the input itself also works
     try:
@@ -164,7 +188,7 @@ class _Job:
         self.new_sheets: list[NewSheet] = []
         self.charts: list[LineChart] = []
         for edit in edits:
-            if isinstance(edit, (NewColumn, CellResult, SpillResult)):
+            if isinstance(edit, (NewColumn, CellResult, SpillResult, ValueResult)):
                 info = pkg._worksheet(edit.sheet)
                 self.sheet_edits.setdefault(info.part, []).append(edit)
             elif isinstance(edit, NewSheet):
@@ -279,7 +303,7 @@ class _Job:
                 if isinstance(e, NewColumn):
                     self.sheet_styles[id(e)] = (self.number_style(e.number_format),
                                                 self.header_style())
-                elif isinstance(e, SpillResult):
+                elif isinstance(e, (SpillResult, ValueResult)):
                     self.sheet_styles[id(e)] = (self.number_style(e.number_format), 0)
         if self.styles is not None and self.styles.changed and self.styles_part:
             data = self.styles.finish()
@@ -438,21 +462,26 @@ class _Job:
                 xml[cut:], prefix, rel_prefix_of(xml[: xml.find(b">", m.end()) if m else 0]), rid)
 
     def _calc_chain(self) -> None:
-        """Drop calculation-chain entries of formula cells that a replaced column removes.
+        """Drop calculation-chain entries of formula cells that edits remove.
 
         A chain entry pointing at a cell that no longer holds a formula makes a
-        spreadsheet program offer to repair the file. Only ``NewColumn(replace=True)``
-        removes cells (CellResult and SpillResult keep their formulas).
+        spreadsheet program offer to repair the file. ``NewColumn(replace=True)`` removes
+        cells and :class:`ValueResult` turns a formula (and the cells below it) into
+        values; CellResult and SpillResult keep their formulas.
         """
         part = next((t for t, k in self.wb_rels.values() if k == "calcChain"), None)
         if part is None or part not in self.names:
             return
-        drops: dict[int, list[tuple[int, int]]] = {}
+        # sheetId -> (col, from_row, to_row) whose formula cells go
+        drops: dict[int, list[tuple[int, int, float]]] = {}
         for sheet_part, edits in self.sheet_edits.items():
             info = next(s for s in self.pkg.sheets if s.part == sheet_part)
             for e in edits:
                 if isinstance(e, NewColumn) and e.replace:
-                    drops.setdefault(info.sheet_id, []).append((e.col, e.header_row))
+                    drops.setdefault(info.sheet_id, []).append((e.col, e.header_row, math.inf))
+                elif isinstance(e, ValueResult):
+                    n = len(_value_parts(e.values)[1]) + 1
+                    drops.setdefault(info.sheet_id, []).append((e.col, e.row, e.row + n - 1))
         if not drops:
             return
         text = self.part(part).decode("utf-8")
@@ -468,7 +497,7 @@ class _Job:
             mr = re.search(r"""(?:^|\s)r\s*=\s*["']([A-Z]{1,3})(\d+)["']""", m[2])
             if mr and current in drops:
                 col, row = col_index(mr[1].encode()), int(mr[2])
-                if any(col == c and row >= r0 for c, r0 in drops[current]):
+                if any(col == c and r0 <= row <= r1 for c, r0, r1 in drops[current]):
                     continue
             element = m[0]
             if not mi and current is not None and current != previous:
@@ -494,6 +523,28 @@ class _Job:
         types = re.sub(r"<([\w.\-]+:)?Override\b[^>]*?PartName=[\"']/" + re.escape(part)
                        + r"[\"'][^>]*?/>", "", types)
         self.replaced["[Content_Types].xml"] = types.encode("utf-8")
+
+    def calc_on_load(self, on: bool) -> None:
+        """Remove (``on`` False) or set ``fullCalcOnLoad`` on ``<calcPr>`` in workbook.xml.
+
+        Edited as bytes: the rest of the part stays as it was, byte for byte.
+        """
+        part = self.pkg.workbook_part
+        xml = self.part(part)
+        m = re.search(rb"<([\w.\-]+:)?calcPr(?=[\s/>])[^>]*>", xml)
+        attr = re.compile(rb"""\s+fullCalcOnLoad\s*=\s*(["'])[^"']*\1""")
+        if m is not None:
+            tag = attr.sub(b"", m[0])
+            if on:
+                cut = len(tag) - (2 if tag.endswith(b"/>") else 1)
+                tag = tag[:cut] + b' fullCalcOnLoad="1"' + tag[cut:]
+            new = xml[: m.start()] + tag + xml[m.end():]
+        elif on:
+            new = _insert_calc_pr(xml, self.file)
+        else:
+            return
+        if new != xml:
+            self.replaced[part] = new
 
     def _is_ours(self, info: SheetInfo, ns: NewSheet) -> bool:
         """Written by sheetvol: our part name, or the same title in A1."""
@@ -616,7 +667,50 @@ class _Job:
                 se.modifiers[(e.row, e.col)] = _result_fn(pat, e.value, where)
             elif isinstance(e, SpillResult):
                 self._spill(se, sheet, e, pat)
+            elif isinstance(e, ValueResult):
+                self._value_result(se, sheet, e, pat)
         return se
+
+    def _value_result(self, se: SheetEdits, sheet: SheetInfo, e: ValueResult,
+                      pat: Patterns) -> None:
+        """A formula cell (and the blank cells below it) replaced by plain values."""
+        first, below = _value_parts(e.values)
+        n = len(below) + 1
+        _check_cell(self.file, sheet.name, e.row, e.col)
+        _check_cell(self.file, sheet.name, e.row + n - 1, e.col)
+        se.claim(e.row, e.col, "a formula result")
+        style = self.sheet_styles[id(e)][0]
+        cell = cell_name(e.row, e.col)
+        where = f"{self.file}: sheet {sheet.name!r} cell {cell}"
+
+        def anchor(cm: re.Match[bytes] | None) -> bytes:
+            xml, fm = plain_value_cell(cm, pat, first, style, where)
+            kind, ref, si, text = formula_info(fm)
+            if ref is None or kind not in ("array", "shared"):
+                return xml
+            top, left, bottom, right = parse_ref(ref)
+            if kind == "array" and (left, right) != (e.col, e.col):
+                raise WorkbookError(f"{where} holds an array formula over {ref}; sheetvol "
+                                    "replaces only a formula of one column by its values.")
+            if kind == "array" and bottom > e.row:
+                se.drops.append((e.col, e.row + 1, bottom))  # its own earlier results
+                se.on_change()
+            elif kind == "shared" and si is not None and text and (bottom, right) != (
+                    e.row, e.col):
+                se.shared.append(SharedMove(si=si, text=text, row=e.row, col=e.col, top=top,
+                                            left=left, bottom=bottom, right=right))
+                se.on_change()
+            return xml
+
+        se.modifiers[(e.row, e.col)] = anchor
+        if n > 1:
+            for run in se.runs:
+                if run.col == e.col and not (run.last_row < e.row + 1 or run.first_row > e.row + n):
+                    raise WorkbookError(f"{self.file}: sheet {sheet.name!r} cells below "
+                                        f"{cell} are written twice.")
+            se.runs.append(ColumnRun(col=e.col, first_row=e.row + 1, values=below.tolist(),
+                                     style=style))
+            se.guards.append((e.col, e.row + 1, e.row + n - 1, f"the formula in {cell}"))
 
     def _spill(self, se: SheetEdits, sheet: SheetInfo, e: SpillResult, pat: Patterns) -> None:
         values = np.asarray(e.values, dtype=np.float64).ravel()
@@ -647,6 +741,44 @@ class _Job:
             se.runs.append(ColumnRun(col=e.col, first_row=e.row + 1, values=values[1:].tolist(),
                                      style=style))
             se.guards.append((e.col, e.row + 1, e.row + n - 1, label))
+
+
+def _value_parts(values: object) -> tuple[object, np.ndarray]:
+    """(value of the anchor cell, float64 values of the cells below) of a ValueResult."""
+    if isinstance(values, np.ndarray) and values.ndim == 0:
+        values = values.item()
+    if isinstance(values, (np.ndarray, list, tuple)):
+        arr = np.asarray(values, dtype=np.float64).ravel()
+        if not len(arr):
+            return None, arr
+        return float(arr[0]), arr[1:]
+    if isinstance(values, np.generic):
+        values = values.item()
+    return values, np.empty(0)
+
+
+# children of <workbook> that come after <calcPr> (ECMA-376 Part 1, 18.2.27 CT_Workbook)
+_AFTER_CALC_PR = ("oleSize", "customWorkbookViews", "pivotCaches", "smartTagPr",
+                  "smartTagTypes", "webPublishing", "fileRecoveryPr", "webPublishObjects",
+                  "extLst")
+
+
+def _insert_calc_pr(xml: bytes, file: str) -> bytes:
+    """workbook.xml with ``<calcPr fullCalcOnLoad="1"/>`` put in its place."""
+    root = re.search(rb"<([\w.\-]+:)?workbook(?=[\s>])", xml)
+    if root is None:
+        raise WorkbookError(f"{file}: xl/workbook.xml is damaged.")
+    p = root[1] or b""
+    at = None
+    for name in _AFTER_CALC_PR:
+        m = re.search(rb"<" + re.escape(p) + name.encode() + rb"(?=[\s/>])", xml)
+        if m is not None and (at is None or m.start() < at):
+            at = m.start()
+    if at is None:
+        at = xml.rfind(b"</" + p + b"workbook>")
+        if at < 0:
+            raise WorkbookError(f"{file}: xl/workbook.xml is damaged.")
+    return xml[:at] + b"<" + p + b'calcPr fullCalcOnLoad="1"/>' + xml[at:]
 
 
 def _result_fn(
