@@ -10,7 +10,8 @@ load-and-save through a spreadsheet object model:
   existing indices never move),
 - table parts whose table a new column joins,
 - ``[Content_Types].xml``, ``xl/workbook.xml`` and its relationships only when a sheet
-  or chart is added (new parts go at the end of the zip),
+  or chart is added (new parts go at the end of the zip), ``xl/workbook.xml`` also when
+  ``calc_on_load`` changes its ``<calcPr>``,
 - ``xl/calcChain.xml`` only when formula cells go: a :class:`ValueResult` turns a
   formula into its value and ``NewColumn(replace=True)`` drops whatever its column
   held; a chain entry for a cell without a formula makes a spreadsheet program offer a
@@ -19,10 +20,10 @@ load-and-save through a spreadsheet object model:
 ``<calcPr fullCalcOnLoad="1">`` (xlsxwriter and openpyxl write it) asks a spreadsheet
 program to recalculate every formula on opening (ECMA-376 Part 1, 18.2.2); one that
 does so without the add-in shows errors instead of the results stored in sheetvol's
-formulas (LibreOffice 7.4.7 was measured to keep stored results regardless). ``calc_on_load=False`` removes
-that one attribute (nothing else in ``workbook.xml`` changes); by default the part is
-left as it is. ``docProps/app.xml``
-(the sheet titles some programs show in file properties) is not updated for new sheets;
+formulas (LibreOffice 7.4.7 was measured to keep stored results regardless).
+``calc_on_load=False`` removes that one attribute (nothing else in ``workbook.xml``
+changes); by default the part is left as it is. ``docProps/app.xml`` (the sheet titles
+some programs show in file properties) is not updated for new sheets;
 spreadsheet programs rebuild it on save.
 """
 
