@@ -217,12 +217,16 @@ def build_parser() -> argparse.ArgumentParser:
 
     extra = fill.add_argument_group("formulas, charts, messages")
     forms = extra.add_mutually_exclusive_group()
-    forms.add_argument("--keep-formulas", dest="formulas", action="store_true", default=True,
-                       help="evaluate typed sheetvol formulas and store their results with "
-                            "the formula text kept (the default): add-in users keep live "
-                            "formulas, everyone else sees numbers")
-    forms.add_argument("--skip-formulas", dest="formulas", action="store_false",
-                       help="leave typed sheetvol formulas as they are")
+    forms.add_argument("--formulas", choices=("values", "keep", "skip"), default="values",
+                       help="sheetvol formulas typed into cells: 'values' (default) replaces "
+                            "each with its result, so any spreadsheet program shows numbers, "
+                            "and lists the formula text on the notes sheet; 'keep' stores the "
+                            "results beside the formulas (for add-in users); 'skip' leaves "
+                            "them as they are")
+    forms.add_argument("--keep-formulas", dest="formulas", action="store_const", const="keep",
+                       help="same as --formulas keep")
+    forms.add_argument("--skip-formulas", dest="formulas", action="store_const", const="skip",
+                       help="same as --formulas skip")
     extra.add_argument("--chart", action="store_true",
                        help='add a "sheetvol charts" sheet: close with the bands, and '
                             "dispersion with ATR, as native charts")

@@ -81,6 +81,7 @@ from sheetvol.workbook import (
     NewSheet,
     Package,
     SpillResult,
+    ValueResult,
     WorkbookError,
     write_package,
 )
@@ -107,6 +108,11 @@ USER_ERRORS = (FillError, WorkbookError, LocateError, PriceTableError, RecipeErr
 class FillOptions:
     """What the command line (or a script) asks of one fill.
 
+    ``formulas`` says what happens to sheetvol formulas typed into cells:
+    ``"values"`` (default) stores their results as plain values, so the file
+    shows numbers in any spreadsheet program, and lists each formula's text on
+    the notes sheet for add-in users; ``"keep"`` keeps the formulas and stores
+    their results beside them; ``"skip"`` leaves them untouched.
     ``sheets`` names the price sheets (default: every sheet that looks like
     bars: a Close column, and a Date column beyond the first such sheet);
     ``all_sheets`` is kept for old scripts and changes nothing. ``columns`` maps
@@ -126,7 +132,7 @@ class FillOptions:
     decimal_comma: bool = False
     dayfirst: bool = False
     in_place: bool = False
-    formulas: bool = True
+    formulas: str = "values"
     chart: bool = False
     progress: bool = False
     trades: TradeRecipe | None = None
@@ -583,7 +589,7 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport) -> 
     log, instruments = _find_log(pkg, src, options)
     exclude = frozenset(n.casefold() for n in (log.sheet if log else "", instruments[0]) if n)
     chosen = _choose_sheets(pkg, src, options, report, exclude)
-    typed = pkg.formula_cells() if options.formulas else []
+    typed = pkg.formula_cells() if options.formulas != "skip" else []
     recorded = _recorded(pkg)
     edits: list = []
     taken: dict[str, set[int]] = {}
@@ -624,7 +630,7 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport) -> 
             e.col for e in trade_edits if isinstance(e, NewColumn))
         report.warnings.extend(report.trades.problems)
     if typed:
-        edits.extend(_evaluate_formulas(pkg, typed, taken, report))
+        edits.extend(_evaluate_formulas(pkg, typed, taken, report, keep=options.formulas == "keep"))
     if options.chart and specs_by_sheet:
         edits.append(NewSheet(name=CHART_SHEET, rows=[["Charts of the filled sheets"]]))
         for k, (sr, specs, targets) in enumerate(specs_by_sheet):
@@ -799,8 +805,15 @@ def _notes_rows(src: Path, report: FillReport) -> list[list[object]]:
 
 
 def _evaluate_formulas(pkg: Package, found: Sequence[FormulaCell],
-                       taken: Mapping[str, set[int]], report: FillReport) -> list:
-    """Results for typed sheetvol formulas; the formula text stays in the cell."""
+                       taken: Mapping[str, set[int]], report: FillReport, *,
+                       keep: bool) -> list:
+    """Results for typed sheetvol formulas, as values or (``keep``) beside the formula text.
+
+    Values are the default because a spreadsheet program without the add-in may
+    recalculate a kept formula on opening (array formulas always are, in
+    LibreOffice) and then shows an error; the notes sheet keeps every formula's
+    text, so an add-in user can type it back.
+    """
     try:
         from sheetvol import formulas
     except ImportError:  # the evaluator ships with the package; guard for partial installs
@@ -840,12 +853,14 @@ def _evaluate_formulas(pkg: Package, found: Sequence[FormulaCell],
                 )
                 report.formulas.append(FormulaNote(ref, fc.formula, "not written: cells below"))
                 continue
-            edits.append(SpillResult(fc.sheet, fc.row, fc.col, fc.formula, values))
+            edits.append(SpillResult(fc.sheet, fc.row, fc.col, fc.formula, values) if keep
+                         else ValueResult(fc.sheet, fc.row, fc.col, values))
             outcome = f"column of {len(values)} values"
         else:
             if isinstance(value, float) and not math.isfinite(value):
                 value = None
-            edits.append(CellResult(fc.sheet, fc.row, fc.col, value))
+            edits.append(CellResult(fc.sheet, fc.row, fc.col, value) if keep
+                         else ValueResult(fc.sheet, fc.row, fc.col, value))
             outcome = "blank" if value is None else repr(value)
         report.formulas_ok += 1
         report.formulas.append(FormulaNote(ref, fc.formula, outcome))
@@ -889,7 +904,9 @@ def _write(pkg: Package, out: Path, edits: list, report: FillReport,
                    unit=" rows", file=sys.stderr, leave=False)
         callback = bar.update
     try:
-        write_package(pkg, out, edits, progress=callback)
+        # Stored results only help if the program does not recalculate everything on opening.
+        kept = any(isinstance(e, (CellResult, SpillResult)) for e in edits)
+        write_package(pkg, out, edits, progress=callback, calc_on_load=False if kept else None)
     finally:
         if bar is not None:
             bar.close()

@@ -178,7 +178,8 @@ def test_csv_input_with_semicolons_and_decimal_commas(tmp_path):
     assert ws["A2"].value == df["Date"].iloc[0].to_pydatetime()  # real dates, not text
 
 
-def test_typed_formulas_are_evaluated_and_kept(tmp_path):
+@pytest.mark.parametrize("mode", ["values", "keep"])
+def test_typed_formulas_are_evaluated(tmp_path, mode):
     df = ohlc(40)
     src = tmp_path / "typed.xlsx"
     write_book(src, df)
@@ -188,14 +189,22 @@ def test_typed_formulas_are_evaluated_and_kept(tmp_path):
     ws["H2"] = "=SV_DEVIATION_LAST(E2:E41,14)"
     ws["H3"] = "=SV_NOSUCH(E2:E41)"
     wb.save(src)
-    report = fill_file(src)
+    report = fill_file(src, FillOptions(formulas=mode))
     assert report.formulas_ok == 1
     assert any("H3" in w for w in report.warnings)
     values = load_workbook(report.output, data_only=True)["Prices"]
     ref = df["Close"].rolling(14).std(ddof=0).iloc[-1]  # reference: pandas, ddof=0
     assert values["H2"].value == pytest.approx(ref, rel=1e-9)
-    formulas = load_workbook(report.output)["Prices"]
-    assert formulas["H2"].value == "=SV_DEVIATION_LAST(E2:E41,14)"
+    out = load_workbook(report.output)
+    formulas = out["Prices"]
+    if mode == "keep":
+        assert formulas["H2"].value == "=SV_DEVIATION_LAST(E2:E41,14)"
+    else:
+        # A plain value any program shows; the formula text stays on the notes sheet.
+        assert formulas["H2"].value == values["H2"].value
+        notes = [tuple(r) for r in out[NOTES_SHEET].iter_rows(values_only=True)]
+        assert any("SV_DEVIATION_LAST(E2:E41,14)" in str(c) for r in notes for c in r)
+    assert formulas["H3"].value == "=SV_NOSUCH(E2:E41)"  # what cannot be evaluated stays
     # the fill's own columns go right of the typed one, not over it
     assert formulas["I1"].value == DEV
 
@@ -220,7 +229,7 @@ def test_typed_column_formula_spills_down(tmp_path):
     wb["Prices"]["H1"] = "typed column"
     wb["Prices"]["H2"] = "=SV_DEVIATION(E2:E41,14)"
     wb.save(src)
-    report = fill_file(src)
+    report = fill_file(src, FillOptions(formulas="keep"))
     assert report.formulas_ok == 1
     ws = load_workbook(report.output, data_only=True)["Prices"]
     ref = df["Close"].rolling(14).std(ddof=0)  # reference: pandas, ddof=0
@@ -228,6 +237,30 @@ def test_typed_column_formula_spills_down(tmp_path):
     assert all(v is None for v in got[:13])
     np.testing.assert_allclose(np.array(got[13:], dtype=float), ref.to_numpy()[13:], rtol=1e-9)
     assert load_workbook(report.output)["Prices"]["H2"].value is not None  # formula kept
+
+
+def test_typed_formulas_show_numbers_in_libreoffice(tmp_path, libreoffice):
+    # The colleague without the add-in: LibreOffice opens the filled file and, having no
+    # sheetvol functions, must still show the numbers (it recalculates array formulas on
+    # opening, so the default stores plain values).
+    df = ohlc(40)
+    src = tmp_path / "typed.xlsx"
+    write_book(src, df)
+    wb = load_workbook(src)
+    wb["Prices"]["H1"] = "typed column"
+    wb["Prices"]["H2"] = "=SV_DEVIATION(E2:E41,14)"
+    wb["Prices"]["I1"] = "typed cell"
+    wb["Prices"]["I2"] = '=SV_ATR_LAST(C2:C41,D2:D41,E2:E41,14,"wilder","average","blank")'
+    wb.save(src)
+    report = fill_file(src)
+    assert report.formulas_ok == 2
+    seen = load_workbook(libreoffice(report.output), data_only=True)["Prices"]
+    ref = df["Close"].rolling(14).std(ddof=0).to_numpy()  # reference: pandas, ddof=0
+    got = np.array([seen.cell(r, 8).value or np.nan for r in range(2, 42)], dtype=float)
+    np.testing.assert_allclose(got[13:], ref[13:], rtol=1e-12)
+    atr = talib.ATR(df["High"].to_numpy(), df["Low"].to_numpy(), df["Close"].to_numpy(), 14)
+    # Reference: TA-Lib ATR, which leaves the first bar's true range blank as asked here.
+    assert seen["I2"].value == pytest.approx(atr[-1], rel=1e-12)
 
 
 def test_columns_join_a_spreadsheet_table(tmp_path):

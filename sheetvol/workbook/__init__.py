@@ -10,6 +10,7 @@ from sheetvol.workbook.edits import (
     NewColumn,
     NewSheet,
     SpillResult,
+    Styled,
     ValueResult,
 )
 from sheetvol.workbook.errors import WorkbookError
@@ -36,6 +37,7 @@ __all__ = [
     "Package",
     "SheetInfo",
     "SpillResult",
+    "Styled",
     "TableInfo",
     "ValueResult",
     "WorkbookError",

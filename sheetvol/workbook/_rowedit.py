@@ -91,7 +91,11 @@ def value_cell(ref: str, value: object, style: int | None, prefix: str = "") -> 
 
 @dataclass
 class ColumnRun:
-    """Numbers for rows first_row.. of one column (NaN/inf -> no cell)."""
+    """Numbers for rows first_row.. of one column (NaN/inf -> no cell).
+
+    ``texts`` holds the finished cell XML of text cells by sheet row; ``values`` is NaN
+    on those rows. A run without text (the usual, numeric case) keeps the fast path.
+    """
 
     col: int
     first_row: int
@@ -99,6 +103,7 @@ class ColumnRun:
     style: int
     letters: str = ""
     replace_from: int | None = None  # drop existing cells of the column from this row down
+    texts: dict[int, str] | None = None
 
     def __post_init__(self) -> None:
         self.letters = col_letters(self.col)
@@ -172,6 +177,8 @@ class SheetEdits:
         for run in self.runs:
             vals = np.asarray(run.values, dtype=np.float64)
             parts.append(np.flatnonzero(np.isfinite(vals)) + run.first_row)
+            if run.texts:
+                parts.append(np.fromiter(run.texts, dtype=np.int64, count=len(run.texts)))
         rows = np.concatenate(parts)
         if not len(rows):
             return []
@@ -261,7 +268,12 @@ class RowEditor:
             s = f' s="{run.style}"' if run.style else ""
             pre, mid, post = f'<{p}c r="{run.letters}', f'"{s}><{p}v>', f"</{p}v></{p}c>"
             vals = run.values[a - run.first_row : b - run.first_row]
-            if np.isfinite(np.asarray(vals)).all():  # the usual block: no test per cell
+            if run.texts:  # a column with text cells: their XML is ready-made
+                tx = run.texts
+                strs = [tx[i] if i in tx else (f"{pre}{i}{mid}{v!r}{post}" if v - v == 0
+                                               else "")
+                        for i, v in zip(range(a, b), vals, strict=True)]
+            elif np.isfinite(np.asarray(vals)).all():  # the usual block: no test per cell
                 strs = [f"{pre}{i}{mid}{v!r}{post}" for i, v in zip(range(a, b), vals,
                                                                     strict=True)]
             else:  # v - v == 0 is False for NaN and +-inf: no cell
@@ -285,7 +297,9 @@ class RowEditor:
             i = r - run.first_row
             if 0 <= i < len(run.values):
                 v = run.values[i]
-                if v - v == 0:
+                if run.texts and r in run.texts:
+                    out[run.col] = (run.texts[r], run.replace_from is not None)
+                elif v - v == 0:
                     s = f' s="{run.style}"' if run.style else ""
                     out[run.col] = (f'<{p}c r="{run.letters}{r}"{s}><{p}v>{v!r}'
                                     f"</{p}v></{p}c>", run.replace_from is not None)

@@ -8,10 +8,11 @@ from __future__ import annotations
 
 import datetime as dt
 import re
+from collections.abc import Callable
 
 from sheetvol.workbook._rowedit import SheetEdits, text_cell, value_cell
 from sheetvol.workbook._sheetxml import SheetStream, cell_name, col_letters, parse_ref
-from sheetvol.workbook.edits import NewSheet
+from sheetvol.workbook.edits import NewSheet, Styled
 
 NS_MAIN = "http://schemas.openxmlformats.org/spreadsheetml/2006/main"
 NS_REL = "http://schemas.openxmlformats.org/officeDocument/2006/relationships"
@@ -82,8 +83,14 @@ def edit_cols(head: bytes, prefix: bytes, widths: dict[int, float]) -> bytes:
     return head[:at] + block + head[at:]
 
 
-def new_sheet_xml(ns: NewSheet, header_style: int) -> bytes:
-    """A plain worksheet part for a :class:`NewSheet` (first row bold, inline strings)."""
+def new_sheet_xml(ns: NewSheet, header_style: int,
+                  style_of: Callable[[str, bool], int] | None = None,
+                  date1904: bool = False) -> bytes:
+    """A plain worksheet part for a :class:`NewSheet` (first row bold, inline strings).
+
+    ``style_of(number_format, bold)`` gives the style index of a :class:`Styled` cell;
+    a date inside one becomes a serial day number (``date1904``: the 1904 system).
+    """
     rows_xml = []
     max_col = 0
     for i, row in enumerate(ns.rows, start=1):
@@ -91,6 +98,14 @@ def new_sheet_xml(ns: NewSheet, header_style: int) -> bytes:
         for j, value in enumerate(row, start=1):
             style = header_style if i == 1 else None
             ref = cell_name(i, j)
+            if isinstance(value, Styled):
+                if style_of is not None and value.number_format:
+                    style = style_of(value.number_format, i == 1)
+                value = value.value
+                if isinstance(value, (dt.date, dt.datetime)):
+                    from sheetvol.cells import datetime_to_serial
+
+                    value = datetime_to_serial(value, date1904=date1904)
             xml = value_cell(ref, value, style) if not isinstance(value, str) else text_cell(
                 ref, value, style)
             if xml is None and isinstance(value, (dt.date, dt.datetime)):

@@ -13,11 +13,14 @@ import numpy as np
 
 @dataclass
 class NewColumn:
-    """A computed column: a header cell and a run of numbers below it.
+    """A computed column: a header cell and a run of values below it.
 
-    ``values[i]`` goes to row ``first_row + i``; NaN leaves the cell blank (no cell).
-    With ``replace`` any cell already in column ``col`` from ``header_row`` down is
-    dropped first, so a second fill replaces the first one's output.
+    ``values[i]`` goes to row ``first_row + i``. A float array is the fast path; an
+    object array or a list may mix numbers and text: text is written as an inline
+    string, numbers as numbers, and NaN, None or ``""`` leave the cell blank (no cell).
+    ``number_format`` applies to every cell of the column. With ``replace`` any cell
+    already in column ``col`` from ``header_row`` down is dropped first, so a second
+    fill replaces the first one's output.
     """
 
     sheet: str
@@ -86,9 +89,31 @@ class ValueResult:
     number_format: str | None = None
 
 
+@dataclass(frozen=True)
+class Styled:
+    """A cell of a :class:`NewSheet` shown with a number format of its own.
+
+    ``value`` is a number (or text, or None), or a date/datetime: a date is written as
+    the workbook's serial day number, so with a date format (``"yyyy-mm-dd"``) it is
+    a real date in the sheet. Unwrapped dates are written as text, as before.
+
+    Examples
+    --------
+    >>> Styled(0.25, "0.0%")   # shown as 25.0%
+    Styled(value=0.25, number_format='0.0%')
+    """
+
+    value: object
+    number_format: str
+
+
 @dataclass
 class NewSheet:
-    """A sheet written by sheetvol (e.g. the notes); replaces an earlier one of that name."""
+    """A sheet written by sheetvol (e.g. the notes); replaces an earlier one of that name.
+
+    ``rows`` hold str/float/int/bool/None or :class:`Styled` cells; the first row is
+    bold. ``widths`` are column widths in characters, from column A.
+    """
 
     name: str
     rows: list[list[object]]
@@ -112,4 +137,4 @@ class LineChart:
 Edit = NewColumn | CellResult | SpillResult | ValueResult | NewSheet | LineChart
 
 __all__ = ["CellResult", "Edit", "LineChart", "NewColumn", "NewSheet", "SpillResult",
-           "ValueResult"]
+           "Styled", "ValueResult"]

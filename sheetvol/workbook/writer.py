@@ -230,6 +230,11 @@ class _Job:
         book = self.style_book()
         return book.xf(book.number_format_id(code))
 
+    def cell_style(self, code: str, bold: bool = False) -> int:
+        """Style index for number format ``code``, bold or not (appended when new)."""
+        book = self.style_book()
+        return book.xf(book.number_format_id(code), book.bold_font_id() if bold else 0)
+
     def header_style(self) -> int:
         book = self.style_book()
         return book.xf(0, book.bold_font_id())
@@ -378,7 +383,7 @@ class _Job:
             raise WorkbookError(f"{name!r} cannot be a sheet name (1-31 characters, none of "
                                 "[ ] : * ? / \\, no quote at either end).")
         hdr = self.header_style()
-        xml = new_sheet_xml(ns, hdr)
+        xml = new_sheet_xml(ns, hdr, self.cell_style, self.pkg.date1904)
         existing = next((s for s in self.pkg.sheets if s.name.casefold() == name.casefold()), None)
         if existing is not None:
             if not self._is_ours(existing, ns):
@@ -642,7 +647,9 @@ class _Job:
         for e in self.sheet_edits[sheet.part]:
             if isinstance(e, NewColumn):
                 _check_cell(self.file, sheet.name, e.header_row, e.col)
-                values = np.asarray(e.values, dtype=np.float64).ravel()
+                values, texts = column_values(
+                    e.values, f"{self.file}: sheet {sheet.name!r} column {col_letters(e.col)} "
+                    f"({e.header!r})", e.first_row)
                 _check_cell(self.file, sheet.name, e.first_row + max(len(values), 1) - 1, e.col)
                 if e.first_row <= e.header_row:
                     raise WorkbookError(
@@ -658,9 +665,13 @@ class _Job:
                             "is written twice; give each result its own column.")
                 se.points[(e.header_row, e.col)] = (
                     text_cell(cell_name(e.header_row, e.col), e.header, hdr_style, p), e.replace)
-                se.runs.append(ColumnRun(col=e.col, first_row=e.first_row, values=values.tolist(),
-                                         style=num_style,
-                                         replace_from=e.header_row if e.replace else None))
+                run = ColumnRun(col=e.col, first_row=e.first_row, values=values.tolist(),
+                                style=num_style, replace_from=e.header_row if e.replace else None)
+                if texts:
+                    run.texts = {e.first_row + i: text_cell(cell_name(e.first_row + i, e.col),
+                                                            t, num_style, p)
+                                 for i, t in texts.items()}
+                se.runs.append(run)
             elif isinstance(e, CellResult):
                 _check_cell(self.file, sheet.name, e.row, e.col)
                 se.claim(e.row, e.col, "a formula result")
@@ -742,6 +753,49 @@ class _Job:
             se.runs.append(ColumnRun(col=e.col, first_row=e.row + 1, values=values[1:].tolist(),
                                      style=style))
             se.guards.append((e.col, e.row + 1, e.row + n - 1, label))
+
+
+def column_values(values: object, where: str,
+                  first_row: int = 1) -> tuple[np.ndarray, dict[int, str]]:
+    """The numbers of a :class:`NewColumn` (NaN where no number) and its text by position.
+
+    A numeric array (the usual, fast case) is only converted to float64. Otherwise each
+    entry is looked at: text is kept as text (an empty string gives no cell), None and
+    NaN give no cell, numbers are numbers; anything else is refused, naming ``where``.
+
+    Examples
+    --------
+    >>> column_values(["stop hit", 1.5, None, ""], "x")
+    (array([nan, 1.5, nan, nan]), {0: 'stop hit'})
+    """
+    if isinstance(values, np.ndarray) and values.dtype.kind in "fiub":
+        return np.asarray(values, dtype=np.float64).ravel(), {}
+    items = np.asarray(values, dtype=object).ravel()
+    numbers = np.full(len(items), np.nan)
+    texts: dict[int, str] = {}
+    for i, v in enumerate(items.tolist()):
+        if isinstance(v, str):
+            if v:
+                texts[i] = v
+            continue
+        if v is None:
+            continue
+        try:
+            numbers[i] = float(v)
+        except (TypeError, ValueError):
+            if not _missing(v):
+                raise WorkbookError(
+                    f"{where}: the value for row {first_row + i} is {type(v).__name__} {v!r}; "
+                    "a new column takes numbers, text or blanks (None/NaN).") from None
+    return numbers, texts
+
+
+def _missing(value: object) -> bool:
+    """pandas' NA and NaT (not equal to themselves, or not comparable at all)."""
+    try:
+        return bool(value != value)
+    except (TypeError, ValueError):
+        return True
 
 
 def _value_parts(values: object) -> tuple[object, np.ndarray]:
