@@ -43,16 +43,18 @@ def libreoffice(tmp_path: Path) -> Callable[..., Path]:
         pytest.skip("LibreOffice (soffice) is not installed; .ci/run installs it")
     profile = (tmp_path / "lo-profile").as_uri()
 
-    def convert(path: Path, to: str = "xlsx") -> Path:
+    def convert(*paths: Path, to: str = "xlsx") -> Path | list[Path]:
+        """Re-save ``paths`` (one start of the program); one path in, one path out."""
         out_dir = tmp_path / "lo-out"
         out_dir.mkdir(exist_ok=True)
         subprocess.run(
             [SOFFICE, f"-env:UserInstallation={profile}", "--headless", "--norestore",
-             "--convert-to", to, "--outdir", str(out_dir), str(path)],
+             "--convert-to", to, "--outdir", str(out_dir), *map(str, paths)],
             check=True, capture_output=True, timeout=180,
         )
-        got = out_dir / (Path(path).stem + "." + to.split(":")[0])
-        assert got.exists(), f"LibreOffice wrote nothing for {path}"
-        return got
+        got = [out_dir / (Path(p).stem + "." + to.split(":")[0]) for p in paths]
+        missing = [g.name for g in got if not g.exists()]
+        assert not missing, f"LibreOffice wrote nothing for {missing}"
+        return got[0] if len(got) == 1 else got
 
     return convert

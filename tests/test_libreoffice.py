@@ -9,8 +9,6 @@ content read back with openpyxl against the values that were written.
 from __future__ import annotations
 
 import re
-import shutil
-import subprocess
 import zipfile
 from pathlib import Path
 
@@ -30,12 +28,7 @@ from sheetvol.workbook import (
 )
 
 openpyxl = pytest.importorskip("openpyxl")
-SOFFICE = shutil.which("soffice") or shutil.which("libreoffice")
-pytestmark = [
-    pytest.mark.skipif(SOFFICE is None, reason="LibreOffice (soffice) is not installed; "
-                       ".ci/run installs it"),
-    pytest.mark.slow,
-]
+pytestmark = pytest.mark.slow  # the `libreoffice` fixture skips, saying why, without it
 
 
 def part(path: Path, name: str) -> bytes:
@@ -43,20 +36,7 @@ def part(path: Path, name: str) -> bytes:
         return zf.read(name)
 
 
-def convert(path: Path, tmp: Path) -> Path:
-    """LibreOffice's re-save of ``path`` as .xlsx, with a throw-away user profile."""
-    out_dir = tmp / "lo"
-    out_dir.mkdir(exist_ok=True)
-    profile = (tmp / "lo-profile").as_uri()
-    subprocess.run([SOFFICE, f"-env:UserInstallation={profile}", "--headless", "--norestore",
-                    "--convert-to", "xlsx", "--outdir", str(out_dir), str(path)],
-                   check=True, capture_output=True, timeout=120)
-    got = out_dir / path.name.replace(".xlsm", ".xlsx")
-    assert got.exists(), "LibreOffice wrote nothing"
-    return got
-
-
-def test_libreoffice_reads_what_was_written(tmp_path: Path) -> None:
+def test_libreoffice_reads_what_was_written(tmp_path: Path, libreoffice) -> None:
     built = tmp_path / "built.xlsx"
     build_rich(built, tmp_path)
     # xlsxwriter asks for a full recalculation on load; files saved by a spreadsheet
@@ -79,7 +59,7 @@ def test_libreoffice_reads_what_was_written(tmp_path: Path) -> None:
     out = tmp_path / "filled.xlsx"
     write_package(pkg, out, edits)
 
-    converted = convert(out, tmp_path)
+    converted = libreoffice(out)
     back = openpyxl.load_workbook(converted, data_only=True)
     assert back.sheetnames[-2:] == ["sheetvol notes", "charts"]
     assert back["sheetvol notes"]["A2"].value == "rows"
@@ -120,20 +100,7 @@ def test_libreoffice_reads_what_was_written(tmp_path: Path) -> None:
     assert anchor.ref == "A20:A23" and anchor.text.upper() == "=SV_SERIES(PRICES!E2:E5)"
 
 
-def convert_all(paths: list[Path], tmp: Path) -> list[Path]:
-    """LibreOffice's re-save of several workbooks at once (one start of the program)."""
-    out_dir = tmp / "lo-all"
-    out_dir.mkdir(exist_ok=True)
-    profile = (tmp / "lo-profile").as_uri()
-    subprocess.run([SOFFICE, f"-env:UserInstallation={profile}", "--headless", "--norestore",
-                    "--convert-to", "xlsx", "--outdir", str(out_dir), *map(str, paths)],
-                   check=True, capture_output=True, timeout=180)
-    got = [out_dir / p.name for p in paths]
-    assert all(g.exists() for g in got), "LibreOffice wrote nothing"
-    return got
-
-
-def test_libreoffice_shows_values_without_the_addin(tmp_path: Path) -> None:
+def test_libreoffice_shows_values_without_the_addin(tmp_path: Path, libreoffice) -> None:
     """Typed sheetvol formulas replaced by their values show as numbers in LibreOffice
     (which does not have the add-in), with or without the workbook's request for a full
     recalculation on opening; a result kept beside its formula (CellResult) survives in
@@ -158,7 +125,7 @@ def test_libreoffice_shows_values_without_the_addin(tmp_path: Path) -> None:
     write_package(Package.open(shared_book(tmp_path)), shared,
                   [ValueResult("Data", 2, 4, 0.25), ValueResult("Data", 2, 5, 9.5)])
 
-    lo_kept, lo_flagged, lo_shared = convert_all([kept, flagged, shared], tmp_path)
+    lo_kept, lo_flagged, lo_shared = libreoffice(kept, flagged, shared)
     for path in (lo_kept, lo_flagged):
         ws = openpyxl.load_workbook(path, data_only=True)["Data"]
         # LibreOffice 7.4 saves 15 significant digits (measured), hence rel=1e-14
