@@ -61,8 +61,9 @@ target at a multiple of it, the size that risks a share of equity (rounded
 down to the lot step; point value, lot step, min/max quantity and FX rate
 from a sheet headed Instrument + Point value), the trailing stop, the
 reviewed exit, R, bars held and the largest moves against and for the
-trade (numbers only, blank where nothing applies; a re-run replaces them).
-A "Trade review" sheet holds each trade's outcome and notes, the summary
+trade, with the outcome, size note and review note in words (blank where
+nothing applies; a re-run replaces them). A "Trade review" sheet holds the
+outcome counts, the summary
 (hit rates, average and total R, expectancy, largest losing streak, open
 risk as a share of equity), the settings and the cautions. Defaults: ATR
 14, stop 2, target 3, trail 3 units, risk 1% of equity (common practice,

@@ -4,9 +4,9 @@ The fill (:mod:`sheetvol.fill`) finds the price sheets; this module finds a
 trade log (a sheet whose header row has a date, an instrument and a side, see
 :data:`sheetvol.trades.LOG_COLUMNS`) and an instrument-details sheet, runs
 :func:`sheetvol.trades.review_log` on them, and returns the writer's edits:
-numeric review columns to the right of the log, and a review sheet with the
-summary, the outcome of each trade (text the package writer can only put on a
-sheet of our own), the settings and the cautions.
+review columns to the right of the log (numbers, and the outcome and notes of
+each trade as text), and a review sheet with the summary (shares as
+percentages), the outcome counts, the settings and the cautions.
 """
 
 from __future__ import annotations
@@ -35,9 +35,10 @@ from sheetvol.trades import (
     review_log,
     summarise,
 )
-from sheetvol.workbook import CellError, NewColumn, NewSheet, Package
+from sheetvol.workbook import CellError, NewColumn, NewSheet, Package, Styled
 
 __all__ = [
+    "OUTCOME_WORDS",
     "OWN_HEADER",
     "REVIEW_SHEET",
     "TRADE_CAUTIONS",
@@ -73,8 +74,26 @@ _REQUIRED = ("date", "instrument", "side")
 OWN_HEADER = re.compile(
     r"^(Entry-bar .+|Stop \S+×vol|Target \S+×vol|Target in R|Size at \S+ risk"
     r"|Trail \S+×vol|Reviewed exit|Reviewed exit date|R multiple|Bars held|Worst move"
-    r"|Best move|Worst move in R|Best move in R|Open risk)$"
+    r"|Best move|Worst move in R|Best move in R|Open risk|Reviewed outcome|Size note"
+    r"|Review note)$"
 )
+# review_log's Result -> the words written in the log and counted on the review sheet
+OUTCOME_WORDS = {
+    "stop": "stop hit",
+    "target": "target hit",
+    "trail": "trailing stop hit",
+    "closed": "closed at the logged exit",
+    "open": "still open",
+    "ambiguous": "ambiguous: stop and target on one bar",
+    "": "not reviewed (see note)",
+}
+# review_log columns written as text; the others are numbers
+_TEXT_KEYS = ("Size note", "Result", "Note")
+# Summary figures by SUMMARY_LABELS key -> number format on the review sheet
+_SUMMARY_FORMATS = {"trades": "0", "finished": "0", "losing_streak": "0",
+                    "average_r": "0.00", "total_r": "0.00", "expectancy": "0.00",
+                    "open_risk": "#,##0.00"}
+_SHARE_FORMAT = "0.0%"
 
 
 class TradeLogError(ValueError):
@@ -126,7 +145,7 @@ class TradeReport:
             again = f" ({self.replaced} replaced from an earlier fill)" if self.replaced else ""
             out.append(f"    columns written{again}: "
                        + ", ".join(f"{letter} {h}" for letter, h, _ in self.written))
-        out.append(f'    summary and each trade\'s outcome on sheet "{REVIEW_SHEET}"')
+        out.append(f'    summary and outcome counts on sheet "{REVIEW_SHEET}"')
         return out
 
 
@@ -307,7 +326,7 @@ def _num(x: float) -> str:
 
 
 def _headers(recipe: TradeRecipe) -> dict[str, str]:
-    """Output column of :func:`review_log` -> header written (numeric columns only)."""
+    """Output column of :func:`review_log` -> header written, in the order written."""
     func = check_measure(recipe)
     opts = func.bind(kwargs={**{p.name: np.zeros(1) for p in func.columns},
                              **recipe.options})
@@ -321,7 +340,9 @@ def _headers(recipe: TradeRecipe) -> dict[str, str]:
         "Target": f"Target {_num(recipe.target_multiple)}×vol",
         "Target R": "Target in R",
         "Size": f"Size at {_num(100 * recipe.risk)}% risk",
+        "Size note": "Size note",
         "Trail": f"Trail {_num(recipe.trail_multiple)}×vol",
+        "Result": "Reviewed outcome",
         "Exit price": "Reviewed exit",
         "Exit date": "Reviewed exit date",
         "R": "R multiple",
@@ -331,6 +352,7 @@ def _headers(recipe: TradeRecipe) -> dict[str, str]:
         "Adverse R": "Worst move in R",
         "Favourable R": "Best move in R",
         "Open risk": "Open risk",
+        "Note": "Review note",
     }
     if recipe.trail_multiple == 0:
         del heads["Trail"]
@@ -344,7 +366,10 @@ _MEANING = {
     "Target": "entry +/- target multiple x volatility",
     "Target R": "target distance in units of the stop distance",
     "Size": "equity x risk / (stop distance x point value x FX rate), down to the lot step",
+    "Size note": "why the size is zero, below the minimum or capped (blank when fine)",
     "Trail": "trailing stop in force at the end of the review",
+    "Result": "which came first: stop, target, trailing stop, logged exit; or still open, "
+              "or ambiguous (stop and target on one bar)",
     "Exit price": "exit price found by the review (stop, target, trail or logged exit)",
     "Exit date": "date of that exit",
     "R": "result in R (open trades: marked at the last close)",
@@ -354,6 +379,7 @@ _MEANING = {
     "Adverse R": "the same in R",
     "Favourable R": "the same in R",
     "Open risk": "open trades: money lost if the stop in force were hit from the last close",
+    "Note": "why something on the row could not be computed (blank when all went well)",
 }
 
 
@@ -477,6 +503,17 @@ def plan_trade_review(
     first, last = log.header_row + 1, max([log.header_row + 1, *frame.index])
     edits: list = []
     for key, header in heads.items():
+        col = targets[key]
+        if key in _TEXT_KEYS:
+            texts = _texts(reviewed[key], key)
+            values = np.full(last - first + 1, None, dtype=object)
+            values[np.asarray(frame.index, dtype=int) - first] = texts
+            edits.append(NewColumn(sheet=log.sheet, col=col, header_row=log.header_row,
+                                   header=header, first_row=first, values=values,
+                                   number_format="General", width=_text_width(header, texts),
+                                   replace=col in own))
+            report.written.append((col_letter(col), header, _MEANING[key]))
+            continue
         values = np.full(last - first + 1, np.nan)
         column = reviewed[key]
         if key in ("Bar date", "Exit date"):
@@ -485,7 +522,6 @@ def plan_trade_review(
         else:
             nums = pd.to_numeric(column, errors="coerce").to_numpy(dtype=float)
         values[np.asarray(frame.index, dtype=int) - first] = nums
-        col = targets[key]
         fmt = formats.get(key) or scaled_format(
             np.asarray(nums, dtype=float), size_places if key == "Size" else price_places)
         edits.append(NewColumn(sheet=log.sheet, col=col, header_row=log.header_row,
@@ -500,9 +536,22 @@ def plan_trade_review(
                                first_row=first, values=np.full(1, np.nan),
                                number_format="General"))
     report.settings = _settings_rows(recipe, settings, instruments[0])
-    edits.append(NewSheet(name=REVIEW_SHEET, rows=_review_rows(report, frame, reviewed),
-                          widths=[34, 14, 12, 8, 11, 9, 12, 40, 50]))
+    edits.append(NewSheet(name=REVIEW_SHEET, rows=_review_rows(report), widths=[40, 14]))
     return edits, report
+
+
+def _texts(column: pd.Series, key: str) -> list[str | None]:
+    """A text column of the review as written: outcome words, blanks for empty notes."""
+    if key == "Result":
+        return [OUTCOME_WORDS.get(str(v), str(v)) for v in column]
+    return [None if v is None or (isinstance(v, float) and math.isnan(v)) or not str(v)
+            else str(v) for v in column]
+
+
+def _text_width(header: str, texts: Sequence[str | None]) -> float:
+    """A width that fits the header and the longest text, within 10 to 40 characters."""
+    longest = max([len(header), *(len(t) for t in texts if t)])
+    return float(max(10, min(40, longest + 1.5)))
 
 
 def _decimal_format(decimals: int) -> str:
@@ -614,49 +663,26 @@ def _settings_rows(recipe: TradeRecipe, settings: TradeSettings,
     ]
 
 
-def _review_rows(report: TradeReport, frame: pd.DataFrame,
-                 reviewed: pd.DataFrame) -> list[list[object]]:
+def _review_rows(report: TradeReport) -> list[list[object]]:
+    """The review sheet: summary (shares as fractions shown in %), outcome counts, settings."""
     s = report.summary
     assert s is not None
     rows: list[list[object]] = [[f'Trade review of sheet "{report.sheet}" (not advice)'], []]
     rows.append(["Summary", "Value"])
     for key, label in SUMMARY_LABELS.items():
-        value = s[label]
-        if label.endswith("(share)") or key in ("win_rate", "open_risk_share"):
-            label = label.replace("(share)", "(%)").replace("share of equity", "% of equity")
-            if key == "win_rate":
-                label = "Win rate (%)"
-            value = _percent(value)
-        rows.append([label, _cell_number(value)])
+        value = _cell_number(s[label])
+        fmt = _SUMMARY_FORMATS.get(key, _SHARE_FORMAT)
+        rows.append([label, value if value is None else Styled(value, fmt)])
     rows += [[], ["Outcome", "Trades"]]
-    names = {"stop": "stop hit", "target": "target hit", "trail": "trailing stop hit",
-             "closed": "closed at the logged exit", "open": "still open",
-             "ambiguous": "ambiguous (stop and target on one bar)", "": "not reviewed (see note)"}
-    for key, label in names.items():
-        rows.append([label, report.counts.get(key, 0)])
+    for key, words in OUTCOME_WORDS.items():
+        rows.append([words, report.counts.get(key, 0)])
     rows += [[], ["Settings"]]
     rows += [list(r) for r in report.settings]
-    rows += [[], ["Each trade"],
-             ["Log row", "Entry date", "Instrument", "Side", "Result", "R", "Size", "Size note",
-              "Note"]]
-    for r in frame.index:
-        when = frame.at[r, "Date"]
-        rows.append([
-            r,
-            pd.Timestamp(when).strftime("%Y-%m-%d") if isinstance(when, pd.Timestamp) else when,
-            frame.at[r, "Instrument"], frame.at[r, "Side"], reviewed.at[r, "Result"],
-            _cell_number(reviewed.at[r, "R"]), _cell_number(reviewed.at[r, "Size"]),
-            reviewed.at[r, "Size note"], reviewed.at[r, "Note"],
-        ])
+    rows += [[], [f'Each trade\'s outcome, R, size and notes are on sheet "{report.sheet}", '
+                  "beside the trade."]]
     rows += [[], ["Cautions"]]
     rows += [[c] for c in TRADE_CAUTIONS]
     return rows
-
-
-def _percent(value: Any) -> float | None:
-    """A share as a percentage, rounded to 0.01 for reading (the sheet has no % format)."""
-    x = _cell_number(value)
-    return None if x is None else round(100 * float(x), 2)
 
 
 def _cell_number(value: Any) -> Any:

@@ -37,11 +37,16 @@ INSTRUMENTS = ("KESTREL", "BRAMBLE", "ORRIN", "TALLOW")
 HEADERS = {
     "Volatility": "Entry-bar ATR 14 (Wilder)", "Bar date": "Entry-bar date",
     "Stop": "Stop 2×vol", "Target": "Target 3×vol", "Target R": "Target in R",
-    "Size": "Size at 1% risk", "Trail": "Trail 3×vol", "Exit price": "Reviewed exit",
+    "Size": "Size at 1% risk", "Size note": "Size note", "Trail": "Trail 3×vol",
+    "Result": "Reviewed outcome", "Exit price": "Reviewed exit",
     "Exit date": "Reviewed exit date", "R": "R multiple", "Bars": "Bars held",
     "Adverse": "Worst move", "Favourable": "Best move", "Adverse R": "Worst move in R",
-    "Favourable R": "Best move in R", "Open risk": "Open risk",
+    "Favourable R": "Best move in R", "Open risk": "Open risk", "Note": "Review note",
 }
+# review_log's Result -> the words the fill writes in the log (spelled out here, not imported)
+WORDS = {"stop": "stop hit", "target": "target hit", "trail": "trailing stop hit",
+         "closed": "closed at the logged exit", "open": "still open",
+         "ambiguous": "ambiguous: stop and target on one bar", "": "not reviewed (see note)"}
 ENTRY_HEADERS = [HEADERS[k] for k in ("Volatility", "Bar date", "Stop", "Target", "Target R",
                                       "Size")]
 
@@ -53,24 +58,20 @@ def columns_by_header(ws, header_row: int = 1) -> dict[str, list]:
             for h, col in heads.items()}
 
 
-def review_sheet_blocks(ws) -> tuple[dict[str, object], dict[str, int], list[tuple]]:
-    """The review sheet's summary (label -> value), outcome counts and per-trade rows."""
-    rows = list(ws.iter_rows(values_only=True))
-    title = {r[0]: i for i, r in enumerate(rows) if r and r[0]}
-    summary, counts, trades = {}, {}, []
+def review_sheet_blocks(ws) -> tuple[dict[str, tuple[object, str]], dict[str, int]]:
+    """The review sheet's summary (label -> (value, number format)) and outcome counts."""
+    rows = list(ws.iter_rows())
+    title = {r[0].value: i for i, r in enumerate(rows) if r and r[0].value}
+    summary, counts = {}, {}
     i = title["Summary"] + 1
-    while rows[i][0]:
-        summary[rows[i][0]] = rows[i][1]
+    while i < len(rows) and rows[i][0].value:
+        summary[rows[i][0].value] = (rows[i][1].value, rows[i][1].number_format)
         i += 1
     i = title["Outcome"] + 1
-    while rows[i][0]:
-        counts[rows[i][0]] = rows[i][1]
+    while i < len(rows) and rows[i][0].value:
+        counts[rows[i][0].value] = rows[i][1].value
         i += 1
-    i = title["Log row"] + 1
-    while rows[i][0] is not None:
-        trades.append(rows[i])
-        i += 1
-    return summary, counts, trades
+    return summary, counts
 
 
 @pytest.fixture(scope="module")
@@ -105,7 +106,11 @@ def test_demo_fill_fills_every_price_sheet_and_the_log(demo_filled, demo_direct)
         want = direct[key].tolist()
         have = got[header][:20]
         for w, h in zip(want, have, strict=True):
-            if key in ("Bar date", "Exit date"):
+            if key == "Result":
+                assert h == WORDS[w], key
+            elif key in ("Size note", "Note"):
+                assert h == (w or None), key  # text, blank where there is nothing to say
+            elif key in ("Bar date", "Exit date"):
                 assert (pd.isna(w) and h is None) or pd.Timestamp(w) == pd.Timestamp(h), key
             elif w is None or (isinstance(w, float) and math.isnan(w)):
                 assert h is None, key  # blank where nothing applies
@@ -155,21 +160,31 @@ def test_one_demo_trade_by_hand_against_talib(demo_filled, demo_direct):
     assert checked >= 5
 
 
-def test_review_sheet_counts_equal_the_result_column(demo_filled, demo_direct):
+def test_result_column_and_review_sheet_counts(demo_filled, demo_direct):
+    """The outcome in the Trades sheet is review_log's Result, in words; the review
+    sheet counts those words and gives shares as fractions shown in percent."""
     _src, report = demo_filled
-    summary, counts, rows = review_sheet_blocks(load_workbook(report.output)[REVIEW_SHEET])
-    results = Counter(r[4] for r in rows)
+    wb = load_workbook(report.output)
+    outcome = columns_by_header(wb["Trades"])["Reviewed outcome"][:20]
     _book, direct = demo_direct
-    assert [r[4] for r in rows] == direct["Result"].tolist()
-    names = {"stop": "stop hit", "target": "target hit", "trail": "trailing stop hit",
-             "closed": "closed at the logged exit", "open": "still open"}
-    for key, label in names.items():
-        assert counts[label] == results[key]
-    assert summary["Trades"] == len(rows) == 20
+    assert outcome == [WORDS[r] for r in direct["Result"]]
+    assert all(wb["Trades"].cell(r, 17).data_type == "s" for r in range(2, 22))  # text cells
+    summary, counts = review_sheet_blocks(wb[REVIEW_SHEET])
+    assert counts == {w: Counter(outcome)[w] for w in WORDS.values()}
+    results = Counter(direct["Result"])
+    assert summary["Trades"] == (20, "0")
     assert sum(counts.values()) == 20
-    # shares are written in percent: stop share x trades = stop count
-    assert summary["Stop hit (%)"] / 100 * 20 == pytest.approx(results["stop"])
-    assert summary["Finished trades"] == 20 - results["open"] - results["ambiguous"]
+    # shares are fractions: stop share x trades = stop count; a % format shows them
+    for key, label in (("stop", "Stop hit (share)"), ("target", "Target hit (share)"),
+                       ("open", "Still open (share)")):
+        value, fmt = summary[label]
+        assert fmt == "0.0%" and value * 20 == pytest.approx(results[key])
+    assert summary["Finished trades"][0] == 20 - results["open"] - results["ambiguous"]
+    finished = [r for r, w in zip(direct["R"], direct["Result"], strict=True)
+                if w not in ("open", "ambiguous")]
+    assert summary["Average R"] == (pytest.approx(sum(finished) / len(finished)), "0.00")
+    assert summary["Open risk (account currency)"][1] == "#,##0.00"
+    assert summary["Open risk (share of equity)"][1] == "0.0%"
 
 
 def test_notes_and_review_sheet_record_settings_and_cautions(demo_filled):
@@ -279,6 +294,7 @@ def test_one_long_price_sheet_with_an_instrument_column(tmp_path):
     log.append(["Date", "Instrument", "Side", "Entry", "Equity"])
     log.append([days[30].to_pydatetime(), "ALDER", "long", None, 50_000])
     log.append([days[32].to_pydatetime(), "birch", "short", None, 50_000])
+    log.append([days[33].to_pydatetime(), "ALDER", "long", None, 10])  # too small to buy any
     bars = wb.create_sheet("Bars")
     bars.append(["Date", "Symbol", "Open", "High", "Low", "Close"])
     for k in range(len(days)):  # interleaved, as one export of several instruments
@@ -289,11 +305,18 @@ def test_one_long_price_sheet_with_an_instrument_column(tmp_path):
     report = fill_file(src)
     assert report.sheets[0].long_sheet and not report.written
     got = columns_by_header(load_workbook(report.output)["Trades"])
-    trades_frame = pd.DataFrame({"Date": [days[30], days[32]], "Instrument": ["ALDER", "birch"],
-                                 "Side": ["long", "short"], "Equity": [50_000.0] * 2})
+    trades_frame = pd.DataFrame({"Date": [days[30], days[32], days[33]],
+                                 "Instrument": ["ALDER", "birch", "ALDER"],
+                                 "Side": ["long", "short", "long"],
+                                 "Equity": [50_000.0, 50_000.0, 10.0]})
     direct = review_log(trades_frame, frames, TradeSettings())
-    assert got["Stop 2×vol"][:2] == direct["Stop"].tolist()
-    assert got["Size at 1% risk"][:2] == direct["Size"].tolist()
+    assert got["Stop 2×vol"][:2] == direct["Stop"].tolist()[:2]
+    assert got["Size at 1% risk"][:3] == direct["Size"].tolist()
+    # the notes are text beside the numbers: no entry price logged, a size of zero
+    assert got["Review note"][:3] == direct["Note"].tolist()
+    assert "entry bar's close" in got["Review note"][0]
+    assert got["Size note"][:3] == [None, None, direct["Size note"][2]]
+    assert got["Size at 1% risk"][2] == 0 and "lot step" in got["Size note"][2]
 
 
 def test_recipe_trades_table_errors_name_the_key(tmp_path):

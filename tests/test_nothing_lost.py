@@ -258,19 +258,28 @@ def test_rerun_replaces_columns_and_sheet(tmp_path: Path) -> None:
     build_rich(src, tmp_path)
     first, second = tmp_path / "a.xlsx", tmp_path / "b.xlsx"
     rng = np.random.default_rng(5)
+
+    def words(texts: list[object]) -> NewColumn:  # a text column right of the numbers
+        return NewColumn("Prices", col=11, header_row=1, header="outcome", first_row=2,
+                         values=np.array(texts, dtype=object), number_format="General")
+
     write_package(Package.open(src), first,
-                  [*new_columns(rng), NewSheet("sheetvol notes", [["title"], ["first"]])])
+                  [*new_columns(rng), words(["stop hit", "open", 1.5]),
+                   NewSheet("sheetvol notes", [["title"], ["first"]])])
     cols = new_columns(rng)
     cols[0].values[10] = np.nan  # a value that was there becomes blank
     write_package(Package.open(first), second,
-                  [*cols, NewSheet("sheetvol notes", [["title"], ["second"]])])
+                  [*cols, words([None, "target & <trail>"]),
+                   NewSheet("sheetvol notes", [["title"], ["second"]])])
     wb = openpyxl.load_workbook(second)
     ws = wb["Prices"]
-    assert ws.max_column == 10
+    assert ws.max_column == 11
     assert ws.cell(12, 7).value is None
     assert ws.cell(13, 7).value == cols[0].values[11]
+    assert [ws.cell(r, 11).value for r in range(1, 5)] == ["outcome", None, "target & <trail>",
+                                                           None]
     assert wb.sheetnames.count("sheetvol notes") == 1
     assert wb["sheetvol notes"]["A2"].value == "second"
-    assert len(ws.tables["PriceTable"].tableColumns) == 10
+    assert len(ws.tables["PriceTable"].tableColumns) == 11
     # styles are reused, not appended again
     assert parts(second)["xl/styles.xml"] == parts(first)["xl/styles.xml"]

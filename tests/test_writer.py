@@ -8,6 +8,7 @@ order within a row, array formulas with a ref).
 
 from __future__ import annotations
 
+import datetime as dt
 import re
 import zipfile
 from pathlib import Path
@@ -23,6 +24,7 @@ from sheetvol.workbook import (
     NewSheet,
     Package,
     SpillResult,
+    Styled,
     WorkbookError,
     write_package,
 )
@@ -124,6 +126,95 @@ def test_insert_left_of_existing_cells(tmp_path: Path) -> None:
     # replace=True dropped the old Close values in B from the header row down,
     # including the formulas below (they were in column B)
     assert ws["B7"].value is None
+
+
+# Text for a new column: XML's five escapes (&, <, > and quotes; W3C XML 1.0, 2.4), outer
+# spaces (kept only with xml:space="preserve", XML 1.0 2.10) and non-ASCII text.
+TEXTS = ["stop hit", ' a < b & "c" > d ', "σ × 2 — naïve", "tab\there"]
+
+
+def text_column() -> np.ndarray:
+    """Rows 2-10 of column D: text, numbers and each kind of blank (NaN, None, "")."""
+    return np.array([TEXTS[0], 1.25, np.nan, None, "", TEXTS[1], TEXTS[2], 7, TEXTS[3]],
+                    dtype=object)
+
+
+def check_text_column(ws) -> None:
+    want = [TEXTS[0], 1.25, None, None, None, TEXTS[1], TEXTS[2], 7, TEXTS[3]]
+    assert [ws.cell(r, 4).value for r in range(2, 11)] == want
+
+
+def test_text_in_new_column(tmp_path: Path) -> None:
+    src = book(tmp_path / "in.xlsx", rows=4)  # E8 holds 42: row 8 gets D before it
+    out = tmp_path / "out.xlsx"
+    write_package(Package.open(src), out, [NewColumn("Data", 4, 1, "Result", 2, text_column(),
+                                                     "0.00", width=20.0)])
+    xml = sheet_xml(out)
+    check_order(xml)
+    ws = openpyxl.load_workbook(out)["Data"]
+    check_text_column(ws)
+    assert ws["D2"].number_format == ws["D3"].number_format == "0.00"
+    assert ws["E8"].value == 42 and ws["B7"].value == "=SV_ATR(B2:B9,3)"
+    for r in (4, 5, 6):  # NaN, None and "" give no cell at all
+        assert f'r="D{r}"'.encode() not in xml
+    assert (b'<t xml:space="preserve"> a &lt; b &amp; &quot;c&quot; &gt; d </t>'
+            in xml)
+    assert "<t>σ × 2 — naïve</t>".encode() in xml
+    # a list works too; a second write replaces text by numbers (and back)
+    again = tmp_path / "again.xlsx"
+    write_package(Package.open(out), again, [NewColumn("Data", 4, 1, "R", 2, [0.5, "x"], "0.0")])
+    ws = openpyxl.load_workbook(again)["Data"]
+    assert [ws.cell(r, 4).value for r in range(1, 11)] == ["R", 0.5, "x"] + [None] * 7
+    # anything else is refused, naming the column and the row
+    bad = np.array([1.0, dt.date(2024, 4, 11)], dtype=object)
+    with pytest.raises(WorkbookError, match=r"column D \('Result'\): the value for row 3 is "
+                                            r"date"):
+        write_package(Package.open(src), tmp_path / "x.xlsx",
+                      [NewColumn("Data", 4, 1, "Result", 2, bad, "0.00")])
+
+
+@pytest.mark.slow
+def test_text_in_new_column_through_libreoffice(tmp_path: Path, libreoffice) -> None:
+    """LibreOffice re-saves the text cells with the same text (its own writer, read back)."""
+    src = book(tmp_path / "in.xlsx", rows=4)
+    out = tmp_path / "out.xlsx"
+    write_package(Package.open(src), out, [NewColumn("Data", 4, 1, "Result", 2, text_column(),
+                                                     "0.00")])
+    ws = openpyxl.load_workbook(libreoffice(out))["Data"]
+    check_text_column(ws)
+    assert ws["D1"].value == "Result" and ws["E8"].value == 42
+
+
+def test_new_sheet_number_formats(tmp_path: Path) -> None:
+    src = book(tmp_path / "in.xlsx")
+    out = tmp_path / "out.xlsx"
+    rows = [["Item", Styled("Value", "@")],
+            ["share", Styled(0.25, "0.0%")],
+            ["R", Styled(0.3449368474971529, "0.00")],
+            ["day", Styled(dt.date(2024, 4, 11), "yyyy-mm-dd")],
+            ["money", Styled(1234.5, "#,##0.00")],
+            ["plain", 3.5]]
+    with zipfile.ZipFile(src) as zf:
+        styles_before = zf.read("xl/styles.xml").decode()
+    write_package(Package.open(src), out, [NewSheet("Review", rows)])
+    ws = openpyxl.load_workbook(out)["Review"]
+    got = [(ws.cell(r, 2).value, ws.cell(r, 2).number_format) for r in range(1, 7)]
+    assert got == [("Value", "@"), (0.25, "0.0%"), (0.3449368474971529, "0.00"),
+                   (dt.datetime(2024, 4, 11), "yyyy-mm-dd"), (1234.5, "#,##0.00"),
+                   (3.5, "General")]
+    assert ws["B1"].font.b is True and ws["B2"].font.b is not True
+    # the date is the serial day number: 2024-01-01 is 45292 in the 1900 system
+    # (ECMA-376 Part 1, 18.17.4.1), + 31 + 29 + 31 + 10 days = 45393
+    assert b"<v>45393</v>" in sheet_xml(out, "xl/worksheets/sheetvol1.xml")
+    with zipfile.ZipFile(out) as zf:
+        styles = zf.read("xl/styles.xml").decode()
+    xfs = re.compile(r"<cellXfs[^>]*>(.*?)</cellXfs>", re.S)
+    assert xfs.search(styles)[1].startswith(xfs.search(styles_before)[1])  # nothing moved
+    # writing the same sheet again reuses the styles appended the first time
+    out2 = tmp_path / "out2.xlsx"
+    write_package(Package.open(out), out2, [NewSheet("Review", rows)])
+    with zipfile.ZipFile(out2) as zf:
+        assert zf.read("xl/styles.xml").decode() == styles
 
 
 def test_replace_false_refuses_to_overwrite(tmp_path: Path) -> None:

@@ -2,10 +2,11 @@
 
 Steps: fill workbooks/demo-desk.xlsx into a temporary folder (the README's demo
 command), make a print copy of the Trades sheet only (landscape, fit to one page
-wide, the log's exit/quantity/equity and the excursion columns hidden so the
-rest stays readable), convert that copy to PDF with LibreOffice headless, and
-turn page 1 into a PNG with pdftoppm (poppler-utils). The filled workbook itself
-is never changed; only the print copy carries the page settings.
+wide, the log's exit/quantity/equity, the excursion columns and the two note
+columns (blank in the demo) hidden so the rest stays readable), convert that
+copy to PDF with LibreOffice headless, and turn page 1 into a PNG with pdftoppm
+(poppler-utils). The filled workbook itself is never changed; only the print copy
+carries the page settings.
 
 Run ``python workbooks/render_picture.py`` (or ``--out PATH``) from the project root.
 """
@@ -29,8 +30,10 @@ from sheetvol.fill import fill_file  # noqa: E402
 
 DEMO = ROOT / "workbooks" / "demo-desk.xlsx"
 OUT = ROOT / "docs" / "img" / "trade-log.png"
-# exit, exit date, quantity, equity, target in R (1.5 throughout) and the excursions
-HIDDEN = ("E", "F", "G", "H", "M", "T", "U", "V", "W")
+# Headers of the columns hidden in the picture: the log's exit, exit date, quantity and
+# equity, the target in R (1.5 throughout), the excursions and the notes (blank in the demo)
+HIDDEN = ("Exit", "Exit date", "Quantity", "Equity", "Target in R", "Worst move", "Best move",
+          "Worst move in R", "Best move in R", "Size note", "Review note")
 
 
 def print_copy(filled: Path, dest: Path) -> None:
@@ -40,8 +43,9 @@ def print_copy(filled: Path, dest: Path) -> None:
         if name != "Trades":
             del wb[name]
     ws = wb["Trades"]
-    for letter in HIDDEN:
-        ws.column_dimensions[letter].hidden = True
+    for cell in ws[1]:
+        if cell.value in HIDDEN:
+            ws.column_dimensions[cell.column_letter].hidden = True
     ws.page_setup.orientation = "landscape"
     ws.page_setup.paperSize = ws.PAPERSIZE_A3
     ws.page_setup.fitToWidth = 1
@@ -54,7 +58,7 @@ def print_copy(filled: Path, dest: Path) -> None:
     wb.save(dest)
 
 
-def render(out: Path = OUT, resolution: int = 80) -> Path:
+def render(out: Path = OUT, resolution: int = 100) -> Path:
     """Fill the demo, print the Trades sheet to PDF and page 1 to ``out`` (PNG)."""
     with tempfile.TemporaryDirectory(prefix="sv-render-") as tmp:
         t = Path(tmp)
@@ -87,6 +91,6 @@ def render(out: Path = OUT, resolution: int = 80) -> Path:
 if __name__ == "__main__":
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--out", type=Path, default=OUT)
-    parser.add_argument("--resolution", type=int, default=80)
+    parser.add_argument("--resolution", type=int, default=100)
     args = parser.parse_args()
     print(render(args.out, args.resolution))

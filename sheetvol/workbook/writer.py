@@ -768,6 +768,10 @@ def column_values(values: object, where: str,
     >>> column_values(["stop hit", 1.5, None, ""], "x")
     (array([nan, 1.5, nan, nan]), {0: 'stop hit'})
     """
+    if not isinstance(values, np.ndarray):
+        as_array = np.asarray(values)  # a list of plain numbers takes the fast path too
+        if as_array.dtype.kind in "fiub":
+            values = as_array
     if isinstance(values, np.ndarray) and values.dtype.kind in "fiub":
         return np.asarray(values, dtype=np.float64).ravel(), {}
     items = np.asarray(values, dtype=object).ravel()
