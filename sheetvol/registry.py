@@ -306,6 +306,14 @@ _SMOOTHING = Param(
 _WIDTH = Param("width", "number", "band half-width in deviations", 2.0, 0, 100, low_inclusive=False)
 _SIDE = Param("side", "choice", "trade direction", "long", choices=("long", "short", "buy", "sell"))
 
+_DATES = Param("dates", "dates", "dates of the bars, oldest first")
+_ENTRY_DATE = Param(
+    "entry_date",
+    "date",
+    "entry date (the trade is entered at the close of the last bar on or before it)",
+)
+_ENTRY_PRICE = Param("entry_price", "number", "entry price")
+
 _K = "sheetvol.kernels"
 
 FUNCTIONS: tuple[Function, ...] = (
@@ -646,16 +654,12 @@ FUNCTIONS: tuple[Function, ...] = (
         "Trailing stop after the last bar: best price since entry less a multiple of current "
         "volatility; never loosens.",
         (
-            Param("dates", "dates", "dates of the bars, oldest first"),
+            _DATES,
             _HIGH,
             _LOW,
             _CLOSE,
-            Param(
-                "entry_date",
-                "date",
-                "entry date (the trade is entered at the close of the last bar on or before it)",
-            ),
-            Param("entry_price", "number", "entry price"),
+            _ENTRY_DATE,
+            _ENTRY_PRICE,
             _SIDE,
             Param(
                 "multiple",
@@ -687,17 +691,13 @@ FUNCTIONS: tuple[Function, ...] = (
         "Outcome of a trade from the bars after entry: which level was hit first, exit price "
         "and date, R, bars held, excursions.",
         (
-            Param("dates", "dates", "dates of the bars, oldest first"),
+            _DATES,
             _OPEN,
             _HIGH,
             _LOW,
             _CLOSE,
-            Param(
-                "entry_date",
-                "date",
-                "entry date (the trade is entered at the close of the last bar on or before it)",
-            ),
-            Param("entry_price", "number", "entry price"),
+            _ENTRY_DATE,
+            _ENTRY_PRICE,
             _SIDE,
             Param("stop", "number", "initial stop price"),
             Param("target", "number", "target price"),
