@@ -35,9 +35,9 @@ from sheetvol.locate import (
     HeaderMatch,
     LocateError,
     col_letter,
-    col_number,
     find_header,
     normalize_header,
+    still_headed,
 )
 from sheetvol.notes import (
     CAUTION_LINE,
@@ -509,14 +509,7 @@ def _own_columns(match: HeaderMatch, recorded: Mapping[str, str],
     Recognised from the notes sheet's record (letter and header must still
     agree) or, when the notes sheet is gone, by a header we would write now.
     """
-    own: dict[int, str] = {}
-    for letter, header in recorded.items():
-        try:
-            col = col_number(letter)
-        except ValueError:
-            continue
-        if match.headers.get(col) == header:
-            own[col] = header
+    own = still_headed(recorded, match.headers)
     ours = {s.header for s in specs}
     own.update({col: text for col, text in match.headers.items() if text in ours})
     used = set(match.columns.values())

@@ -13,6 +13,7 @@ from __future__ import annotations
 import re
 from collections.abc import Mapping
 from dataclasses import dataclass, field
+from typing import Any
 
 __all__ = [
     "HEADER_SCAN_ROWS",
@@ -179,6 +180,27 @@ def col_number(letters: str) -> int:
             raise ValueError(f"{letters!r} is not a column letter")
         n = n * 26 + ord(ch) - 64
     return n
+
+
+
+def still_headed(recorded: Mapping[str, str], headers: Mapping[int, Any]) -> dict[int, str]:
+    """Columns from a record of ``letter -> header`` whose header cell still says so.
+
+    A fill records the columns it wrote; on a re-run only those whose header is
+    unchanged are taken as its own (a user may have moved or renamed them).
+
+    >>> still_headed({"G": "ATR 14", "ZZZ9": "x", "H": "gone"}, {7: "ATR 14", 8: "mine"})
+    {7: 'ATR 14'}
+    """
+    own: dict[int, str] = {}
+    for letter, header in recorded.items():
+        try:
+            col = col_number(letter)
+        except ValueError:
+            continue
+        if headers.get(col) == header:
+            own[col] = header
+    return own
 
 
 def _text_cells(cells: Mapping[int, object]) -> dict[int, str]:

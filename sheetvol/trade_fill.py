@@ -23,7 +23,12 @@ import numpy as np
 import pandas as pd
 
 from sheetvol import cells
-from sheetvol.locate import HEADER_SCAN_ROWS, col_letter, col_number, normalize_header
+from sheetvol.locate import (
+    HEADER_SCAN_ROWS,
+    col_letter,
+    normalize_header,
+    still_headed,
+)
 from sheetvol.notes import NOTES_SHEET
 from sheetvol.recipe import TradeRecipe, check_measure, default_header
 from sheetvol.trades import (
@@ -408,14 +413,7 @@ def _read_log(pkg: Package, log: TradeLog) -> tuple[pd.DataFrame, Any]:
 def _own_columns(log: TradeLog, grid: Any, recorded: Mapping[str, str]) -> dict[int, str]:
     """Columns an earlier fill wrote right of the log: col -> header."""
     header_cells = grid.rows.get(log.header_row, {})
-    own: dict[int, str] = {}
-    for letter, header in recorded.items():
-        try:
-            col = col_number(letter)
-        except ValueError:
-            continue
-        if header_cells.get(col) == header:
-            own[col] = header
+    own = still_headed(recorded, header_cells)
     for col, value in header_cells.items():
         if isinstance(value, str) and OWN_HEADER.match(value):
             own[col] = value
