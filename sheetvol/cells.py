@@ -45,6 +45,11 @@ EPOCH_1900 = dt.datetime(1899, 12, 30)
 EPOCH_1904 = dt.datetime(1904, 1, 1)
 
 _NUMBER = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?$")
+# Numbers with thousands separators: groups of exactly three digits (key: decimal comma).
+_GROUPED = {
+    False: re.compile(r"^[+-]?\d{1,3}(,\d{3})+(\.\d*)?$"),
+    True: re.compile(r"^[+-]?\d{1,3}(\.\d{3})+(,\d*)?$"),
+}
 
 
 class CellValueError(ValueError):
@@ -92,12 +97,20 @@ def to_number(value: Any, *, decimal_comma: bool = False) -> float:
         return float(value)
     if isinstance(value, str):
         text = value.strip().replace("\u00a0", "").replace(" ", "").replace("'", "")
-        if decimal_comma:
-            text = text.replace(".", "").replace(",", ".")
-        else:
-            text = text.replace(",", "")
         if text.startswith("(") and text.endswith(")"):  # accounting negative
             text = "-" + text[1:-1]
+        thousands, decimal = (".", ",") if decimal_comma else (",", ".")
+        if thousands in text:
+            # A separator outside groups of three digits is the other decimal mark:
+            # reading "101,5" as 1015 would be silently wrong by a factor of ten.
+            if not _GROUPED[decimal_comma].match(text):
+                other = "a decimal comma" if thousands == "," else "a decimal point"
+                raise CellValueError(
+                    f"{value!r} is not a number here: its {thousands!r} is not a thousands "
+                    f"separator (is it {other}?)"
+                )
+            text = text.replace(thousands, "")
+        text = text.replace(decimal, ".")
         if _NUMBER.match(text):
             return float(text)
     raise CellValueError(f"{value!r} is not a number")

@@ -27,6 +27,8 @@ from typing import Any, Literal
 
 import numpy as np
 
+from sheetvol import cells
+
 ParamKind = Literal["series", "dates", "date", "whole", "number", "choice", "text"]
 Shape = Literal["series", "scalar"]
 Unit = Literal["price", "percent", "ratio", "quantity", "date", "text", "number"]
@@ -81,6 +83,8 @@ class Param:
         if self.kind in ("whole", "number"):
             noun = "a whole number" if self.kind == "whole" else "a number"
             if self.low is not None and self.high is not None:
+                if not self.low_inclusive:
+                    return f"{noun} above {_fmt(self.low)}, up to {_fmt(self.high)}"
                 return f"{noun} from {_fmt(self.low)} to {_fmt(self.high)}"
             if self.low is not None:
                 return f"{noun} {'of at least' if self.low_inclusive else 'above'} {_fmt(self.low)}"
@@ -181,8 +185,15 @@ class Function:
         if p.kind == "choice":
             text = str(value).strip().lower()
             if text not in p.choices:
+                # A number where a word belongs is usually an argument in the wrong slot.
+                order = (
+                    f" (argument order: {self.name}({', '.join(q.name for q in self.params)}))"
+                    if _as_number(value) is not None
+                    else ""
+                )
                 raise ArgumentError(
-                    f"{self.name}: {p.name} must be {p.describe_range()}, got {value!r}"
+                    f"{self.name}: {p.name} must be {p.describe_range()}, got {_show(value)}"
+                    + order
                 )
             return text
         if p.kind in ("whole", "number"):
@@ -227,21 +238,19 @@ def _is_blank(value: Any) -> bool:
 
 
 def _as_number(value: Any) -> float | None:
-    if isinstance(value, bool):
+    """An option as a number (text numbers read as in cells), or None."""
+    if isinstance(value, bool) or not isinstance(value, (int, float, np.number, str)):
         return None
-    if isinstance(value, (int, float, np.integer, np.floating)):
-        return float(value)
-    if isinstance(value, str):
-        try:
-            return float(value.strip().replace(",", ""))
-        except ValueError:
-            return None
-    return None
+    try:
+        return cells.to_number(value)
+    except cells.CellValueError:
+        return None
 
 
 def _show(value: Any) -> str:
+    # Spreadsheets pass whole numbers as floats: show 1.0 as the user typed it, 1.
     if isinstance(value, float) and value.is_integer():
-        return repr(value)
+        return str(int(value))
     return repr(value) if isinstance(value, str) else str(value)
 
 
@@ -520,7 +529,7 @@ FUNCTIONS: tuple[Function, ...] = (
     Function(
         "SV_VOLRANK",
         "regime",
-        "Where today's reading stands among its own last N readings (0 = lowest, 1 = highest).",
+        "Where today's reading stands among its own last N readings: the share at or below it (1 = highest).",
         (
             Param("values", "series", "a volatility column, oldest first"),
             Param("lookback", "whole", "readings to compare against", 252, 2, 100_000),
@@ -596,9 +605,9 @@ FUNCTIONS: tuple[Function, ...] = (
             Param(
                 "risk",
                 "number",
-                "share of equity to risk, e.g. 0.01 for 1%",
+                "share of equity to risk per trade, e.g. 0.01 for 1% (at most 0.25)",
                 low=0,
-                high=1,
+                high=0.25,
                 low_inclusive=False,
             ),
             Param("entry", "number", "entry price"),

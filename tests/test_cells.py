@@ -33,6 +33,15 @@ def test_numbers_in_the_usual_spellings(text, expected):
 def test_decimal_comma_swaps_separators():
     assert cells.to_number("1.234,5", decimal_comma=True) == 1234.5
     assert cells.to_number("0,25", decimal_comma=True) == 0.25
+    assert cells.to_number("1.234.567", decimal_comma=True) == 1234567.0
+
+
+def test_the_other_decimal_mark_is_refused_not_misread():
+    # "101,5" is 101.5 written with a decimal comma; reading it as 1015 would be wrong.
+    with pytest.raises(CellValueError, match="is it a decimal comma"):
+        cells.to_number("101,5")
+    with pytest.raises(CellValueError, match="is it a decimal point"):
+        cells.to_number("101.25", decimal_comma=True)
 
 
 @pytest.mark.parametrize("blank", [None, "", "   ", "#N/A", "#DIV/0!", "n/a", "-", float("nan")])
@@ -40,7 +49,7 @@ def test_blanks_and_error_cells_become_nan(blank):
     assert math.isnan(cells.to_number(blank))
 
 
-@pytest.mark.parametrize("bad", ["abc", "12%", "$12", True])
+@pytest.mark.parametrize("bad", ["abc", "12%", "$12", True, "101,5", "1,23,456"])
 def test_text_that_is_not_a_number_is_refused(bad):
     with pytest.raises(CellValueError):
         cells.to_number(bad)

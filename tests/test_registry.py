@@ -68,6 +68,31 @@ def test_choice_message_lists_the_choices():
     assert 'one of "simple", "exponential", "wilder", "linear"' in str(err.value)
 
 
+def test_a_number_in_a_word_slot_shows_the_argument_order():
+    with pytest.raises(ArgumentError) as err:
+        registry.get("SV_BAND").bind(([1.0], 20, 2))
+    assert str(err.value) == (
+        'SV_BAND: line must be one of "upper", "middle", "lower", got 20 '
+        "(argument order: SV_BAND(prices, line, period, width, average, divisor))"
+    )
+
+
+def test_bounds_read_plainly_and_whole_floats_show_as_typed():
+    with pytest.raises(ArgumentError) as err:
+        registry.get("SV_BAND").bind(([1.0], "upper", 20, 0.0))
+    assert str(err.value) == "SV_BAND: width must be a number above 0, up to 100, got 0"
+    # Risk is a share of equity: typing 1 for "1 %" must not size the trade at 100 %.
+    with pytest.raises(ArgumentError, match=r"risk must be a number above 0, up to 0\.25, got 1$"):
+        registry.get("SV_SIZE").bind((100_000.0, 1.0, 100.0, 98.0))
+
+
+def test_option_text_numbers_follow_the_cell_rules():
+    # "1,5" is not 15: the same refusal as for a price cell.
+    with pytest.raises(ArgumentError, match="multiple must be"):
+        registry.get("SV_STOP").bind((100.0, 1.0, "1,5"))
+    assert registry.get("SV_SIZE").bind(("250,000", 0.01, 100.0, 98.0))["equity"] == 250000.0
+
+
 def test_required_argument_and_too_many_arguments():
     with pytest.raises(ArgumentError, match="SV_ATR: close is required"):
         registry.get("SV_ATR").bind(([1.0], [1.0]))
