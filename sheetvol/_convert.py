@@ -31,6 +31,8 @@ from sheetvol.registry import ArgumentError
 _PLAIN = frozenset({float, int, type(None), np.float64})
 _DATES = frozenset({dt.datetime, dt.date, pd.Timestamp, type(None)})
 _SERIAL_SHIFT_1904 = 1462.0  # days from 1899-12-30 to 1904-01-01
+_EPOCH_US = int(np.datetime64(cells.EPOCH_1900, "us").astype(np.int64))
+_US_PER_DAY = 86_400_000_000.0
 
 
 @dataclass(frozen=True)
@@ -101,6 +103,13 @@ def single(value: Any, *, func: str, param: str) -> Any:
     )
 
 
+def _block_error(func: str, param: str, rows: int, width: int) -> ArgumentError:
+    return ArgumentError(
+        f"{func}: {param} must be one column (or one row), got a block of "
+        f"{rows} rows x {width} columns; select a single column"
+    )
+
+
 def _line(value: Any, func: str, param: str) -> tuple[list[Any] | np.ndarray, bool]:
     """Flatten a column or row argument; refuse blocks wider than one column."""
     if isinstance(value, np.ndarray):
@@ -116,21 +125,74 @@ def _line(value: Any, func: str, param: str) -> tuple[list[Any] | np.ndarray, bo
         return [], False
     if not isinstance(value[0], (list, tuple)):
         return list(value), False  # a flat list: xlwings' form of a one-dimensional range
-    widths = set(map(len, value))
-    if widths == {1}:
-        return [r[0] for r in value], False
     if len(value) == 1:
-        return list(value[0]), True
+        return list(value[0]), len(value[0]) > 1
+    if len(value[0]) == 1 and len(value[-1]) == 1:
+        # Spreadsheet ranges are rectangular, so the first and last rows tell the width;
+        # checking every row's width cost as much as converting the column.
+        try:
+            return [r[0] for r in value], False
+        except IndexError:
+            pass  # ragged rows (not from a spreadsheet): judged row by row below
+    widths = set(map(len, value))
     width = max(widths)
     if width <= 1:  # ragged rows with empty ones: treat empty as blank
         return [r[0] if r else None for r in value], False
-    raise ArgumentError(
-        f"{func}: {param} must be one column (or one row), got a block of "
-        f"{len(value)} rows x {width} columns; select a single column"
-    )
+    raise _block_error(func, param, len(value), width)
 
 
-def column(value: Any, *, func: str, param: str, decimal_comma: bool = False) -> Column:
+def line_length(value: Any, *, func: str, param: str) -> int:
+    """Number of cells in a column (or row) argument, without converting them.
+
+    Only the shape is looked at (the first and last rows of a list of rows),
+    so this costs nothing on big ranges; a block wider than one column is
+    refused as :func:`column` refuses it.
+
+    Examples
+    --------
+    >>> line_length([[1.0], [2.0], [None]], func="SV_X", param="prices")
+    3
+    >>> line_length([[1.0, 2.0, 3.0]], func="SV_X", param="prices")
+    3
+    """
+    if isinstance(value, np.ndarray):
+        if value.ndim > 2 or (value.ndim == 2 and 1 not in value.shape):
+            _line(value, func, param)  # raises
+        return int(value.size)
+    if not isinstance(value, (list, tuple)):
+        return 1
+    if not value or not isinstance(value[0], (list, tuple)):
+        return len(value)
+    if len(value) == 1:
+        return len(value[0])
+    width = max(len(value[0]), len(value[-1]))
+    if width > 1:
+        raise _block_error(func, param, len(value), width)
+    return len(value)
+
+
+def line_slice(value: Any, start: int, stop: int) -> Any:
+    """Cells ``start`` to ``stop - 1`` of a column (or row) argument, in the same layout.
+
+    Examples
+    --------
+    >>> line_slice([[1.0], [2.0], [3.0]], 1, 3)
+    [[2.0], [3.0]]
+    >>> line_slice([[1.0, 2.0, 3.0]], 2, 3)
+    [[3.0]]
+    """
+    if isinstance(value, np.ndarray):
+        return value.reshape(-1)[start:stop]
+    if not isinstance(value, (list, tuple)):
+        return [value][start:stop]
+    if len(value) == 1 and isinstance(value[0], (list, tuple)):
+        return [list(value[0][start:stop])]
+    return value[start:stop]
+
+
+def column(
+    value: Any, *, func: str, param: str, decimal_comma: bool = False, first_item: int = 0
+) -> Column:
     """Convert a ``series`` argument to a float column (NaN for blanks).
 
     Numbers, blanks and error cells (which xlwings passes as None) take a
@@ -147,6 +209,10 @@ def column(value: Any, *, func: str, param: str, decimal_comma: bool = False) ->
         Function and argument names, for messages.
     decimal_comma : bool
         Read text numbers with a decimal comma.
+    first_item : int
+        Position of ``value``'s first cell in the whole range, when ``value``
+        is a part of it (:func:`line_slice`): messages count from there, and
+        only a part starting at the top can hold a header.
 
     Returns
     -------
@@ -179,12 +245,12 @@ def column(value: Any, *, func: str, param: str, decimal_comma: bool = False) ->
         try:
             out[i] = cells.to_number(v, decimal_comma=decimal_comma)
         except cells.CellValueError:
-            if isinstance(v, str) and not seen_number:
+            if isinstance(v, str) and not seen_number and first_item == 0:
                 out[i] = math.nan  # a header above the numbers
                 header = i if header is None else header
                 continue
             raise ArgumentError(
-                f"{func}: {param} item {i + 1} is {_show(v)}, not a number"
+                f"{func}: {param} item {first_item + i + 1} is {_show(v)}, not a number"
             ) from None
         seen_number = seen_number or not math.isnan(out[i])
     if header is not None and not seen_number:
@@ -226,8 +292,12 @@ def day_numbers(value: Any, *, func: str, param: str, date1904: bool = False) ->
         if stamps is not None:
             if stamps.tz is not None:
                 stamps = stamps.tz_localize(None)
-            days = (stamps - pd.Timestamp(cells.EPOCH_1900)) / pd.Timedelta(days=1)
-            return np.asarray(days, dtype=np.float64)
+            # Integer microseconds since the epoch, then one numpy division: cheaper than
+            # pandas' own timedelta arithmetic (NaT, from None, becomes NaN).
+            micros = stamps.as_unit("us").asi8
+            days = (micros - _EPOCH_US) / _US_PER_DAY
+            days[stamps.isna()] = math.nan
+            return days
     out = np.empty(len(flat), dtype=np.float64)
     seen = False
     header: int | None = None

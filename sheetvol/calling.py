@@ -9,7 +9,11 @@ xlwings add-in (:mod:`sheetvol.addin`) and the headless formula evaluator
 * ``NAME_ON(date, dates, ...)`` returns the value on the last usable bar dated
   on or before ``date`` (never a later bar), computing in date order;
 * scalar functions (trade levels, sizes) work on single values, or row by row
-  when given ranges.
+  when given ranges (a bad row gets its message in its own cell).
+
+``_LAST`` and ``_ON`` of a window function (see :data:`TAIL_BARS`) convert and
+compute only the bars its value depends on, so a filled-down column of them
+does not re-read the whole range for every cell.
 
 Arguments arrive as the spreadsheet holds them (see :mod:`sheetvol._convert`).
 Every problem is raised as :class:`~sheetvol.registry.ArgumentError` whose
@@ -20,8 +24,7 @@ from __future__ import annotations
 
 import datetime as dt
 import math
-import threading
-from collections.abc import Sequence
+from collections.abc import Callable, Mapping, Sequence
 from typing import Any
 
 import numpy as np
@@ -110,6 +113,81 @@ def _rename(message: str, base: str, wname: str) -> str:
 
 
 # -- series functions -------------------------------------------------------------
+# How many usable bars the last value of a series function depends on, read from its
+# name and options; None when it depends on the whole history. Window functions (simple
+# or linearly weighted averages, deviation about them, bands on them, the estimators,
+# percentile rank) look back a fixed number of bars: their _LAST and _ON forms convert
+# and compute only that tail. Exponential and Wilder averages (and everything built on
+# them: Wilder ATR, ATR bands, deviation-to-ATR) carry the whole history in their
+# value, so they read whole columns. tests/test_addin.py checks every entry against the
+# full-column computation, and that every series function of the registry is listed.
+_WINDOW_AVERAGES = ("simple", "linear")
+
+
+def _by_average(option: str) -> Callable[[Mapping[str, Any]], int | None]:
+    return lambda o: o["period"] if o[option] in _WINDOW_AVERAGES else None
+
+
+def _simple_atr(o: Mapping[str, Any]) -> int | None:
+    # period true ranges, the first of which needs the close before it.
+    return o["period"] + 1 if o["smoothing"] == "simple" else None
+
+
+TAIL_BARS: dict[str, Callable[[Mapping[str, Any]], int | None]] = {
+    "SV_AVERAGE": _by_average("kind"),
+    "SV_PRICE": lambda o: 1,  # one bar
+    "SV_DEVIATION": _by_average("average"),
+    "SV_TRUERANGE": lambda o: 2,  # the bar and the close before it
+    "SV_ATR": _simple_atr,
+    "SV_ATRPCT": _simple_atr,
+    "SV_BAND": _by_average("average"),
+    "SV_PCTB": _by_average("average"),
+    "SV_BANDWIDTH": _by_average("average"),
+    "SV_ATRBAND": lambda o: None,  # exponential middle line and Wilder ATR
+    "SV_ENVELOPE": _by_average("average"),
+    "SV_CLOSEVOL": lambda o: o["period"] + 1,  # period returns need period + 1 closes
+    "SV_PARKINSON": lambda o: o["period"],
+    "SV_GARMANKLASS": lambda o: o["period"],
+    "SV_ROGERSSATCHELL": lambda o: o["period"],
+    "SV_YANGZHANG": lambda o: o["period"] + 1,  # overnight returns need the close before
+    "SV_VOLRANK": lambda o: o["lookback"],
+    "SV_DEVATR": lambda o: None,  # Wilder ATR
+}
+# Estimators take logarithms: a price <= 0 is a gap for them, so it does not count as a
+# usable bar of the tail either.
+_LOGGED = frozenset({"SV_CLOSEVOL", "SV_PARKINSON", "SV_GARMANKLASS", "SV_ROGERSSATCHELL",
+                     "SV_YANGZHANG"})
+
+
+def tail_bars(func: Function, options: Mapping[str, Any]) -> int | None:
+    """Usable bars that the last value of ``func`` depends on; None for the whole history.
+
+    Parameters
+    ----------
+    func : Function
+        A series function of the registry.
+    options : mapping
+        Its bound options (``Function.bind``), defaults filled in.
+
+    Returns
+    -------
+    int or None
+        The window (plus one bar when the first value of the window needs the
+        close before it), or None for recursive averages and for any function
+        not in the table.
+
+    Examples
+    --------
+    >>> from sheetvol.registry import get
+    >>> tail_bars(get("SV_DEVIATION"), {"period": 14, "average": "simple"})
+    14
+    >>> tail_bars(get("SV_ATR"), {"period": 14, "smoothing": "wilder"}) is None
+    True
+    """
+    rule = TAIL_BARS.get(func.name)
+    return None if rule is None else rule(options)
+
+
 def _call_series(
     func: Function, variant: Variant, wname: str, args: list[Any], date1904: bool,
     decimal_comma: bool,
@@ -117,33 +195,129 @@ def _call_series(
     if variant == "on":
         date_arg, dates_arg, args = args[0], args[1], args[2:]
     options: dict[str, Any] = {}
-    raw_columns: dict[str, Any] = {}
+    raw: dict[str, Any] = {}
     for p, a in zip(func.params, args, strict=True):
         if p.is_column:
-            raw_columns[p.name] = a
+            raw[p.name] = a
         else:
             options[p.name] = _option(p, a, wname, date1904)
     # bind() validates options and notices missing columns; columns are converted below.
-    given = {k: (None if a is None else 0.0) for k, a in raw_columns.items()}
+    given = {k: (None if a is None else 0.0) for k, a in raw.items()}
     bound = func.bind((), {**given, **options})
-    columns: dict[str, FloatArray] = {}
-    horizontal = False
-    for k, a in raw_columns.items():
-        col = _convert.column(a, func=wname, param=k, decimal_comma=decimal_comma)
-        columns[k] = col.values
-        horizontal = horizontal or col.horizontal
-    _same_height(wname, columns)
-    opts = {k: v for k, v in bound.items() if k not in columns}
+    opts = {k: v for k, v in bound.items() if k not in raw}
+    reader = _Reader(func, wname, raw, decimal_comma)
 
     if variant == "column":
+        columns, horizontal = reader.whole()
+        _check_high_low(wname, columns)
         out = _compute(func, wname, columns, opts)
         return out.reshape(1, -1) if horizontal else out
+    need = tail_bars(func, opts)
     if variant == "last":
-        n = len(next(iter(columns.values())))
-        if n == 0:
+        if reader.height == 0:
             return None
-        return _convert.to_cell(_cached(func, wname, columns, opts)[n - 1])
-    return _on(func, wname, columns, opts, date_arg, dates_arg, date1904)
+        part = reader.tail(reader.height, need) if need is not None else None
+        if part is None:
+            columns, _ = reader.whole()
+            part = columns, np.arange(reader.height)
+        _check_high_low(wname, *part)
+        return _convert.to_cell(_compute(func, wname, part[0], opts)[-1])
+    return _on(reader, opts, need, date_arg, dates_arg, date1904)
+
+
+class _Reader:
+    """The column arguments of one call, converted whole or only at the end."""
+
+    def __init__(self, func: Function, wname: str, raw: dict[str, Any],
+                 decimal_comma: bool) -> None:
+        self.func, self.wname, self.raw, self.decimal_comma = func, wname, raw, decimal_comma
+        heights = {k: _convert.line_length(a, func=wname, param=k) for k, a in raw.items()}
+        _same_height(wname, heights)
+        self.height = next(iter(heights.values()), 0)
+
+    def whole(self) -> tuple[dict[str, FloatArray], bool]:
+        columns: dict[str, FloatArray] = {}
+        horizontal = False
+        for k, a in self.raw.items():
+            col = _convert.column(a, func=self.wname, param=k, decimal_comma=self.decimal_comma)
+            columns[k] = col.values
+            horizontal = horizontal or col.horizontal
+        return columns, horizontal
+
+    def tail(
+        self, stop: int, need: int, dated: np.ndarray | None = None
+    ) -> tuple[dict[str, FloatArray], np.ndarray] | None:
+        """Convert only rows up to ``stop`` back to the ``need``-th last usable bar.
+
+        Rows are converted in growing chunks from ``stop`` upwards until enough
+        usable bars (every price finite, and positive for the estimators; with
+        ``dated``, also dated) have been seen or the top is reached. Returns the
+        columns and their row numbers (0-based in the ranges), or None when a
+        cell cannot be judged without the rows above it (text that could be a
+        header): the caller then converts whole columns, which also gives the
+        exact message for a bad cell.
+        """
+        logged = self.func.name in _LOGGED
+        parts: dict[str, list[FloatArray]] = {k: [] for k in self.raw}
+        seen, start, size = 0, stop, max(2 * need, 64)
+        while start > 0 and seen < need:
+            end, start = start, max(0, start - size)
+            try:
+                chunk = {
+                    k: _convert.column(_convert.line_slice(a, start, end), func=self.wname,
+                                       param=k, decimal_comma=self.decimal_comma,
+                                       first_item=start).values
+                    for k, a in self.raw.items()
+                }
+            except ArgumentError:
+                return None
+            for k, v in chunk.items():
+                parts[k].append(v)
+            ok = _usable(chunk.values(), logged)
+            if dated is not None:
+                ok &= dated[start:end]
+            seen += int(ok.sum())
+            size *= 2
+        columns = {k: np.concatenate(v[::-1]) for k, v in parts.items()}
+        rows = np.arange(start, stop)
+        ok = _usable(columns.values(), logged)
+        if dated is not None:
+            keep = dated[start:stop]
+            columns = {k: v[keep] for k, v in columns.items()}
+            rows, ok = rows[keep], ok[keep]
+        usable = np.flatnonzero(ok)
+        if len(usable) >= need:
+            cut = usable[-need]
+            columns = {k: v[cut:] for k, v in columns.items()}
+            rows = rows[cut:]
+        return columns, rows
+
+
+def _usable(columns: Any, positive: bool = False) -> np.ndarray:
+    ok: np.ndarray | None = None
+    for v in columns:
+        good = np.isfinite(v)
+        if positive:
+            with np.errstate(invalid="ignore"):
+                good &= v > 0
+        ok = good if ok is None else ok & good
+    assert ok is not None
+    return ok
+
+
+def _check_high_low(wname: str, columns: Mapping[str, FloatArray],
+                    rows: np.ndarray | None = None) -> None:
+    """Refuse a usable bar whose high is below its low: the columns are likely swapped."""
+    if "high" not in columns or "low" not in columns:
+        return
+    series = [v for k, v in columns.items() if k != "dates"]
+    with np.errstate(invalid="ignore"):
+        bad = np.flatnonzero(_usable(series) & (columns["high"] < columns["low"]))
+    if bad.size:
+        row = int(bad[0] if rows is None else rows[bad[0]]) + 1
+        raise ArgumentError(
+            f"{wname}: high is below low on row {row} of the ranges (are the columns swapped?)"
+        )
 
 
 def _option(p: Param, value: Any, wname: str, date1904: bool) -> Any:
@@ -153,13 +327,11 @@ def _option(p: Param, value: Any, wname: str, date1904: bool) -> Any:
     return v
 
 
-def _same_height(wname: str, columns: dict[str, FloatArray]) -> None:
-    heights = {k: len(v) for k, v in columns.items()}
+def _same_height(wname: str, heights: Mapping[str, int]) -> None:
     if len(set(heights.values())) > 1:
-        names = list(heights)
         raise ArgumentError(
             f"{wname}: the ranges differ in height ("
-            + ", ".join(f"{k} {heights[k]}" for k in names)
+            + ", ".join(f"{k} {h}" for k, h in heights.items())
             + " rows); give ranges covering the same rows"
         )
 
@@ -175,21 +347,26 @@ def _compute(func: Function, wname: str, columns: dict[str, FloatArray], opts: d
 
 
 def _on(
-    func: Function, wname: str, columns: dict[str, FloatArray], opts: dict,
-    date_arg: Any, dates_arg: Any, date1904: bool,
+    reader: _Reader, opts: dict, need: int | None, date_arg: Any, dates_arg: Any,
+    date1904: bool,
 ) -> Result:
+    func, wname, n = reader.func, reader.wname, reader.height
     if date_arg is None:
         raise ArgumentError(f"{wname}: date is required (the date to read the value on)")
     target = _convert.day_number(date_arg, func=wname, param="date", date1904=date1904)
     days = _convert.day_numbers(dates_arg, func=wname, param="dates", date1904=date1904)
-    n = len(next(iter(columns.values())))
     if len(days) != n:
         raise ArgumentError(
             f"{wname}: dates has {len(days)} rows but the price ranges have {n}; "
             "give ranges covering the same rows"
         )
-    dated = np.flatnonzero(np.isfinite(days))
-    order = dated[np.argsort(days[dated], kind="stable")]
+    dated = np.isfinite(days)
+    dated_rows = np.flatnonzero(dated)
+    ascending = bool(np.all(np.diff(days[dated_rows]) > 0))
+    if ascending:  # oldest first, each date once: the usual layout, no sorting needed
+        order = dated_rows
+    else:
+        order = dated_rows[np.argsort(days[dated_rows], kind="stable")]
     sorted_days = days[order]
     same = np.flatnonzero(np.diff(sorted_days) == 0)
     if same.size:
@@ -201,15 +378,25 @@ def _on(
     if pos < 0:
         first = f"; the first date is {_show_day(sorted_days[0])}" if len(sorted_days) else ""
         raise ArgumentError(f"{wname}: no bar on or before {_show_day(target)}{first}")
-    ordered = {k: v[order] for k, v in columns.items()}
-    usable = np.ones(pos + 1, dtype=bool)
-    for v in ordered.values():
-        usable &= np.isfinite(v[: pos + 1])
-    rows = np.flatnonzero(usable)
-    if rows.size == 0:
+    part = None
+    if ascending and need is not None:
+        part = reader.tail(int(order[pos]) + 1, need, dated)
+    if part is None:
+        whole, _ = reader.whole()
+        rows = order[: pos + 1]
+        if need is not None:  # a window function: its value needs only the last bars
+            ok = np.flatnonzero(_usable((v[rows] for v in whole.values()),
+                                        func.name in _LOGGED))
+            if len(ok) >= need:
+                rows = rows[ok[-need]:]
+        part = {k: v[rows] for k, v in whole.items()}, rows
+    columns, rows = part
+    _check_high_low(wname, columns, rows)
+    usable = np.flatnonzero(_usable(columns.values()))
+    if usable.size == 0:
         return None
-    out = _cached(func, wname, ordered, opts)
-    return _convert.to_cell(out[rows[-1]])
+    out = _compute(func, wname, columns, opts)
+    return _convert.to_cell(out[usable[-1]])
 
 
 def _show_day(day: float) -> str:
@@ -217,80 +404,6 @@ def _show_day(day: float) -> str:
     if when.hour or when.minute or when.second:
         return when.strftime("%Y-%m-%d %H:%M")
     return when.strftime("%Y-%m-%d")
-
-
-# -- the column cache for _LAST and _ON ---------------------------------------------
-class _PrefixCache:
-    """Recent full-column results, reused when new inputs are a prefix of cached ones.
-
-    Every series kernel is causal (the value on row i depends only on rows up
-    to i; a test checks this for each function), so the result for the first
-    m rows of a longer input is the first m values of its result. A column of
-    ``_LAST`` formulas filled down over ``$E$2:E10``, ``$E$2:E11``, ... then
-    computes the column once per recalculation instead of once per cell, and
-    ``_ON`` formulas of a trade log over the same columns share one result.
-    Values agree with a fresh computation to rounding (a kernel that centres
-    data on a value of the whole input for accuracy can differ in the last
-    bits; measured 4e-16 relative).
-    """
-
-    def __init__(self, size: int = 8) -> None:
-        self.size = size
-        self._entries: list[tuple[tuple, tuple[FloatArray, ...], FloatArray]] = []
-        self._lock = threading.Lock()
-        self.hits = 0
-        self.misses = 0
-
-    def get(self, key: tuple, inputs: tuple[FloatArray, ...]) -> FloatArray | None:
-        m = len(inputs[0])
-        with self._lock:
-            for i, (k, cached, out) in enumerate(self._entries):
-                if k != key or len(cached[0]) < m:
-                    continue
-                if _is_prefix(inputs, cached):
-                    self._entries.insert(0, self._entries.pop(i))
-                    self.hits += 1
-                    return out[:m]
-            self.misses += 1
-        return None
-
-    def put(self, key: tuple, inputs: tuple[FloatArray, ...], out: FloatArray) -> None:
-        m = len(inputs[0])
-        with self._lock:
-            # Entries that are prefixes of the new inputs are now redundant.
-            self._entries = [
-                e for e in self._entries
-                if not (e[0] == key and len(e[1][0]) <= m and _is_prefix(e[1], inputs))
-            ]
-            # The inputs were converted for this call alone, so they are not copied.
-            self._entries.insert(0, (key, inputs, out))
-            del self._entries[self.size:]
-
-    def clear(self) -> None:
-        with self._lock:
-            self._entries.clear()
-            self.hits = self.misses = 0
-
-
-def _is_prefix(short: tuple[FloatArray, ...], long: tuple[FloatArray, ...]) -> bool:
-    m = len(short[0])
-    return all(
-        np.array_equal(a, b[:m], equal_nan=True) for a, b in zip(short, long, strict=True)
-    )
-
-
-CACHE = _PrefixCache()
-
-
-def _cached(func: Function, wname: str, columns: dict[str, FloatArray], opts: dict) -> FloatArray:
-    key = (func.name, tuple(columns), tuple(sorted(opts.items())))
-    inputs = tuple(columns.values())
-    hit = CACHE.get(key, inputs)
-    if hit is not None:
-        return hit
-    out = _compute(func, wname, columns, opts)
-    CACHE.put(key, inputs, out)
-    return out
 
 
 # -- scalar functions -----------------------------------------------------------------
@@ -315,7 +428,9 @@ def _call_scalar(
             values, horiz = _convert._line(a, wname, p.name)
             lines[i] = list(values)
             horizontal = horizontal or horiz
-    _same_height(wname, {func.params[i].name: v for i, v in fixed.items() if v is not None})
+    given = {func.params[i].name: v for i, v in fixed.items() if v is not None}
+    _same_height(wname, {k: len(v) for k, v in given.items()})
+    _check_high_low(wname, {k: v for k, v in given.items() if func.param(k).kind == "series"})
 
     def one(row: list[Any]) -> Any:
         values = []
@@ -337,6 +452,12 @@ def _call_scalar(
         raise ArgumentError(
             f"{wname}: the ranges differ in height; give ranges covering the same rows"
         )
+    # A single value applies to every row: a bad one is the whole call's error.
+    for i, (p, a) in enumerate(zip(func.params, args, strict=True)):
+        if i not in fixed and i not in lines:
+            v = _option(p, a, wname, date1904)
+            if not cells.is_blank(v):
+                func.check(p, v)
     n = heights.pop()
     results: list[Any] = [None] * n
     required = [p.required and not p.is_column for p in func.params]
@@ -348,7 +469,8 @@ def _call_scalar(
         try:
             results[r] = one(row)
         except ArgumentError as exc:
-            raise ArgumentError(f"{exc} (row {r + 1} of the ranges)") from None
+            # Only this trade's cell shows the problem; the other rows keep their values.
+            results[r] = _convert.to_cell(str(exc))
     if any(isinstance(v, str) for v in results):
         out: np.ndarray = np.array(results, dtype=object)
     else:

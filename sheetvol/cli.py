@@ -75,10 +75,13 @@ Default columns:
 
 FILL_EPILOG = """\
 rows the fill skips or leaves blank:
-  blank rows; dated rows without prices (holidays); summary and footer rows
-  ("Total", "Average", or anything without a date after the last bar); price
-  cells holding errors (#N/A) or blank words ("n/a", "-") are gaps: that
-  bar's results are blank and the windows continue over the other bars.
+  skipped: blank rows; dated rows without prices (holidays) or with only
+  error values or blank words in the price cells; summary and footer rows
+  ("Total", "Average", or anything without a date after the last bar).
+  Gaps: on a kept bar, a blank price cell, an error (#N/A) or a blank word
+  ("n/a", "-"); the columns that need that price are blank on that bar and
+  their windows continue over the other bars. The summary counts each
+  skipped row and each gap bar once.
   Text that is not a number ("abc"), High below Low, the same date twice or
   an unreadable date stop the fill with the cell named; nothing is written.
 
@@ -232,7 +235,8 @@ def build_parser() -> argparse.ArgumentParser:
                        help='add a "sheetvol charts" sheet: close with the bands, and '
                             "dispersion with ATR, as native charts")
     extra.add_argument("-q", "--quiet", action="store_true",
-                       help="no progress bar and no summary; errors are still shown")
+                       help="no progress bar and no summary; errors are still shown (the "
+                            "bar, on stderr, appears only on a terminal for large fills)")
 
     funcs = sub.add_parser(
         "functions",

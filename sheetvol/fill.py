@@ -21,9 +21,12 @@ import shutil
 import sys
 import tempfile
 import warnings
+import zipfile
+from collections import Counter
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -32,11 +35,13 @@ from sheetvol import cells, registry
 from sheetvol.frame import ComputeError, compute_columns, needed_roles
 from sheetvol.locate import (
     HEADER_SCAN_ROWS,
+    ColumnFlagError,
     HeaderMatch,
     LocateError,
     col_letter,
     find_header,
     normalize_header,
+    role_of,
     still_headed,
 )
 from sheetvol.notes import (
@@ -61,7 +66,6 @@ from sheetvol.recipe import ColumnSpec, RecipeError, TradeRecipe, default_specs
 from sheetvol.trade_fill import (
     REVIEW_SHEET,
     TRADE_CAUTION_LINE,
-    TRADE_CAUTIONS,
     TradeLog,
     TradeLogError,
     TradeReport,
@@ -92,7 +96,9 @@ CHART_SHEET = "sheetvol charts"
 OWN_SHEETS = {NOTES_SHEET.casefold(), CHART_SHEET.casefold(), REVIEW_SHEET.casefold()}
 WORKBOOK_SUFFIXES = {".xlsx", ".xlsm"}
 TEXT_SUFFIXES = {".csv", ".txt", ".tsv"}
-PROGRESS_MIN_ROWS = 20_000
+# A progress bar only for fills that take a while: price sheets holding at least this much
+# XML (about 20,000 rows of dates and OHLCV prices).
+PROGRESS_MIN_BYTES = 4_000_000
 
 
 class FillError(ValueError):
@@ -149,6 +155,7 @@ class SheetReport:
     written: list[WrittenColumn] = field(default_factory=list)
     replaced: int = 0
     long_sheet: str = ""  # instruments of one long price sheet: read for the trade review only
+    gaps: Counter = field(default_factory=Counter)  # bars missing a needed price, by what
 
     def summary(self) -> list[str]:
         lines = [f'  sheet "{self.sheet}", header row {self.match.row}: {self.match.describe()}']
@@ -160,10 +167,8 @@ class SheetReport:
             bars = f"{len(t)} bars" + (f" ({span[0]} to {span[1]})" if span else "")
             lines.append(f"    rows read: {t.rows_read}; {bars}, {t.order}")
             lines.append(f"    rows skipped: {_describe_counts(t.skipped) or 'none'}")
-            if t.gap_cells:
-                lines.append(
-                    f"    gaps (results blank on those bars): {_describe_counts(t.gap_cells)}"
-                )
+            if self.gaps:
+                lines.append(f"    {_describe_gaps(self.gaps)}")
         if self.written:
             cols = ", ".join(f"{w.letter} {w.spec.header}" for w in self.written)
             again = f" ({self.replaced} replaced from an earlier fill)" if self.replaced else ""
@@ -235,6 +240,75 @@ class FillReport:
 
 def _describe_counts(counts: Mapping[str, int]) -> str:
     return ", ".join(f"{n} {what}" for what, n in counts.items() if n)
+
+
+def _describe_gaps(gaps: Mapping[str, int]) -> str:
+    """One line on the bars kept with a needed price unusable (each bar counted once)."""
+    n = sum(gaps.values())
+    return (f"bars with a gap: {n} ({_describe_counts(gaps)}); the columns that need "
+            f"that price are blank on {'that bar' if n == 1 else 'those bars'}")
+
+
+# -- progress ----------------------------------------------------------------------------
+class _Progress:
+    """One bar over the whole fill, moved by stages: never per cell.
+
+    The shares are those measured on a 1,048,576-row fill (cProfile; reading the
+    price columns about a third, scanning for typed formulas 4 %, computing 2 %,
+    writing the rest); each price sheet weighs by the size of its XML part, and
+    the writing phase moves with the rows the writer reports. Without a bar every
+    method does nothing.
+    """
+
+    SCAN, READ, COMPUTE = 4.0, 32.0, 2.0  # percent of the job; writing takes the rest
+    WRITE = 100.0 - SCAN - READ - COMPUTE
+
+    def __init__(self, bar: Any = None, sizes: Mapping[str, int] | None = None) -> None:
+        self.bar = bar
+        self.sizes = dict(sizes or {})
+        self.share: dict[str, float] = {}
+
+    @classmethod
+    def start(cls, pkg: Package, src: Path, options: FillOptions) -> _Progress:
+        """A bar when asked, on a terminal, for a workbook with large sheets; else a no-op."""
+        if not (options.progress and sys.stderr.isatty()):
+            return cls()
+        parts = {s.part: s.name for s in pkg.sheets if s.kind == "worksheet"}
+        with zipfile.ZipFile(pkg.path) as zf:  # the central directory only: no part inflated
+            sizes = {parts[i.filename]: i.file_size for i in zf.infolist()
+                     if i.filename in parts}
+        if sum(sizes.values()) < PROGRESS_MIN_BYTES:
+            return cls()
+        from tqdm import tqdm
+
+        bar = tqdm(total=100.0, desc=f"{src.name}: finding the price columns", file=sys.stderr,
+                   leave=False, bar_format="{desc} {percentage:3.0f}%|{bar}| {elapsed}<{remaining}")
+        return cls(bar, sizes)
+
+    def stage(self, text: str) -> None:
+        if self.bar is not None:
+            self.bar.set_description_str(text, refresh=True)
+
+    def advance(self, percent: float) -> None:
+        if self.bar is not None and percent > 0:
+            left = self.bar.total - self.bar.n
+            self.bar.update(min(percent, max(left, 0.0)))
+
+    def sheets(self, names: Sequence[str]) -> None:
+        """The price sheets to read: each one's share of the reading and computing."""
+        total = sum(self.sizes.get(n, 0) for n in names) or 1
+        self.share = {n: self.sizes.get(n, 0) / total for n in names}
+
+    def writer(self, rows: int) -> Callable[[int], None] | None:
+        """A callback for the package writer: rows written -> the rest of the bar."""
+        if self.bar is None:
+            return None
+        step = self.WRITE / max(rows, 1)
+        return lambda done: self.advance(done * step)
+
+    def close(self) -> None:
+        if self.bar is not None:
+            self.bar.close()
 
 
 # -- paths -------------------------------------------------------------------------------
@@ -445,12 +519,16 @@ def fill_file(src: str | Path, options: FillOptions | None = None) -> FillReport
         pkg = Package.open(book)
         if pkg.is_macro_enabled and not want_xlsm:
             raise FillError(f"{src.name} holds macros but is named .xlsx; rename it to .xlsm")
-        edits = _plan(pkg, src, options, report)
-        if options.in_place:
-            backup = backup_path(src)
-            shutil.copy2(src, backup)
-            report.backup = backup
-        _write(pkg, out, edits, report, options)
+        progress = _Progress.start(pkg, src, options)
+        try:
+            edits = _plan(pkg, src, options, report, progress)
+            if options.in_place:
+                backup = backup_path(src)
+                shutil.copy2(src, backup)
+                report.backup = backup
+            _write(pkg, out, edits, report, progress)
+        finally:
+            progress.close()
     return report
 
 
@@ -468,7 +546,8 @@ def _choose_sheets(pkg: Package, src: Path, options: FillOptions, report: FillRe
     def locate(name: str) -> tuple[str, HeaderMatch, int]:
         grid = pkg.read_grid(name, max_rows=HEADER_SCAN_ROWS)
         match = find_header(grid.rows, header_row=options.header_row,
-                            overrides=options.columns, where=_where(src, name))
+                            overrides=options.columns, where=_where(src, name),
+                            file=src.name, sheet=name)
         return name, match, grid.max_col
 
     if options.sheets:
@@ -476,6 +555,7 @@ def _choose_sheets(pkg: Package, src: Path, options: FillOptions, report: FillRe
     found: list[tuple[str, HeaderMatch, int]] = []
     tried: list[str] = []
     first_error: LocateError | None = None
+    flag_errors: list[ColumnFlagError] = []
     for info in pkg.sheets:
         if info.kind != "worksheet" or info.name.casefold() in OWN_SHEETS | exclude:
             continue
@@ -484,12 +564,21 @@ def _choose_sheets(pkg: Package, src: Path, options: FillOptions, report: FillRe
         except LocateError as exc:
             first_error = first_error or exc
             tried.append(info.name)
+            if isinstance(exc, ColumnFlagError):
+                flag_errors.append(exc)
             continue
         # beyond the first, only sheets that look like bars (a date and a close)
         if not found or "date" in hit[1].columns:
             found.append(hit)
     if found:
         return found
+    if flag_errors:  # a column the user named by flag: that is the news, said first
+        # told about the sheet that looks most like prices (most headers known)
+        best = max(flag_errors, key=lambda e: sum(
+            role_of(h) is not None for h in e.fields["headers"].values()))
+        others = [t for t in tried if t != best.sheet]
+        also = f"; not on {', '.join(repr(t) for t in others)} either" if others else ""
+        raise ColumnFlagError(**{**best.fields, "also": also})
     if len(tried) == 1 and first_error is not None:
         raise first_error
     if not tried:
@@ -531,14 +620,24 @@ def _has_cells(column: Column) -> bool:
 
 
 def _number_format(spec: ColumnSpec, decimals: int) -> str:
+    """Price units as the prices are quoted, with thousands separators (``#,##0.00``).
+
+    Examples
+    --------
+    >>> from sheetvol.recipe import make_spec
+    >>> _number_format(make_spec("SV_ATR", {}), 1), _number_format(make_spec("SV_CLOSEVOL", {}), 2)
+    ('#,##0.0', '0.00%')
+    """
     unit = spec.func.unit
     if unit == "percent":
         return "0.00%"
     if unit == "ratio":
         return "0.000"
     if unit == "quantity":
+        return "General"  # sizes may be whole contracts or fractional lots
+    if unit == "number":
         return "0"
-    return "0." + "0" * decimals if decimals else "0"
+    return "#,##0." + "0" * decimals if decimals else "#,##0"
 
 
 def _select_specs(options: FillOptions, match: HeaderMatch, where: str,
@@ -577,12 +676,17 @@ def _find_log(pkg: Package, src: Path, options: FillOptions
     return log, find_instruments(pkg, recipe, skip=[*own, log.sheet], where=src.name)
 
 
-def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport) -> list:
+def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport,
+          progress: _Progress | None = None) -> list:
     """Every edit of the fill, computed before anything is written."""
+    progress = progress or _Progress()
     log, instruments = _find_log(pkg, src, options)
     exclude = frozenset(n.casefold() for n in (log.sheet if log else "", instruments[0]) if n)
     chosen = _choose_sheets(pkg, src, options, report, exclude)
+    progress.sheets([name for name, _, _ in chosen])
+    progress.stage(f"{src.name}: looking for typed sheetvol formulas")
     typed = pkg.formula_cells() if options.formulas != "skip" else []
+    progress.advance(progress.SCAN)
     recorded = _recorded(pkg)
     edits: list = []
     taken: dict[str, set[int]] = {}
@@ -592,9 +696,12 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport) -> 
     for sheet, match, max_col in chosen:
         sr = SheetReport(sheet=sheet, match=match)
         report.sheets.append(sr)
+        share = progress.share.get(sheet, 0.0)
+        progress.stage(f'{src.name}: reading sheet "{sheet}"')
         inst_col = _instrument_column(match)
         if inst_col is not None:  # one long sheet of several instruments
             found = _long_sheet_bars(pkg, sr, inst_col)
+            progress.advance((progress.READ + progress.COMPUTE) * share)
             for key, (frame, places) in found.items():
                 bars.setdefault(key, frame)
                 decimals.setdefault(key, places)
@@ -607,14 +714,17 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport) -> 
         specs = _select_specs(options, match, _where(src, sheet), report)
         typed_cols = [fc.col for fc in typed if fc.sheet == sheet]
         cols, targets = _plan_sheet(pkg, src, options, sr, specs, max_col, typed_cols,
-                                    recorded.get(sheet.casefold(), {}), report.warnings)
+                                    recorded.get(sheet.casefold(), {}), report.warnings,
+                                    progress, share)
         edits.extend(cols)
         taken[sheet] = {e.col for e in cols}
         specs_by_sheet.append((sr, specs, targets))
-        assert sr.table is not None
-        bars[instrument_key(sheet)] = _bars_frame(sr.table)
-        decimals[instrument_key(sheet)] = sr.table.decimals
     if log is not None:
+        progress.stage(f'{src.name}: reviewing the trade log "{log.sheet}"')
+        for sr, _, _ in specs_by_sheet:  # bars as the review reads them: only when reviewing
+            assert sr.table is not None
+            bars[instrument_key(sr.sheet)] = _bars_frame(sr.table)
+            decimals[instrument_key(sr.sheet)] = sr.table.decimals
         trade_edits, report.trades = plan_trade_review(
             pkg, log, options.trades or TradeRecipe(), bars, decimals, instruments=instruments,
             recorded=recorded.get(log.sheet.casefold(), {}), where=src.name)
@@ -623,6 +733,7 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport) -> 
             e.col for e in trade_edits if isinstance(e, NewColumn))
         report.warnings.extend(report.trades.problems)
     if typed:
+        progress.stage(f"{src.name}: evaluating typed sheetvol formulas")
         edits.extend(_evaluate_formulas(pkg, typed, taken, report, keep=options.formulas == "keep"))
     if options.chart and specs_by_sheet:
         edits.append(NewSheet(name=CHART_SHEET, rows=[["Charts of the filled sheets"]]))
@@ -635,9 +746,11 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport) -> 
 
 def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
                 specs: list[ColumnSpec], max_col: int, typed_cols: list[int],
-                recorded: Mapping[str, str], warnings: list[str]
+                recorded: Mapping[str, str], warnings: list[str],
+                progress: _Progress | None = None, share: float = 0.0,
                 ) -> tuple[list[NewColumn], list[int]]:
     """Read one price sheet, compute its columns and say where each one goes."""
+    progress = progress or _Progress()
     sheet, match = sr.sheet, sr.match
     where = _where(src, sheet)
     # Where each column goes: its own earlier place, else a freed earlier place, else new
@@ -675,9 +788,13 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
     )
     sr.table = table
     warnings.extend(f"{where}: {w}" for w in table.warnings)
+    progress.advance(progress.READ * share)
     if not len(table):
         raise FillError(f"{where}: no price rows below the header row {match.row}")
+    progress.stage(f'{src.name}: computing {len(specs)} columns for "{sheet}"')
     results = compute_columns(specs, table.prices)
+    sr.gaps = table.gap_bars(needed_roles(specs))
+    progress.advance(progress.COMPUTE * share)
 
     first_row = int(table.rows.min())
     height = int(table.rows.max()) - first_row + 1
@@ -777,7 +894,8 @@ def _notes_rows(src: Path, report: FillReport) -> list[list[object]]:
         if table.order == "newest first":
             bars += "; computed oldest first, written back on each bar's row"
         notes.append(SheetNote(sr.sheet, sr.match.row, sr.match.describe(), bars,
-                               _describe_counts(table.skipped) or "none"))
+                               _describe_counts(table.skipped) or "none",
+                               _describe_gaps(sr.gaps) if sr.gaps else "none"))
     trades = report.trades
     return build_notes(
         input_name=src.name,
@@ -793,7 +911,7 @@ def _notes_rows(src: Path, report: FillReport) -> list[list[object]]:
                           f"{trades.trades} trades"),
             *trades.settings,
             ("Summary and outcomes", f'sheet "{REVIEW_SHEET}"')],
-        extra_cautions=TRADE_CAUTIONS if trades is not None else (),
+        trade_review=trades is not None,
     )
 
 
@@ -854,7 +972,7 @@ def _evaluate_formulas(pkg: Package, found: Sequence[FormulaCell],
                 value = None
             edits.append(CellResult(fc.sheet, fc.row, fc.col, value) if keep
                          else ValueResult(fc.sheet, fc.row, fc.col, value))
-            outcome = "blank" if value is None else repr(value)
+            outcome = "blank" if value is None else value  # a number stays a number
         report.formulas_ok += 1
         report.formulas.append(FormulaNote(ref, fc.formula, outcome))
     return edits
@@ -885,21 +1003,13 @@ def _charts(sr: SheetReport, specs: Sequence[ColumnSpec], targets: Sequence[int]
 
 
 def _write(pkg: Package, out: Path, edits: list, report: FillReport,
-           options: FillOptions) -> None:
-    bar = None
-    callback: Callable[[int], None] | None = None
+           progress: _Progress | None = None) -> None:
+    progress = progress or _Progress()
     tables = [s.table for s in report.sheets if s.table is not None and len(s.table)]
-    rows = max((len(t) for t in tables), default=0)
-    if options.progress and rows >= PROGRESS_MIN_ROWS and sys.stderr.isatty():
-        from tqdm import tqdm
-
-        bar = tqdm(total=sum(int(t.rows.max()) for t in tables), desc=f"writing {out.name}",
-                   unit=" rows", file=sys.stderr, leave=False)
-        callback = bar.update
-    try:
-        # Stored results only help if the program does not recalculate everything on opening.
-        kept = any(isinstance(e, (CellResult, SpillResult)) for e in edits)
-        write_package(pkg, out, edits, progress=callback, calc_on_load=False if kept else None)
-    finally:
-        if bar is not None:
-            bar.close()
+    progress.stage(f"writing {out.name}")
+    callback = progress.writer(sum(int(t.rows.max()) for t in tables))
+    # Stored results only help if the program does not recalculate everything on opening.
+    kept = any(isinstance(e, (CellResult, SpillResult)) for e in edits)
+    write_package(pkg, out, edits, progress=callback, calc_on_load=False if kept else None)
+    progress.advance(100.0)  # the rest (sheets beyond the price rows), then shown full
+    progress.stage(f"wrote {out.name}")

@@ -428,6 +428,14 @@ def evaluate(
     return _convert.to_cell(value) if not isinstance(value, (str, bool)) else value
 
 
+def _number_or_nan(value: Any) -> float:
+    # A spreadsheet shows an error where arithmetic meets text; a blank is the nearest
+    # thing a stored result can hold.
+    if isinstance(value, (int, float, np.number)) and not isinstance(value, bool):
+        return float(value)
+    return float("nan")
+
+
 @dataclass
 class _Block:
     """Values of a referenced range, kept as cell values until an argument's kind is known."""
@@ -498,6 +506,9 @@ class _Evaluator:
                         f"cannot evaluate arithmetic on {value.ref.text}: {exc}"
                     ) from None
         if isinstance(value, np.ndarray):
+            if value.dtype == object:  # a row-by-row result with messages in some rows
+                return np.array([_number_or_nan(v) for v in value.reshape(-1).tolist()],
+                                dtype=np.float64).reshape(value.shape)
             return value.astype(np.float64)
         if value is None:
             return np.nan

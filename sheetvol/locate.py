@@ -17,6 +17,7 @@ from typing import Any
 
 __all__ = [
     "HEADER_SCAN_ROWS",
+    "ColumnFlagError",
     "HeaderMatch",
     "LocateError",
     "col_letter",
@@ -62,6 +63,33 @@ for _role, _names in SYNONYMS.items():
 
 class LocateError(ValueError):
     """The price columns cannot be found; the message lists what was found."""
+
+
+class ColumnFlagError(LocateError):
+    """A column the user named by flag (``--close-col Settle``) is not on the sheet.
+
+    The message says so first, then where it looked and the headers it saw.
+
+    Examples
+    --------
+    >>> print(ColumnFlagError(role="close", given="Settle", row=1, headers={1: "Date"},
+    ...                       file="p.xlsx", sheet="Prices"))
+    p.xlsx: --close-col "Settle": no column headed "Settle" on sheet "Prices" (headers found \
+in row 1: A 'Date'); give a header from that row or a column letter
+    """
+
+    def __init__(self, *, role: str, given: str, row: int, headers: Mapping[int, str],
+                 file: str = "", sheet: str = "", also: str = "") -> None:
+        self.fields = {"role": role, "given": given, "row": row, "headers": dict(headers),
+                       "file": file, "sheet": sheet, "also": also}
+        self.sheet = sheet
+        on = f' on sheet "{sheet}"' if sheet else ""
+        super().__init__(
+            (f"{file}: " if file else "")
+            + f'--{role}-col "{given}": no column headed "{given}"{on} (headers found in row '
+            f"{row}: {_list_headers(headers)}){also}; give a header from that row or a column "
+            "letter"
+        )
 
 
 def normalize_header(text: object) -> str:
@@ -226,6 +254,8 @@ def find_header(
     header_row: int | None = None,
     overrides: Mapping[str, str] | None = None,
     where: str = "",
+    file: str = "",
+    sheet: str = "",
 ) -> HeaderMatch:
     """Find the header row and the column of each price role.
 
@@ -239,6 +269,8 @@ def find_header(
         role -> header text or column letter given by the user.
     where : str
         ``file, sheet`` prefix for messages.
+    file, sheet : str
+        The file and sheet names, for the message about a column named by flag.
 
     Returns
     -------
@@ -248,6 +280,8 @@ def find_header(
     ------
     LocateError
         When no row has a close column; the message lists the headers seen.
+    ColumnFlagError
+        When a column named in ``overrides`` is neither a header nor a column letter.
 
     Examples
     --------
@@ -285,7 +319,8 @@ def find_header(
     header_cells = _text_cells(rows.get(row, {}))
     columns = {role: col for role, (_, col) in found.items()}
     for role, given in overrides.items():
-        columns[role] = resolve_column(given, header_cells, role=role, row=row, where=where)
+        columns[role] = resolve_column(given, header_cells, role=role, row=row, where=where,
+                                       file=file, sheet=sheet)
     if "time" in columns and "date" not in columns:
         columns["date"] = columns.pop("time")
     used: dict[int, str] = {}
@@ -300,7 +335,8 @@ def find_header(
 
 
 def resolve_column(
-    given: str, header_cells: Mapping[int, str], *, role: str, row: int, where: str = ""
+    given: str, header_cells: Mapping[int, str], *, role: str, row: int, where: str = "",
+    file: str = "", sheet: str = "",
 ) -> int:
     """A user's column choice: header text (case-insensitive) first, else a column letter.
 
@@ -315,12 +351,19 @@ def resolve_column(
     row : int
         The header row, for the message.
     where : str
-        ``file, sheet`` prefix for messages.
+        ``file, sheet`` prefix for messages (used when ``file`` is not given).
+    file, sheet : str
+        The file and sheet, named in the message.
 
     Returns
     -------
     int
         1-based column.
+
+    Raises
+    ------
+    ColumnFlagError
+        Neither a header of the row nor a column letter.
 
     Examples
     --------
@@ -335,11 +378,8 @@ def resolve_column(
             return col
     if re.fullmatch(r"[A-Za-z]{1,3}", text) and col_number(text) <= 16384:
         return col_number(text)
-    prefix = f"{where}: " if where else ""
-    raise LocateError(
-        f"{prefix}--{role}-col {text!r} is neither a header in row {row} "
-        f"({_list_headers(header_cells)}) nor a column letter"
-    )
+    raise ColumnFlagError(role=role, given=text, row=row, headers=header_cells,
+                          file=file or where, sheet=sheet)
 
 
 def _first_text_row(rows: Mapping[int, Mapping[int, object]]) -> dict[int, str]:

@@ -25,6 +25,7 @@ __all__ = [
     "SheetNote",
     "WrittenColumn",
     "build_notes",
+    "cautions",
     "read_record",
     "sha256_of",
 ]
@@ -52,13 +53,43 @@ CONVENTIONS = (
     "the row of its bar. Warm-up rows (not enough history yet) are left blank.",
 )
 
+# One list for every notes sheet. It covers the trade review's cautions too
+# (sheetvol.trade_fill.TRADE_CAUTIONS, repeated on its own sheet), so a workbook with a
+# trade log gets one sentence more, never the same caution twice.
 CAUTIONS = (
-    "Not investment advice. Volatility measures describe the past and do not predict "
+    "Not investment advice. Volatility figures describe the past and do not predict "
     "future moves.",
-    "A stop at a volatility distance is not a guaranteed fill: prices can gap through it.",
-    "Check any position size against your broker's margin rules and local regulation.",
+    "A stop at a volatility distance does not guarantee the exit price: markets gap through "
+    "stops and orders slip, so a loss can exceed the planned risk.",
+    "Check every position size against your broker's margin rules, the contract "
+    "specifications and local regulation.",
     "Check the columns read above: results are only as good as the export they come from.",
 )
+TRADE_REVIEW_CAUTION = ("The trade review shows what past prices did to the logged trades; "
+                        "it does not say what to trade.")
+
+
+def cautions(trade_review: bool = False) -> list[str]:
+    """The cautions of the notes sheet, once each (one more line with a trade review).
+
+    Parameters
+    ----------
+    trade_review : bool
+        Whether the fill reviewed a trade log.
+
+    Returns
+    -------
+    list of str
+
+    Examples
+    --------
+    >>> len(cautions()), len(cautions(trade_review=True))
+    (4, 5)
+    """
+    out = list(CAUTIONS)
+    if trade_review:
+        out.insert(1, TRADE_REVIEW_CAUTION)
+    return out
 
 
 @dataclass(frozen=True)
@@ -80,15 +111,20 @@ class SheetNote:
     columns_read: str
     bars: str
     skipped: str
+    gaps: str = "none"
 
 
 @dataclass(frozen=True)
 class FormulaNote:
-    """A typed sheetvol formula the fill evaluated (or could not)."""
+    """A typed sheetvol formula the fill evaluated (or could not).
+
+    ``outcome`` is the result itself when it is one number or text (stored as
+    such on the notes sheet), else words such as ``"column of 40 values"``.
+    """
 
     cell: str
     formula: str
-    outcome: str
+    outcome: str | float
 
 
 def sha256_of(path: str | Path) -> str:
@@ -131,7 +167,7 @@ def build_notes(
     run_at: dt.datetime | None = None,
     trade_columns: Sequence[tuple[str, str, str, str]] = (),
     trade_settings: Sequence[tuple[str, str]] = (),
-    extra_cautions: Sequence[str] = (),
+    trade_review: bool = False,
 ) -> list[list[object]]:
     """Rows of the notes sheet (first row is the title, shown bold).
 
@@ -155,8 +191,8 @@ def build_notes(
         join the ``Columns written`` record so a later fill replaces them.
     trade_settings : sequence of tuple
         (setting, value) of the trade review, listed in a block of their own.
-    extra_cautions : sequence of str
-        Cautions added after the usual ones (the trade review's).
+    trade_review : bool
+        Whether a trade log was reviewed (adds its line to the one list of cautions).
 
     Returns
     -------
@@ -168,7 +204,7 @@ def build_notes(
     >>> rows = build_notes(input_name="p.xlsx", input_sha256="0" * 64,
     ...                    sheets=[SheetNote("Prices", 1, "Close = E", "20", "none")], written=[])
     >>> rows[0], rows[7]
-    (['sheetvol notes'], ['Prices', 1, 'Close = E', '20', 'none'])
+    (['sheetvol notes'], ['Prices', 1, 'Close = E', '20', 'none', 'none'])
     """
     when = (run_at or dt.datetime.now(dt.timezone.utc)).strftime("%Y-%m-%d %H:%M:%S UTC")
     rows: list[list[object]] = [
@@ -178,9 +214,10 @@ def build_notes(
         ["Input file", input_name],
         ["Input SHA-256", input_sha256],
         [SHEETS_TITLE],
-        ["Sheet", "Header row", "Columns read", "Bars", "Rows skipped"],
+        ["Sheet", "Header row", "Columns read", "Bars", "Rows skipped", "Gaps"],
     ]
-    rows.extend([n.sheet, n.header_row, n.columns_read, n.bars, n.skipped] for n in sheets)
+    rows.extend([n.sheet, n.header_row, n.columns_read, n.bars, n.skipped, n.gaps]
+                for n in sheets)
     rows += [[], [RECORD_TITLE], ["Sheet", "Column", "Header", "Function", "Parameters", "Inputs"]]
     for w in written:
         inputs = ", ".join(
@@ -209,8 +246,7 @@ def build_notes(
     rows.extend([c] for c in CONVENTIONS)
     rows.append([])
     rows.append(["Cautions"])
-    rows.extend([c] for c in CAUTIONS)
-    rows.extend([c] for c in extra_cautions)
+    rows.extend([c] for c in cautions(trade_review))
     return rows
 
 

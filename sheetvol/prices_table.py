@@ -5,11 +5,14 @@ price sheet is and what the fill does with it:
 
 * a **bar**: a date and at least one price; computed in date order, so a
   newest-first export is read bottom-up and the results go back on the same
-  rows. A price cell holding an error (``#N/A``) or a blank word (``n/a``)
-  is a gap on that bar: the kernels skip the bar (see
-  :mod:`sheetvol.kernels._gaps`) and its results are blank;
+  rows. A price cell that is blank, holds an error (``#N/A``) or a blank word
+  (``n/a``) is unusable; a column that needs that price skips the bar (see
+  :mod:`sheetvol.kernels._gaps`) and is blank there (:meth:`PriceTable.gap_bars`
+  counts such bars once each);
 * **blank**: nothing in any price column, skipped;
 * **no prices**: a date without any price (holiday rows), skipped;
+* **no usable price**: a date whose price cells hold only errors or blank
+  words, skipped (not also counted as a gap);
 * **summary or footer**: a row such as ``Total``/``Average`` (a summary word
   in the date column), or any row without a date below the last bar (sums,
   "Source: ..." lines), skipped.
@@ -26,7 +29,7 @@ import math
 import re
 import warnings
 from collections import Counter
-from collections.abc import Mapping
+from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -46,6 +49,8 @@ SUMMARY = re.compile(
     re.IGNORECASE,
 )
 SUMMARY_LABEL = "summary or footer row"
+NO_PRICES = "no prices on that date (holiday or blank)"
+NO_USABLE = "no usable price on that date (only error values or blank words)"
 _DATE_1904_OFFSET = 1462.0  # days between the 1900 and 1904 epochs
 
 
@@ -68,14 +73,16 @@ class PriceTable:
 
     ``rows[i]`` is the sheet row of bar ``i``; ``prices[role][i]`` its value
     (NaN for a gap); ``dates[i]`` its day number (1900-system serial, NaN when
-    the sheet has no date column).
+    the sheet has no date column). ``unusable`` holds, for bars only, the price
+    cells that hold an error or a blank word: (row, role) -> what they hold
+    (``#N/A``, ``"n/a"``); other NaN prices of a bar are blank cells.
     """
 
     rows: np.ndarray
     dates: np.ndarray
     prices: dict[str, np.ndarray]
     skipped: Counter = field(default_factory=Counter)
-    gap_cells: Counter = field(default_factory=Counter)
+    unusable: dict[tuple[int, str], str] = field(default_factory=dict)
     order: str = "oldest first"
     rows_read: int = 0
     decimals: int = 2
@@ -89,6 +96,65 @@ class PriceTable:
             return None
         lo, hi = np.nanmin(self.dates), np.nanmax(self.dates)
         return _show_day(lo), _show_day(hi)
+
+    def gap_bars(self, roles: Iterable[str]) -> Counter:
+        """Bars where a price in ``roles`` is unusable, counted once each by what is wrong.
+
+        A bar with a blank Close and ``#N/A`` in High counts once, under
+        ``'#N/A in High + blank Close'``. Roles the table does not have are ignored.
+
+        Parameters
+        ----------
+        roles : iterable of str
+            The price roles the computed columns need (``close``, ``high``...).
+
+        Returns
+        -------
+        collections.Counter
+            What is wrong on the bar -> number of bars.
+
+        Examples
+        --------
+        >>> t = PriceTable(rows=np.array([2, 3, 4]), dates=np.full(3, np.nan),
+        ...                prices={"high": np.array([2.0, np.nan, 2.0]),
+        ...                        "close": np.array([1.0, np.nan, np.nan])},
+        ...                unusable={(3, "high"): "#N/A"})
+        >>> dict(t.gap_bars(["high", "close"]))
+        {'#N/A in High + blank Close': 1, 'blank Close': 1}
+        """
+        order = [r for r in ("date", "open", "high", "low", "close", "volume")
+                 if r in set(roles) and r in self.prices]
+        if not order or not len(self.rows):
+            return Counter()
+        missing = np.zeros(len(self.rows), dtype=bool)
+        for role in order:
+            missing |= ~np.isfinite(self.prices[role])
+        noted_rows = {row for row, _ in self.unusable}
+        counts: Counter = Counter()
+        # Bars with an error or blank word are few: named one by one. The rest (often many
+        # blank cells of one column) are counted per combination of blank columns.
+        idx = np.flatnonzero(missing)
+        special = np.isin(self.rows[idx], list(noted_rows)) if noted_rows else np.zeros(
+            len(idx), dtype=bool)
+        for i in idx[special]:
+            row = int(self.rows[i])
+            parts = []
+            for role in order:
+                if not math.isfinite(self.prices[role][i]):
+                    what = self.unusable.get((row, role))
+                    parts.append(f"{what} in {role.capitalize()}" if what
+                                 else f"blank {role.capitalize()}")
+            counts[" + ".join(parts)] += 1
+        plain = idx[~special]
+        if len(plain):
+            code = np.zeros(len(plain), dtype=np.int64)
+            for k, role in enumerate(order):
+                code |= (~np.isfinite(self.prices[role][plain])).astype(np.int64) << k
+            for value, n in zip(*np.unique(code, return_counts=True), strict=True):
+                label = " + ".join(f"blank {role.capitalize()}" for k, role in enumerate(order)
+                                   if int(value) >> k & 1)
+                counts[label] += int(n)
+        return counts
 
 
 def _show_day(day: float) -> str:
@@ -226,7 +292,8 @@ def build_price_table(
         return f"{letters.get(role, role)}{row}"
 
     content = np.zeros(n, dtype=bool)  # anything at all in a price column
-    gap_cells: Counter = Counter()
+    noted = np.zeros(n, dtype=bool)  # an error or blank word in a price cell
+    unusable: dict[tuple[int, str], str] = {}
     bad: dict[int, tuple[str, object]] = {}  # row -> (role, value) first unreadable cell
 
     def aligned(c: Any) -> tuple[np.ndarray, dict[int, object]]:
@@ -251,11 +318,11 @@ def build_price_table(
             if v is None:
                 continue
             content[i] = True
-            if _is_error(v):
-                gap_cells[f"error value ({v.strip()})"] += 1
-                continue
-            if isinstance(v, str) and cells.is_blank(v):
-                gap_cells[f'"{v.strip()}"' if v.strip() else "blank text"] += 1
+            if _is_error(v) or (isinstance(v, str) and cells.is_blank(v)):
+                text = str(v).strip()
+                what = text if _is_error(v) else (f'"{text}"' if text else "blank text")
+                unusable[(r, role)] = what
+                noted[i] |= role != "volume"
                 continue
             if isinstance(v, str) and suspect_separator(v, decimal_comma):
                 flag = "without --decimal-comma" if decimal_comma else "with --decimal-comma"
@@ -321,9 +388,9 @@ def build_price_table(
         trailing = undated & (np.arange(n) > last_bar)
         summary |= trailing
         keep = has_date & any_price & ~summary
-        skipped["no prices on that date (holiday or blank)"] = int(
-            np.count_nonzero(has_date & ~any_price & ~summary)
-        )
+        priceless = has_date & ~any_price & ~summary
+        skipped[NO_PRICES] = int(np.count_nonzero(priceless & ~noted))
+        skipped[NO_USABLE] = int(np.count_nonzero(priceless & noted))
     else:
         # Without dates a row of totals is told apart only by a summary word in a price cell.
         for r, (_role, v) in bad.items():
@@ -356,10 +423,8 @@ def build_price_table(
     table_rows = rows[idx]
     table_dates = dates[idx]
     table_prices = {role: vals[idx] for role, vals in prices.items()}
-    for role in price_roles:
-        gaps = int(np.count_nonzero(~np.isfinite(table_prices[role])))
-        if gaps:
-            gap_cells[f"gaps in {role.capitalize()}"] = gaps
+    kept_rows = set(table_rows.tolist()) if unusable else set()
+    unusable = {k: v for k, v in unusable.items() if k[0] in kept_rows}  # bars only
 
     _check_high_low(table_prices, table_rows, cell, prefix)
 
@@ -388,7 +453,7 @@ def build_price_table(
         dates=table_dates,
         prices=table_prices,
         skipped=Counter({k: v for k, v in skipped.items() if v}),
-        gap_cells=gap_cells,
+        unusable=unusable,
         order=order_label,
         rows_read=n,
         decimals=price_decimals(close),

@@ -58,6 +58,7 @@ __all__ = [
     "parse_recipe",
     "parse_trades",
     "read_recipe",
+    "split_basis",
 ]
 
 ROLES = ("open", "high", "low", "close", "volume")
@@ -448,11 +449,12 @@ TRADE_KEYS = {
     "sheet": "the trade-log sheet's name",
     "instruments": "the instrument-details sheet's name",
     "measure": '"atr", "deviation" or a sheetvol column function in price units',
-    "options": "a table of the measure's options, e.g. { period = 20 }",
+    "options": "a table of the measure's options, e.g. { period = 20 }; basis = a price of "
+               'the bar (e.g. "typical") for a measure of one price column',
     "stop_multiple": "volatility units from entry to the stop, above 0",
     "target_multiple": "volatility units from entry to the target, above 0",
     "trail_multiple": "volatility units of the trailing stop, 0 (off) or more",
-    "risk": "share of equity risked per trade, above 0 and at most 1 (0.01 = 1 %)",
+    "risk": "risk is a share of equity: 0.01 = 1%; above 0 and at most 0.25",
     "equity": "account equity where the log has none, above 0",
     "columns": 'a table of log roles to headers, e.g. { side = "B/S" }',
 }
@@ -461,7 +463,7 @@ _NUMBER_RULES = {
     "stop_multiple": (0.0, False, math.inf),
     "target_multiple": (0.0, False, math.inf),
     "trail_multiple": (0.0, True, math.inf),
-    "risk": (0.0, False, 1.0),
+    "risk": (0.0, False, 0.25),  # the worksheet SV_SIZE's cap: 1 typed for 1 % is refused
     "equity": (0.0, False, math.inf),
 }
 
@@ -490,8 +492,8 @@ def check_trade_number(key: str, value: Any, where: str = "[trades]") -> float:
     >>> check_trade_number("risk", 2)
     Traceback (most recent call last):
     ...
-    sheetvol.recipe.RecipeError: [trades] risk: share of equity risked per trade, above 0 \
-and at most 1 (0.01 = 1 %); got 2
+    sheetvol.recipe.RecipeError: [trades] risk: risk is a share of equity: 0.01 = 1%; above 0 \
+and at most 0.25; got 2
     """
     low, low_ok, high = _NUMBER_RULES[key]
     number = math.nan
@@ -595,16 +597,70 @@ def check_measure(recipe: TradeRecipe, where: str = "[trades]") -> registry.Func
     if func.shape != "series" or func.unit != "price":
         raise RecipeError(f"{where} measure: {func.name} is not a column function in price "
                           "units (use SV_ATR, SV_DEVIATION or similar)")
-    for key in recipe.options:
+    try:
+        _basis, options = split_basis(func, recipe.options)
+    except ValueError as exc:
+        raise RecipeError(f"{where} options: {exc}") from None
+    for key in options:
         if key not in {p.name for p in func.options}:
             names = ", ".join(p.name for p in func.options)
             raise RecipeError(f"{where} options: {func.name} has no option {key!r} "
-                              f"(options: {names})")
+                              f"(options: {names}{', basis' if _one_price(func) else ''})")
     try:
-        func.bind(kwargs={**{p.name: np.zeros(1) for p in func.columns}, **recipe.options})
+        func.bind(kwargs={**{p.name: np.zeros(1) for p in func.columns}, **options})
     except registry.ArgumentError as exc:
         raise RecipeError(f"{where} options: {exc}") from None
     return func
+
+
+#: The option of a trade measure that picks the bar's price it is computed on.
+BASIS_OPTION = "basis"
+
+
+def _one_price(func: registry.Function) -> bool:
+    return any(p.name == "prices" for p in func.columns)
+
+
+def split_basis(func: registry.Function, options: Mapping[str, Any]
+                ) -> tuple[str, dict[str, Any]]:
+    """Take the price basis out of a trade measure's options.
+
+    Parameters
+    ----------
+    func : registry.Function
+        The volatility measure.
+    options : mapping
+        Its options as given, possibly with ``basis``.
+
+    Returns
+    -------
+    tuple
+        The basis (``"close"`` when not given) and the other options.
+
+    Raises
+    ------
+    ValueError
+        ``basis`` is not one of SV_PRICE's ``basis`` choices, or the measure
+        reads several price columns (ATR uses high, low and close).
+
+    Examples
+    --------
+    >>> split_basis(registry.get("SV_DEVIATION"), {"period": 20, "basis": "Typical"})
+    ('typical', {'period': 20})
+    """
+    rest = {k: v for k, v in options.items() if k != BASIS_OPTION}
+    if BASIS_OPTION not in options:
+        return "close", rest
+    choices = next(p.choices for p in registry.get("SV_PRICE").params if p.name == "basis")
+    word = options[BASIS_OPTION]
+    basis = word.strip().lower() if isinstance(word, str) else ""
+    if basis not in choices:
+        raise ValueError(f"basis must be one of {', '.join(choices)}; got {word!r}")
+    if not _one_price(func):
+        raise ValueError(f"basis applies to a measure of one price column (such as "
+                         f"SV_DEVIATION); {func.name} reads "
+                         f"{', '.join(p.name for p in func.columns)}")
+    return basis, rest
 
 
 @dataclass(frozen=True)

@@ -25,12 +25,14 @@ import pandas as pd
 from sheetvol import cells
 from sheetvol.locate import (
     HEADER_SCAN_ROWS,
+    LocateError,
     col_letter,
+    find_header,
     normalize_header,
     still_headed,
 )
 from sheetvol.notes import NOTES_SHEET
-from sheetvol.recipe import TradeRecipe, check_measure, default_header
+from sheetvol.recipe import TradeRecipe, check_measure, default_header, split_basis
 from sheetvol.trades import (
     LOG_COLUMNS,
     SUMMARY_LABELS,
@@ -43,6 +45,7 @@ from sheetvol.trades import (
 from sheetvol.workbook import CellError, NewColumn, NewSheet, Package, Styled
 
 __all__ = [
+    "LARGE_RISK",
     "OUTCOME_WORDS",
     "OWN_HEADER",
     "REVIEW_SHEET",
@@ -96,9 +99,12 @@ OUTCOME_WORDS = {
 _TEXT_KEYS = ("Size note", "Result", "Note")
 # Summary figures by SUMMARY_LABELS key -> number format on the review sheet
 _SUMMARY_FORMATS = {"trades": "0", "finished": "0", "losing_streak": "0",
-                    "average_r": "0.00", "total_r": "0.00", "expectancy": "0.00",
+                    "total_r": "0.00", "expectancy": "0.00",
                     "open_risk": "#,##0.00"}
 _SHARE_FORMAT = "0.0%"
+#: Risk per trade above this share of equity is accepted but warned about (common
+#: practice, no source: desks rarely risk more than a few percent on one trade).
+LARGE_RISK = 0.05
 
 
 class TradeLogError(ValueError):
@@ -113,6 +119,7 @@ class TradeLog:
     header_row: int
     roles: dict[str, int]
     headers: dict[int, str]
+    instrument: str = ""  # no instrument column: the workbook's only price sheet
 
 
 @dataclass
@@ -130,12 +137,17 @@ class TradeReport:
     instruments_sheet: str = ""
     problems: list[str] = field(default_factory=list)
     reviewed: pd.DataFrame | None = None
+    warnings: list[str] = field(default_factory=list)  # printed by lines(), on the sheets
+    instrument: str = ""  # every trade's instrument when the log has no instrument column
 
     def lines(self) -> list[str]:
         """Lines for the terminal summary."""
         out = [f'  trade log "{self.sheet}", header row {self.header_row}: {self.trades} trades'
                + (f'; contract details from "{self.instruments_sheet}"'
                   if self.instruments_sheet else "; contract details: defaults (1 per point)")]
+        if self.instrument:
+            out.append(f'    no instrument column: every trade is on "{self.instrument}", the '
+                       "only price sheet")
         order = ("stop", "target", "trail", "closed", "open", "ambiguous", "")
         shown = [f"{self.counts[k]} {k or 'not reviewed'}" for k in order if self.counts[k]]
         out.append(f"    outcomes: {', '.join(shown) or 'none'}")
@@ -151,6 +163,7 @@ class TradeReport:
             out.append(f"    columns written{again}: "
                        + ", ".join(f"{letter} {h}" for letter, h, _ in self.written))
         out.append(f'    summary and outcome counts on sheet "{REVIEW_SHEET}"')
+        out.extend(f"    warning: {w}" for w in self.warnings)
         return out
 
 
@@ -183,6 +196,12 @@ def find_trade_log(pkg: Package, recipe: TradeRecipe, skip: Sequence[str] = (),
                    where: str = "") -> TradeLog | None:
     """The trade-log sheet: ``recipe.sheet``, else the first sheet whose header has the roles.
 
+    A log without an instrument column is used when the workbook has exactly
+    one price sheet (a sheet whose header has a date and a close, and no
+    instrument column): every trade is taken to be on it. Found by itself, such
+    a log also needs an entry-price column, so a sheet with only a date and a
+    side is not mistaken for a log.
+
     Parameters
     ----------
     pkg : Package
@@ -202,7 +221,8 @@ def find_trade_log(pkg: Package, recipe: TradeRecipe, skip: Sequence[str] = (),
     Raises
     ------
     TradeLogError
-        The named sheet does not exist or lacks a date, instrument or side column.
+        The named sheet does not exist or lacks a date, instrument or side
+        column; the message lists the roles found and those missing.
 
     Examples
     --------
@@ -215,21 +235,57 @@ def find_trade_log(pkg: Package, recipe: TradeRecipe, skip: Sequence[str] = (),
     else:
         names = [s.name for s in pkg.sheets
                  if s.kind == "worksheet" and s.name.casefold() not in skipped]
+    others = [s.name for s in pkg.sheets if s.kind == "worksheet"
+              and s.name.casefold() not in skipped]
     for name in names:
         grid = pkg.read_grid(name, max_rows=HEADER_SCAN_ROWS)
+        best: tuple[int, dict[str, int]] | None = None
+        only: str | None = None  # looked up once, when a row lacks only the instrument
         for r in sorted(grid.rows):
             roles = _log_roles(grid.rows[r], recipe.columns)
+            headers = {c: str(v) for c, v in grid.rows[r].items()
+                       if isinstance(v, str) and v.strip()}
             if all(k in roles for k in _REQUIRED):
-                headers = {c: str(v) for c, v in grid.rows[r].items()
-                           if isinstance(v, str) and v.strip()}
                 return TradeLog(name, r, roles, headers)
+            if best is None or len(roles) > len(best[1]):
+                best = (r, roles)
+            no_instrument = all(k in roles for k in _REQUIRED if k != "instrument")
+            if no_instrument and (recipe.sheet or "entry" in roles):
+                if only is None:
+                    only = _only_price_sheet(pkg, [n for n in others if n != name])
+                if only:
+                    return TradeLog(name, r, roles, headers, instrument=only)
         if recipe.sheet:
-            wanted = ", ".join(f"{k} ({'/'.join(LOG_COLUMNS[k][:3])})" for k in _REQUIRED)
+            row, roles = best if best is not None else (0, {})
+            found = ", ".join(f"{k} ({col_letter(c)})" for k, c in roles.items()) or "none"
+            missing = ", ".join(f"{k} ({'/'.join(LOG_COLUMNS[k][:3])})" for k in _REQUIRED
+                                if k not in roles)
+            where_row = f"best header row {row}" if row else f"first {HEADER_SCAN_ROWS} rows"
+            extra = (" (a log without one is used when the workbook has exactly one price "
+                     "sheet)" if "instrument" not in roles else "")
             raise TradeLogError(
-                f'{where}, sheet "{name}": no header row with the trade-log columns {wanted} '
-                f"in the first {HEADER_SCAN_ROWS} rows; name a column with [trades] columns, "
-                'e.g. columns = { side = "B/S" }')
+                f'{where}, sheet "{name}": no header row with the trade-log columns; '
+                f"{where_row}: found {found}; missing {missing}{extra}; name a column with "
+                '[trades] columns, e.g. columns = { side = "B/S" }')
     return None
+
+
+def _only_price_sheet(pkg: Package, names: Sequence[str]) -> str:
+    """The one sheet among ``names`` with bars of a single instrument ("" unless exactly one)."""
+    found = []
+    instrument_words = {normalize_header(n) for n in LOG_COLUMNS["instrument"]}
+    for name in names:
+        grid = pkg.read_grid(name, max_rows=HEADER_SCAN_ROWS)
+        try:
+            match = find_header(grid.rows)
+        except LocateError:
+            continue
+        if "date" not in match.columns:
+            continue
+        if any(normalize_header(t) in instrument_words for t in match.headers.values()):
+            return ""  # one long sheet of several instruments
+        found.append(name)
+    return found[0] if len(found) == 1 else ""
 
 
 def find_instruments(pkg: Package, recipe: TradeRecipe, skip: Sequence[str] = (),
@@ -261,7 +317,8 @@ def find_instruments(pkg: Package, recipe: TradeRecipe, skip: Sequence[str] = ()
     names = ([pkg.sheet(recipe.instruments).name] if recipe.instruments else
              [s.name for s in pkg.sheets
               if s.kind == "worksheet" and s.name.casefold() not in skipped])
-    detail_words = {"point value", "lot step", "min qty", "max qty", "fx rate"}
+    detail_words = {"point value", "lot step", "min qty", "max qty", "fx rate", "tick",
+                    "tick size"}
     for name in names:
         grid = pkg.read_grid(name, max_rows=2000)
         for r in sorted(grid.rows)[:HEADER_SCAN_ROWS]:
@@ -279,7 +336,7 @@ def find_instruments(pkg: Package, recipe: TradeRecipe, skip: Sequence[str] = ()
         if recipe.instruments:
             raise TradeLogError(
                 f'{where}, sheet "{name}": no header row with Instrument and Point value / Lot '
-                "step / Min qty / Max qty / FX rate columns")
+                "step / Min qty / Max qty / FX rate / Tick columns")
     return "", {}
 
 
@@ -333,10 +390,10 @@ def _num(x: float) -> str:
 def _headers(recipe: TradeRecipe) -> dict[str, str]:
     """Output column of :func:`review_log` -> header written, in the order written."""
     func = check_measure(recipe)
-    opts = func.bind(kwargs={**{p.name: np.zeros(1) for p in func.columns},
-                             **recipe.options})
+    basis, options = split_basis(func, recipe.options)
+    opts = func.bind(kwargs={**{p.name: np.zeros(1) for p in func.columns}, **options})
     bound = {p.name: opts[p.name] for p in func.options}
-    label = default_header(func.name, bound, {"prices": "close"} if any(
+    label = default_header(func.name, bound, {"prices": basis} if any(
         p.name == "prices" for p in func.columns) else {})
     heads = {
         "Volatility": f"Entry-bar {label}",
@@ -367,12 +424,15 @@ def _headers(recipe: TradeRecipe) -> dict[str, str]:
 _MEANING = {
     "Volatility": "volatility on the entry bar (last bar on or before the entry date)",
     "Bar date": "date of that bar",
-    "Stop": "entry -/+ stop multiple x volatility (mirrored for short trades)",
-    "Target": "entry +/- target multiple x volatility",
+    "Stop": "entry -/+ stop multiple x volatility (mirrored for short trades), rounded away "
+            "from entry to the instrument's tick",
+    "Target": "entry +/- target multiple x volatility, rounded toward entry to the tick",
     "Target R": "target distance in units of the stop distance",
-    "Size": "equity x risk / (stop distance x point value x FX rate), down to the lot step",
+    "Size": "equity x risk / (stop distance x point value x FX rate), down to the lot step "
+            "(the distance to the rounded stop)",
     "Size note": "why the size is zero, below the minimum or capped (blank when fine)",
-    "Trail": "trailing stop in force at the end of the review",
+    "Trail": "trailing stop in force at the end of the review (rounded away from the price "
+             "to the tick)",
     "Result": "which came first: stop, target, trailing stop, logged exit; or still open, "
               "or ambiguous (stop and target on one bar)",
     "Exit price": "exit price found by the review (stop, target, trail or logged exit)",
@@ -464,8 +524,15 @@ def plan_trade_review(
     """
     settings = settings_from(recipe, instruments[1])
     frame, grid = _read_log(pkg, log)
+    if log.instrument and "Instrument" not in frame.columns:
+        frame["Instrument"] = log.instrument
     report = TradeReport(sheet=log.sheet, header_row=log.header_row, trades=len(frame),
-                         instruments_sheet=instruments[0])
+                         instruments_sheet=instruments[0], instrument=log.instrument)
+    if recipe.risk > LARGE_RISK:
+        report.warnings.append(
+            f"risk per trade is {_num(100 * recipe.risk)}% of equity, above "
+            f"{_num(100 * LARGE_RISK)}%: risk is a share of equity (0.01 = 1%); check the "
+            "setting")
     try:
         reviewed = review_log(frame, prices, settings)
     except ValueError as exc:  # settings were checked; this is the log itself
@@ -533,7 +600,8 @@ def plan_trade_review(
         edits.append(NewColumn(sheet=log.sheet, col=col, header_row=log.header_row, header="",
                                first_row=first, values=np.full(1, np.nan),
                                number_format="General"))
-    report.settings = _settings_rows(recipe, settings, instruments[0])
+    report.settings = _settings_rows(recipe, settings, instruments[0], log.instrument)
+    report.settings += [("Warning", w) for w in report.warnings]
     edits.append(NewSheet(name=REVIEW_SHEET, rows=_review_rows(report), widths=[40, 14]))
     return edits, report
 
@@ -641,9 +709,15 @@ def _step_decimals(step: float) -> int:
 
 
 def _settings_rows(recipe: TradeRecipe, settings: TradeSettings,
-                   instruments_sheet: str) -> list[tuple[str, str]]:
+                   instruments_sheet: str, instrument: str = "") -> list[tuple[str, str]]:
     func = check_measure(recipe)
     opts = ", ".join(f"{k}={v}" for k, v in recipe.options.items())
+    ticks = {k: v.tick for k, v in settings.instruments.items() if v.tick > 0}
+    levels = ("rounded to each instrument's tick (Tick column of the contract details): "
+              "stop and trailing stop away from entry, target toward entry; the size uses "
+              "the rounded stop" + ("" if len(ticks) == len(settings.instruments) else
+                                    "; instruments without a tick are not rounded")
+              if ticks else "not rounded (no Tick column in the contract details)")
     equity = ("the log's Equity column (the latest trade's for the open-risk share)"
               if not math.isfinite(recipe.equity) else f"{recipe.equity:,.2f}")
     details = (f'sheet "{instruments_sheet}"' if instruments_sheet else
@@ -657,6 +731,9 @@ def _settings_rows(recipe: TradeRecipe, settings: TradeSettings,
         ("Risk per trade", f"{_num(100 * recipe.risk)}% of equity"),
         ("Equity", equity),
         ("Contract details", details),
+        ("Levels", levels),
+        *([("Instrument", f'the log has no instrument column: every trade is on "{instrument}"'
+            ", the workbook's only price sheet")] if instrument else []),
         ("Defaults", "ATR 14, stop 2, target 3, trail 3, risk 1%: common practice, no source"),
     ]
 

@@ -28,7 +28,9 @@ from sheetvol import cells, registry
 from sheetvol.frame import find_roles
 from sheetvol.kernels import risk
 from sheetvol.kernels._types import FloatArray
+from sheetvol.kernels.prices import price_basis
 from sheetvol.locate import normalize_header
+from sheetvol.recipe import split_basis
 
 __all__ = [
     "LOG_COLUMNS",
@@ -37,7 +39,9 @@ __all__ = [
     "Instrument",
     "TradeSettings",
     "instruments_from_frame",
+    "missing_roles_message",
     "review_log",
+    "single_instrument",
     "summarise",
 ]
 
@@ -70,7 +74,8 @@ class Instrument:
 
     ``point_value`` is money per 1.0 price move per unit in the instrument's
     currency; ``fx_rate`` is account currency per unit of instrument currency;
-    ``min_qty``/``max_qty`` of 0 mean no limit.
+    ``min_qty``/``max_qty`` of 0 mean no limit; ``tick`` is the price increment
+    levels are rounded to (0: not rounded; see :func:`sheetvol.kernels.risk.to_tick`).
     """
 
     point_value: float = 1.0
@@ -78,6 +83,7 @@ class Instrument:
     min_qty: float = 0.0
     max_qty: float = 0.0
     fx_rate: float = 1.0
+    tick: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -93,7 +99,9 @@ class TradeSettings:
         bars (``prices`` means the close).
     options : mapping
         Options of that function (``{"period": 20, "average": "exponential"}``),
-        validated by the registry.
+        validated by the registry. For a measure of one price column,
+        ``basis`` picks the bar's price it is computed on (one of SV_PRICE's
+        ``basis`` words, e.g. ``"typical"``; default the close).
     stop_multiple, target_multiple : float
         Volatility units from entry to stop and to target. The defaults, 2 and 3,
         are common practice (no source).
@@ -175,8 +183,9 @@ def instruments_from_frame(frame: pd.DataFrame) -> dict[str, Instrument]:
     ----------
     frame : pandas.DataFrame
         Columns ``Instrument`` and any of ``Point value``, ``Lot step``,
-        ``Min qty``, ``Max qty``, ``FX rate`` (headers compared ignoring case,
-        spaces and underscores); blank cells take the :class:`Instrument` defaults.
+        ``Min qty``, ``Max qty``, ``FX rate``, ``Tick`` (or ``Tick size``)
+        (headers compared ignoring case, spaces and underscores); blank cells
+        take the :class:`Instrument` defaults.
 
     Returns
     -------
@@ -191,7 +200,8 @@ def instruments_from_frame(frame: pd.DataFrame) -> dict[str, Instrument]:
     """
     roles = {"instrument": ("instrument",), "point_value": ("point value",),
              "lot_step": ("lot step",), "min_qty": ("min qty", "minimum"),
-             "max_qty": ("max qty", "maximum"), "fx_rate": ("fx rate", "fx")}
+             "max_qty": ("max qty", "maximum"), "fx_rate": ("fx rate", "fx"),
+             "tick": ("tick", "tick size")}
     cols = _find_columns(frame, roles, {})
     if cols["instrument"] is None:
         raise ValueError("instrument table has no Instrument column")
@@ -201,7 +211,7 @@ def instruments_from_frame(frame: pd.DataFrame) -> dict[str, Instrument]:
         if cells.is_blank(name) or (not isinstance(name, str) and pd.isna(name)):
             continue
         values = {}
-        for role in ("point_value", "lot_step", "min_qty", "max_qty", "fx_rate"):
+        for role in ("point_value", "lot_step", "min_qty", "max_qty", "fx_rate", "tick"):
             if cols[role] is not None:
                 x = _numbers([row[cols[role]]], f"{name} {cols[role]}")[0]
                 if math.isfinite(x):
@@ -221,7 +231,8 @@ class _Bars:
     vol: FloatArray
 
 
-def _volatility_function(settings: TradeSettings) -> registry.Function:
+def _volatility_function(settings: TradeSettings) -> tuple[registry.Function, str, dict]:
+    """The measure, its price basis and its other options, checked."""
     name = _MEASURE_WORDS.get(settings.measure.strip().lower(), settings.measure)
     try:
         func = registry.get(name)
@@ -232,11 +243,13 @@ def _volatility_function(settings: TradeSettings) -> registry.Function:
             f"measure {settings.measure!r} must be a column function in price units "
             "(such as SV_ATR or SV_DEVIATION)"
         )
-    func.bind((), {**{p.name: [0.0] for p in func.columns}, **settings.options})  # check early
-    return func
+    basis, options = split_basis(func, settings.options)
+    func.bind((), {**{p.name: [0.0] for p in func.columns}, **options})  # check early
+    return func, basis, options
 
 
-def _prepare(prices: pd.DataFrame, func: registry.Function, settings: TradeSettings) -> _Bars:
+def _prepare(prices: pd.DataFrame, func: registry.Function, basis: str,
+             options: Mapping[str, Any]) -> _Bars:
     """Bars sorted oldest first, as day numbers and floats, with the volatility column."""
     by_text = {str(c): c for c in prices.columns}
     roles = find_roles(by_text)
@@ -259,13 +272,72 @@ def _prepare(prices: pd.DataFrame, func: registry.Function, settings: TradeSetti
         return _numbers(prices[cols[role]].to_numpy()[order], str(cols[role]))
 
     o, h, lo, c = column("open"), column("high"), column("low"), column("close")
-    inputs = {"open": o, "high": h, "low": lo, "close": c, "prices": c}
+    one = c if basis == "close" else price_basis(o, h, lo, c, basis)
+    inputs = {"open": o, "high": h, "low": lo, "close": c, "prices": one}
     args = {p.name: inputs[p.name] for p in func.columns if p.name in inputs}
     missing = [p.name for p in func.columns if p.name not in inputs]
     if missing:
         raise ValueError(f"{func.name} needs columns the bars do not have: {', '.join(missing)}")
-    vol = np.asarray(func.compute(func.bind((), {**args, **settings.options})), dtype=float)
+    vol = np.asarray(func.compute(func.bind((), {**args, **options})), dtype=float)
     return _Bars(days[order], o, h, lo, c, vol)
+
+
+def single_instrument(cols: Mapping[str, Any], prices: Mapping[str, Any]) -> str:
+    """The instrument of every trade when the log has no instrument column and there is
+    exactly one set of prices ("" otherwise).
+
+    Parameters
+    ----------
+    cols : mapping
+        Role -> column found in the log (None when absent).
+    prices : mapping
+        Bars per instrument.
+
+    Returns
+    -------
+    str
+
+    Examples
+    --------
+    >>> single_instrument({"instrument": None}, {"Prices": None})
+    'Prices'
+    """
+    if cols.get("instrument") is not None or len(prices) != 1:
+        return ""
+    return str(next(iter(prices)))
+
+
+def missing_roles_message(cols: Mapping[str, Any], absent: Iterable[str],
+                          headers: Iterable[Any]) -> str:
+    """Which log roles were found (and in which column) and which are missing.
+
+    Parameters
+    ----------
+    cols : mapping
+        Role -> column found (None when absent).
+    absent : iterable of str
+        The required roles that are missing.
+    headers : iterable
+        The log's headers, for the message.
+
+    Returns
+    -------
+    str
+
+    Examples
+    --------
+    >>> missing_roles_message({"date": "Trade date", "instrument": None, "side": "Side"},
+    ...                       ["instrument"], ["Trade date", "Side"])  # doctest: +ELLIPSIS
+    'trade log has no instrument column (found: date in "Trade date", side in "Side"; ...'
+    """
+    absent = list(absent)
+    found = ", ".join(f'{r} in "{c}"' for r, c in cols.items() if c is not None)
+    words = {r: "/".join(LOG_COLUMNS[r][:4]) for r in absent}
+    hint = ("; with exactly one price sheet, every trade is taken to be on it"
+            if "instrument" in absent else "")
+    return (f"trade log has no {' or '.join(absent)} column (found: {found or 'no role'}; "
+            f"missing: {', '.join(f'{r} ({w})' for r, w in words.items())}; headers: "
+            f"{', '.join(map(str, headers))}){hint}")
 
 
 def _lookup(prices: Mapping[str, pd.DataFrame], name: str) -> pd.DataFrame | None:
@@ -287,7 +359,9 @@ def review_log(
     ----------
     trades : pandas.DataFrame
         One row per trade. Columns are found by header (see
-        :data:`LOG_COLUMNS`): date, instrument and side are required; entry
+        :data:`LOG_COLUMNS`): date, instrument and side are required (without
+        an instrument column, every trade is on the only instrument of
+        ``prices`` when there is exactly one); entry
         price (blank: the entry bar's close), exit price and exit date (blank:
         still open), quantity (blank: the computed size, for open risk) and
         equity (blank: ``settings.equity``) are optional.
@@ -303,8 +377,10 @@ def review_log(
         The columns of :data:`OUTPUT_COLUMNS`, with the index of ``trades``:
 
         * ``Volatility`` as of the entry bar (``Bar date``: that bar's date);
-        * ``Stop``, ``Target`` and ``Target R`` (the target in R);
-        * ``Size``, rounded down to the lot step, and ``Size note``;
+        * ``Stop``, ``Target`` and ``Target R`` (the target in R); with an
+          instrument tick, the stop is rounded away from entry and the target
+          toward it (:func:`sheetvol.kernels.risk.to_tick`);
+        * ``Size`` (from the rounded stop), down to the lot step, and ``Size note``;
         * ``Trail``: the trailing stop in force at the end of the review;
         * ``Result``, ``Exit price``, ``Exit date``, ``R``, ``Bars``,
           ``Adverse``/``Favourable`` (price) and in R: see
@@ -327,15 +403,13 @@ def review_log(
     (np.float64(2.0), np.float64(6.0), np.float64(16.0), np.float64(25.0), 'open')
     """
     settings = settings or TradeSettings()
-    func = _volatility_function(settings)
+    measure = _volatility_function(settings)
     cols = _find_columns(trades, LOG_COLUMNS, settings.columns)
-    absent = [r for r in _REQUIRED_ROLES if cols[r] is None]
-    if absent:
-        raise ValueError(
-            f"trade log has no {' or '.join(absent)} column "
-            f"(found: {', '.join(map(str, trades.columns))})"
-        )
     n = len(trades)
+    only = single_instrument(cols, prices)
+    absent = [r for r in _REQUIRED_ROLES if cols[r] is None and not (r == "instrument" and only)]
+    if absent:
+        raise ValueError(missing_roles_message(cols, absent, trades.columns))
 
     def log_numbers(role: str) -> FloatArray:
         if cols[role] is None:
@@ -348,7 +422,8 @@ def review_log(
     entries, exits = log_numbers("entry"), log_numbers("exit")
     quantities, equities = log_numbers("quantity"), log_numbers("equity")
     equities = np.where(np.isfinite(equities), equities, settings.equity)
-    names = trades[cols["instrument"]].to_numpy()
+    names = (trades[cols["instrument"]].to_numpy() if cols["instrument"] is not None
+             else np.full(n, only, dtype=object))
     sides = trades[cols["side"]].to_numpy()
 
     out: dict[str, list[Any]] = {c: [] for c in OUTPUT_COLUMNS}
@@ -356,7 +431,7 @@ def review_log(
     for t in range(n):
         row = _review_row(
             names[t], sides[t], entry_days[t], entries[t], exits[t], exit_days[t],
-            quantities[t], equities[t], prices, func, settings, cache,
+            quantities[t], equities[t], prices, measure, settings, cache,
         )
         for c in OUTPUT_COLUMNS:
             out[c].append(row.get(c, np.nan if c not in ("Bar date", "Exit date") else pd.NaT))
@@ -369,9 +444,11 @@ def review_log(
 def _review_row(
     name: Any, side: Any, entry_day: float, entry: float, exit_price: float, exit_day: float,
     quantity: float, equity: float, prices: Mapping[str, pd.DataFrame],
-    func: registry.Function, settings: TradeSettings, cache: dict[str, _Bars | str],
+    measure: tuple[registry.Function, str, dict], settings: TradeSettings,
+    cache: dict[str, _Bars | str],
 ) -> dict[str, Any]:
     """All output columns of one trade; a ``Note`` says what stopped the row short."""
+    func = measure[0]
     label = "" if name is None or (not isinstance(name, str) and pd.isna(name)) else str(name)
     if not label.strip():
         return {"Note": "no instrument"}
@@ -381,7 +458,7 @@ def _review_row(
             cache[label] = f"no prices for instrument {label!r}"
         else:
             try:
-                cache[label] = _prepare(frame, func, settings)
+                cache[label] = _prepare(frame, *measure)
             except (ValueError, cells.CellValueError) as exc:
                 cache[label] = f"prices for {label!r}: {exc}"
     bars = cache[label]
@@ -405,12 +482,14 @@ def _review_row(
     row["Volatility"] = vol
     if not math.isfinite(vol):
         notes.append(f"no {func.name} on the entry bar (too little history)")
-    stop = risk.stop_price(entry, vol, settings.stop_multiple, side)
-    target = risk.target_price(entry, vol, settings.target_multiple, side)
+    inst = settings.instrument(label)
+    # Levels on the instrument's tick: stops away from entry, targets toward it; the size
+    # then risks the budget over the stop that can actually be placed.
+    stop = risk.stop_price(entry, vol, settings.stop_multiple, side, inst.tick)
+    target = risk.target_price(entry, vol, settings.target_multiple, side, inst.tick)
     row.update({"Stop": stop, "Target": target,
                 "Target R": risk.r_multiple(entry, stop, target, side)})
 
-    inst = settings.instrument(label)
     size = risk.size_with_reason(equity, settings.risk, entry, stop, inst.point_value,
                                  inst.lot_step, inst.min_qty, inst.max_qty, inst.fx_rate)
     row["Size"] = float(size.quantity[0])
@@ -419,7 +498,7 @@ def _review_row(
     trail = None
     if settings.trail_multiple > 0:
         trail = risk.trailing_stop(bars.high, bars.low, bars.close, bars.vol, i, entry,
-                                   str(side), settings.trail_multiple)
+                                   str(side), settings.trail_multiple, inst.tick)
     has_exit = math.isfinite(exit_price)
     exit_index = risk.bar_on_or_before(bars.days, exit_day) if has_exit else None
     if has_exit and math.isfinite(exit_day) and exit_day < bars.days[i]:
@@ -465,9 +544,8 @@ SUMMARY_LABELS = {
     "open": "Still open (share)",
     "ambiguous": "Ambiguous (share)",
     "finished": "Finished trades",
-    "average_r": "Average R",
     "total_r": "Total R",
-    "expectancy": "Expectancy (R per finished trade)",
+    "expectancy": "Expectancy (average R per finished trade)",
     "win_rate": "Win rate",
     "losing_streak": "Largest losing streak",
     "open_risk": "Open risk (account currency)",
@@ -505,7 +583,7 @@ def summarise(
     ...                    "Open risk": [np.nan, np.nan, 400.0],
     ...                    "Bar date": pd.to_datetime(["2025-01-02", "2025-01-03", "2025-01-06"])})
     >>> s = summarise(rv, settings=TradeSettings(equity=100_000))
-    >>> s["Average R"], s["Open risk (share of equity)"]
+    >>> s["Expectancy (average R per finished trade)"], s["Open risk (share of equity)"]
     (1.0, 0.004)
     """
     settings = settings or TradeSettings()

@@ -153,3 +153,57 @@ def test_text_alone_is_not_taken_for_a_header():
         _convert.column("abc", func="SV_X", param="prices")
     with pytest.raises(ArgumentError, match=r"^SV_X_ON: dates item 1 is 'Date', not a date"):
         _convert.day_numbers([["Date"], [None]], func="SV_X_ON", param="dates")
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.lists(st.one_of(st.none(), st.datetimes(dt.datetime(1900, 3, 1),
+                                                  dt.datetime(9999, 12, 31))),
+                min_size=1, max_size=30))
+def test_vectorised_dates_agree_with_cell_by_cell(values):
+    # Reference: sheetvol.cells.datetime_to_serial applied cell by cell (the rule for one
+    # cell); the column path converts all datetimes at once through pandas.
+    got = _convert.day_numbers([[v] for v in values], func="SV_X_ON", param="dates")
+    ref = [math.nan if v is None else cells.datetime_to_serial(v) for v in values]
+    np.testing.assert_allclose(got, ref, rtol=0, atol=1e-9)
+
+
+# -- parts of a range (what _LAST and _ON read of a window function) ---------------------------
+@pytest.mark.parametrize(
+    ("value", "length", "part"),
+    [
+        ([[1.0], [2.0], [3.0]], 3, [[2.0], [3.0]]),  # a column with ndim=2
+        ([1.0, 2.0, 3.0], 3, [2.0, 3.0]),  # a flat list
+        ([[1.0, 2.0, 3.0]], 3, [[2.0, 3.0]]),  # a row
+        (np.array([[1.0], [2.0], [3.0]]), 3, np.array([2.0, 3.0])),  # a nested result
+        (5.0, 1, []),  # a single cell
+    ],
+)
+def test_line_length_and_slice(value, length, part):
+    assert _convert.line_length(value, func="SV_X", param="p") == length
+    got = _convert.line_slice(value, 1, 3)
+    if isinstance(part, np.ndarray):
+        np.testing.assert_array_equal(got, part)
+    else:
+        assert got == part
+
+
+def test_line_length_refuses_a_block_with_its_whole_size():
+    with pytest.raises(ArgumentError, match=r"^SV_ATR: high must be one column .* 3 rows x 2"):
+        _convert.line_length([[1.0, 2.0]] * 3, func="SV_ATR", param="high")
+
+
+def test_a_part_below_the_top_counts_items_from_its_place_and_holds_no_header():
+    # Cells 101.. of a range: a message names the item's place in the whole range, and
+    # text before the part's first number is not a header (only the top can hold one).
+    with pytest.raises(ArgumentError, match=r"^SV_X: prices item 102 is 'x', not a number"):
+        _convert.column([[1.0], ["x"]], func="SV_X", param="prices", first_item=100)
+    with pytest.raises(ArgumentError, match=r"^SV_X: prices item 101 is 'Close'"):
+        _convert.column([["Close"], [1.0]], func="SV_X", param="prices", first_item=100)
+    top = _convert.column([["Close"], [1.0]], func="SV_X", param="prices").values
+    np.testing.assert_array_equal(top, [math.nan, 1.0])
+
+
+def test_ragged_rows_with_empty_ones_read_as_blanks():
+    # Not what a spreadsheet passes, but a Python caller might: an empty row is a blank.
+    got = _convert.column([[1.0], [], [2.0]], func="SV_X", param="prices").values
+    np.testing.assert_array_equal(got, [1.0, math.nan, 2.0])

@@ -83,7 +83,10 @@ def test_formats_headers_and_notes(filled):
     assert list(headers)[-6:] == [DEV, "ATR 14 (Wilder)", "Upper band 20×2",
                                   "Lower band 20×2", "%b 20×2", "Close vol 20 (ann.)"]
     last = rows[df["Date"].iloc[-1]]
-    assert ws.cell(last, headers[DEV].column).number_format == "0.00"
+    # price units as quoted (2 decimals here) with thousands separators; shares in percent
+    assert ws.cell(last, headers[DEV].column).number_format == "#,##0.00"
+    assert ws.cell(last, headers["Upper band 20×2"].column).number_format == "#,##0.00"
+    assert ws.cell(last, headers["%b 20×2"].column).number_format == "0.000"
     assert ws.cell(last, headers["Close vol 20 (ann.)"].column).number_format == "0.00%"
     lines = list(wb[NOTES_SHEET].iter_rows(values_only=True))
     notes = {r[0]: r[1] for r in lines if r[0]}
@@ -97,6 +100,7 @@ def test_formats_headers_and_notes(filled):
     assert written[4] == "period=14, smoothing=wilder, seed=average, first_bar=high-low"
     assert any("population" in str(k) for k in notes)
     assert any(str(k).startswith("Not investment advice") for k in notes)
+    assert read[5] == "none"  # no gaps in this workbook
 
 
 def test_rerun_replaces_its_own_columns(tmp_path):
@@ -292,14 +296,24 @@ def test_progress_bar_only_on_a_terminal(tmp_path, monkeypatch, capsys):
 
     df = ohlc(60)
     src = tmp_path / "p.xlsx"
-    write_book(src, df)
-    monkeypatch.setattr(fill_mod, "PROGRESS_MIN_ROWS", 10)
+    rows = write_book(src, df)
+    monkeypatch.setattr(fill_mod, "PROGRESS_MIN_BYTES", 0)
     fill_file(src, FillOptions(progress=True))
     assert capsys.readouterr().err == ""  # captured stderr is not a terminal
     monkeypatch.setattr(sys.stderr, "isatty", lambda: True, raising=False)
-    fill_file(src, FillOptions(progress=True))
-    assert "writing p-filled.xlsx" in capsys.readouterr().err
+    fill_file(src, FillOptions(progress=True, output=tmp_path / "shown.xlsx"))
+    err = capsys.readouterr().err
+    # one bar over the whole job, in stages: reading and computing too, not only writing
+    stages = ["finding the price columns", 'reading sheet "Prices"',
+              'computing 6 columns for "Prices"', "writing shown.xlsx"]
+    at = [err.find(stage) for stage in stages]
+    assert -1 not in at and at == sorted(at), err
+    assert "100%" in err  # the bar ends full
+    assert_deviation_on_rows(tmp_path / "shown.xlsx", df, rows)
     fill_file(src, FillOptions(progress=False))
+    assert capsys.readouterr().err == ""
+    monkeypatch.setattr(fill_mod, "PROGRESS_MIN_BYTES", 10**9)  # a small fill: no bar
+    fill_file(src, FillOptions(progress=True))
     assert capsys.readouterr().err == ""
 
 
@@ -381,3 +395,59 @@ def test_chart_option_draws_close_with_bands_and_dispersion_with_atr(tmp_path):
     for col in "GH":
         assert f"Prices!${col}$2:${col}$41" in refs[1].replace("'", "")
     assert "sheetvol charts" in load_workbook(report.output).sheetnames
+
+
+@pytest.mark.parametrize(("start", "places", "fmt"), [
+    (35000.0, 1, "#,##0.00"),  # an index quoted to 0.1: at least 2 decimals, with separators
+    (110.0, 5, "#,##0.00000"),  # scaled to a currency pair near 1.1 quoted to 5 decimals
+])
+def test_price_columns_follow_the_quote_with_thousands_separators(tmp_path, start, places,
+                                                                   fmt):
+    df = ohlc(30, start=start)
+    rng = np.random.default_rng(3)
+    for c in ("Open", "High", "Low", "Close"):  # quoted to `places` decimals (hand-chosen)
+        df[c] = np.round(df[c] * (1 if places == 1 else 0.01) + rng.uniform(0, 1e-4, 30),
+                         places)
+    df["High"] = df[["Open", "High", "Close"]].max(axis=1)
+    df["Low"] = df[["Open", "Low", "Close"]].min(axis=1)
+    src = tmp_path / "q.xlsx"
+    write_book(src, df)
+    report = fill_file(src)
+    ws = load_workbook(report.output)["Prices"]
+    formats = {ws.cell(1, c).value: ws.cell(30, c).number_format for c in range(7, 13)}
+    for header in (DEV, "ATR 14 (Wilder)", "Upper band 20×2", "Lower band 20×2"):
+        assert formats[header] == fmt
+    assert formats["%b 20×2"] == "0.000" and formats["Close vol 20 (ann.)"] == "0.00%"
+
+
+def test_notes_keep_numbers_and_list_each_caution_once(tmp_path):
+    from sheetvol.trade_fill import TRADE_CAUTIONS
+
+    df = ohlc(60)
+    src = tmp_path / "desk.xlsx"
+    write_book(src, df, sheet="ALPHA")
+    wb = load_workbook(src)
+    log = wb.create_sheet("Trades")
+    log.append(["Date", "Instrument", "Side", "Entry"])
+    log.append([df["Date"].iloc[30].to_pydatetime(), "ALPHA", "Long",
+                float(df["Close"].iloc[30])])
+    wb["ALPHA"]["H1"] = "typed"
+    wb["ALPHA"]["H2"] = "=SV_DEVIATION_LAST(E2:E61,14)"
+    wb.save(src)
+    report = fill_file(src)
+    assert report.trades is not None and report.formulas_ok == 1
+    lines = [r for r in load_workbook(report.output)[NOTES_SHEET].iter_rows(values_only=True)]
+    typed = next(r for r in lines if r[0] == "ALPHA!H2")
+    ref = df["Close"].rolling(14).std(ddof=0).iloc[-1]  # reference: pandas, ddof=0
+    assert isinstance(typed[2], float) and typed[2] == pytest.approx(ref, rel=1e-12)
+    start = next(i for i, r in enumerate(lines) if r[0] == "Cautions") + 1
+    cautions = [r[0] for r in lines[start:] if r[0]]
+    text = " ".join(cautions).lower()
+    # one list: each subject once, the trade review's content kept
+    for subject in ("advice", "stop", "margin", "export", "trade review"):
+        assert sum(subject in c.lower() for c in cautions) == 1, subject
+    for phrase in ("gap", "slip", "contract specifications", "local regulation",
+                   "logged trades"):
+        assert phrase in text, phrase
+    assert len(cautions) == len(set(cautions)) == 5
+    assert not set(cautions) & set(TRADE_CAUTIONS)  # not listed a second time verbatim

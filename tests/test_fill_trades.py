@@ -1,9 +1,10 @@
 """The trade log through the fill: review columns, the review sheet, sizing, re-runs.
 
 Outside references: TA-Lib's ATR (Wilder smoothing) for the entry-bar volatility, the
-Original Turtle Trading Rules sizing example for the position size, hand-worked levels
-spelled out in the tests; the consistency checks call ``trades.review_log`` directly on
-the same data.
+Original Turtle Trading Rules sizing example for the position size, Python's
+``statistics.pstdev`` for a measure on the typical price, ``decimal`` arithmetic for levels
+rounded to the tick, hand-worked levels spelled out in the tests; the consistency checks
+call ``trades.review_log`` directly on the same data.
 """
 
 from __future__ import annotations
@@ -11,8 +12,11 @@ from __future__ import annotations
 import datetime as dt
 import doctest
 import math
+import re
 import shutil
+import statistics
 from collections import Counter
+from decimal import ROUND_CEILING, ROUND_FLOOR, Decimal
 from pathlib import Path
 
 import numpy as np
@@ -23,8 +27,10 @@ from openpyxl import Workbook, load_workbook
 
 from sheetvol import recipe as recipe_module
 from sheetvol import trade_fill
+from sheetvol import trades as trades_module
 from sheetvol.cli import main
 from sheetvol.fill import FillOptions, fill_file
+from sheetvol.kernels import risk as risk_module
 from sheetvol.notes import NOTES_SHEET
 from sheetvol.recipe import RecipeError, TradeRecipe, parse_trades, read_recipe
 from sheetvol.trade_fill import REVIEW_SHEET, TradeLogError, scaled_format
@@ -128,9 +134,35 @@ def test_demo_number_formats(demo_filled):
     assert fmt["R multiple"] == fmt["Target in R"] == "0.00"
     # KESTREL (about 1.1) is quoted to 5 decimals, the others (90 and up) to 2
     assert fmt["Stop 2×vol"] == "[<10]#,##0.00000;[>=10]#,##0.00"
-    # TALLOW (sizes about 1) trades in lots of 0.001, the others (3 and up) in whole units
-    assert fmt["Size at 1% risk"] == "[<1.8]#,##0.000;[>=1.8]#,##0"
     assert fmt["Bars held"] == "0"
+
+
+def test_demo_size_format_follows_the_lot_steps(demo_filled, demo_direct):
+    """The size column's format, derived from the Instruments sheet and the sizes.
+
+    Decimals of a lot step as written: 0.001 -> 3, 1 or 1,000 -> 0. Only TALLOW trades in
+    fractions, so the format has two sections, 3 decimals below a cut and none above it,
+    and the cut must lie above every TALLOW size and at or below every other nonzero size.
+    """
+    book, direct = demo_direct
+    _src, report = demo_filled
+    ws = load_workbook(report.output)["Trades"]
+    fmt = {c.value: ws.cell(2, c.column).number_format for c in ws[1]}["Size at 1% risk"]
+    steps = dict(zip(book["Instruments"]["Instrument"], book["Instruments"]["Lot step"],
+                     strict=True))
+    places = {k: max(0, -Decimal(str(v)).normalize().as_tuple().exponent)
+              for k, v in steps.items()}
+    fine = [k for k, d in places.items() if d > 0]
+    assert fine == ["TALLOW"] and places["TALLOW"] == 3
+    found = re.fullmatch(r"\[<([0-9.]+)\]#,##0\.(0+);\[>=([0-9.]+)\]#,##0", fmt)
+    assert found is not None, fmt
+    cut = float(found.group(1))
+    assert found.group(3) == found.group(1) and len(found.group(2)) == places["TALLOW"]
+    sizes = direct["Size"].to_numpy(dtype=float)
+    names = book["Trades"]["Instrument"]
+    tallow = sizes[(names == "TALLOW").to_numpy()]
+    others = sizes[(names != "TALLOW").to_numpy() & (sizes > 0)]
+    assert tallow.max() < cut <= others.min()
 
 
 def test_one_demo_trade_by_hand_against_talib(demo_filled, demo_direct):
@@ -138,12 +170,15 @@ def test_one_demo_trade_by_hand_against_talib(demo_filled, demo_direct):
 
     TA-Lib seeds its ATR differently (its first true range needs a previous close), so
     the two agree only once the seed has decayed: by (13/14)^k, below 1e-9 relative after
-    about 280 bars. The stop is then worked here: long entry - 2 x ATR, short entry + 2 x ATR.
+    about 280 bars. The stop is then worked here: long entry - 2 x ATR, short entry + 2 x ATR,
+    rounded away from entry to the tick.
     """
     book, _direct = demo_direct
     _src, report = demo_filled
     got = columns_by_header(load_workbook(report.output)["Trades"])
     log = book["Trades"]
+    ticks = dict(zip(book["Instruments"]["Instrument"], book["Instruments"]["Tick"],
+                     strict=True))
     checked = 0
     for t in range(len(log)):
         bars = book[log["Instrument"][t]]
@@ -154,8 +189,13 @@ def test_one_demo_trade_by_hand_against_talib(demo_filled, demo_direct):
                         upto["Close"].to_numpy(float), timeperiod=14)[-1]
         assert got[HEADERS["Volatility"]][t] == pytest.approx(atr, rel=1e-9)
         sign = 1 if str(log["Side"][t]).lower() in ("long", "buy") else -1
-        assert got[HEADERS["Stop"]][t] == pytest.approx(log["Entry"][t] - sign * 2 * atr,
-                                                        rel=1e-9)
+        # The stop on the instrument's tick, away from entry (down for long, up for short),
+        # worked in decimal arithmetic from the Instruments sheet's Tick.
+        tick = Decimal(str(ticks[log["Instrument"][t]]))
+        raw = Decimal(repr(float(log["Entry"][t] - sign * 2 * atr)))
+        ticks_away = (raw / tick).to_integral_value(
+            rounding=ROUND_FLOOR if sign > 0 else ROUND_CEILING)
+        assert got[HEADERS["Stop"]][t] == float(ticks_away * tick)
         checked += 1
     assert checked >= 5
 
@@ -182,7 +222,9 @@ def test_result_column_and_review_sheet_counts(demo_filled, demo_direct):
     assert summary["Finished trades"][0] == 20 - results["open"] - results["ambiguous"]
     finished = [r for r, w in zip(direct["R"], direct["Result"], strict=True)
                 if w not in ("open", "ambiguous")]
-    assert summary["Average R"] == (pytest.approx(sum(finished) / len(finished)), "0.00")
+    label = "Expectancy (average R per finished trade)"
+    assert summary[label] == (pytest.approx(sum(finished) / len(finished)), "0.00")
+    assert "Average R" not in summary  # the same figure once, not twice
     assert summary["Open risk (account currency)"][1] == "#,##0.00"
     assert summary["Open risk (share of equity)"][1] == "0.0%"
 
@@ -316,7 +358,9 @@ def test_one_long_price_sheet_with_an_instrument_column(tmp_path):
     assert got["Review note"][:3] == direct["Note"].tolist()
     assert "entry bar's close" in got["Review note"][0]
     assert got["Size note"][:3] == [None, None, direct["Size note"][2]]
-    assert got["Size at 1% risk"][2] == 0 and "lot step" in got["Size note"][2]
+    assert got["Size at 1% risk"][2] == 0
+    assert got["Size note"][2].startswith("risk budget buys 0.0")  # units, not lots
+    assert got["Size note"][2].endswith("units, less than one lot of 1")
 
 
 def test_recipe_trades_table_errors_name_the_key(tmp_path):
@@ -357,7 +401,9 @@ def test_cli_recipe_flags_summary_and_caution(tmp_path, capsys):
     heads = [c.value for c in load_workbook(tmp_path / "demo-filled.xlsx")["Trades"][1]]
     assert {"Stop 1.5×vol", "Target 4×vol", "Size at 0.5% risk"} <= set(heads)
     assert main(["fill", str(src), "--risk", "2"]) == 2
-    assert "--risk 2: share of equity" in capsys.readouterr().err
+    assert "--risk 2: risk is a share of equity: 0.01 = 1%" in capsys.readouterr().err
+    assert main(["fill", str(src), "--risk", "0.3"]) == 2
+    assert "at most 0.25" in capsys.readouterr().err
 
 
 def test_typed_formulas_in_dependency_order(tmp_path):
@@ -398,6 +444,112 @@ def test_scaled_format_by_hand():
     assert scaled_format(np.array([1.0, 1.5, 2.0]), [5, 2, 5]) == "#,##0.00000"
 
 
-@pytest.mark.parametrize("module", [recipe_module, trade_fill], ids=lambda m: m.__name__)
+@pytest.mark.parametrize("module", [recipe_module, trade_fill, trades_module, risk_module],
+                         ids=lambda m: m.__name__)
 def test_docstring_examples_run(module):
     assert doctest.testmod(module, optionflags=doctest.NORMALIZE_WHITESPACE).failed == 0
+
+
+def test_levels_on_the_tick_recorded_and_placeable(demo_filled):
+    """Every demo stop and target is a whole number of its instrument's ticks (Instruments
+    sheet), and the settings say levels are rounded to the tick."""
+    _src, report = demo_filled
+    wb = load_workbook(report.output)
+    got = columns_by_header(wb["Trades"])
+    ticks = {r[0]: r[8] for r in wb["Instruments"].iter_rows(min_row=2, values_only=True)}
+    for name, stop, target in zip(got["Instrument"][:20], got["Stop 2×vol"][:20],
+                                  got["Target 3×vol"][:20], strict=True):
+        tick = Decimal(str(ticks[name]))
+        for level in (stop, target):
+            assert Decimal(repr(level)) % tick == 0, (name, level, tick)
+    review = [r for r in wb[REVIEW_SHEET].iter_rows(values_only=True) if r[0] == "Levels"]
+    assert review and "rounded to each instrument's tick" in review[0][1]
+    notes = " ".join(str(v) for r in wb[NOTES_SHEET].iter_rows(values_only=True) for v in r if v)
+    assert "rounded to each instrument's tick" in notes
+
+
+def test_large_risk_is_accepted_with_a_warning(tmp_path, capsys):
+    # Above 5% of equity a trade is warned about (common practice, no source); the recipe and
+    # the flags accept up to 0.25, the worksheet SV_SIZE's cap.
+    assert parse_trades({"risk": 0.25}).risk == 0.25
+    with pytest.raises(RecipeError, match=r"risk is a share of equity: 0\.01 = 1%"):
+        parse_trades({"risk": 0.3})
+    src = tmp_path / "demo.xlsx"
+    shutil.copy(DEMO, src)
+    report = fill_file(src, FillOptions(trades=TradeRecipe(risk=0.06)))
+    assert report.trades is not None
+    assert report.trades.warnings == [
+        "risk per trade is 6% of equity, above 5%: risk is a share of equity (0.01 = 1%); "
+        "check the setting"]
+    assert any(line == f"    warning: {report.trades.warnings[0]}" for line in report.summary())
+    rows = list(load_workbook(report.output)[REVIEW_SHEET].iter_rows(values_only=True))
+    assert ("Warning", report.trades.warnings[0]) in [r[:2] for r in rows]
+    quiet = fill_file(src, FillOptions(output=tmp_path / "q.xlsx", trades=TradeRecipe(risk=0.05)))
+    assert quiet.trades is not None and quiet.trades.warnings == []
+
+
+def test_price_basis_option_through_the_fill(tmp_path, demo_direct):
+    """options = { basis = "typical" }: the deviation of (H + L + C) / 3, checked against
+    Python's statistics.pstdev over the 20 bars up to one trade's entry date."""
+    book, _direct = demo_direct
+    path = tmp_path / "desk.toml"
+    path.write_text('[trades]\nmeasure = "deviation"\noptions = { period = 20, basis = '
+                    '"typical" }\n', encoding="utf-8")
+    recipe = read_recipe(path).trades
+    assert recipe is not None
+    src = tmp_path / "demo.xlsx"
+    shutil.copy(DEMO, src)
+    got = columns_by_header(load_workbook(fill_file(src, FillOptions(trades=recipe)).output)[
+        "Trades"])
+    header = "Entry-bar Std dev 20 (simple, typical)"
+    log = book["Trades"]
+    bars = book[log["Instrument"][0]]
+    upto = bars[bars["Date"] <= log["Date"][0]].tail(20)
+    typical = ((upto["High"] + upto["Low"] + upto["Close"]) / 3).tolist()
+    assert got[header][0] == pytest.approx(statistics.pstdev(typical), rel=1e-9)
+    for table, words in (({"measure": "deviation", "options": {"basis": "middle"}},
+                          "basis must be one of close, open, high, low, median, typical"),
+                         ({"options": {"basis": "typical"}}, "SV_ATR reads high, low, close")):
+        with pytest.raises(RecipeError, match=words):
+            parse_trades(table, source="desk.toml")
+
+
+def _one_instrument_book(path: Path, price_sheets: tuple[str, ...]) -> None:
+    """A log without an instrument column (like workbooks/template.xlsx) and calm bars:
+    high 11, low 9, close 10 every day, so ATR 14 = 2."""
+    wb = Workbook()
+    log = wb.active
+    log.title = "Trades"
+    log.append(["Trade date", "Side", "Entry", "Equity"])
+    log.append([dt.datetime(2025, 1, 20), "long", 10.0, 10_000])
+    for name in price_sheets:
+        ws = wb.create_sheet(name)
+        ws.append(["Date", "Open", "High", "Low", "Close"])
+        for k in range(25):
+            ws.append([dt.datetime(2025, 1, 1) + dt.timedelta(days=k), 10.0, 11.0, 9.0, 10.0])
+    wb.save(path)
+
+
+def test_log_without_instrument_column_uses_the_only_price_sheet(tmp_path):
+    src = tmp_path / "one.xlsx"
+    _one_instrument_book(src, ("Prices",))
+    report = fill_file(src)
+    assert report.trades is not None and report.trades.instrument == "Prices"
+    assert any('every trade is on "Prices", the only price sheet' in line
+               for line in report.summary())
+    got = columns_by_header(load_workbook(report.output)["Trades"])
+    # Hand-worked: stop 10 - 2 x 2 = 6; size 10,000 x 1% / 4 = 25.
+    assert got["Stop 2×vol"][0] == 6.0 and got["Size at 1% risk"][0] == 25
+    notes = " ".join(str(v) for r in load_workbook(report.output)[NOTES_SHEET].iter_rows(
+        values_only=True) for v in r if v)
+    assert 'the log has no instrument column: every trade is on "Prices"' in notes
+    # Two price sheets: not reviewed unasked; asked for by name, the error lists found and
+    # missing roles.
+    two = tmp_path / "two.xlsx"
+    _one_instrument_book(two, ("ALDER", "BIRCH"))
+    assert fill_file(two, FillOptions(output=tmp_path / "t.xlsx")).trades is None
+    with pytest.raises(TradeLogError) as err:
+        fill_file(two, FillOptions(trades=TradeRecipe(sheet="Trades")))
+    text = str(err.value)
+    assert "found date (A), side (B), entry (C), equity (D)" in text
+    assert "missing instrument (instrument/symbol/market)" in text

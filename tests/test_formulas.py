@@ -21,7 +21,6 @@ import pandas as pd
 import pytest
 from openpyxl.utils.datetime import CALENDAR_MAC_1904
 
-from sheetvol import calling
 from sheetvol.formulas import (
     Call,
     FormulaError,
@@ -140,7 +139,6 @@ def check(got, expected):
 
 @pytest.mark.parametrize("label", list(FORMS))
 def test_forms_read_with_openpyxl(book, label):
-    calling.CACHE.clear()
     formulas = openpyxl.load_workbook(book)
     values = openpyxl.load_workbook(book, data_only=True)
     row = list(FORMS).index(label) + 2
@@ -225,6 +223,19 @@ def test_scalar_function_over_ranges_gives_a_column():
     got = evaluate('=SV_STOP(A1:A3, B1:B3, 2, "long")', cells)
     # Hand-worked: 100 - 2*2 = 96, 50 - 2*1 = 48; the blank trade stays blank.
     np.testing.assert_array_equal(got, [96.0, 48.0, np.nan])
+
+
+def test_scalar_over_ranges_keeps_good_rows_beside_a_bad_one():
+    # Hand-worked: 100 - 2*2 = 96 and 60 - 2*1 = 58; the middle trade's volatility is
+    # negative, so only its own row carries the message, and arithmetic on the column
+    # leaves that row blank instead of failing the whole formula.
+    def cells(sheet, top, left, bottom, right):
+        return [[100.0], [50.0], [60.0]] if left == 1 else [[2.0], [-1.0], [1.0]]
+    got = evaluate('=SV_STOP(A1:A3, B1:B3, 2, "long")', cells)
+    assert got[0] == 96.0 and got[2] == 58.0
+    assert got[1].startswith("SV_STOP: volatility must be")
+    doubled = evaluate('=SV_STOP(A1:A3, B1:B3, 2, "long")*2', cells)
+    np.testing.assert_array_equal(doubled, [192.0, np.nan, 116.0])
 
 
 # -- parsing ---------------------------------------------------------------------------------

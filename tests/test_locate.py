@@ -7,6 +7,7 @@ from openpyxl import Workbook
 from openpyxl.utils import column_index_from_string, get_column_letter
 
 from sheetvol.locate import (
+    ColumnFlagError,
     LocateError,
     col_letter,
     col_number,
@@ -94,8 +95,12 @@ def test_overrides_by_letter_and_by_header_text():
 
 def test_override_that_matches_nothing_names_the_headers():
     rows = _rows((1, ["Date", "Close"]))
-    with pytest.raises(LocateError, match=r"--high-col 'Maximum price'.*A 'Date', B 'Close'"):
-        find_header(rows, overrides={"high": "Maximum price"})
+    with pytest.raises(ColumnFlagError) as err:
+        find_header(rows, overrides={"high": "Maximum price"}, file="p.xlsx", sheet="Daily")
+    # the flag comes first, then where it looked and what it saw
+    assert str(err.value).startswith(
+        'p.xlsx: --high-col "Maximum price": no column headed "Maximum price" on sheet '
+        "\"Daily\" (headers found in row 1: A 'Date', B 'Close')")
 
 
 def test_missing_close_lists_the_headers_found():

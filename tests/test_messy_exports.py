@@ -146,8 +146,7 @@ def test_error_cells_and_blank_words_are_gaps(tmp_path):
         ws.cell(rows[date], 5).value = text  # openpyxl stores "#N/A" as an error cell
     wb.save(src)
     report = fill_file(src)
-    assert report.table.gap_cells["gaps in Close"] == 2
-    assert report.table.gap_cells["error value (#N/A)"] == 1
+    assert dict(report.sheets[0].gaps) == {"#N/A in Close": 1, '"n/a" in Close': 1}
     got = read_column(report.output, DEV)
     for date in gaps:
         assert got[rows[date]] is None  # blank on the gap bar
@@ -293,7 +292,7 @@ def test_non_numeric_price_names_the_cell(tmp_path):
     wb["Prices"]["E212"] = "n/a"  # a blank word is a gap, not an error
     wb.save(src)
     report = fill_file(src)
-    assert report.table.gap_cells["gaps in Close"] == 1
+    assert dict(report.sheets[0].gaps) == {'"n/a" in Close': 1}
 
 
 def test_missing_close_lists_headers(tmp_path):
@@ -407,3 +406,75 @@ def test_lone_time_column_with_timestamps_is_the_date(tmp_path):
     assert report.table.order == "oldest first"
     rows = {d: i + 2 for i, d in enumerate(df["Time"])}
     assert_deviation_on_rows(report.output, df.rename(columns={"Time": "Date"}), rows)
+
+
+def test_gaps_counted_once_per_bar_and_skipped_rows_apart(tmp_path, capsys):
+    import talib
+
+    from sheetvol.cli import main
+
+    df = ohlc(300, seed=5)
+    src = tmp_path / "gaps.xlsx"
+    rows = write_book(src, df)
+    wb = load_workbook(src)
+    ws = wb["Prices"]
+    col = {"Open": 2, "High": 3, "Low": 4, "Close": 5}
+
+    def put(i: int, name: str, value: object) -> None:
+        ws.cell(rows[df["Date"].iloc[i]], col[name]).value = value  # "#N/A": an error cell
+
+    for name in col:
+        put(40, name, None)  # a date without prices: skipped (holiday)
+        put(60, name, "#N/A")  # a date with only errors: skipped, and not also a gap
+    put(100, "Close", "#N/A")
+    put(120, "High", "n/a")
+    put(140, "Open", "#N/A")  # no default column reads Open: not a gap
+    put(160, "Low", None)
+    put(180, "Close", "#N/A")
+    put(180, "High", "n/a")  # two unusable cells, one bar
+    wb.save(src)
+    assert main(["fill", str(src)]) == 0
+    out = capsys.readouterr().out
+    # Hand count: rows 40 and 60 skipped for different reasons; bars 100, 120, 160 and 180
+    # are gaps (four bars, five unusable cells).
+    assert ("rows skipped: 1 no prices on that date (holiday or blank), 1 no usable price on "
+            "that date (only error values or blank words)") in out
+    line = next(x.strip() for x in out.splitlines() if "bars with a gap" in x)
+    assert line == ('bars with a gap: 4 (1 #N/A in Close, 1 "n/a" in High, 1 "n/a" in High + '
+                    "#N/A in Close, 1 blank Low); the columns that need that price are blank "
+                    "on those bars")
+    filled = tmp_path / "gaps-filled.xlsx"
+    notes = load_workbook(filled)["sheetvol notes"].iter_rows(values_only=True)
+    assert next(r for r in notes if r[0] == "Prices")[5].startswith("bars with a gap: 4 (")
+    # Reference: pandas rolling std (ddof=0) over the bars with a usable close.
+    kept = df.drop(index=[40, 60])
+    close = kept["Close"].to_numpy().copy()
+    close[kept.index.get_indexer([100, 180])] = np.nan
+    assert_deviation_on_rows(filled, kept, rows, close=close)
+    got = read_column(filled, "ATR 14 (Wilder)")
+    for i in (40, 60, 100, 120, 160, 180):
+        assert got.get(rows[df["Date"].iloc[i]]) is None
+    # Reference: TA-Lib ATR on the bars whose High, Low and Close are usable (the gap
+    # policy skips the others), after its different seed has decayed.
+    usable = df.drop(index=[40, 60, 100, 120, 160, 180])
+    ref = talib.ATR(*(usable[c].to_numpy(float) for c in ("High", "Low", "Close")), 14)
+    mine = np.array([got[rows[d]] for d in usable["Date"]], dtype=float)
+    np.testing.assert_allclose(mine[-40:], ref[-40:], rtol=1e-8)
+    assert np.isfinite(mine[-40:]).all()
+
+
+def test_explicit_column_flag_that_matches_nothing_says_so_first(tmp_path, capsys):
+    from sheetvol.cli import main
+
+    src = tmp_path / "p.xlsx"
+    write_book(src, ohlc(20))
+    wb = load_workbook(src)
+    wb.create_sheet("About", 0)["A1"] = "Notes about this export"
+    wb.save(src)
+    assert main(["fill", str(src), "--close-col", "Settle"]) == 1
+    err = capsys.readouterr().err
+    assert err.startswith('sheetvol: error: p.xlsx: --close-col "Settle": no column headed '
+                          "\"Settle\" on sheet \"Prices\" (headers found in row 1: A 'Date', "
+                          "B 'Open'"), err
+    assert "not on 'About' either" in err
+    assert not (tmp_path / "p-filled.xlsx").exists()

@@ -60,7 +60,7 @@ def test_size_converts_the_loss_into_account_currency():
     # At 2.5 account units per instrument unit one contract loses 2 x 1,000 x 2.5 = 5,000,
     # more than the 1,000 budget: 0.2 of a contract, so nothing, with the reason.
     dear = position_size(200_000, 0.005, 150.0, 148.0, point_value=1000, fx_rate=2.5)
-    assert dear == "SV_SIZE: risk budget buys less than one lot step (0.2 of 1)"
+    assert dear == "SV_SIZE: risk budget buys 0.2 units, less than one lot of 1"
 
 
 def test_float_noise_at_an_exact_multiple_does_not_lose_a_step():
@@ -78,8 +78,12 @@ def test_float_noise_at_an_exact_multiple_does_not_lose_a_step():
 def test_size_limits_and_their_messages():
     # Hand-worked: 10,000 x 1% = 100 to risk, stop 10 away -> 10 units = 0.5 of a 20-unit lot.
     assert position_size(10_000, 0.01, 100.0, 90.0, lot_step=20) == (
-        "SV_SIZE: risk budget buys less than one lot step (0.5 of 20)"
+        "SV_SIZE: risk budget buys 10 units, less than one lot of 20"
     )
+    # The note counts units, not lots: 250,000 x 1% = 2,500 over a 3.04 stop = 822.37 units,
+    # in lots of 1,000 -> zero; the note says 822 units (whole units, thousands separated).
+    assert size_note(250_000, 0.01, 105.2, 102.16, lot_step=1000) == (
+        "risk budget buys 822 units, less than one lot of 1,000")
     # 694 units (see above) against a minimum of 1,000: nothing, with the reason.
     assert position_size(250_000, 0.01, 105.2, 101.6, min_qty=1000) == (
         "SV_SIZE: size 694 is below the minimum 1000"
@@ -102,7 +106,68 @@ def test_size_is_vectorised_with_one_note_per_row():
     assert res.quantity[:2].tolist() == [694.0, 0.0]
     assert math.isnan(res.quantity[2])
     assert res.note.tolist() == [
-        "", "risk budget buys less than one lot step (0.5 of 20)", "missing input"]
+        "", "risk budget buys 10 units, less than one lot of 20", "missing input"]
+
+
+# -- ticks -------------------------------------------------------------------------------------
+def test_levels_round_to_the_tick_against_the_trade():
+    # Hand-worked, quarter-point ticks: entry 2,170.5, volatility 6.29.
+    # Long stop 2,170.5 - 12.58 = 2,157.92 -> away from entry (down) 2,157.75;
+    # long target 2,170.5 + 18.87 = 2,189.37 -> toward entry (down) 2,189.25.
+    # Short stop 2,183.08 -> away (up) 2,183.25; short target 2,151.63 -> toward (up) 2,151.75.
+    assert stop_price(2170.5, 6.29, 2, "long", 0.25) == 2157.75
+    assert target_price(2170.5, 6.29, 3, "long", 0.25) == 2189.25
+    assert stop_price(2170.5, 6.29, 2, "short", 0.25) == 2183.25
+    assert target_price(2170.5, 6.29, 3, "short", 0.25) == 2151.75
+    # Tick 0 (the default) leaves the level alone.
+    assert stop_price(2170.5, 6.29, 2, "long") == pytest.approx(2157.92, abs=1e-9)
+    # Vectors of sides and ticks: 100 - 2 x 1.1 = 97.8 -> 97.5 (tick 0.5); 50 + 2.2 = 52.2 on
+    # 1-point ticks -> 53.
+    assert stop_price([100.0, 50.0], [1.1, 1.1], 2, ["long", "short"], [0.5, 1]).tolist() == [
+        97.5, 53.0]
+
+
+def test_tick_rounding_ignores_float_noise():
+    # In floats 1.16059 / 0.00001 = 116058.99999999999 and 0.3 / 0.1 = 2.9999999999999996:
+    # a plain floor would move these prices, already on the tick, down a whole tick.
+    assert math.floor(1.16059 / 0.00001) == 116058 and math.floor(0.3 / 0.1) == 2
+    assert risk.to_tick(1.16059, 0.00001, "long") == 1.16059
+    assert risk.to_tick(0.3, 0.1, "long") == 0.3
+    # 0.1 + 0.2 = 0.30000000000000004: a plain ceiling would give 0.4.
+    assert risk.to_tick(0.1 + 0.2, 0.1, "short") == 0.3
+    assert risk.to_tick(2157.75, 0.25, "long") == risk.to_tick(2157.75, 0.25, "short") == 2157.75
+    # Results carry the tick's decimals: 10,160 ticks of 0.01 is 101.6, not 101.60000000000001.
+    assert 10160 * 0.01 != 101.6 and risk.to_tick(101.6, 0.01, "long") == 101.6
+    # A real distance is still rounded: 1.160594 -> 1.16059 (long), 1.16060 (short).
+    assert risk.to_tick(1.160594, 0.00001, "long") == 1.16059
+    assert risk.to_tick(1.160594, 0.00001, "short") == 1.1606
+
+
+def test_trailing_stop_rounds_away_from_the_price():
+    # As in the unrounded example but volatility 1.1, multiple 2 (2.2 away), tick 0.5:
+    # long: 100 - 2.2 = 97.8 -> 97.5; 103 - 2.2 = 100.8 -> 100.5; then held at 100.5.
+    got = trailing_stop([100, 103, 101], [99, 101, 99], [100, 102, 100], [1.1] * 3, 0, 100.0,
+                        "long", 2, tick=0.5)
+    assert got.tolist() == [97.5, 100.5, 100.5]
+    # short: 100 + 2.2 = 102.2 -> 102.5; the low 101 does not beat the entry (102.5 holds);
+    # the low 99 does: 99 + 2.2 = 101.2 -> up to 101.5.
+    got = trailing_stop([100, 103, 101], [99, 101, 99], [100, 102, 100], [1.1] * 3, 0, 100.0,
+                        "short", 2, tick=0.5)
+    assert got.tolist() == [102.5, 102.5, 101.5]
+
+
+def test_worksheet_levels_take_a_tick_at_the_end():
+    # Same hand-worked levels as above through the registry (tick is the last argument).
+    assert registry.get("SV_STOP")(2170.5, 6.29, 2, "long", 0.25) == 2157.75
+    assert registry.get("SV_TARGET")(2170.5, 6.29, 3, "short", 0.25) == 2151.75
+    assert [p.name for p in registry.get("SV_TRAIL").params][-1] == "tick"
+    # SV_TRAIL: the unrounded level 99 (see test_trail_worksheet_function_with_constant_ranges)
+    # on ticks of 0.4:
+    # 99 / 0.4 = 247.5 -> 247 ticks = 98.8.
+    close = np.array([99.0, 99.5, 100.0, 101.0, 102.0, 101.5])
+    f = registry.get("SV_TRAIL")
+    assert f(np.arange(1.0, 7.0), close + 1, close - 1, close, 3.0, 100.0, "long", 2, 3,
+             "atr", 0.4) == 98.8
 
 
 # -- stop, target, R ---------------------------------------------------------------------------
@@ -196,6 +261,14 @@ def test_trailing_stop_never_loosens(steps, spreads, vols, entry_at, side, multi
     assert t[entry_at] == pytest.approx(close[entry_at] - sign * multiple * vol[entry_at])
     steps_taken = np.diff(sign * t[entry_at:])
     assert (steps_taken >= 0).all()
+    # On a tick grid: never loosens, each level a whole number of ticks, never tighter than
+    # the unrounded level and less than one tick looser.
+    r = trailing_stop(high, low, close, vol, entry_at, float(close[entry_at]), side, multiple,
+                      tick=0.25)
+    assert (np.diff(sign * r[entry_at:]) >= 0).all()
+    assert np.allclose(r[entry_at:] / 0.25, np.round(r[entry_at:] / 0.25), rtol=0, atol=1e-6)
+    gap = sign * (t[entry_at:] - r[entry_at:])
+    assert (gap >= -1e-9).all() and (gap < 0.25 + 1e-9).all()
 
 
 # -- outcome review: hand-worked trades ---------------------------------------------------------
@@ -358,7 +431,8 @@ def test_summary_by_hand():
     # Finished: 3, -1, -1.25, 0.5, 1.5, -1 -> total 1.75, average 1.75 / 6, 3 winners of 6.
     assert s["trades"] == 8 and s["finished"] == 6
     assert s["total_r"] == pytest.approx(1.75)
-    assert s["average_r"] == pytest.approx(1.75 / 6) and s["expectancy"] == s["average_r"]
+    # One figure for the average R per finished trade (the expectancy), not two.
+    assert s["expectancy"] == pytest.approx(1.75 / 6) and "average_r" not in s
     assert s["win_rate"] == 0.5
     assert s["losing_streak"] == 2  # -1, -1.25
     assert (s["stop"], s["target"], s["trail"], s["closed"], s["open"], s["ambiguous"]) == (

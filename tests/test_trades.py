@@ -6,6 +6,7 @@ of the close, no close moving more than 1), so ATR is 2 whatever the smoothing.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import statistics
 import subprocess
@@ -106,7 +107,9 @@ def test_hand_worked_log():
     s = summarise(out, _hand_log(), HAND_SETTINGS)
     # Finished R: 1.5, -1, -1.25 -> total -0.75, average -0.25, 1 win of 3, 2 losses in a row.
     assert s["Trades"] == 4 and s["Finished trades"] == 3
-    assert s["Total R"] == pytest.approx(-0.75) and s["Average R"] == pytest.approx(-0.25)
+    assert s["Total R"] == pytest.approx(-0.75)
+    assert s["Expectancy (average R per finished trade)"] == pytest.approx(-0.25)
+    assert "Average R" not in s.index  # one row for the average R, not two
     assert s["Win rate"] == pytest.approx(1 / 3) and s["Largest losing streak"] == 2
     assert s["Stop hit (share)"] == 0.5 and s["Still open (share)"] == 0.25
     # 540 of the latest trade's equity, 10,000.
@@ -151,8 +154,71 @@ def test_problems_become_notes_not_errors():
     # A blank entry price is the entry bar's close (entries are at the close).
     assert out["Stop"].iloc[4] == 96.0
     assert out["Note"].iloc[4] == "entry price taken from the entry bar's close"
-    with pytest.raises(ValueError, match="trade log has no side column"):
+    with pytest.raises(ValueError, match="trade log has no side column") as err:
         review_log(log.drop(columns="Side"), _hand_prices(), HAND_SETTINGS)
+    # The message lists what was found and what is missing.
+    assert 'date in "Date", instrument in "Instrument"' in str(err.value)
+    assert "missing: side (side/direction)" in str(err.value)
+
+
+def test_log_without_an_instrument_column():
+    log = _hand_log().drop(columns="Instrument")
+    # One set of prices: every trade is on it (ALDER's bars: the same levels as trade 1).
+    one = review_log(log.iloc[:1], {"ALDER": _hand_prices()["ALDER"]}, HAND_SETTINGS)
+    assert (one["Stop"].iloc[0], one["Result"].iloc[0], one["Note"].iloc[0]) == (
+        96.0, "target", "")
+    # Two: the log cannot say which, and the message names found and missing roles.
+    with pytest.raises(ValueError, match="no instrument column") as err:
+        review_log(log, _hand_prices(), HAND_SETTINGS)
+    assert 'found: date in "Date", side in "Side", entry in "Entry"' in str(err.value)
+    assert "missing: instrument (instrument/symbol/market/ticker)" in str(err.value)
+
+
+def test_levels_on_the_tick_and_the_size_from_the_rounded_stop():
+    # Hand-worked on the calm bars (ATR 2, so 4 to the stop and 6 to the target), ticks of
+    # 0.25, entry 100.3: long stop 96.3 -> down 96.25, target 106.3 -> down 106.25;
+    # short stop 104.3 -> up 104.5, target 94.3 -> up 94.5.
+    # Size: 10,000 x 1% = 100 over the rounded distance: long 100 / 4.05 = 24.69 -> 24
+    # (25 over the unrounded 4); short 100 / 4.2 = 23.8 -> 23.
+    log = pd.DataFrame({"Date": pd.to_datetime(["2025-01-10"] * 2), "Instrument": ["ALDER"] * 2,
+                        "Side": ["long", "short"], "Entry": [100.3, 100.3],
+                        "Equity": [10_000.0] * 2})
+    settings = TradeSettings(options={"period": 3}, trail_multiple=0,
+                             instruments={"ALDER": Instrument(tick=0.25)})
+    out = review_log(log, _hand_prices(), settings)
+    assert out["Stop"].tolist() == [96.25, 104.5]
+    assert out["Target"].tolist() == [106.25, 94.5]
+    assert out["Size"].tolist() == [24.0, 23.0]
+    # Target R from the rounded levels: 5.95 / 4.05 and 5.8 / 4.2.
+    assert out["Target R"].tolist() == pytest.approx([5.95 / 4.05, 5.8 / 4.2])
+    # The same log without a tick: 96.3 and 25 units.
+    plain = review_log(log, _hand_prices(), dataclasses.replace(settings, instruments={}))
+    assert plain["Stop"].iloc[0] == pytest.approx(96.3) and plain["Size"].iloc[0] == 25.0
+
+
+def test_price_basis_of_the_measure_matches_python_statistics():
+    # Reference: statistics.pstdev of the typical prices (H + L + C) / 3 of the 5 bars up to
+    # the entry bar. Bars with the close at the top of the range so typical != close.
+    closes = [100.0, 101.5, 99.0, 102.0, 103.5, 101.0, 104.0]
+    bars = pd.DataFrame({"Open": closes, "High": [c + 0.5 for c in closes],
+                         "Low": [c - 2.0 for c in closes], "Close": closes},
+                        index=pd.bdate_range("2025-01-06", periods=len(closes)))
+    log = pd.DataFrame({"Date": ["2025-01-13"], "Instrument": ["ALDER"], "Side": ["long"],
+                        "Entry": [101.0], "Equity": [10_000.0]})  # Monday = row 5
+    typical = [(c + 0.5 + c - 2.0 + c) / 3 for c in closes[1:6]]
+    out = review_log(log, {"ALDER": bars}, TradeSettings(
+        measure="deviation", options={"period": 5, "basis": "typical"}))
+    assert out["Volatility"].iloc[0] == pytest.approx(statistics.pstdev(typical), rel=1e-12)
+    # The median price (H + L) / 2 through the long name and a capitalised word.
+    median = [(c + 0.5 + c - 2.0) / 2 for c in closes[1:6]]
+    out = review_log(log, {"ALDER": bars}, TradeSettings(
+        measure="SV_DEVIATION", options={"period": 5, "basis": "Median"}))
+    assert out["Volatility"].iloc[0] == pytest.approx(statistics.pstdev(median), rel=1e-12)
+    with pytest.raises(ValueError, match="basis must be one of close, open"):
+        review_log(log, {"ALDER": bars}, TradeSettings(
+            measure="deviation", options={"basis": "middle"}))
+    with pytest.raises(ValueError, match="SV_ATR reads high, low, close"):
+        review_log(log, {"ALDER": bars}, TradeSettings(options={"basis": "typical"}))
 
 
 def test_deviation_measure_matches_python_statistics():
@@ -216,6 +282,12 @@ def test_instruments_table_and_size_note_in_the_log():
                           "Max qty": [20, None], "FX_rate": [" 1.0 ", None]})
     inst = instruments_from_frame(table)
     assert inst == {"ALDER": Instrument(lot_step=10.0, max_qty=20.0, fx_rate=1.0)}
+    # The tick, under either header; blank is 0 (no rounding).
+    ticks = instruments_from_frame(pd.DataFrame({"Instrument": ["A", "B", "C"],
+                                                 "Tick size": [0.25, None, "0.01"]}))
+    assert [ticks[k].tick for k in "ABC"] == [0.25, 0.0, 0.01]
+    assert instruments_from_frame(pd.DataFrame({"Instrument": ["A"], "Tick": [0.5]}))[
+        "A"].tick == 0.5
     out = review_log(_hand_log().iloc[:1], _hand_prices(), TradeSettings(
         options={"period": 3}, instruments=inst))
     # 25 units (see the hand-worked log) -> 20 in lots of 10, then capped at 20.

@@ -7,6 +7,10 @@ Conventions (also in ``docs/trade-log.md``)
   ``entry - k * vol`` and target at ``entry + k * vol``; a short trade mirrors
   both. The defaults, a stop 2 units and a target 3 units away, are common
   practice (no source): most volatility stops are placed 1 to 2 units out.
+* **Ticks**: with a tick size, every level is rounded *against the trade*
+  (down for a long, up for a short): the stop and the trailing stop move away
+  from entry (a level that can be placed, never tighter than computed), the
+  target moves toward entry (never more optimistic). See :func:`to_tick`.
 * **Size** risks ``equity * risk`` (account currency) between entry and stop.
   One unit loses ``|entry - stop| * point_value`` in the instrument's currency,
   times ``fx_rate`` (account currency per unit of instrument currency) in the
@@ -27,6 +31,7 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
+from decimal import Decimal
 from typing import Any
 
 import numpy as np
@@ -39,6 +44,7 @@ __all__ = [
     "MEASURES",
     "RESULTS",
     "SIZE_EPSILON",
+    "TICK_EPSILON",
     "SizeResult",
     "TradeReview",
     "bar_on_or_before",
@@ -52,6 +58,7 @@ __all__ = [
     "stop_price",
     "summarise_outcomes",
     "target_price",
+    "to_tick",
     "trade_outcome",
     "trailing_stop",
     "volatility",
@@ -65,6 +72,13 @@ SIDES = {"long": 1.0, "buy": 1.0, "short": -1.0, "sell": -1.0}
 #: ``1000 / (1.3 - 1.2)``) gives 17, not 16. One part in 10^9 of a size is far
 #: below any lot step a broker offers, so no real shortfall is rounded up.
 SIZE_EPSILON = 1e-9
+
+#: Relative tolerance when rounding a level to its tick. A price within one part
+#: in 10^9 (of the number of ticks) of a tick level counts as on it, so float
+#: noise such as 2157.75 / 0.25 = 8630.999999999998 keeps 2157.75 instead of
+#: moving a whole tick. A billionth of the tick count is far below any price
+#: distance that matters, so no real level is pulled onto a tick.
+TICK_EPSILON = 1e-9
 
 #: Volatility measures the worksheet trade functions accept.
 MEASURES = ("atr", "deviation")
@@ -118,10 +132,65 @@ def _scalar_or_array(value: FloatArray, *inputs: Any) -> Any:
     return value
 
 
+# -- ticks -----------------------------------------------------------------------------------
+def _tick_decimals(tick: float) -> int:
+    """Decimals of a tick as written (0.25 -> 2, 1e-05 -> 5, 5 -> 0), at most 12."""
+    exponent = Decimal(repr(float(tick))).normalize().as_tuple().exponent
+    return min(12, max(0, -int(exponent)))
+
+
+def to_tick(price: npt.ArrayLike, tick: npt.ArrayLike = 0.0, side: Any = "long") -> Any:
+    """Round a level to the tick *against the trade*: down for a long, up for a short.
+
+    For a stop or trailing stop that is away from entry (a level that can be
+    placed, never tighter than computed); for a target it is toward entry (a
+    level that can be hit, never more optimistic than computed).
+
+    Parameters
+    ----------
+    price : float or array_like
+        Level(s) to round.
+    tick : float or array_like, default 0.0
+        Price increment; 0 (or blank/NaN) leaves the level as it is.
+    side : str or sequence of str, default "long"
+        Trade direction(s); see :func:`side_sign`.
+
+    Returns
+    -------
+    float or FloatArray
+        A whole number of ticks, written with the tick's decimals (so the
+        result is the float nearest the decimal price). A level within
+        :data:`TICK_EPSILON` (relative, in ticks) of a tick level stays on it.
+
+    Examples
+    --------
+    >>> to_tick(2157.92, 0.25, "long"), to_tick(2157.92, 0.25, "short")
+    (2157.75, 2158.0)
+    >>> to_tick(2157.75, 0.25, "long"), to_tick(1.160594, 0.00001, "short")
+    (2157.75, 1.1606)
+    >>> to_tick(101.234, 0, "long")
+    101.234
+    """
+    sign = side_sign(side)
+    p = np.asarray(price, dtype=float)
+    t = np.asarray(tick, dtype=float)
+    p_b, t_b, s_b = np.broadcast_arrays(np.atleast_1d(p), np.atleast_1d(t), np.atleast_1d(sign))
+    out = p_b.astype(float)
+    ok = np.isfinite(p_b) & np.isfinite(t_b) & (t_b > 0)
+    for step in np.unique(t_b[ok]):
+        rows = ok & (t_b == step)
+        n = p_b[rows] / step
+        nearest = np.round(n)
+        on_tick = np.abs(n - nearest) <= TICK_EPSILON * np.maximum(1.0, np.abs(nearest))
+        steps = np.where(on_tick, nearest, np.where(s_b[rows] > 0, np.floor(n), np.ceil(n)))
+        out[rows] = np.round(steps * step, _tick_decimals(step))
+    return _scalar_or_array(out, price, tick, side)
+
+
 # -- levels ----------------------------------------------------------------------------------
 def stop_price(
     entry: npt.ArrayLike, volatility: npt.ArrayLike, multiple: npt.ArrayLike = 2.0,
-    side: Any = "long",
+    side: Any = "long", tick: npt.ArrayLike = 0.0,
 ) -> Any:
     """Stop a multiple of volatility from entry: below a long entry, above a short one.
 
@@ -135,6 +204,9 @@ def stop_price(
         Volatility units between entry and stop (2 is common practice, no source).
     side : str or sequence of str, default "long"
         Trade direction(s); see :func:`side_sign`.
+    tick : float or array_like, default 0.0
+        Price increment; the stop is rounded *away from entry* to it (see
+        :func:`to_tick`). 0 leaves it unrounded.
 
     Returns
     -------
@@ -150,17 +222,23 @@ def stop_price(
     108.75
     >>> stop_price([100.0, 50.0], [1.0, 2.0], 2, ["buy", "short"]).tolist()
     [98.0, 54.0]
+
+    With quarter-point ticks, 2,170.5 - 2 x 6.29 = 2,157.92 becomes 2,157.75:
+
+    >>> stop_price(2170.5, 6.29, 2, "long", 0.25)
+    2157.75
     """
     sign = side_sign(side)
     out = np.asarray(entry, dtype=float) - sign * np.asarray(multiple, dtype=float) * np.asarray(
         volatility, dtype=float
     )
-    return _scalar_or_array(out, entry, volatility, multiple, side)
+    out = to_tick(out, tick, side) if np.any(np.asarray(tick, dtype=float) > 0) else out
+    return _scalar_or_array(np.asarray(out), entry, volatility, multiple, side, tick)
 
 
 def target_price(
     entry: npt.ArrayLike, volatility: npt.ArrayLike, multiple: npt.ArrayLike = 3.0,
-    side: Any = "long",
+    side: Any = "long", tick: npt.ArrayLike = 0.0,
 ) -> Any:
     """Target a multiple of volatility from entry: above a long entry, below a short one.
 
@@ -174,6 +252,9 @@ def target_price(
         Volatility units between entry and target (common practice, no source).
     side : str or sequence of str, default "long"
         Trade direction(s); see :func:`side_sign`.
+    tick : float or array_like, default 0.0
+        Price increment; the target is rounded *toward entry* to it (see
+        :func:`to_tick`). 0 leaves it unrounded.
 
     Returns
     -------
@@ -187,12 +268,15 @@ def target_price(
     110.5
     >>> target_price(105.25, 1.75, 3, "short")
     100.0
+    >>> target_price(2170.5, 6.29, 3, "long", 0.25)  # 2,189.37 toward entry
+    2189.25
     """
     sign = side_sign(side)
     out = np.asarray(entry, dtype=float) + sign * np.asarray(multiple, dtype=float) * np.asarray(
         volatility, dtype=float
     )
-    return _scalar_or_array(out, entry, volatility, multiple, side)
+    out = to_tick(out, tick, side) if np.any(np.asarray(tick, dtype=float) > 0) else out
+    return _scalar_or_array(np.asarray(out), entry, volatility, multiple, side, tick)
 
 
 def r_multiple(
@@ -253,6 +337,17 @@ def _fmt(x: float) -> str:
     return f"{x:.10g}"
 
 
+def _units(x: float) -> str:
+    """A budget size in words: whole units from 100 up, else 3 significant figures, never
+    rounded up to a lot it cannot buy (822.4 -> '822', 16.88 -> '16.8', 0.5 -> '0.5')."""
+    if x >= 100:
+        return f"{math.floor(x):,}"
+    if x <= 0:
+        return "0"
+    scale = 10.0 ** (2 - math.floor(math.log10(x)))
+    return f"{math.floor(x * scale * (1 + SIZE_EPSILON)) / scale:.3g}"
+
+
 def size_with_reason(
     equity: npt.ArrayLike,
     risk: npt.ArrayLike,
@@ -303,7 +398,7 @@ def size_with_reason(
     >>> s.quantity.tolist(), round(float(s.raw[0]), 2)
     ([16.0], 16.89)
     >>> size_with_reason(10_000, 0.01, 100.0, 90.0, lot_step=20).note.tolist()
-    ['risk budget buys less than one lot step (0.5 of 20)']
+    ['risk budget buys 10 units, less than one lot of 20']
     """
     e, s, eq, rk, pv, step, lo, hi, fx = np.broadcast_arrays(
         *(np.atleast_1d(np.asarray(x, dtype=float))
@@ -326,8 +421,8 @@ def size_with_reason(
     above = ~missing & ~flat & ~zero & ~below & (hi > 0) & (qty > hi)
 
     for i in np.flatnonzero(zero):
-        share = f"{raw[i] / step[i]:.2g} of {_fmt(step[i])}"
-        note[i] = f"risk budget buys less than one lot step ({share})"
+        note[i] = (f"risk budget buys {_units(raw[i])} units, less than one lot of "
+                   f"{step[i]:,.10g}")
     for i in np.flatnonzero(below):
         note[i] = f"size {_fmt(qty[i])} is below the minimum {_fmt(lo[i])}"
     capped = np.round(np.floor(hi / step * (1.0 + SIZE_EPSILON)) * step, decimals)
@@ -376,7 +471,7 @@ def position_size(
     >>> position_size(250_000, 0.01, 105.2, 101.6)
     694.0
     >>> position_size(10_000, 0.01, 100.0, 90.0, lot_step=20)
-    'SV_SIZE: risk budget buys less than one lot step (0.5 of 20)'
+    'SV_SIZE: risk budget buys 10 units, less than one lot of 20'
     """
     res = size_with_reason(equity, risk, entry, stop, point_value, lot_step, min_qty, max_qty,
                            fx_rate)
@@ -471,6 +566,7 @@ def trailing_stop(
     entry_price: float,
     side: str = "long",
     multiple: float = 3.0,
+    tick: float = 0.0,
 ) -> FloatArray:
     """Trailing stop from entry on: best price since entry less a multiple of current volatility.
 
@@ -491,6 +587,10 @@ def trailing_stop(
         Volatility units between the best price and the stop. The default is
         common practice (no source): looser than the 2-unit initial stop, so the
         trail takes over once the price has moved about one unit the trade's way.
+    tick : float, default 0.0
+        Price increment; each level is rounded away from the price (down for a
+        long, up for a short; see :func:`to_tick`). Rounding is monotone, so
+        the rounded trail never loosens either. 0 leaves it unrounded.
 
     Returns
     -------
@@ -534,6 +634,8 @@ def trailing_stop(
     # fmax ignores NaN: a bar without volatility keeps the previous level.
     level = np.fmax.accumulate(candidate)
     out[entry_index:] = sign * level
+    if tick and tick > 0:
+        out[entry_index:] = to_tick(out[entry_index:], tick, side)
     return out
 
 
@@ -784,6 +886,7 @@ def current_trail(
     multiple: float = 3.0,
     period: int = 14,
     measure: str = "atr",
+    tick: float = 0.0,
 ) -> float:
     """Trailing stop in force after the last given bar, for a trade entered on a date.
 
@@ -806,6 +909,9 @@ def current_trail(
         Bars in the volatility window.
     measure : {"atr", "deviation"}, default "atr"
         Volatility measure (see :func:`volatility`).
+    tick : float, default 0.0
+        Price increment; the level is rounded away from the price (see
+        :func:`trailing_stop`). 0 leaves it unrounded.
 
     Returns
     -------
@@ -828,7 +934,8 @@ def current_trail(
     if i is None:
         return math.nan
     vol = volatility(high, low, close, period, measure)
-    return float(trailing_stop(high, low, close, vol, i, entry_price, side, multiple)[-1])
+    return float(trailing_stop(high, low, close, vol, i, entry_price, side, multiple,
+                               tick)[-1])
 
 
 def trade_outcome(
@@ -938,18 +1045,18 @@ def summarise_outcomes(
     dict
         ``trades``; ``stop``, ``target``, ``trail``, ``closed``, ``open``,
         ``ambiguous`` as shares of all trades; ``finished`` (trades with a
-        known exit: stop, target, trail or closed); ``average_r`` and
-        ``total_r`` over finished trades; ``expectancy`` (the average R per
-        finished trade, in R); ``win_rate`` (share of finished trades with
-        R > 0); ``losing_streak`` (longest run of finished trades with R < 0,
-        in entry order, skipping open and ambiguous ones); ``open_risk``
+        known exit: stop, target, trail or closed); ``total_r`` over finished
+        trades; ``expectancy`` (the average R per finished trade); ``win_rate``
+        (share of finished trades with R > 0); ``losing_streak`` (longest run of
+        finished trades with R < 0, in entry order, skipping open and ambiguous
+        ones); ``open_risk``
         (money) and ``open_risk_share`` (of ``equity``).
 
     Examples
     --------
     >>> s = summarise_outcomes(["target", "stop", "stop", "open"], [3.0, -1.0, -1.0, 0.5],
     ...                        [0, 0, 0, 500.0], 100_000)
-    >>> s["average_r"], s["win_rate"], s["losing_streak"], s["open_risk_share"]
+    >>> s["expectancy"], s["win_rate"], s["losing_streak"], s["open_risk_share"]
     (0.3333333333333333, 0.3333333333333333, 2, 0.005)
     """
     res = [str(x) for x in results]
@@ -962,9 +1069,8 @@ def summarise_outcomes(
     done = rr[finished] if n else np.array([])
     done = done[np.isfinite(done)]
     out["finished"] = len(done)
-    out["average_r"] = float(done.mean()) if len(done) else math.nan
     out["total_r"] = float(done.sum())
-    out["expectancy"] = out["average_r"]
+    out["expectancy"] = float(done.mean()) if len(done) else math.nan
     out["win_rate"] = float((done > 0).mean()) if len(done) else math.nan
     streak = longest = 0
     for x in done:
