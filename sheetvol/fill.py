@@ -99,6 +99,7 @@ TEXT_SUFFIXES = {".csv", ".txt", ".tsv"}
 # A progress bar only for fills that take a while: price sheets holding at least this much
 # XML (about 20,000 rows of dates and OHLCV prices).
 PROGRESS_MIN_BYTES = 4_000_000
+CSV_PROGRESS_MIN_ROWS = 20_000  # the same for a CSV export, converted before it is read
 
 
 class FillError(ValueError):
@@ -393,12 +394,20 @@ def _csv_to_workbook(src: Path, dest: Path, options: FillOptions) -> None:
         pass  # the workbook path reports it with the same words
     sheet_name = re.sub(r"[\[\]:*?/\\]", "_", src.stem)[:31] or "Prices"
     when = _csv_dates(rows[header_row:], date_col, options.dayfirst) if date_col else {}
+    bar = None
+    if options.progress and len(rows) >= CSV_PROGRESS_MIN_ROWS and sys.stderr.isatty():
+        from tqdm import tqdm
+
+        bar = tqdm(total=len(rows), desc=f"{src.name}: converting to a workbook", unit=" rows",
+                   file=sys.stderr, leave=False)
     wb = xlsxwriter.Workbook(str(dest), {"constant_memory": True, "strings_to_numbers": False})
     try:
         ws = wb.add_worksheet(sheet_name)
         date_fmt = wb.add_format({"num_format": "yyyy-mm-dd"})
         time_fmt = wb.add_format({"num_format": "yyyy-mm-dd hh:mm"})
         for i, row in enumerate(rows):
+            if bar is not None and i and not i % 10_000:  # by blocks of rows, not per cell
+                bar.update(10_000)
             for j, value in enumerate(row):
                 if not value.strip():
                     continue
@@ -414,6 +423,8 @@ def _csv_to_workbook(src: Path, dest: Path, options: FillOptions) -> None:
                     ws.write_string(i, j, value)
     finally:
         wb.close()
+        if bar is not None:
+            bar.close()
 
 
 def _csv_dates(rows: Sequence[Sequence[str]], col: int, dayfirst: bool

@@ -315,6 +315,13 @@ def test_progress_bar_only_on_a_terminal(tmp_path, monkeypatch, capsys):
     monkeypatch.setattr(fill_mod, "PROGRESS_MIN_BYTES", 10**9)  # a small fill: no bar
     fill_file(src, FillOptions(progress=True))
     assert capsys.readouterr().err == ""
+    # a CSV export: its conversion to a workbook is a stage of its own
+    csv = tmp_path / "p.csv"
+    df.to_csv(csv, index=False, date_format="%Y-%m-%d")
+    monkeypatch.setattr(fill_mod, "CSV_PROGRESS_MIN_ROWS", 10)
+    fill_file(csv, FillOptions(progress=True))
+    assert "p.csv: converting to a workbook" in capsys.readouterr().err
+    assert_deviation_on_rows(tmp_path / "p-filled.xlsx", df, rows, sheet="p")
 
 
 def test_cells_far_below_the_header_are_never_overwritten(tmp_path):
