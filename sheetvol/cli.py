@@ -64,7 +64,7 @@ reviewed exit, R, bars held and the largest moves against and for the
 trade, with the outcome, size note and review note in words (blank where
 nothing applies; a re-run replaces them). A "Trade review" sheet holds the
 outcome counts, the summary
-(hit rates, average and total R, expectancy, largest losing streak, open
+(hit rates, total R, expectancy in R, largest losing streak, open
 risk as a share of equity), the settings and the cautions. Defaults: ATR
 14, stop 2, target 3, trail 3 units, risk 1% of equity (common practice,
 no source).

@@ -31,7 +31,7 @@ from sheetvol.fill import fill_file  # noqa: E402
 DEMO = ROOT / "workbooks" / "demo-desk.xlsx"
 OUT = ROOT / "docs" / "img" / "trade-log.png"
 # Headers of the columns hidden in the picture: the log's exit, exit date, quantity and
-# equity, the target in R (1.5 throughout), the excursions and the notes (blank in the demo)
+# equity, the target in R (about 1.5 throughout), the excursions and the notes (blank in the demo)
 HIDDEN = ("Exit", "Exit date", "Quantity", "Equity", "Target in R", "Worst move", "Best move",
           "Worst move in R", "Best move in R", "Size note", "Review note")
 
