@@ -748,8 +748,9 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport,
         edits.extend(_evaluate_formulas(pkg, typed, taken, report, keep=options.formulas == "keep"))
     if options.chart and specs_by_sheet:
         edits.append(NewSheet(name=CHART_SHEET, rows=[["Charts of the filled sheets"]]))
+        written = {(e.sheet, e.col): e.values for e in edits if isinstance(e, NewColumn)}
         for k, (sr, specs, targets) in enumerate(specs_by_sheet):
-            edits.extend(_charts(sr, specs, targets, top=3 + 44 * k))
+            edits.extend(_charts(sr, specs, targets, top=3 + 44 * k, written=written))
     edits.append(NewSheet(name=NOTES_SHEET, rows=_notes_rows(src, report),
                           widths=[16, 14, 30, 16, 52, 40]))
     return edits
@@ -994,7 +995,7 @@ def _quote(sheet: str) -> str:
 
 
 def _charts(sr: SheetReport, specs: Sequence[ColumnSpec], targets: Sequence[int],
-            top: int) -> list:
+            top: int, written: Mapping[tuple[str, int], np.ndarray]) -> list:
     """Close with the bands, and the price-unit dispersion columns, as native line charts."""
     table = sr.table
     assert table is not None
@@ -1005,12 +1006,36 @@ def _charts(sr: SheetReport, specs: Sequence[ColumnSpec], targets: Sequence[int]
              if s.func.unit == "price" and s.func.group in ("bands", "averages")]
     spread = [c for s, c in zip(specs, targets, strict=True)
               if s.func.unit == "price" and s.func.group in ("dispersion", "ranges")]
+    x_format = "yyyy-mm-dd" if "date" in match.columns else None
+    # A price axis from 0 flattens every line: bound it by the plotted values instead.
+    shown = [table.prices["close"], *(written[(sr.sheet, c)] for c in bands)]
+    y_min, y_max = axis_bounds(np.concatenate(shown))
     edits: list = [LineChart(sr.sheet, f"{sr.sheet}: close and bands", x_col,
-                             [match.columns["close"], *bands], lo, hi, CHART_SHEET, f"A{top}")]
+                             [match.columns["close"], *bands], lo, hi, CHART_SHEET, f"A{top}",
+                             x_format=x_format, y_min=y_min, y_max=y_max)]
     if spread:
         edits.append(LineChart(sr.sheet, f"{sr.sheet}: dispersion and ATR", x_col, spread, lo,
-                               hi, CHART_SHEET, f"A{top + 22}"))
+                               hi, CHART_SHEET, f"A{top + 22}", x_format=x_format))
     return edits
+
+
+def axis_bounds(values: np.ndarray) -> tuple[float | None, float | None]:
+    """Round value-axis bounds a little outside the finite values (None when there are none).
+
+    >>> axis_bounds(np.array([1.0512, 1.2487, np.nan]))
+    (1.04, 1.26)
+    >>> axis_bounds(np.array([35136.0, 42101.65]))
+    (34700.0, 42500.0)
+    """
+    finite = values[np.isfinite(values)]
+    if not len(finite):
+        return None, None
+    lo, hi = float(finite.min()), float(finite.max())
+    span = hi - lo or abs(hi) or 1.0
+    step = 10.0 ** (math.floor(math.log10(span)) - 1)  # two significant digits of the span
+    pad = 0.05 * span
+    return (round(math.floor((lo - pad) / step) * step, 12),
+            round(math.ceil((hi + pad) / step) * step, 12))
 
 
 def _write(pkg: Package, out: Path, edits: list, report: FillReport,

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import hashlib
 import math
+import re
 import zipfile
 
 import numpy as np
@@ -402,6 +403,17 @@ def test_chart_option_draws_close_with_bands_and_dispersion_with_atr(tmp_path):
     for col in "GH":
         assert f"Prices!${col}$2:${col}$41" in refs[1].replace("'", "")
     assert "sheetvol charts" in load_workbook(report.output).sheetnames
+    # Dates label the x axis; the price axis brackets close and bands instead of starting
+    # at 0 (which would flatten the lines). Reference values: pandas' rolling mean/std.
+    assert 'formatCode="yyyy-mm-dd" sourceLinked="0"' in refs[0]
+    y_max = float(re.search(r'<c:max val="([^"]+)"', refs[0]).group(1))
+    y_min = float(re.search(r'<c:min val="([^"]+)"', refs[0]).group(1))
+    mid, sd = df["Close"].rolling(20).mean(), df["Close"].rolling(20).std(ddof=0)
+    lowest = min(df["Close"].min(), (mid - 2 * sd).min())
+    highest = max(df["Close"].max(), (mid + 2 * sd).max())
+    assert 0 < y_min <= lowest and highest <= y_max
+    assert (y_max - y_min) < 1.5 * (highest - lowest)
+    assert "<c:min " not in refs[1]  # dispersion and ATR: the program's own scale from 0
 
 
 @pytest.mark.parametrize(("start", "places", "fmt"), [

@@ -51,7 +51,14 @@ def chart_xml(chart: LineChart, date_axis: bool) -> bytes:
             '<c:marker><c:symbol val="none"/></c:marker>'
             f"<c:cat><c:numRef><c:f>{cat}</c:f></c:numRef></c:cat>"
             f'<c:val><c:numRef><c:f>{val}</c:f></c:numRef></c:val><c:smooth val="0"/></c:ser>')
-    x_fmt = "yyyy-mm-dd" if date_axis else "General"
+    x_fmt = chart.x_format or ("yyyy-mm-dd" if date_axis else "General")
+    x_linked = "0" if chart.x_format else "1"
+    # CT_Scaling: logBase, orientation, max, min (in that order)
+    y_scaling = '<c:orientation val="minMax"/>'
+    if chart.y_max is not None:
+        y_scaling += f'<c:max val="{chart.y_max!r}"/>'
+    if chart.y_min is not None:
+        y_scaling += f'<c:min val="{chart.y_min!r}"/>'
     # CT_CatAx / CT_DateAx: axId, scaling, delete, axPos, numFmt, tick marks, tickLblPos,
     # crossAx, crosses, then the kind's own elements
     x_kind = "dateAx" if date_axis else "catAx"
@@ -71,10 +78,11 @@ def chart_xml(chart: LineChart, date_axis: bool) -> bytes:
         + '<c:marker val="1"/><c:axId val="71000001"/><c:axId val="71000002"/></c:lineChart>'
         f'<c:{x_kind}><c:axId val="71000001"/><c:scaling><c:orientation val="minMax"/>'
         '</c:scaling><c:delete val="0"/><c:axPos val="b"/>'
-        f'<c:numFmt formatCode="{x_fmt}" sourceLinked="1"/><c:majorTickMark val="out"/>'
+        f'<c:numFmt formatCode="{escape_text(x_fmt)}" sourceLinked="{x_linked}"/>'
+        '<c:majorTickMark val="out"/>'
         '<c:minorTickMark val="none"/><c:tickLblPos val="low"/><c:crossAx val="71000002"/>'
         f'<c:crosses val="autoZero"/>{x_tail}</c:{x_kind}>'
-        '<c:valAx><c:axId val="71000002"/><c:scaling><c:orientation val="minMax"/></c:scaling>'
+        f'<c:valAx><c:axId val="71000002"/><c:scaling>{y_scaling}</c:scaling>'
         '<c:delete val="0"/><c:axPos val="l"/><c:majorGridlines/>'
         '<c:numFmt formatCode="General" sourceLinked="1"/><c:majorTickMark val="out"/>'
         '<c:minorTickMark val="none"/><c:tickLblPos val="nextTo"/><c:crossAx val="71000001"/>'

@@ -132,6 +132,11 @@ class LineChart:
     last_row: int
     anchor_sheet: str
     anchor_cell: str
+    #: Number format of the x-axis labels (e.g. ``"yyyy-mm-dd"`` for dates); None: General.
+    x_format: str | None = None
+    #: Fixed value-axis bounds; None lets the program choose (which may start at 0).
+    y_min: float | None = None
+    y_max: float | None = None
 
 
 Edit = NewColumn | CellResult | SpillResult | ValueResult | NewSheet | LineChart
