@@ -51,7 +51,8 @@ blank. Everything else in the workbook is kept as it was.
 A notes sheet ("sheetvol notes") records the input file and its SHA-256, the
 columns read and each column's function and parameters. Sheetvol formulas typed
 into cells (=SV_...) are evaluated too, each after the sheetvol cells it reads;
-the formula text stays in the cell.
+by default each becomes its value, so any spreadsheet program shows numbers,
+and its text is listed on the notes sheet (--formulas keep keeps it live).
 
 Trade log: a sheet headed Date, Instrument and Side (optionally Entry, Exit,
 Exit date, Quantity, Equity) is reviewed against the bars of each instrument
@@ -63,11 +64,10 @@ from a sheet headed Instrument + Point value), the trailing stop, the
 reviewed exit, R, bars held and the largest moves against and for the
 trade, with the outcome, size note and review note in words (blank where
 nothing applies; a re-run replaces them). A "Trade review" sheet holds the
-outcome counts, the summary
-(hit rates, total R, expectancy in R, largest losing streak, open
-risk as a share of equity), the settings and the cautions. Defaults: ATR
-14, stop 2, target 3, trail 3 units, risk 1% of equity (common practice,
-no source).
+outcome counts, the summary (hit rates, total R, expectancy in R, largest
+losing streak, open risk as a share of equity), the settings and the
+cautions. Defaults: ATR 14, stop 2, target 3, trail 3 units, risk 1% of
+equity (common practice, no source).
 
 Default columns:
 {defaults}
@@ -149,7 +149,8 @@ def build_parser() -> argparse.ArgumentParser:
     """
     parser = argparse.ArgumentParser(
         prog=PROG,
-        description="Volatility, bands and ranges for price exports kept in workbooks.",
+        description="Volatility, bands, stops and position sizes for price exports and "
+                    "trade logs kept in workbooks.",
         epilog="Run `sheetvol fill --help` for the fill and its examples.",
     )
     parser.add_argument("--version", action="version", version=f"{PROG} {__version__}")
@@ -176,13 +177,9 @@ def build_parser() -> argparse.ArgumentParser:
     cols = fill.add_argument_group(
         "where the prices are (found by their headers unless given)"
     )
-    pick = cols.add_mutually_exclusive_group()
-    pick.add_argument("--sheet", metavar="NAME", action="append",
+    cols.add_argument("--sheet", metavar="NAME", action="append",
                       help="sheet to fill (default: every sheet that looks like bars); "
                            "repeat for several")
-    pick.add_argument("--all-sheets", action="store_true",
-                      help="fill every sheet with Date and Close columns (the default; "
-                           "kept so that older scripts still run)")
     cols.add_argument("--header-row", type=int, metavar="N",
                       help="row of the column headers (default: searched in the first 50 rows)")
     for role, letter in zip(ROLES, "ABCDEF", strict=True):
@@ -336,7 +333,6 @@ def _run_fill(args: argparse.Namespace, parser: argparse.ArgumentParser) -> int:
     columns = {role: getattr(args, f"{role}_col") for role in ROLES}
     options = FillOptions(
         output=args.output, out_dir=args.out_dir, sheets=tuple(args.sheet or ()),
-        all_sheets=args.all_sheets,
         header_row=args.header_row, columns={k: v for k, v in columns.items() if v},
         specs=specs, decimal_comma=args.decimal_comma, dayfirst=args.dayfirst,
         in_place=args.in_place, formulas=args.formulas, chart=args.chart,

@@ -121,8 +121,8 @@ class FillOptions:
     the notes sheet for add-in users; ``"keep"`` keeps the formulas and stores
     their results beside them; ``"skip"`` leaves them untouched.
     ``sheets`` names the price sheets (default: every sheet that looks like
-    bars: a Close column, and a Date column beyond the first such sheet);
-    ``all_sheets`` is kept for old scripts and changes nothing. ``columns`` maps
+    bars: a Close column, and a Date column beyond the first such sheet).
+    ``columns`` maps
     a role (``date``, ``open``, ``high``, ``low``, ``close``, ``volume``) to a
     header text or column letter. ``trades`` holds the trade-log settings
     (None: the defaults); a trade log found in the workbook is reviewed unless
@@ -132,7 +132,6 @@ class FillOptions:
     output: Path | None = None
     out_dir: Path | None = None
     sheets: tuple[str, ...] = ()
-    all_sheets: bool = False
     header_row: int | None = None
     columns: dict[str, str] = field(default_factory=dict)
     specs: list[ColumnSpec] | None = None

@@ -164,4 +164,4 @@ def test_wildcards_and_sheet_choice(tmp_path, capsys):
     assert (tmp_path / "x1-filled.xlsx").exists() and (tmp_path / "x2-filled.xlsx").exists()
     assert main(["fill", str(tmp_path / "x1.xlsx"), "--sheet", "Nope", "-q"]) == 1
     assert "no sheet 'Nope'; its sheets are 'Bars'" in capsys.readouterr().err
-    assert main(["fill", str(tmp_path / "x1.xlsx"), "--sheet", "Bars", "--all-sheets"]) == 2
+    assert main(["fill", str(tmp_path / "x1.xlsx"), "--sheet", "Bars", "--frobnicate"]) == 2

@@ -351,11 +351,9 @@ def test_default_fills_every_price_sheet(tmp_path):
     log = wb.create_sheet("Log", 0)
     log.append(["Date", "Instrument", "Entry"])  # no Close: not a price sheet
     wb.save(src)
-    # --sheet restricts; the default (and the old --all-sheets, now a no-op) fills both
+    # --sheet restricts; the default fills both
     first = fill_file(src, FillOptions(sheets=("alpha",)))
     assert [s.sheet for s in first.sheets] == ["ALPHA"]
-    assert fill_file(src, FillOptions(all_sheets=True, output=tmp_path / "old.xlsx")
-                     ).sheets[1].sheet == "BETA"
     both = fill_file(src, FillOptions(output=tmp_path / "both.xlsx"))
     assert [s.sheet for s in both.sheets] == ["ALPHA", "BETA"]
     assert both.trades is None  # the Log sheet has no Side column: not a trade log
