@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 import pandas as pd
 import pytest
@@ -127,3 +129,16 @@ def test_a_spec_computes_like_its_reference():
     ref = pd.Series(x).rolling(5).std(ddof=0).to_numpy()
     assert np.isnan(got[:4]).all()
     np.testing.assert_allclose(got[4:], ref[4:], rtol=1e-12)
+
+
+def test_trade_recipe_defaults_are_the_review_defaults():
+    # Two dataclasses state the trade defaults (importing one from the other would be
+    # circular); this pins them together.
+    from sheetvol.recipe import TradeRecipe
+    from sheetvol.trades import TradeSettings
+
+    recipe, settings = TradeRecipe(), TradeSettings()
+    for name in ("measure", "stop_multiple", "target_multiple", "trail_multiple", "risk"):
+        assert getattr(recipe, name) == getattr(settings, name), name
+    assert dict(recipe.options) == dict(settings.options)
+    assert math.isnan(recipe.equity) and math.isnan(settings.equity)
