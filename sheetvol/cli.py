@@ -59,13 +59,14 @@ Exit date, Quantity, Equity) is reviewed against the bars of each instrument
 (a sheet named like the instrument, or one long sheet with an Instrument
 column). To the right of the log go: volatility on the entry bar, stop and
 target at a multiple of it, the size that risks a share of equity (rounded
-down to the lot step; point value, lot step, min/max quantity and FX rate
-from a sheet headed Instrument + Point value), the trailing stop, the
+down to the lot step; point value, lot step, min/max quantity, FX rate and
+tick (levels are rounded to it) from a sheet headed Instrument + Point
+value), the trailing stop, the
 reviewed exit, R, bars held and the largest moves against and for the
 trade, with the outcome, size note and review note in words (blank where
 nothing applies; a re-run replaces them). A "Trade review" sheet holds the
-outcome counts, the summary (hit rates, total R, expectancy in R, largest
-losing streak, open risk as a share of equity), the settings and the
+summary (hit rates, total R, expectancy in R, largest losing streak, open
+risk as a share of equity), the outcome counts, the settings and the
 cautions. Defaults: ATR 14, stop 2, target 3, trail 3 units, risk 1% of
 equity (common practice, no source).
 

@@ -122,9 +122,8 @@ class FillOptions:
     their results beside them; ``"skip"`` leaves them untouched.
     ``sheets`` names the price sheets (default: every sheet that looks like
     bars: a Close column, and a Date column beyond the first such sheet).
-    ``columns`` maps
-    a role (``date``, ``open``, ``high``, ``low``, ``close``, ``volume``) to a
-    header text or column letter. ``trades`` holds the trade-log settings
+    ``columns`` maps a role (``date``, ``open``, ``high``, ``low``, ``close``,
+    ``volume``) to a header text or column letter. ``trades`` holds the trade-log settings
     (None: the defaults); a trade log found in the workbook is reviewed unless
     ``review_trades`` is False.
     """
@@ -186,7 +185,6 @@ class FillReport:
     formulas: list[FormulaNote] = field(default_factory=list)
     formulas_ok: int = 0
     warnings: list[str] = field(default_factory=list)
-    other_price_sheets: list[str] = field(default_factory=list)
     backup: Path | None = None
     trades: TradeReport | None = None
 
@@ -218,9 +216,6 @@ class FillReport:
         lines = [f"{self.input.name} -> {self.output}"]
         for s in self.sheets:
             lines.extend(s.summary())
-        if self.other_price_sheets:
-            names = ", ".join(f'"{n}"' for n in self.other_price_sheets)
-            lines.append(f"  also price columns on {names} (not filled: --sheet chose others)")
         if self.trades is not None:
             lines.extend(self.trades.lines())
         if self.formulas:
@@ -488,7 +483,7 @@ def fill_file(src: str | Path, options: FillOptions | None = None) -> FillReport
 
     Raises
     ------
-    FillError, WorkbookError, LocateError, PriceTableError, RecipeError, ComputeError
+    FillError, WorkbookError, LocateError, PriceTableError, RecipeError, ComputeError, TradeLogError
         With a message naming the file, sheet and cell; nothing is written then.
 
     Examples
@@ -546,7 +541,7 @@ def _where(src: Path, sheet: str) -> str:
     return f'{src.name}, sheet "{sheet}"'
 
 
-def _choose_sheets(pkg: Package, src: Path, options: FillOptions, report: FillReport,
+def _choose_sheets(pkg: Package, src: Path, options: FillOptions,
                    exclude: frozenset[str] = frozenset()) -> list[tuple[str, HeaderMatch, int]]:
     """The price sheets with their header match and the rightmost used column near the top.
 
@@ -692,7 +687,7 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport,
     progress = progress or _Progress()
     log, instruments = _find_log(pkg, src, options)
     exclude = frozenset(n.casefold() for n in (log.sheet if log else "", instruments[0]) if n)
-    chosen = _choose_sheets(pkg, src, options, report, exclude)
+    chosen = _choose_sheets(pkg, src, options, exclude)
     progress.sheets([name for name, _, _ in chosen])
     progress.stage(f"{src.name}: looking for typed sheetvol formulas")
     typed = pkg.formula_cells() if options.formulas != "skip" else []
@@ -941,7 +936,10 @@ def _evaluate_formulas(pkg: Package, found: Sequence[FormulaCell],
     except ImportError:  # the evaluator ships with the package; guard for partial installs
         report.warnings.append("typed sheetvol formulas found but the evaluator is missing")
         return []
-    kept = [fc for fc in found if fc.col not in taken.get(fc.sheet, set())]  # others replaced
+    # Cells in columns the fill replaces are skipped, and so is text that merely contains
+    # "SV_" (a string such as ="SV_ATR("&A1 calls no sheetvol function).
+    kept = [fc for fc in found if fc.col not in taken.get(fc.sheet, set())
+            and formulas.mentions_sheetvol(fc.formula)]
     resolver = formulas.package_resolver(pkg)
     # All cells at once, each after the sheetvol cells it reads (a stop reading an ATR cell
     # sees the fresh ATR); one cell at a time only if that pass itself cannot run.

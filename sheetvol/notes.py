@@ -43,8 +43,10 @@ CONVENTIONS = (
     "Bands are the moving average plus or minus width x that standard deviation; "
     "%b is 0 at the lower band and 1 at the upper band.",
     "Exponential and Wilder averages (and Wilder ATR) start from the simple average of "
-    "their first N values; the first value appears on the Nth usable bar.",
-    "True range of the first bar is its high minus low (there is no previous close).",
+    "their first N values; the first value appears on the Nth usable bar (a column whose "
+    "parameters say seed=first starts from the first value instead).",
+    "True range of the first bar is its high minus low, as there is no previous close "
+    "(a column whose parameters say first_bar=blank leaves it blank).",
     "Close vol is the sample standard deviation of log returns over N returns, "
     "times the square root of the bars per year.",
     "Gaps: a bar whose needed prices are blank or errors is skipped; its results are blank "

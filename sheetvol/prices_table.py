@@ -201,13 +201,6 @@ def suspect_separator(text: str, decimal_comma: bool) -> bool:
                 or re.fullmatch(r"\d{1,3}(\.\d{3})+,\d+\)?", t))
 
 
-def _pad(arr: np.ndarray, n: int) -> np.ndarray:
-    out = np.full(n, np.nan)
-    m = min(n, len(arr))
-    out[:m] = np.asarray(arr[:m], dtype=np.float64)
-    return out
-
-
 def _yyyymmdd(values: np.ndarray) -> np.ndarray | None:
     """Dates written as numbers like 20250314 (some exports do), else None."""
     finite = values[np.isfinite(values)]

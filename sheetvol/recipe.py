@@ -92,9 +92,6 @@ class ColumnSpec:
         """``period=14, average=simple`` in registry order."""
         return ", ".join(f"{k}={_plain(v)}" for k, v in self.options.items())
 
-    def describe_inputs(self) -> str:
-        return ", ".join(f"{k}={v}" for k, v in self.inputs.items())
-
 
 def _plain(value: Any) -> str:
     if isinstance(value, float) and value.is_integer():

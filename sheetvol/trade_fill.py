@@ -739,7 +739,8 @@ def _settings_rows(recipe: TradeRecipe, settings: TradeSettings,
 
 
 def _review_rows(report: TradeReport) -> list[list[object]]:
-    """The review sheet: summary (shares as fractions shown in %), outcome counts, settings."""
+    """The review sheet: summary (shares as fractions shown in %), outcome counts, settings,
+    cautions."""
     s = report.summary
     assert s is not None
     rows: list[list[object]] = [[f'Trade review of sheet "{report.sheet}" (not advice)'], []]

@@ -12,5 +12,7 @@ def test_kernel_benchmark_runs_and_prints_ratios(capsys):
 
 
 def test_addin_benchmark_runs(capsys):
-    assert bench_addin.main(["--rows", "2000", "--repeat", "1"]) in (0, None)
-    assert "SV_DEVIATION" in capsys.readouterr().out
+    # The exit code reports the time budget, so it depends on the machine: not asserted.
+    bench_addin.main(["--rows", "2000", "--repeat", "1", "--fill-down", "50"])
+    out = capsys.readouterr().out
+    assert "SV_DEVIATION whole column" in out and "filled-down" in out

@@ -193,10 +193,12 @@ def test_typed_formulas_are_evaluated(tmp_path, mode):
     ws["H1"] = "typed"
     ws["H2"] = "=SV_DEVIATION_LAST(E2:E41,14)"
     ws["H3"] = "=SV_NOSUCH(E2:E41)"
+    ws["H4"] = '="SV_ATR("&E2'  # text that only mentions a name: not a sheetvol call
     wb.save(src)
     report = fill_file(src, FillOptions(formulas=mode))
     assert report.formulas_ok == 1
     assert any("H3" in w for w in report.warnings)
+    assert not any("H4" in w for w in report.warnings)
     values = load_workbook(report.output, data_only=True)["Prices"]
     ref = df["Close"].rolling(14).std(ddof=0).iloc[-1]  # reference: pandas, ddof=0
     assert values["H2"].value == pytest.approx(ref, rel=1e-9)

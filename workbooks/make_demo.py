@@ -170,8 +170,8 @@ ABOUT = (
     " is made up to fit those prices.",
     "",
     "Sheets: Trades (the log, one row per trade; a blank exit means the trade is still open),"
-    " Instruments (point value, lot step, size limits and conversion rate into the account"
-    " currency, USD), and one sheet of daily bars per instrument.",
+    " Instruments (point value, lot step, size limits, conversion rate into the account"
+    " currency, USD, and tick), and one sheet of daily bars per instrument.",
     "",
     "Cautions: this is not advice, and neither are sheetvol's results. A stop is a level, not a"
     " guaranteed fill: markets gap through stops. Check every size against your broker's margin"

@@ -30,7 +30,6 @@ _SHEETDATA = re.compile(rb"<([A-Za-z_][\w.\-]*:)?sheetData(?=[\s>/])[^>]*?(/?)>"
 _ATTR_R_ROW = re.compile(rb"""(?:^|\s)r\s*=\s*["'](\d+)["']""")
 _ATTR_R_CELL = re.compile(rb"""(?:^|\s)r\s*=\s*["']([A-Z]{1,3})(\d+)["']""")
 _ATTR_T = re.compile(rb"""(?:^|\s)t\s*=\s*["'](\w+)["']""")
-_ATTR_S = re.compile(rb"""(?:^|\s)s\s*=\s*["'](\d+)["']""")
 _ENTITY = re.compile(r"&(#x[0-9A-Fa-f]+|#\d+|amp|lt|gt|quot|apos);")
 _XESC = re.compile(r"_x([0-9A-Fa-f]{4})_")
 _NAMED = {"amp": "&", "lt": "<", "gt": ">", "quot": '"', "apos": "'"}
@@ -50,11 +49,6 @@ class Patterns:
         self.f = re.compile(rb"<" + p + rb"f(?=[\s>/])([^>]*?)(?:/>|>([^<]*)</" + p + rb"f>)")
         self.t = re.compile(rb"<" + p + rb"t(?:\s[^>]*)?>([^<]*)</" + p + rb"t>")
         self.rph = re.compile(rb"<" + p + rb"rPh(?=[\s>/]).*?</" + p + rb"rPh>", re.S)
-        # cells whose first attribute is r, as every common producer writes them
-        self.cell_rfirst = re.compile(rb"<" + p + rb'c r="([A-Z]{1,3})(\d+)"([^>]*?)(?:/>|>(.*?)</'
-                                      + p + rb"c>)", re.S)
-        self.cell_starts = tuple(b"<" + prefix + b"c" + d for d in (b" ", b">", b"/", b"\t",
-                                                                      b"\n", b"\r"))
         self.row_start = b"<" + prefix + b"row"
         self.cell_start = b"<" + prefix + b"c"
         self.row_end = b"</" + prefix + b"row>"

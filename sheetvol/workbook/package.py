@@ -22,7 +22,6 @@ from sheetvol.workbook._safety import Limits, local, parse_xml, read_part
 from sheetvol.workbook._sheetxml import (
     _ATTR_R_CELL,
     _ATTR_R_ROW,
-    _ATTR_T,
     CellReader,
     Patterns,
     SheetStream,
@@ -562,11 +561,6 @@ def _bulk_numbers(
         if m.any():
             out.append((c, rows[m], vals[m]))
     return out
-
-
-def _number_type(attrs: bytes) -> bool:
-    m = _ATTR_T.search(attrs)
-    return m is None or m[1] == b"n"
 
 
 _REF_TOKEN = re.compile(
