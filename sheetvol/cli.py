@@ -199,7 +199,8 @@ def build_parser() -> argparse.ArgumentParser:
     trade.add_argument("--trades-sheet", metavar="NAME",
                        help="the trade-log sheet (default: found by its headers)")
     trade.add_argument("--risk", type=float, metavar="SHARE",
-                       help="share of equity risked per trade (default 0.01 = 1%%)")
+                       help="share of equity risked per trade (default 0.01 = 1%%; above 0, "
+                            "at most 0.25; a warning above 0.05)")
     trade.add_argument("--stop-multiple", type=float, metavar="K",
                        help="stop at K volatility units from entry (default 2)")
     trade.add_argument("--target-multiple", type=float, metavar="K",
