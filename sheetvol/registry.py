@@ -764,6 +764,13 @@ FUNCTIONS: tuple[Function, ...] = (
                 0.0,
                 0,
             ),
+            Param(
+                "tick",
+                "number",
+                "price increment; the trailing stop is rounded away from entry to it (0 = none)",
+                0.0,
+                0,
+            ),
         ),
         f"{_K}.risk:trade_outcome",
         'result: "stop", "target", "trail", "closed", "open" or "ambiguous"; exit_date: a date; '

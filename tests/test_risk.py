@@ -442,3 +442,23 @@ def test_summary_by_hand():
     # Open and ambiguous trades neither count in nor break a losing streak.
     assert summarise_outcomes(["stop", "open", "ambiguous", "stop", "target"],
                               [-1, 0.2, math.nan, -1, 2])["losing_streak"] == 2
+
+
+def test_outcome_worksheet_function_trails_on_the_tick():
+    # Bars spanning exactly 1 either side of the close (as in the SV_TRAIL test above), so
+    # ATR(3) is 2 through bar 6. Long at 100 on day 3, stop 96, target 110, trail 2 ATR:
+    # highs after entry 102, 103, 102.5 -> the trail in force for bar 7 is 103 - 4 = 99,
+    # or 98.8 on ticks of 0.4 (99 / 0.4 = 247.5 -> 247 ticks). Bar 7 opens at 100 and
+    # its low 98.6 reaches the trail: exit at the trail, R = (exit - 100) / (100 - 96).
+    close = np.array([99.0, 99.5, 100.0, 101.0, 102.0, 101.5, 99.6])
+    opens = close.copy()
+    opens[-1] = 100.0
+    f = registry.get("SV_OUTCOME")
+    args = dict(dates=np.arange(1.0, 8.0), open=opens, high=close + 1, low=close - 1,
+                close=close, entry_date=3.0, entry_price=100.0, side="long", stop=96.0,
+                target=110.0, trail_multiple=2, period=3)
+    assert f(**args, field="result") == "trail"
+    assert f(**args, field="exit_price") == 99.0
+    assert f(**args, field="r") == pytest.approx(-0.25)
+    assert f(**args, field="exit_price", tick=0.4) == pytest.approx(98.8)
+    assert f(**args, field="r", tick=0.4) == pytest.approx(-0.3)

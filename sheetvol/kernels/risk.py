@@ -954,6 +954,7 @@ def trade_outcome(
     measure: str = "atr",
     exit_date: Any = "",
     exit_price: float = 0.0,
+    tick: float = 0.0,
 ) -> tuple[str, float, float, float, float, float, float]:
     """Outcome of one trade from dated bars, as the worksheet fields.
 
@@ -979,6 +980,9 @@ def trade_outcome(
         Exit date from the log; the review ends on the last bar on or before it.
     exit_price : float, default 0.0
         Exit price from the log; 0 means no recorded exit.
+    tick : float, default 0.0
+        Price increment the trailing stop is rounded to, away from entry (0: none),
+        as the fill does with an instruments sheet's tick.
 
     Returns
     -------
@@ -1001,7 +1005,8 @@ def trade_outcome(
     trail = None
     if trail_multiple and trail_multiple > 0:
         vol = volatility(high, low, close, period, measure)
-        trail = trailing_stop(high, low, close, vol, i, entry_price, side, trail_multiple)
+        trail = trailing_stop(high, low, close, vol, i, entry_price, side, trail_multiple,
+                              tick)
     exit_day = _day(exit_date)
     exit_index = bar_on_or_before(days, exit_day) if math.isfinite(exit_day) else None
     px = float(exit_price) if exit_price else None
