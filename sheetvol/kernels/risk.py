@@ -228,12 +228,7 @@ def stop_price(
     >>> stop_price(2170.5, 6.29, 2, "long", 0.25)
     2157.75
     """
-    sign = side_sign(side)
-    out = np.asarray(entry, dtype=float) - sign * np.asarray(multiple, dtype=float) * np.asarray(
-        volatility, dtype=float
-    )
-    out = to_tick(out, tick, side) if np.any(np.asarray(tick, dtype=float) > 0) else out
-    return _scalar_or_array(np.asarray(out), entry, volatility, multiple, side, tick)
+    return _level(entry, volatility, multiple, side, tick, away=-1.0)
 
 
 def target_price(
@@ -271,10 +266,19 @@ def target_price(
     >>> target_price(2170.5, 6.29, 3, "long", 0.25)  # 2,189.37 toward entry
     2189.25
     """
+    return _level(entry, volatility, multiple, side, tick, away=1.0)
+
+
+def _level(entry: npt.ArrayLike, volatility: npt.ArrayLike, multiple: npt.ArrayLike, side: Any,
+           tick: npt.ArrayLike, away: float) -> Any:
+    """``entry + away x sign x multiple x volatility``, on the tick (against the trade).
+
+    Rounding against the trade (down for long, up for short) moves a stop away from
+    entry and a target toward it, so one rule serves both.
+    """
     sign = side_sign(side)
-    out = np.asarray(entry, dtype=float) + sign * np.asarray(multiple, dtype=float) * np.asarray(
-        volatility, dtype=float
-    )
+    out = np.asarray(entry, dtype=float) + away * sign * np.asarray(
+        multiple, dtype=float) * np.asarray(volatility, dtype=float)
     out = to_tick(out, tick, side) if np.any(np.asarray(tick, dtype=float) > 0) else out
     return _scalar_or_array(np.asarray(out), entry, volatility, multiple, side, tick)
 

@@ -715,14 +715,7 @@ class _Job:
             return xml
 
         se.modifiers[(e.row, e.col)] = anchor
-        if n > 1:
-            for run in se.runs:
-                if run.col == e.col and not (run.last_row < e.row + 1 or run.first_row > e.row + n):
-                    raise WorkbookError(f"{self.file}: sheet {sheet.name!r} cells below "
-                                        f"{cell} are written twice.")
-            se.runs.append(ColumnRun(col=e.col, first_row=e.row + 1, values=below.tolist(),
-                                     style=style))
-            se.guards.append((e.col, e.row + 1, e.row + n - 1, f"the formula in {cell}"))
+        self._below(se, sheet, e.row, e.col, below, style)
 
     def _spill(self, se: SheetEdits, sheet: SheetInfo, e: SpillResult, pat: Patterns) -> None:
         values = np.asarray(e.values, dtype=np.float64).ravel()
@@ -733,7 +726,6 @@ class _Job:
         ref = f"{letters}{e.row}:{letters}{e.row + n - 1}"
         style = self.sheet_styles[id(e)][0]
         first = float(values[0]) if len(values) else math.nan
-        label = f"the formula in {cell_name(e.row, e.col)}"
 
         def anchor(cm: re.Match[bytes] | None) -> bytes:
             xml, old_ref = array_anchor_cell(cm, pat, ref, e.formula.lstrip("="), first, style)
@@ -745,14 +737,21 @@ class _Job:
             return xml
 
         se.modifiers[(e.row, e.col)] = anchor
-        if n > 1:
-            for run in se.runs:
-                if run.col == e.col and not (run.last_row < e.row + 1 or run.first_row > e.row + n):
-                    raise WorkbookError(f"{self.file}: sheet {sheet.name!r} cells below "
-                                        f"{cell_name(e.row, e.col)} are written twice.")
-            se.runs.append(ColumnRun(col=e.col, first_row=e.row + 1, values=values[1:].tolist(),
-                                     style=style))
-            se.guards.append((e.col, e.row + 1, e.row + n - 1, label))
+        self._below(se, sheet, e.row, e.col, values[1:], style)
+
+    def _below(self, se: SheetEdits, sheet: SheetInfo, row: int, col: int, below: np.ndarray,
+               style: int) -> None:
+        """Queue the results under a formula cell, refusing cells written twice and
+        guarding the cells they cover against anything but blanks."""
+        if not len(below):
+            return
+        last = row + len(below)
+        for run in se.runs:
+            if run.col == col and not (run.last_row < row + 1 or run.first_row > last + 1):
+                raise WorkbookError(f"{self.file}: sheet {sheet.name!r} cells below "
+                                    f"{cell_name(row, col)} are written twice.")
+        se.runs.append(ColumnRun(col=col, first_row=row + 1, values=below.tolist(), style=style))
+        se.guards.append((col, row + 1, last, f"the formula in {cell_name(row, col)}"))
 
 
 def column_values(values: object, where: str,
