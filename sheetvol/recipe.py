@@ -38,6 +38,14 @@ from typing import Any
 import numpy as np
 
 from sheetvol import registry
+from sheetvol.kernels.risk import (
+    MEASURE,
+    PERIOD,
+    RISK_SHARE,
+    STOP_MULTIPLE,
+    TARGET_MULTIPLE,
+    TRAIL_MULTIPLE,
+)
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -430,12 +438,12 @@ class TradeRecipe:
     enabled: bool = True
     sheet: str = ""
     instruments: str = ""
-    measure: str = "atr"
-    options: Mapping[str, Any] = field(default_factory=lambda: {"period": 14})
-    stop_multiple: float = 2.0
-    target_multiple: float = 3.0
-    trail_multiple: float = 3.0
-    risk: float = 0.01
+    measure: str = MEASURE
+    options: Mapping[str, Any] = field(default_factory=lambda: {"period": PERIOD})
+    stop_multiple: float = STOP_MULTIPLE
+    target_multiple: float = TARGET_MULTIPLE
+    trail_multiple: float = TRAIL_MULTIPLE
+    risk: float = RISK_SHARE
     equity: float = math.nan
     columns: Mapping[str, str] = field(default_factory=dict)
 

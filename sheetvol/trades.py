@@ -29,6 +29,14 @@ from sheetvol.frame import find_roles
 from sheetvol.kernels import risk
 from sheetvol.kernels._types import FloatArray
 from sheetvol.kernels.prices import price_basis
+from sheetvol.kernels.risk import (  # the review defaults, stated once
+    MEASURE,
+    PERIOD,
+    RISK_SHARE,
+    STOP_MULTIPLE,
+    TARGET_MULTIPLE,
+    TRAIL_MULTIPLE,
+)
 from sheetvol.locate import normalize_header
 from sheetvol.recipe import split_basis
 
@@ -123,12 +131,12 @@ class TradeSettings:
         Header for a role of :data:`LOG_COLUMNS` when the log uses another name.
     """
 
-    measure: str = "atr"
-    options: Mapping[str, Any] = field(default_factory=lambda: {"period": 14})
-    stop_multiple: float = 2.0
-    target_multiple: float = 3.0
-    trail_multiple: float = 3.0
-    risk: float = 0.01
+    measure: str = MEASURE
+    options: Mapping[str, Any] = field(default_factory=lambda: {"period": PERIOD})
+    stop_multiple: float = STOP_MULTIPLE
+    target_multiple: float = TARGET_MULTIPLE
+    trail_multiple: float = TRAIL_MULTIPLE
+    risk: float = RISK_SHARE
     equity: float = math.nan
     instruments: Mapping[str, Instrument] = field(default_factory=dict)
     default: Instrument = Instrument()

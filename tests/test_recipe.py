@@ -132,8 +132,8 @@ def test_a_spec_computes_like_its_reference():
 
 
 def test_trade_recipe_defaults_are_the_review_defaults():
-    # Two dataclasses state the trade defaults (importing one from the other would be
-    # circular); this pins them together.
+    # Two dataclasses carry the trade defaults (importing one from the other would be
+    # circular); both take them from sheetvol.kernels.risk, and this keeps it that way.
     from sheetvol.recipe import TradeRecipe
     from sheetvol.trades import TradeSettings
 

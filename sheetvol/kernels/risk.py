@@ -40,6 +40,16 @@ import numpy.typing as npt
 from sheetvol.kernels._gaps import as_series
 from sheetvol.kernels._types import FloatArray
 
+# Defaults of a trade review, stated once (common practice, no source): the volatility
+# measure and its window, volatility units from entry to the stop and to the target and
+# from the best price to the trailing stop, and the share of equity risked per trade.
+MEASURE = "atr"
+PERIOD = 14
+STOP_MULTIPLE = 2.0
+TARGET_MULTIPLE = 3.0
+TRAIL_MULTIPLE = 3.0
+RISK_SHARE = 0.01
+
 __all__ = [
     "MEASURES",
     "RESULTS",
@@ -189,7 +199,7 @@ def to_tick(price: npt.ArrayLike, tick: npt.ArrayLike = 0.0, side: Any = "long")
 
 # -- levels ----------------------------------------------------------------------------------
 def stop_price(
-    entry: npt.ArrayLike, volatility: npt.ArrayLike, multiple: npt.ArrayLike = 2.0,
+    entry: npt.ArrayLike, volatility: npt.ArrayLike, multiple: npt.ArrayLike = STOP_MULTIPLE,
     side: Any = "long", tick: npt.ArrayLike = 0.0,
 ) -> Any:
     """Stop a multiple of volatility from entry: below a long entry, above a short one.
@@ -232,7 +242,7 @@ def stop_price(
 
 
 def target_price(
-    entry: npt.ArrayLike, volatility: npt.ArrayLike, multiple: npt.ArrayLike = 3.0,
+    entry: npt.ArrayLike, volatility: npt.ArrayLike, multiple: npt.ArrayLike = TARGET_MULTIPLE,
     side: Any = "long", tick: npt.ArrayLike = 0.0,
 ) -> Any:
     """Target a multiple of volatility from entry: above a long entry, below a short one.
@@ -569,7 +579,7 @@ def trailing_stop(
     entry_index: int,
     entry_price: float,
     side: str = "long",
-    multiple: float = 3.0,
+    multiple: float = TRAIL_MULTIPLE,
     tick: float = 0.0,
 ) -> FloatArray:
     """Trailing stop from entry on: best price since entry less a multiple of current volatility.
@@ -887,9 +897,9 @@ def current_trail(
     entry_date: Any,
     entry_price: float,
     side: str = "long",
-    multiple: float = 3.0,
-    period: int = 14,
-    measure: str = "atr",
+    multiple: float = TRAIL_MULTIPLE,
+    period: int = PERIOD,
+    measure: str = MEASURE,
     tick: float = 0.0,
 ) -> float:
     """Trailing stop in force after the last given bar, for a trade entered on a date.
