@@ -3,7 +3,7 @@
 The Python API is the kernels (numpy arrays in, numpy arrays out, oldest bar
 first, NaN for warm-up rows and gaps), a pandas helper that adds registry
 columns to a DataFrame of OHLC bars, and the trade-log review. The same
-kernels back the worksheet functions (``sheetvol.registry``), the add-in and
+kernels back the worksheet functions (``sheetvol.functions.registry``), the add-in and
 ``sheetvol fill``.
 
 Examples
@@ -15,21 +15,20 @@ Examples
 """
 
 from sheetvol._version import __version__
-from sheetvol.frame import add_columns
-from sheetvol.kernels.averages import moving_average
-from sheetvol.kernels.bands import atr_bands, bandwidth, deviation_bands, envelope, percent_b
-from sheetvol.kernels.dispersion import dispersion
-from sheetvol.kernels.estimators import (
+from sheetvol.core.averages import moving_average
+from sheetvol.core.bands import atr_bands, bandwidth, deviation_bands, envelope, percent_b
+from sheetvol.core.dispersion import dispersion
+from sheetvol.core.estimators import (
     close_to_close,
     garman_klass,
     parkinson,
     rogers_satchell,
     yang_zhang,
 )
-from sheetvol.kernels.prices import price_basis
-from sheetvol.kernels.ranges import atr_percent, average_true_range, true_range
-from sheetvol.kernels.regime import deviation_to_atr, percentile_rank
-from sheetvol.kernels.risk import (
+from sheetvol.core.prices import price_basis
+from sheetvol.core.ranges import atr_percent, average_true_range, true_range
+from sheetvol.core.regime import deviation_to_atr, percentile_rank
+from sheetvol.core.risk import (
     position_size,
     review_trade,
     size_with_reason,
@@ -37,6 +36,17 @@ from sheetvol.kernels.risk import (
     target_price,
     trailing_stop,
 )
+
+
+def __getattr__(name: str) -> object:
+    # The pandas helper loads pandas; import it only when asked for, so that
+    # ``import sheetvol`` stays numpy-only.
+    if name == "add_columns":
+        from sheetvol.frame import add_columns
+
+        return add_columns
+    raise AttributeError(f"module 'sheetvol' has no attribute {name!r}")
+
 
 __all__ = [
     "__version__",

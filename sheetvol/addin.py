@@ -3,14 +3,14 @@
 Point the xlwings add-in at this module (``UDF Modules: sheetvol.addin``) and
 press *Import Functions*; see ``docs/addin.md``. Every name a user can type
 (``SV_ATR``, ``SV_ATR_LAST``, ``SV_ATR_ON``, ...) is generated here from
-:mod:`sheetvol.registry` at import time, so the registry, this module and
+:mod:`sheetvol.functions.registry` at import time, so the registry, this module and
 ``docs/functions.md`` cannot drift apart (a test compares them).
 
 What each generated function does:
 
 * takes the arguments the way xlwings passes them (ranges as lists of rows,
   blank and error cells as None, text numbers, datetimes or serial numbers),
-* calls :func:`sheetvol.calling.call_worksheet`, the same code the headless
+* calls :func:`sheetvol.functions.calling.call_worksheet`, the same code the headless
   evaluator uses,
 * returns a column as rows with None for warm-up and gap rows (a true blank;
   NaN would show as empty *text*), or one value,
@@ -33,9 +33,9 @@ from typing import Any
 
 import numpy as np
 
-from sheetvol import _convert
-from sheetvol.calling import call_worksheet
-from sheetvol.registry import (
+from sheetvol.functions import convert as _convert
+from sheetvol.functions.calling import call_worksheet
+from sheetvol.functions.registry import (
     ArgumentError,
     Function,
     Param,
@@ -149,7 +149,7 @@ def _bulk_allocation() -> Iterator[None]:
     A 100,000-row result is 100,000 small lists; with a big workbook's ranges
     alive, the collector's full passes triggered by those allocations cost
     more than the whole call (measured: median 66 ms with, 14 ms without, see
-    ``sheetvol.bench_addin``). The rows hold no reference cycles, so nothing
+    ``benches/addin.py``). The rows hold no reference cycles, so nothing
     is lost by collecting after the call instead of during it.
     """
     was_enabled = gc.isenabled()
@@ -215,7 +215,7 @@ def make_udf(
 
     Examples
     --------
-    >>> from sheetvol.registry import get
+    >>> from sheetvol.functions.registry import get
     >>> f = make_udf("SV_STOP", get("SV_STOP"), "column")
     >>> f(100.0, 2.0)
     96.0

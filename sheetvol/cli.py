@@ -14,10 +14,9 @@ import sys
 from collections.abc import Sequence
 from pathlib import Path
 
-from sheetvol import registry
 from sheetvol._version import __version__
-from sheetvol.fill import USER_ERRORS, FillOptions, fill_file, output_path
-from sheetvol.recipe import (
+from sheetvol.fill.job import USER_ERRORS, FillOptions, fill_file, output_path
+from sheetvol.fill.recipe import (
     TRADE_KEYS,
     RecipeError,
     TradeRecipe,
@@ -25,6 +24,7 @@ from sheetvol.recipe import (
     default_specs,
     read_recipe,
 )
+from sheetvol.functions import registry
 
 __all__ = ["build_parser", "main"]
 

@@ -10,7 +10,7 @@ import argparse
 import sys
 from pathlib import Path
 
-from sheetvol.registry import FUNCTIONS, Function, Param, variant_params
+from sheetvol.functions.registry import FUNCTIONS, Function, Param, variant_params
 
 GROUP_TITLES = {
     "averages": "Averages and price basis",

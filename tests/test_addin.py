@@ -31,8 +31,9 @@ import xlwings
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from sheetvol import addin, calling
-from sheetvol.registry import FUNCTIONS, get, variant_params, worksheet_names
+from sheetvol import addin
+from sheetvol.functions import calling
+from sheetvol.functions.registry import FUNCTIONS, get, variant_params, worksheet_names
 
 ALL = list(worksheet_names())
 SERIES = [f for f in FUNCTIONS if f.shape == "series"]
@@ -355,9 +356,9 @@ def test_module_imports_without_xlwings():
 
 
 def test_benchmark_runs_and_reports_every_case():
-    # Functional check only: speed targets live in python -m sheetvol.bench_addin, which
+    # Functional check only: speed targets live in python -m benches.addin, which
     # prints the per-call cost against the budget; no time limit is asserted here.
-    from sheetvol import bench_addin
+    from benches import addin as bench_addin
 
     results = bench_addin.run(rows=500, repeat=1)
     assert "SV_DEVIATION whole column (1 column)" in results

@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 
 import sheetvol
-from sheetvol import cells, registry
+from sheetvol.functions import cells, registry
 
 
 def test_import_needs_neither_excel_nor_xlwings_nor_openpyxl():

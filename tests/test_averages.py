@@ -10,9 +10,9 @@ import pandas as pd
 import pytest
 import talib
 
-from sheetvol import registry
-from sheetvol.kernels import averages
-from sheetvol.kernels.averages import linear_recurrence, moving_average
+from sheetvol.core import averages
+from sheetvol.core.averages import linear_recurrence, moving_average
+from sheetvol.functions import registry
 
 KINDS = ("simple", "exponential", "wilder", "linear")
 

@@ -13,11 +13,11 @@ import talib
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from sheetvol import registry
-from sheetvol.kernels import bands
-from sheetvol.kernels.averages import moving_average
-from sheetvol.kernels.bands import atr_bands, bandwidth, deviation_bands, envelope, percent_b
-from sheetvol.kernels.dispersion import dispersion
+from sheetvol.core import bands
+from sheetvol.core.averages import moving_average
+from sheetvol.core.bands import atr_bands, bandwidth, deviation_bands, envelope, percent_b
+from sheetvol.core.dispersion import dispersion
+from sheetvol.functions import registry
 
 
 def random_bars(n: int, seed: int = 0, start: float = 100.0):

@@ -2,7 +2,8 @@
 
 from __future__ import annotations
 
-from sheetvol import bench, bench_addin
+from benches import addin as bench_addin
+from benches import kernels as bench
 
 
 def test_kernel_benchmark_runs_and_prints_ratios(capsys):

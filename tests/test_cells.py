@@ -9,8 +9,8 @@ import numpy as np
 import pytest
 from openpyxl.utils.datetime import CALENDAR_MAC_1904, CALENDAR_WINDOWS_1900, from_excel, to_excel
 
-from sheetvol import cells
-from sheetvol.cells import CellValueError
+from sheetvol.functions import cells
+from sheetvol.functions.cells import CellValueError
 
 
 @pytest.mark.parametrize(

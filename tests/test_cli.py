@@ -11,8 +11,9 @@ import pytest
 from openpyxl import load_workbook
 from test_messy_exports import DEV, assert_deviation_on_rows, ohlc, write_book
 
-from sheetvol import __version__, registry
+from sheetvol import __version__
 from sheetvol.cli import main
+from sheetvol.functions import registry
 
 ROOT = Path(__file__).resolve().parent.parent
 

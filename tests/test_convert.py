@@ -1,4 +1,4 @@
-"""Edge conversion of worksheet arguments (sheetvol._convert), shared by add-in and evaluator.
+"""Edge conversion of worksheet arguments (sheetvol.functions.convert), for add-in and evaluator.
 
 Sources for the date checks: the 1900 date system numbers 1900-01-01 as 1 and
 counts a fictitious 1900-02-29 as 60, so 1900-03-01 is 61 and 2025-01-01 is
@@ -17,8 +17,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from sheetvol import _convert, cells
-from sheetvol.registry import ArgumentError
+from sheetvol.functions import cells
+from sheetvol.functions import convert as _convert
+from sheetvol.functions.registry import ArgumentError
 
 
 # -- shapes ------------------------------------------------------------------------
@@ -83,7 +84,7 @@ def test_non_numbers_among_numbers_are_refused_with_their_position(bad):
                           st.floats(-1e6, 1e6).map(lambda x: f"{x:,.4f}")),
                 min_size=1, max_size=40))
 def test_vectorised_path_agrees_with_cell_by_cell(values):
-    # Reference: sheetvol.cells.to_number applied cell by cell (the rule for one cell).
+    # Reference: sheetvol.functions.cells.to_number applied cell by cell (the rule for one cell).
     got = _convert.column([[v] for v in values], func="SV_X", param="p").values
     ref = np.array([cells.to_number(v) for v in values])
     np.testing.assert_array_equal(got, ref)
@@ -160,7 +161,7 @@ def test_text_alone_is_not_taken_for_a_header():
                                                   dt.datetime(9999, 12, 31))),
                 min_size=1, max_size=30))
 def test_vectorised_dates_agree_with_cell_by_cell(values):
-    # Reference: sheetvol.cells.datetime_to_serial applied cell by cell (the rule for one
+    # Reference: sheetvol.functions.cells.datetime_to_serial applied cell by cell (the rule for one
     # cell); the column path converts all datetimes at once through pandas.
     got = _convert.day_numbers([[v] for v in values], func="SV_X_ON", param="dates")
     ref = [math.nan if v is None else cells.datetime_to_serial(v) for v in values]

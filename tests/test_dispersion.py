@@ -18,10 +18,10 @@ import talib
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from sheetvol import registry
-from sheetvol.kernels import dispersion as dispersion_module
-from sheetvol.kernels.averages import moving_average
-from sheetvol.kernels.dispersion import dispersion
+from sheetvol.core import dispersion as dispersion_module
+from sheetvol.core.averages import moving_average
+from sheetvol.core.dispersion import dispersion
+from sheetvol.functions import registry
 
 KINDS = ("simple", "exponential", "wilder", "linear")
 

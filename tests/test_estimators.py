@@ -24,15 +24,15 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from sheetvol import registry
-from sheetvol.kernels import estimators
-from sheetvol.kernels.estimators import (
+from sheetvol.core import estimators
+from sheetvol.core.estimators import (
     close_to_close,
     garman_klass,
     parkinson,
     rogers_satchell,
     yang_zhang,
 )
+from sheetvol.functions import registry
 
 LN2 = math.log(2.0)
 

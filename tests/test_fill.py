@@ -16,10 +16,10 @@ import xlsxwriter
 from openpyxl import load_workbook
 from test_messy_exports import DEV, assert_deviation_on_rows, ohlc, read_column, write_book
 
-from sheetvol.fill import FillError, FillOptions, fill_file
+from sheetvol.fill.job import FillError, FillOptions, fill_file
+from sheetvol.fill.notes import NOTES_SHEET
+from sheetvol.fill.recipe import parse_recipe
 from sheetvol.frame import add_columns
-from sheetvol.notes import NOTES_SHEET
-from sheetvol.recipe import parse_recipe
 
 
 @pytest.fixture(scope="module")
@@ -295,7 +295,7 @@ def test_columns_join_a_spreadsheet_table(tmp_path):
 def test_progress_bar_only_on_a_terminal(tmp_path, monkeypatch, capsys):
     import sys
 
-    import sheetvol.fill as fill_mod
+    import sheetvol.fill.job as fill_mod
 
     df = ohlc(60)
     src = tmp_path / "p.xlsx"
@@ -440,7 +440,7 @@ def test_price_columns_follow_the_quote_with_thousands_separators(tmp_path, star
 
 
 def test_notes_keep_numbers_and_list_each_caution_once(tmp_path):
-    from sheetvol.trade_fill import TRADE_CAUTIONS
+    from sheetvol.fill.trade_log import TRADE_CAUTIONS
 
     df = ohlc(60)
     src = tmp_path / "desk.xlsx"

@@ -25,16 +25,16 @@ import pytest
 import talib
 from openpyxl import Workbook, load_workbook
 
-from sheetvol import recipe as recipe_module
-from sheetvol import trade_fill
-from sheetvol import trades as trades_module
 from sheetvol.cli import main
-from sheetvol.fill import FillOptions, fill_file
-from sheetvol.kernels import risk as risk_module
-from sheetvol.notes import NOTES_SHEET
-from sheetvol.recipe import RecipeError, TradeRecipe, parse_trades, read_recipe
-from sheetvol.trade_fill import REVIEW_SHEET, TradeLogError, scaled_format
-from sheetvol.trades import TradeSettings, instruments_from_frame, review_log
+from sheetvol.core import risk as risk_module
+from sheetvol.fill import recipe as recipe_module
+from sheetvol.fill import review as trades_module
+from sheetvol.fill import trade_log as trade_fill
+from sheetvol.fill.job import FillOptions, fill_file
+from sheetvol.fill.notes import NOTES_SHEET
+from sheetvol.fill.recipe import RecipeError, TradeRecipe, parse_trades, read_recipe
+from sheetvol.fill.review import TradeSettings, instruments_from_frame, review_log
+from sheetvol.fill.trade_log import REVIEW_SHEET, TradeLogError, scaled_format
 
 ROOT = Path(__file__).resolve().parent.parent
 DEMO = ROOT / "workbooks" / "demo-desk.xlsx"

@@ -21,7 +21,10 @@ import pandas as pd
 import pytest
 from openpyxl.utils.datetime import CALENDAR_MAC_1904
 
-from sheetvol.formulas import (
+from sheetvol.core.dispersion import dispersion
+from sheetvol.core.ranges import average_true_range
+from sheetvol.core.regime import percentile_rank
+from sheetvol.functions.evaluator import (
     Call,
     FormulaError,
     evaluate,
@@ -33,9 +36,6 @@ from sheetvol.formulas import (
     parse,
     parse_reference,
 )
-from sheetvol.kernels.dispersion import dispersion
-from sheetvol.kernels.ranges import average_true_range
-from sheetvol.kernels.regime import percentile_rank
 
 N = 120
 FIRST = dt.datetime(2025, 1, 6)
@@ -337,7 +337,10 @@ def test_evaluate_cells_orders_dependencies_and_overlays_spills(tmp_path):
 def test_docstring_examples():
     import doctest
 
-    from sheetvol import _convert, addin, calling, formulas
+    from sheetvol import addin
+    from sheetvol.functions import calling
+    from sheetvol.functions import convert as _convert
+    from sheetvol.functions import evaluator as formulas
 
     for module in (formulas, calling, _convert, addin):
         result = doctest.testmod(module)
@@ -357,7 +360,7 @@ def template():
 
 def test_template_stored_results_are_current(template):
     # Every stored result equals a fresh headless evaluation of its formula.
-    from sheetvol.formulas import evaluate_cells
+    from sheetvol.functions.evaluator import evaluate_cells
     from sheetvol.workbook.package import Package
 
     pkg = Package.open(template)

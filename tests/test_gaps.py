@@ -1,6 +1,6 @@
 """The gap policy, checked across every series kernel.
 
-Policy (sheetvol.kernels._gaps): a bar is unusable when any input the kernel needs is
+Policy (sheetvol.core._gaps): a bar is unusable when any input the kernel needs is
 not finite. Its output row is NaN and the kernel runs on the usable bars as if the gap
 rows were not there, so windows and recursions carry on. Reference for each check: the
 same kernel run on the series with the gap rows removed (the compressed series), which
@@ -16,18 +16,18 @@ import numpy as np
 import pytest
 import talib
 
-from sheetvol.kernels.averages import moving_average
-from sheetvol.kernels.bands import atr_bands, bandwidth, deviation_bands, envelope, percent_b
-from sheetvol.kernels.dispersion import dispersion
-from sheetvol.kernels.estimators import (
+from sheetvol.core.averages import moving_average
+from sheetvol.core.bands import atr_bands, bandwidth, deviation_bands, envelope, percent_b
+from sheetvol.core.dispersion import dispersion
+from sheetvol.core.estimators import (
     close_to_close,
     garman_klass,
     parkinson,
     rogers_satchell,
     yang_zhang,
 )
-from sheetvol.kernels.ranges import atr_percent, average_true_range, true_range
-from sheetvol.kernels.regime import deviation_to_atr, percentile_rank
+from sheetvol.core.ranges import atr_percent, average_true_range, true_range
+from sheetvol.core.regime import deviation_to_atr, percentile_rank
 
 N = 10  # period used throughout
 

@@ -1,4 +1,4 @@
-"""Finding the price sheet's header row and columns (sheetvol.locate)."""
+"""Finding the price sheet's header row and columns (sheetvol.fill.locate)."""
 
 from __future__ import annotations
 
@@ -6,7 +6,7 @@ import pytest
 from openpyxl import Workbook
 from openpyxl.utils import column_index_from_string, get_column_letter
 
-from sheetvol.locate import (
+from sheetvol.fill.locate import (
     ColumnFlagError,
     LocateError,
     col_letter,

@@ -20,9 +20,9 @@ import pytest
 from openpyxl import Workbook, load_workbook
 from openpyxl.utils.datetime import CALENDAR_MAC_1904
 
-from sheetvol.fill import FillOptions, fill_file
-from sheetvol.locate import LocateError
-from sheetvol.prices_table import PriceTableError
+from sheetvol.fill.job import FillOptions, fill_file
+from sheetvol.fill.locate import LocateError
+from sheetvol.fill.price_table import PriceTableError
 from sheetvol.workbook import WorkbookError
 
 DEV = "Std dev 14 (simple, close)"

@@ -9,9 +9,9 @@ import numpy as np
 import pytest
 import talib
 
-from sheetvol import registry
-from sheetvol.kernels import prices
-from sheetvol.kernels.prices import BASES, price_basis
+from sheetvol.core import prices
+from sheetvol.core.prices import BASES, price_basis
+from sheetvol.functions import registry
 
 
 @pytest.fixture

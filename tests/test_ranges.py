@@ -12,9 +12,9 @@ import talib
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from sheetvol import registry
-from sheetvol.kernels import ranges
-from sheetvol.kernels.ranges import atr_percent, average_true_range, true_range
+from sheetvol.core import ranges
+from sheetvol.core.ranges import atr_percent, average_true_range, true_range
+from sheetvol.functions import registry
 
 
 def random_bars(n: int, seed: int = 0, start: float = 100.0):

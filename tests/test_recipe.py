@@ -1,4 +1,4 @@
-"""Recipes: TOML column lists validated against the registry (sheetvol.recipe)."""
+"""Recipes: TOML column lists validated against the registry (sheetvol.fill.recipe)."""
 
 from __future__ import annotations
 
@@ -8,7 +8,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from sheetvol.recipe import (
+from sheetvol.fill.recipe import (
     DEFAULT_RECIPE,
     RecipeError,
     default_specs,
@@ -133,9 +133,9 @@ def test_a_spec_computes_like_its_reference():
 
 def test_trade_recipe_defaults_are_the_review_defaults():
     # Two dataclasses carry the trade defaults (importing one from the other would be
-    # circular); both take them from sheetvol.kernels.risk, and this keeps it that way.
-    from sheetvol.recipe import TradeRecipe
-    from sheetvol.trades import TradeSettings
+    # circular); both take them from sheetvol.core.risk, and this keeps it that way.
+    from sheetvol.fill.recipe import TradeRecipe
+    from sheetvol.fill.review import TradeSettings
 
     recipe, settings = TradeRecipe(), TradeSettings()
     for name in ("measure", "stop_multiple", "target_multiple", "trail_multiple", "risk"):

@@ -12,10 +12,10 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from sheetvol import registry
-from sheetvol.kernels import regime
-from sheetvol.kernels.estimators import close_to_close
-from sheetvol.kernels.regime import deviation_to_atr, percentile_rank
+from sheetvol.core import regime
+from sheetvol.core.estimators import close_to_close
+from sheetvol.core.regime import deviation_to_atr, percentile_rank
+from sheetvol.functions import registry
 
 
 def count_rank(values: list[float], lookback: int) -> list[float]:

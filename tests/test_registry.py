@@ -7,8 +7,9 @@ import inspect
 import numpy as np
 import pytest
 
-from sheetvol import docgen, registry
-from sheetvol.registry import FUNCTIONS, ArgumentError
+from sheetvol import docgen
+from sheetvol.functions import registry
+from sheetvol.functions.registry import FUNCTIONS, ArgumentError
 
 NAMES = [f.name for f in FUNCTIONS]
 

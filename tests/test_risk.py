@@ -13,9 +13,8 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from sheetvol import registry
-from sheetvol.kernels import risk
-from sheetvol.kernels.risk import (
+from sheetvol.core import risk
+from sheetvol.core.risk import (
     position_size,
     r_multiple,
     review_trade,
@@ -26,6 +25,7 @@ from sheetvol.kernels.risk import (
     target_price,
     trailing_stop,
 )
+from sheetvol.functions import registry
 
 
 # -- sizing: published worked example ---------------------------------------------------------

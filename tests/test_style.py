@@ -22,6 +22,7 @@ def test_ruff_check_is_clean():
     if ruff is None:
         pytest.skip("ruff is not installed (it comes with the test extras)")
     result = subprocess.run(
-        [*ruff, "check", "sheetvol", "tests", "workbooks"], cwd=ROOT, capture_output=True, text=True
+        [*ruff, "check", "sheetvol", "tests", "workbooks", "benches"],
+        cwd=ROOT, capture_output=True, text=True,
     )
     assert result.returncode == 0, result.stdout + result.stderr

@@ -18,8 +18,8 @@ import openpyxl
 import pandas as pd
 import pytest
 
-from sheetvol.kernels.risk import RESULTS
-from sheetvol.trades import (
+from sheetvol.core.risk import RESULTS
+from sheetvol.fill.review import (
     OUTPUT_COLUMNS,
     Instrument,
     TradeSettings,

@@ -1,4 +1,4 @@
-"""Accurate rolling window sums, means and variances (sheetvol.kernels._windows).
+"""Accurate rolling window sums, means and variances (sheetvol.core._windows).
 
 Oracles: Python's ``statistics`` (exact rational arithmetic on the float inputs) and
 ``math.fsum`` (correctly rounded sums), run per window in a plain Python loop; NIST
@@ -15,8 +15,8 @@ import statistics
 import numpy as np
 import pytest
 
-from sheetvol.kernels import _windows
-from sheetvol.kernels._windows import (
+from sheetvol.core import _windows
+from sheetvol.core._windows import (
     check_choice,
     check_period,
     window_deviation,

@@ -5,7 +5,7 @@ small trade log. The price sheet holds filled-down ``_LAST`` formulas (ATR, band
 close-to-close volatility); the trade log reads volatility on each trade's
 date (``_ON``) and derives stop, target, size and outcome. The formulas are
 written with openpyxl, then their results are computed by the headless
-evaluator (``sheetvol.formulas.evaluate_cells``, the code the fill uses) and
+evaluator (``sheetvol.functions.evaluator.evaluate_cells``, the code the fill uses) and
 stored with the workbook layer, keeping the formulas. Opened without the
 add-in, the template shows numbers; with the add-in, the same formulas
 recalculate live.
@@ -31,8 +31,8 @@ HERE = Path(__file__).resolve().parent
 if str(HERE.parent) not in sys.path:  # run from a checkout without installing the package
     sys.path.insert(0, str(HERE.parent))
 
-from sheetvol import formulas  # noqa: E402
-from sheetvol.registry import get  # noqa: E402
+from sheetvol.functions import evaluator as formulas  # noqa: E402
+from sheetvol.functions.registry import get  # noqa: E402
 from sheetvol.workbook.edits import CellResult, SpillResult  # noqa: E402
 from sheetvol.workbook.package import Package  # noqa: E402
 from sheetvol.workbook.writer import write_package  # noqa: E402

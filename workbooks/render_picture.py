@@ -26,7 +26,7 @@ from openpyxl import load_workbook
 ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
-from sheetvol.fill import fill_file  # noqa: E402
+from sheetvol.fill.job import fill_file  # noqa: E402
 
 DEMO = ROOT / "workbooks" / "demo-desk.xlsx"
 OUT = ROOT / "docs" / "img" / "trade-log.png"

@@ -16,16 +16,17 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from sheetvol.workbook._sheetxml import (
-    _ATTR_R_CELL,
-    _ATTR_R_ROW,
-    _COLS,
+    ATTR_R_CELL,
+    ATTR_R_ROW,
+    COLS_BLOCK,
     Patterns,
     cell_name,
     col_index,
     col_letters,
     escape_text,
+    shift_formula,
 )
-from sheetvol.workbook.errors import WorkbookError
+from sheetvol.workbook.errors import CellError, WorkbookError
 
 _SPANS = re.compile(rb"""\s+spans\s*=\s*(["'])[^"']*\1""")
 _T_ATTR = re.compile(rb"""\s+t\s*=\s*(["'])[^"']*\1""")
@@ -71,7 +72,6 @@ def text_cell(ref: str, text: str, style: int | None, prefix: str = "") -> str:
 
 def value_cell(ref: str, value: object, style: int | None, prefix: str = "") -> str | None:
     """A cell for a Python value (None/NaN/inf give no cell)."""
-    from sheetvol.workbook.package import CellError
 
     s = f' s="{style}"' if style else ""
     p = prefix
@@ -338,8 +338,8 @@ class RowEditor:
         crl = len(cr)
         cs = self.pat.cell_start
         letters_match = _LETTERS.match
-        row_number = _ATTR_R_ROW.search
-        known_cols = _COLS
+        row_number = ATTR_R_ROW.search
+        known_cols = COLS_BLOCK
         check_from, check_to = self.check_from, self.check_to
         watch_from, watch_to = self.watch_from, self.watch_to
         seg_end: float = -1  # rows up to seg_end share the cached self._active() answer
@@ -490,7 +490,7 @@ class RowEditor:
                     return col_index(m[1])
             if nxt in (b" ", b"\t", b"\n", b"\r"):
                 end = inner.find(b">", pos)
-                m = _ATTR_R_CELL.search(inner, pos, end)
+                m = ATTR_R_CELL.search(inner, pos, end)
                 return col_index(m[1]) if m else None
             if nxt in (b">", b"/"):
                 return None
@@ -525,7 +525,7 @@ class RowEditor:
         c = 0
         for cm in self.pat.cell.finditer(inner):
             cattrs = cm[1]
-            mc = _ATTR_R_CELL.search(cattrs)
+            mc = ATTR_R_CELL.search(cattrs)
             if mc:
                 c = col_index(mc[1])
                 raw = cm[0]
@@ -599,7 +599,6 @@ class RowEditor:
                 "result, and its whole-row or whole-column references cannot be moved "
                 "safely; let sheetvol replace every cell filled from that formula, or type the "
                 f"formula into {cell_name(r, c)} again.")
-        from sheetvol.workbook.package import shift_formula
 
         text = escape_text(shift_formula(move.text, r - move.row, c - move.col)).encode()
         p = self.pat.prefix
@@ -630,7 +629,6 @@ class RowEditor:
 def formula_result_cell(cm: re.Match[bytes] | None, pat: Patterns, value: object,
                         where: str) -> bytes:
     """An existing formula cell with its stored result replaced (the ``<f>`` kept)."""
-    from sheetvol.workbook.package import CellError
 
     if cm is None or not cm[3] or pat.f.search(cm[3]) is None:
         raise WorkbookError(f"{where} holds no formula, so no result can be stored in it.")
@@ -686,7 +684,6 @@ def plain_value_cell(cm: re.Match[bytes] | None, pat: Patterns, value: object,
     ``style`` applies only when the cell has no style of its own. None, NaN and inf
     leave the cell without a value.
     """
-    from sheetvol.workbook.package import CellError
 
     fm = pat.f.search(cm[3]) if cm is not None and cm[3] else None
     if cm is None or fm is None:

@@ -103,7 +103,7 @@ def new_sheet_xml(ns: NewSheet, header_style: int,
                     style = style_of(value.number_format, i == 1)
                 value = value.value
                 if isinstance(value, (dt.date, dt.datetime)):
-                    from sheetvol.cells import datetime_to_serial
+                    from sheetvol.functions.cells import datetime_to_serial
 
                     value = datetime_to_serial(value, date1904=date1904)
             xml = value_cell(ref, value, style) if not isinstance(value, str) else text_cell(

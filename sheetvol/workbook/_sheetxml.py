@@ -22,13 +22,13 @@ from functools import lru_cache
 from typing import IO
 
 from sheetvol.workbook._safety import check_prolog
-from sheetvol.workbook.errors import WorkbookError
+from sheetvol.workbook.errors import CellError, WorkbookError
 
 CHUNK = 1 << 23
 
 _SHEETDATA = re.compile(rb"<([A-Za-z_][\w.\-]*:)?sheetData(?=[\s>/])[^>]*?(/?)>")
-_ATTR_R_ROW = re.compile(rb"""(?:^|\s)r\s*=\s*["'](\d+)["']""")
-_ATTR_R_CELL = re.compile(rb"""(?:^|\s)r\s*=\s*["']([A-Z]{1,3})(\d+)["']""")
+ATTR_R_ROW = re.compile(rb"""(?:^|\s)r\s*=\s*["'](\d+)["']""")
+ATTR_R_CELL = re.compile(rb"""(?:^|\s)r\s*=\s*["']([A-Z]{1,3})(\d+)["']""")
 _ATTR_T = re.compile(rb"""(?:^|\s)t\s*=\s*["'](\w+)["']""")
 _ENTITY = re.compile(r"&(#x[0-9A-Fa-f]+|#\d+|amp|lt|gt|quot|apos);")
 _XESC = re.compile(r"_x([0-9A-Fa-f]{4})_")
@@ -61,17 +61,17 @@ def patterns(prefix: bytes) -> Patterns:
     return Patterns(prefix)
 
 
-_COLS: dict[bytes, int] = {}
+COLS_BLOCK: dict[bytes, int] = {}
 
 
 def col_index(letters: bytes) -> int:
     """1-based column number of column letters (``b"A"`` -> 1, ``b"AA"`` -> 27)."""
-    n = _COLS.get(letters)
+    n = COLS_BLOCK.get(letters)
     if n is None:
         n = 0
         for ch in letters:
             n = n * 26 + ch - 64
-        _COLS[letters] = n
+        COLS_BLOCK[letters] = n
     return n
 
 
@@ -225,7 +225,6 @@ class CellReader:
 
     def value(self, attrs: bytes, inner: bytes | None) -> object:
         """Value of one cell: float, str, bool, CellError or None."""
-        from sheetvol.workbook.package import CellError
 
         if not inner:
             return None
@@ -291,14 +290,14 @@ def iter_cells(
     for chunk in stream.body():
         if skip_chunk is not None and skip_chunk(chunk):
             last = _last_row_start(chunk, pat.row_start)
-            m = _ATTR_R_ROW.search(chunk, last, chunk.find(b">", last))
+            m = ATTR_R_ROW.search(chunk, last, chunk.find(b">", last))
             if m:
                 r = int(m[1])
                 if max_row is not None and r > max_row:
                     return
                 continue
         for rm in row_re.finditer(chunk):
-            mr = _ATTR_R_ROW.search(rm[1])
+            mr = ATTR_R_ROW.search(rm[1])
             r = int(mr[1]) if mr else r + 1
             if max_row is not None and r > max_row:
                 return
@@ -308,6 +307,40 @@ def iter_cells(
             c = 0
             for cm in cell_re.finditer(inner):
                 attrs = cm[1]
-                mc = _ATTR_R_CELL.search(attrs)
+                mc = ATTR_R_CELL.search(attrs)
                 c = col_index(mc[1]) if mc else c + 1
                 yield r, c, attrs, cm[3]
+
+
+_REF_TOKEN = re.compile(
+    r"""("(?:[^"]|"")*")"""  # a string literal: left alone
+    r"""|('(?:[^']|'')*'!|\b[A-Za-z_][\w.]*!)"""  # a sheet qualifier: kept
+    r"""|(?<![\w.$])(\$?)([A-Z]{1,3})(\$?)(\d+)(?![\w(!])"""  # an A1 reference
+)
+
+
+def shift_formula(text: str, drow: int, dcol: int) -> str:
+    """Move the relative references of a shared formula by (drow, dcol).
+
+    Examples
+    --------
+    >>> shift_formula('SV_X(E2:E30,14,"A1")', 3, 1)
+    'SV_X(F5:F33,14,"A1")'
+    """
+    def repl(m: re.Match[str]) -> str:
+        if m[1] or m[2]:
+            return m[0]
+        cabs, letters, rabs, digits = m[3], m[4], m[5], m[6]
+        col = col_index(letters.encode())
+        row = int(digits)
+        if col > 16384 or row > 1048576:
+            return m[0]
+        if not cabs:
+            col += dcol
+        if not rabs:
+            row += drow
+        if col < 1 or row < 1:
+            return "#REF!"
+        return f"{cabs}{col_letters(col)}{rabs}{row}"
+
+    return _REF_TOKEN.sub(repl, text)

@@ -20,8 +20,8 @@ import numpy as np
 from sheetvol.workbook import _safety
 from sheetvol.workbook._safety import Limits, local, parse_xml, read_part
 from sheetvol.workbook._sheetxml import (
-    _ATTR_R_CELL,
-    _ATTR_R_ROW,
+    ATTR_R_CELL,
+    ATTR_R_ROW,
     CellReader,
     Patterns,
     SheetStream,
@@ -29,29 +29,15 @@ from sheetvol.workbook._sheetxml import (
     col_letters,
     iter_cells,
     parse_ref,
+    shift_formula,
     unescape_ooxml,
 )
-from sheetvol.workbook.errors import WorkbookError
+from sheetvol.workbook.errors import CellError, WorkbookError
 
 NS_REL = "http://schemas.openxmlformats.org/officeDocument/2006/relationships"
 NS_PKG_REL = "http://schemas.openxmlformats.org/package/2006/relationships"
 MACRO_TYPES = ("macroEnabled", "vbaProject")
 _SV = re.compile(rb"(?i)\bSV_")
-
-
-class CellError(str):
-    """A spreadsheet error value such as ``#N/A`` (a ``t="e"`` cell).
-
-    Examples
-    --------
-    >>> CellError("#N/A") == "#N/A"
-    True
-    """
-
-    __slots__ = ()
-
-    def __repr__(self) -> str:
-        return f"CellError({str.__repr__(self)})"
 
 
 @dataclass(frozen=True)
@@ -528,11 +514,11 @@ def _cells_general(chunk: bytes, pat: Patterns) -> list[tuple[bytes, bytes, byte
     out = []
     r = 0
     for rm in pat.row.finditer(chunk):
-        mr = _ATTR_R_ROW.search(rm[1])
+        mr = ATTR_R_ROW.search(rm[1])
         r = int(mr[1]) if mr else r + 1
         c = 0
         for cm in pat.cell.finditer(rm[3] or b""):
-            mc = _ATTR_R_CELL.search(cm[1])
+            mc = ATTR_R_CELL.search(cm[1])
             c = col_index(mc[1]) if mc else c + 1
             out.append((col_letters(c).encode(), str(r).encode(), cm[1], cm[3]))
     return out
@@ -561,42 +547,6 @@ def _bulk_numbers(
         if m.any():
             out.append((c, rows[m], vals[m]))
     return out
-
-
-_REF_TOKEN = re.compile(
-    r"""("(?:[^"]|"")*")"""  # a string literal: left alone
-    r"""|('(?:[^']|'')*'!|\b[A-Za-z_][\w.]*!)"""  # a sheet qualifier: kept
-    r"""|(?<![\w.$])(\$?)([A-Z]{1,3})(\$?)(\d+)(?![\w(!])"""  # an A1 reference
-)
-
-
-def shift_formula(text: str, drow: int, dcol: int) -> str:
-    """Move the relative references of a shared formula by (drow, dcol).
-
-    Examples
-    --------
-    >>> shift_formula('SV_X(E2:E30,14,"A1")', 3, 1)
-    'SV_X(F5:F33,14,"A1")'
-    """
-    def repl(m: re.Match[str]) -> str:
-        if m[1] or m[2]:
-            return m[0]
-        cabs, letters, rabs, digits = m[3], m[4], m[5], m[6]
-        col = col_index(letters.encode())
-        row = int(digits)
-        if col > 16384 or row > 1048576:
-            return m[0]
-        if not cabs:
-            col += dcol
-        if not rabs:
-            row += drow
-        if col < 1 or row < 1:
-            return "#REF!"
-        from sheetvol.workbook._sheetxml import col_letters
-
-        return f"{cabs}{col_letters(col)}{rabs}{row}"
-
-    return _REF_TOKEN.sub(repl, text)
 
 
 __all__ = ["CellError", "Column", "FormulaCell", "Grid", "Package", "SheetInfo", "TableInfo",

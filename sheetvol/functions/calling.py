@@ -2,7 +2,7 @@
 
 This is the one implementation of what a worksheet call means, shared by the
 xlwings add-in (:mod:`sheetvol.addin`) and the headless formula evaluator
-(:mod:`sheetvol.formulas`):
+(:mod:`sheetvol.functions.evaluator`):
 
 * ``NAME(...)`` for a series function returns the whole column;
 * ``NAME_LAST(...)`` returns the value on the last row of the given ranges;
@@ -15,8 +15,8 @@ xlwings add-in (:mod:`sheetvol.addin`) and the headless formula evaluator
 compute only the bars its value depends on, so a filled-down column of them
 does not re-read the whole range for every cell.
 
-Arguments arrive as the spreadsheet holds them (see :mod:`sheetvol._convert`).
-Every problem is raised as :class:`~sheetvol.registry.ArgumentError` whose
+Arguments arrive as the spreadsheet holds them (see :mod:`sheetvol.functions.convert`).
+Every problem is raised as :class:`~sheetvol.functions.registry.ArgumentError` whose
 message starts with the name the user typed.
 """
 
@@ -29,9 +29,17 @@ from typing import Any
 
 import numpy as np
 
-from sheetvol import _convert, cells
-from sheetvol.kernels._types import FloatArray
-from sheetvol.registry import ArgumentError, Function, Param, Variant, variant_of, variant_params
+from sheetvol.core._types import FloatArray
+from sheetvol.functions import cells
+from sheetvol.functions import convert as _convert
+from sheetvol.functions.registry import (
+    ArgumentError,
+    Function,
+    Param,
+    Variant,
+    variant_of,
+    variant_params,
+)
 
 Result = float | str | None | np.ndarray
 
@@ -43,7 +51,7 @@ def worksheet_name(func: Function, variant: Variant) -> str:
 
     Examples
     --------
-    >>> from sheetvol.registry import get
+    >>> from sheetvol.functions.registry import get
     >>> worksheet_name(get("SV_ATR"), "on")
     'SV_ATR_ON'
     """
@@ -178,7 +186,7 @@ def tail_bars(func: Function, options: Mapping[str, Any]) -> int | None:
 
     Examples
     --------
-    >>> from sheetvol.registry import get
+    >>> from sheetvol.functions.registry import get
     >>> tail_bars(get("SV_DEVIATION"), {"period": 14, "average": "simple"})
     14
     >>> tail_bars(get("SV_ATR"), {"period": 14, "smoothing": "wilder"}) is None
@@ -425,7 +433,7 @@ def _call_scalar(
                 fixed[i] = _convert.column(
                     a, func=wname, param=p.name, decimal_comma=decimal_comma).values
         elif _is_many(a):
-            values, horiz = _convert._line(a, wname, p.name)
+            values, horiz = _convert.line_values(a, wname, p.name)
             lines[i] = list(values)
             horizontal = horizontal or horiz
     given = {func.params[i].name: v for i, v in fixed.items() if v is not None}

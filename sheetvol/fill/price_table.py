@@ -7,7 +7,7 @@ price sheet is and what the fill does with it:
   newest-first export is read bottom-up and the results go back on the same
   rows. A price cell that is blank, holds an error (``#N/A``) or a blank word
   (``n/a``) is unusable; a column that needs that price skips the bar (see
-  :mod:`sheetvol.kernels._gaps`) and is blank there (:meth:`PriceTable.gap_bars`
+  :mod:`sheetvol.core._gaps`) and is blank there (:meth:`PriceTable.gap_bars`
   counts such bars once each);
 * **blank**: nothing in any price column, skipped;
 * **no prices**: a date without any price (holiday rows), skipped;
@@ -36,8 +36,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from sheetvol import cells
-from sheetvol.workbook.package import CellError
+from sheetvol.functions import cells
+from sheetvol.workbook.errors import CellError
 
 __all__ = ["PriceTable", "PriceTableError", "build_price_table", "date_order_problem",
            "price_decimals", "suspect_separator"]
@@ -539,7 +539,7 @@ def _parse_text_dates(
     """Parse text dates in one vectorised pass; cell by cell only where that fails."""
     keys = list(texts)
     values = [texts[k] for k in keys]
-    numeric = [bool(cells._NUMBER.match(v)) for v in values]
+    numeric = [bool(cells.NUMBER_TEXT.match(v)) for v in values]
     if not any(numeric):
         try:
             with warnings.catch_warnings():  # "could not infer format": handled below

@@ -1,11 +1,11 @@
 """The headless fill: computed columns written into a copy of a price export.
 
 ``fill_file`` is the whole job for one input: find the price sheet and
-columns (:mod:`sheetvol.locate`), read the bars in date order
-(:mod:`sheetvol.prices_table`), compute the recipe's columns through the
-registry (:func:`sheetvol.frame.compute_columns`, the same path as the
-pandas helper), evaluate typed sheetvol formulas (:mod:`sheetvol.formulas`),
-review a trade log when the workbook has one (:mod:`sheetvol.trade_fill`), and
+columns (:mod:`sheetvol.fill.locate`), read the bars in date order
+(:mod:`sheetvol.fill.price_table`), compute the recipe's columns through the
+registry (:func:`sheetvol.fill.table.compute_columns`, the same path as the
+pandas helper), evaluate typed sheetvol formulas (:mod:`sheetvol.functions.evaluator`),
+review a trade log when the workbook has one (:mod:`sheetvol.fill.trade_log`), and
 ask the package writer for exactly those edits plus a notes sheet. The input
 is only ever read; the output is written atomically by the writer.
 """
@@ -31,9 +31,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from sheetvol import cells, registry
-from sheetvol.frame import ComputeError, compute_columns, needed_roles
-from sheetvol.locate import (
+from sheetvol.fill.locate import (
     HEADER_SCAN_ROWS,
     ColumnFlagError,
     HeaderMatch,
@@ -44,7 +42,7 @@ from sheetvol.locate import (
     role_of,
     still_headed,
 )
-from sheetvol.notes import (
+from sheetvol.fill.notes import (
     CAUTION_LINE,
     NOTES_SHEET,
     FormulaNote,
@@ -54,7 +52,7 @@ from sheetvol.notes import (
     read_record,
     sha256_of,
 )
-from sheetvol.prices_table import (
+from sheetvol.fill.price_table import (
     PriceTable,
     PriceTableError,
     build_price_table,
@@ -62,8 +60,10 @@ from sheetvol.prices_table import (
     price_decimals,
     suspect_separator,
 )
-from sheetvol.recipe import ColumnSpec, RecipeError, TradeRecipe, default_specs
-from sheetvol.trade_fill import (
+from sheetvol.fill.recipe import ColumnSpec, RecipeError, TradeRecipe, default_specs
+from sheetvol.fill.review import LOG_COLUMNS
+from sheetvol.fill.table import ComputeError, compute_columns, needed_roles
+from sheetvol.fill.trade_log import (
     REVIEW_SHEET,
     TRADE_CAUTION_LINE,
     TradeLog,
@@ -74,7 +74,7 @@ from sheetvol.trade_fill import (
     instrument_key,
     plan_trade_review,
 )
-from sheetvol.trades import LOG_COLUMNS
+from sheetvol.functions import cells, registry
 from sheetvol.workbook import (
     CellError,
     CellResult,
@@ -629,7 +629,7 @@ def _number_format(spec: ColumnSpec, decimals: int) -> str:
 
     Examples
     --------
-    >>> from sheetvol.recipe import make_spec
+    >>> from sheetvol.fill.recipe import make_spec
     >>> _number_format(make_spec("SV_ATR", {}), 1), _number_format(make_spec("SV_CLOSEVOL", {}), 2)
     ('#,##0.0', '0.00%')
     """
@@ -932,7 +932,7 @@ def _evaluate_formulas(pkg: Package, found: Sequence[FormulaCell],
     text, so an add-in user can type it back.
     """
     try:
-        from sheetvol import formulas
+        from sheetvol.functions import evaluator as formulas
     except ImportError:  # the evaluator ships with the package; guard for partial installs
         report.warnings.append("typed sheetvol formulas found but the evaluator is missing")
         return []

@@ -7,7 +7,7 @@ for blank and error cells, text numbers, datetimes or date serial numbers.
 This module turns those into what the registry wants: one float column per
 ``series`` argument (NaN for blanks), day numbers for ``dates`` and ``date``,
 and a single value for every option. Cell-level rules (what counts as blank,
-how text numbers are read) are :mod:`sheetvol.cells`; this module only adds
+how text numbers are read) are :mod:`sheetvol.functions.cells`; this module only adds
 the shape handling and a vectorised fast path for big ranges.
 """
 
@@ -22,9 +22,9 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from sheetvol import cells
-from sheetvol.kernels._types import FloatArray
-from sheetvol.registry import ArgumentError
+from sheetvol.core._types import FloatArray
+from sheetvol.functions import cells
+from sheetvol.functions.registry import ArgumentError
 
 # Types that np.array(..., dtype=float64) turns into the right float without surprises
 # (None becomes NaN). bool is deliberately absent: TRUE must not become a price of 1.0.
@@ -110,7 +110,7 @@ def _block_error(func: str, param: str, rows: int, width: int) -> ArgumentError:
     )
 
 
-def _line(value: Any, func: str, param: str) -> tuple[list[Any] | np.ndarray, bool]:
+def line_values(value: Any, func: str, param: str) -> tuple[list[Any] | np.ndarray, bool]:
     """Flatten a column or row argument; refuse blocks wider than one column."""
     if isinstance(value, np.ndarray):
         if value.ndim <= 1:
@@ -157,7 +157,7 @@ def line_length(value: Any, *, func: str, param: str) -> int:
     """
     if isinstance(value, np.ndarray):
         if value.ndim > 2 or (value.ndim == 2 and 1 not in value.shape):
-            _line(value, func, param)  # raises
+            line_values(value, func, param)  # raises
         return int(value.size)
     if not isinstance(value, (list, tuple)):
         return 1
@@ -226,7 +226,7 @@ def column(
     """
     if value is None:
         raise ArgumentError(f"{func}: {param} is required (a column of numbers)")
-    flat, horizontal = _line(value, func, param)
+    flat, horizontal = line_values(value, func, param)
     if isinstance(flat, np.ndarray) and flat.dtype.kind in "fiu":
         return Column(flat.astype(np.float64, copy=False), horizontal)
     if isinstance(flat, np.ndarray):
@@ -274,7 +274,7 @@ def day_numbers(value: Any, *, func: str, param: str, date1904: bool = False) ->
     """
     if value is None:
         raise ArgumentError(f"{func}: {param} is required (a column of dates)")
-    flat, _ = _line(value, func, param)
+    flat, _ = line_values(value, func, param)
     if isinstance(flat, np.ndarray):
         if flat.dtype.kind in "fiu":
             out = flat.astype(np.float64)

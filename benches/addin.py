@@ -1,6 +1,6 @@
 """Per-call cost of the add-in's worksheet functions on big ranges.
 
-Run ``python -m sheetvol.bench_addin`` (``--rows`` to change the size). The
+Run ``python -m benches.addin`` (``--rows`` to change the size). The
 inputs are built the way xlwings hands a range to a function declared with
 ``ndim=2``: a list of one-element rows of floats (with a few blanks as None),
 dates as datetimes. Only the Python time inside the generated function is
@@ -62,7 +62,8 @@ def run(rows: int = 100_000, repeat: int = 7) -> dict[str, tuple[float, float]]:
     >>> sorted(results)[0]
     'SV_ATR whole column (3 columns)'
     """
-    from sheetvol import _convert, addin
+    from sheetvol import addin
+    from sheetvol.functions import convert as _convert
 
     d = _inputs(rows)
     u = addin.UDFS

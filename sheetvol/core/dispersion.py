@@ -9,7 +9,7 @@ the identity ``sum((x_i - m_t)^2) = N var + N (mean - m_t)^2`` adds the squared
 distance between the window mean and the average.
 
 The window mean and population variance come from the accurate O(n) block
-method in :mod:`sheetvol.kernels._windows`; ``mean - m_t`` is taken in the
+method in :mod:`sheetvol.core._windows`; ``mean - m_t`` is taken in the
 block's local frame so that no digits are lost on large prices.
 """
 
@@ -17,10 +17,10 @@ from __future__ import annotations
 
 import numpy as np
 
-from sheetvol.kernels._gaps import skip_gaps
-from sheetvol.kernels._types import FloatArray
-from sheetvol.kernels._windows import check_choice, check_period, window_deviation
-from sheetvol.kernels.averages import KINDS, SEEDS, average_of
+from sheetvol.core._gaps import skip_gaps
+from sheetvol.core._types import FloatArray
+from sheetvol.core._windows import check_choice, check_period, window_deviation
+from sheetvol.core.averages import KINDS, SEEDS, average_of
 
 DIVISORS = ("population", "sample")
 
@@ -87,7 +87,7 @@ def dispersion(
         Divide the sum of squares by N or by N - 1.
     seed : {"average", "first"}, default "average"
         Seeding of the exponential and Wilder averages (see
-        :func:`sheetvol.kernels.averages.moving_average`).
+        :func:`sheetvol.core.averages.moving_average`).
 
     Returns
     -------

@@ -1,9 +1,9 @@
 """The trade-log part of the fill: find the log, review it, and say what to write.
 
-The fill (:mod:`sheetvol.fill`) finds the price sheets; this module finds a
+The fill (:mod:`sheetvol.fill.job`) finds the price sheets; this module finds a
 trade log (a sheet whose header row has a date, an instrument and a side, see
-:data:`sheetvol.trades.LOG_COLUMNS`) and an instrument-details sheet, runs
-:func:`sheetvol.trades.review_log` on them, and returns the writer's edits:
+:data:`sheetvol.fill.review.LOG_COLUMNS`) and an instrument-details sheet, runs
+:func:`sheetvol.fill.review.review_log` on them, and returns the writer's edits:
 review columns to the right of the log (numbers, and the outcome and notes of
 each trade as text), and a review sheet with the summary (shares as
 percentages), the outcome counts, the settings and the cautions.
@@ -22,8 +22,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from sheetvol import cells
-from sheetvol.locate import (
+from sheetvol.fill.locate import (
     HEADER_SCAN_ROWS,
     LocateError,
     col_letter,
@@ -31,9 +30,9 @@ from sheetvol.locate import (
     normalize_header,
     still_headed,
 )
-from sheetvol.notes import NOTES_SHEET
-from sheetvol.recipe import TradeRecipe, check_measure, default_header, split_basis
-from sheetvol.trades import (
+from sheetvol.fill.notes import NOTES_SHEET
+from sheetvol.fill.recipe import TradeRecipe, check_measure, default_header, split_basis
+from sheetvol.fill.review import (
     LOG_COLUMNS,
     SUMMARY_LABELS,
     Instrument,
@@ -42,6 +41,7 @@ from sheetvol.trades import (
     review_log,
     summarise,
 )
+from sheetvol.functions import cells
 from sheetvol.workbook import CellError, NewColumn, NewSheet, Package, Styled
 
 __all__ = [

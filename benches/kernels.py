@@ -1,4 +1,4 @@
-"""Benchmark the kernels against reference libraries in one run: ``python -m sheetvol.bench``.
+"""Benchmark the kernels against reference libraries in one run: ``python -m benches.kernels``.
 
 Every kernel is timed (best of ``--repeat`` runs) on the same synthetic OHLC
 random walk as a reference computed in the same process: TA-Lib where it has
@@ -24,9 +24,9 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from sheetvol.kernels.averages import moving_average
-from sheetvol.kernels.dispersion import dispersion
-from sheetvol.kernels.prices import price_basis
+from sheetvol.core.averages import moving_average
+from sheetvol.core.dispersion import dispersion
+from sheetvol.core.prices import price_basis
 
 Bars = dict[str, np.ndarray]
 
@@ -61,7 +61,7 @@ def _talib() -> Any:
 
 def _optional(module: str) -> Any:
     try:
-        return importlib.import_module(f"sheetvol.kernels.{module}")
+        return importlib.import_module(f"sheetvol.core.{module}")
     except ImportError:
         return None
 
@@ -220,8 +220,8 @@ def run(bars: int, repeat: int, periods: tuple[int, ...]) -> None:
 
 
 def main(argv: list[str] | None = None) -> int:
-    """Command-line entry: ``python -m sheetvol.bench [--bars N] [--repeat K]``."""
-    parser = argparse.ArgumentParser(prog="python -m sheetvol.bench", description=__doc__.split(
+    """Command-line entry: ``python -m benches.kernels [--bars N] [--repeat K]``."""
+    parser = argparse.ArgumentParser(prog="python -m benches.kernels", description=__doc__.split(
         "\n")[0])
     parser.add_argument("--bars", type=int, default=1_000_000, help="bars in the series")
     parser.add_argument("--repeat", type=int, default=5, help="runs per timing (best is kept)")

@@ -16,7 +16,7 @@ from typing import Any
 
 import numpy as np
 
-from sheetvol.kernels._types import FloatArray
+from sheetvol.core._types import FloatArray
 
 
 def as_series(x: Any, name: str = "values") -> FloatArray:

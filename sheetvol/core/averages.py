@@ -11,16 +11,16 @@ Seeding of the recursive kinds (exponential, Wilder):
   weight ``(1 - alpha)^t`` dies away.
 
 Gaps: bars with a non-finite price are skipped (NaN on that row) and the
-average carries on over the remaining bars (see ``sheetvol.kernels._gaps``).
+average carries on over the remaining bars (see ``sheetvol.core._gaps``).
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-from sheetvol.kernels._gaps import as_series, skip_gaps
-from sheetvol.kernels._types import FloatArray
-from sheetvol.kernels._windows import check_choice, check_period, window_linear, window_mean
+from sheetvol.core._gaps import as_series, skip_gaps
+from sheetvol.core._types import FloatArray
+from sheetvol.core._windows import check_choice, check_period, window_linear, window_mean
 
 KINDS = ("simple", "exponential", "wilder", "linear")
 SEEDS = ("average", "first")

@@ -3,7 +3,7 @@
 Each :class:`Function` entry says what a worksheet function is called, what it
 takes (with types, defaults, valid ranges and help), what it returns and which
 pure kernel computes it. The add-in wrappers (``sheetvol.addin``), the headless
-formula evaluator (``sheetvol.formulas``), the command line, argument
+formula evaluator (``sheetvol.functions.evaluator``), the command line, argument
 validation and ``docs/functions.md`` are all generated from this table, so
 adding a function means: one entry here, its kernel, its tests.
 
@@ -27,7 +27,7 @@ from typing import Any, Literal
 
 import numpy as np
 
-from sheetvol import cells
+from sheetvol.functions import cells
 
 ParamKind = Literal["series", "dates", "date", "whole", "number", "choice", "text"]
 Shape = Literal["series", "scalar"]
@@ -323,7 +323,7 @@ _ENTRY_DATE = Param(
 )
 _ENTRY_PRICE = Param("entry_price", "number", "entry price")
 
-_K = "sheetvol.kernels"
+_K = "sheetvol.core"
 
 FUNCTIONS: tuple[Function, ...] = (
     # ---- averages and price basis ------------------------------------------
@@ -709,7 +709,7 @@ FUNCTIONS: tuple[Function, ...] = (
                 0,
             ),
         ),
-        f"{_K}.risk:current_trail",
+        "sheetvol.functions.worksheet:current_trail",
         "trailing stop price in force for the next bar",
         shape="scalar",
         example='=SV_TRAIL(A2:A400, C2:C400, D2:D400, E2:E400, DATE(2025,3,14), 105.2, "long")',
@@ -772,7 +772,7 @@ FUNCTIONS: tuple[Function, ...] = (
                 0,
             ),
         ),
-        f"{_K}.risk:trade_outcome",
+        "sheetvol.functions.worksheet:trade_outcome",
         'result: "stop", "target", "trail", "closed", "open" or "ambiguous"; exit_date: a date; '
         "r, bars, adverse, favourable: numbers",
         shape="scalar",

@@ -13,7 +13,7 @@ own peak memory (``ru_maxrss``):
 The 1,048,576-row workbook is built from an xlsxwriter workbook whose sheet part is
 replaced by generated XML of the same form (xlsxwriter itself needs minutes for it).
 
-Run from the repository root: ``PYTHONPATH=. python tests/bench/bench_fill_io.py [rows ...]``
+Run from the repository root: ``python -m benches.fill_io [rows ...]``
 Options: ``--openpyxl-rows N`` measures openpyxl at N rows and scales linearly to the
 larger sizes (it takes minutes and gigabytes at a million rows); ``--openpyxl-full``
 measures it at every size.

@@ -14,7 +14,7 @@ Conventions
   ``alpha = 2/(period+1)`` with the same seed; ``smoothing="simple"`` is the
   plain rolling mean of the last ``period`` true ranges. ``seed="first"`` starts
   the recursion at the first true range instead (see
-  :func:`sheetvol.kernels.averages.moving_average`).
+  :func:`sheetvol.core.averages.moving_average`).
 * TA-Lib's ``ATR`` leaves the first bar out (it has no previous close) and seeds
   with the mean of true ranges 2..period+1; that is the convention of
   ``first_bar="blank"`` here, whose first ATR is on row ``period`` (the values
@@ -26,7 +26,7 @@ Conventions
   fraction (0.012 means 1.2 %; sheets format it as a percentage). A close of 0
   gives NaN.
 * Gaps: a bar is skipped when its high, low or close is not finite (see
-  :mod:`sheetvol.kernels._gaps`); it is NaN in every output and the previous
+  :mod:`sheetvol.core._gaps`); it is NaN in every output and the previous
   close of the next usable bar is the close of the last usable bar.
 """
 
@@ -35,10 +35,10 @@ from __future__ import annotations
 import numpy as np
 import numpy.typing as npt
 
-from sheetvol.kernels._gaps import skip_gaps
-from sheetvol.kernels._types import FloatArray
-from sheetvol.kernels._windows import check_choice, check_period
-from sheetvol.kernels.averages import SEEDS, average_of
+from sheetvol.core._gaps import skip_gaps
+from sheetvol.core._types import FloatArray
+from sheetvol.core._windows import check_choice, check_period
+from sheetvol.core.averages import SEEDS, average_of
 
 __all__ = [
     "atr_percent",

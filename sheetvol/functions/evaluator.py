@@ -4,7 +4,7 @@ A workbook saved by a spreadsheet program that has the add-in holds formulas
 such as ``SV_ATR(C2:C400,D2:D400,E2:E400,14)``; one saved without it may hold
 ``_xludf.SV_ATR(...)``, ``[1]!SV_ATR(...)`` or ``'addin.xlam'!SV_ATR(...)``.
 :func:`evaluate` computes such a formula with the same code the live add-in
-uses (:func:`sheetvol.calling.call_worksheet`), reading cells through a
+uses (:func:`sheetvol.functions.calling.call_worksheet`), reading cells through a
 *resolver* callback, so the fill can store the results and a reader without
 the add-in sees numbers.
 
@@ -28,9 +28,9 @@ import numpy as np
 from openpyxl.formula.tokenizer import Token, Tokenizer, TokenizerError
 from openpyxl.utils.cell import column_index_from_string
 
-from sheetvol import _convert
-from sheetvol.calling import Result, call_worksheet
-from sheetvol.registry import ArgumentError, variant_of
+from sheetvol.functions import convert as _convert
+from sheetvol.functions.calling import Result, call_worksheet
+from sheetvol.functions.registry import ArgumentError, variant_of
 
 Resolver = Callable[[str | None, int, int, int | None, int | None], list[list[object]]]
 """``resolver(sheet, top, left, bottom, right)`` -> rows of cell values (1-based, inclusive).

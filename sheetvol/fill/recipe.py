@@ -37,8 +37,7 @@ from typing import Any
 
 import numpy as np
 
-from sheetvol import registry
-from sheetvol.kernels.risk import (
+from sheetvol.core.risk import (
     MEASURE,
     PERIOD,
     RISK_SHARE,
@@ -46,6 +45,7 @@ from sheetvol.kernels.risk import (
     TARGET_MULTIPLE,
     TRAIL_MULTIPLE,
 )
+from sheetvol.functions import registry
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -497,7 +497,7 @@ def check_trade_number(key: str, value: Any, where: str = "[trades]") -> float:
     >>> check_trade_number("risk", 2)
     Traceback (most recent call last):
     ...
-    sheetvol.recipe.RecipeError: [trades] risk: risk is a share of equity: 0.01 = 1%; above 0 \
+    sheetvol.fill.recipe.RecipeError: [trades] risk: risk is a share of equity: 0.01 = 1%; above 0 \
 and at most 0.25; got 2
     """
     low, low_ok, high = _NUMBER_RULES[key]
@@ -536,7 +536,7 @@ def parse_trades(table: Any, *, source: str = "recipe") -> TradeRecipe:
     >>> parse_trades({"stop": 2}, source="desk.toml")
     Traceback (most recent call last):
     ...
-    sheetvol.recipe.RecipeError: desk.toml, [trades]: unknown key 'stop' (keys: enabled, \
+    sheetvol.fill.recipe.RecipeError: desk.toml, [trades]: unknown key 'stop' (keys: enabled, \
 sheet, instruments, measure, options, stop_multiple, target_multiple, trail_multiple, risk, \
 equity, columns)
     """

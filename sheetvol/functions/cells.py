@@ -18,7 +18,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from sheetvol.kernels._types import FloatArray
+from sheetvol.core._types import FloatArray
 
 ERROR_TEXTS = frozenset(
     {
@@ -44,7 +44,7 @@ BLANK_TEXTS = frozenset({"", "-", "--", "n/a", "na", "nan", "null", "none"})
 EPOCH_1900 = dt.datetime(1899, 12, 30)
 EPOCH_1904 = dt.datetime(1904, 1, 1)
 
-_NUMBER = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?$")
+NUMBER_TEXT = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?$")
 # Numbers with thousands separators: groups of exactly three digits (key: decimal comma).
 _GROUPED = {
     False: re.compile(r"^[+-]?\d{1,3}(,\d{3})+(\.\d*)?$"),
@@ -111,7 +111,7 @@ def to_number(value: Any, *, decimal_comma: bool = False) -> float:
                 )
             text = text.replace(thousands, "")
         text = text.replace(decimal, ".")
-        if _NUMBER.match(text):
+        if NUMBER_TEXT.match(text):
             return float(text)
     raise CellValueError(f"{value!r} is not a number")
 
@@ -179,7 +179,7 @@ def to_datetime(
         return serial_to_datetime(float(value), date1904=date1904)
     if isinstance(value, str):
         text = value.strip()
-        if _NUMBER.match(text):
+        if NUMBER_TEXT.match(text):
             return serial_to_datetime(float(text), date1904=date1904)
         try:
             stamp = pd.Timestamp(pd.to_datetime(text, dayfirst=dayfirst))

@@ -2,9 +2,9 @@
 
 from __future__ import annotations
 
-from sheetvol.kernels._gaps import as_series
-from sheetvol.kernels._types import FloatArray
-from sheetvol.kernels._windows import check_choice
+from sheetvol.core._gaps import as_series
+from sheetvol.core._types import FloatArray
+from sheetvol.core._windows import check_choice
 
 BASES = ("close", "open", "high", "low", "median", "typical", "weighted")
 

@@ -10,7 +10,7 @@ Everything as of entry uses only bars dated on or before the entry date (the
 last such bar is the *entry bar*; the trade is assumed entered at its close),
 so no figure in an entry column can see a later price. The review and the
 trailing stop start on the bar after the entry bar. The arithmetic lives in
-:mod:`sheetvol.kernels.risk`; this module finds the columns, looks up the bars
+:mod:`sheetvol.core.risk`; this module finds the columns, looks up the bars
 and writes down, per row, what it could not compute and why.
 """
 
@@ -24,12 +24,10 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from sheetvol import cells, registry
-from sheetvol.frame import find_roles
-from sheetvol.kernels import risk
-from sheetvol.kernels._types import FloatArray
-from sheetvol.kernels.prices import price_basis
-from sheetvol.kernels.risk import (  # the review defaults, stated once
+from sheetvol.core import risk
+from sheetvol.core._types import FloatArray
+from sheetvol.core.prices import price_basis
+from sheetvol.core.risk import (  # the review defaults, stated once
     MEASURE,
     PERIOD,
     RISK_SHARE,
@@ -37,8 +35,10 @@ from sheetvol.kernels.risk import (  # the review defaults, stated once
     TARGET_MULTIPLE,
     TRAIL_MULTIPLE,
 )
-from sheetvol.locate import normalize_header
-from sheetvol.recipe import split_basis
+from sheetvol.fill.locate import normalize_header
+from sheetvol.fill.recipe import split_basis
+from sheetvol.fill.table import find_roles
+from sheetvol.functions import cells, registry
 
 __all__ = [
     "LOG_COLUMNS",
@@ -83,7 +83,7 @@ class Instrument:
     ``point_value`` is money per 1.0 price move per unit in the instrument's
     currency; ``fx_rate`` is account currency per unit of instrument currency;
     ``min_qty``/``max_qty`` of 0 mean no limit; ``tick`` is the price increment
-    levels are rounded to (0: not rounded; see :func:`sheetvol.kernels.risk.to_tick`).
+    levels are rounded to (0: not rounded; see :func:`sheetvol.core.risk.to_tick`).
     """
 
     point_value: float = 1.0
@@ -387,12 +387,12 @@ def review_log(
         * ``Volatility`` as of the entry bar (``Bar date``: that bar's date);
         * ``Stop``, ``Target`` and ``Target R`` (the target in R); with an
           instrument tick, the stop is rounded away from entry and the target
-          toward it (:func:`sheetvol.kernels.risk.to_tick`);
+          toward it (:func:`sheetvol.core.risk.to_tick`);
         * ``Size`` (from the rounded stop), down to the lot step, and ``Size note``;
         * ``Trail``: the trailing stop in force at the end of the review;
         * ``Result``, ``Exit price``, ``Exit date``, ``R``, ``Bars``,
           ``Adverse``/``Favourable`` (price) and in R: see
-          :func:`sheetvol.kernels.risk.review_trade` (for an open trade ``R`` is
+          :func:`sheetvol.core.risk.review_trade` (for an open trade ``R`` is
           the mark at the last close);
         * ``Open risk``: for an open trade, the money (account currency) lost
           if the stop in force were hit from the last close, at the log's
@@ -582,7 +582,7 @@ def summarise(
     -------
     pandas.Series
         Values labelled as in :data:`SUMMARY_LABELS` (see
-        :func:`sheetvol.kernels.risk.summarise_outcomes`); shares are fractions.
+        :func:`sheetvol.core.risk.summarise_outcomes`); shares are fractions.
         Rows without a result (a ``Note`` stopped them) are not counted.
 
     Examples

@@ -42,8 +42,8 @@ from typing import Any
 
 import numpy as np
 
-from sheetvol.kernels._gaps import as_series
-from sheetvol.kernels._types import FloatArray
+from sheetvol.core._gaps import as_series
+from sheetvol.core._types import FloatArray
 
 # Work is done on chunks of blocks so the temporaries stay in the CPU cache; a chunk
 # spans at least _MIN_COLUMNS blocks so the per-row numpy calls stay cheap, and about

@@ -15,7 +15,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from sheetvol._version import __version__
-from sheetvol.recipe import ColumnSpec
+from sheetvol.fill.recipe import ColumnSpec
 
 __all__ = [
     "CAUTIONS",
@@ -56,7 +56,7 @@ CONVENTIONS = (
 )
 
 # One list for every notes sheet. It covers the trade review's cautions too
-# (sheetvol.trade_fill.TRADE_CAUTIONS, repeated on its own sheet), so a workbook with a
+# (sheetvol.fill.trade_log.TRADE_CAUTIONS, repeated on its own sheet), so a workbook with a
 # trade log gets one sentence more, never the same caution twice.
 CAUTIONS = (
     "Not investment advice. Volatility figures describe the past and do not predict "

@@ -31,7 +31,7 @@ price near 1e7 keeps its digits.
 
 Prices that cannot be logged: a bar whose price inputs include a value <= 0
 is treated like a gap (NaN on that row, the window continues over the other
-bars), as is a bar with a non-finite input (see :mod:`sheetvol.kernels._gaps`).
+bars), as is a bar with a non-finite input (see :mod:`sheetvol.core._gaps`).
 Returns that need a previous close (close-to-close, Yang-Zhang's overnight part)
 then run from the last usable close, so the first return after a gap spans it.
 The range-based means are never negative for consistent bars (low <= open,
@@ -46,9 +46,9 @@ import math
 import numpy as np
 import numpy.typing as npt
 
-from sheetvol.kernels._gaps import as_series, skip_gaps
-from sheetvol.kernels._types import FloatArray
-from sheetvol.kernels._windows import check_period, window_mean_var, window_sum
+from sheetvol.core._gaps import as_series, skip_gaps
+from sheetvol.core._types import FloatArray
+from sheetvol.core._windows import check_period, window_mean_var, window_sum
 
 __all__ = ["close_to_close", "garman_klass", "parkinson", "rogers_satchell", "yang_zhang"]
 

@@ -7,7 +7,8 @@ Conventions
   / lookback``. It lies in (0, 1]: 1 means today is the highest of the window
   (ties count as at-or-below), ``1/lookback`` that it is strictly the lowest. A
   constant series ranks 1 everywhere. The first ``lookback - 1`` readings are
-  NaN. Computed with pandas' rolling rank (method "max"), O(n log lookback).
+  NaN. Computed by comparing each reading with its window in blocks of rows
+  (O(n * lookback) comparisons in numpy, exact, no pandas).
   Blank readings (such as a volatility column's own warm-up) are skipped like
   any gap: the window is the last ``lookback`` non-blank readings.
 * **Deviation to ATR** is the population standard deviation of the last
@@ -20,13 +21,12 @@ from __future__ import annotations
 
 import numpy as np
 import numpy.typing as npt
-import pandas as pd
 
-from sheetvol.kernels._gaps import skip_gaps
-from sheetvol.kernels._types import FloatArray
-from sheetvol.kernels._windows import check_period
-from sheetvol.kernels.dispersion import dispersion_of
-from sheetvol.kernels.ranges import average_true_range_of
+from sheetvol.core._gaps import skip_gaps
+from sheetvol.core._types import FloatArray
+from sheetvol.core._windows import check_period
+from sheetvol.core.dispersion import dispersion_of
+from sheetvol.core.ranges import average_true_range_of
 
 __all__ = ["deviation_to_atr", "percentile_rank"]
 
@@ -35,8 +35,15 @@ __all__ = ["deviation_to_atr", "percentile_rank"]
 def _percentile_rank(values: FloatArray, lookback: int) -> FloatArray:
     if len(values) < lookback:
         return np.full(len(values), np.nan)
-    ranks = pd.Series(values).rolling(lookback).rank(method="max", pct=True)
-    return ranks.to_numpy(dtype=np.float64)
+    out = np.full(len(values), np.nan)
+    windows = np.lib.stride_tricks.sliding_window_view(values, lookback)
+    # Rows per block keep the boolean comparison near a few MB, whatever the lookback.
+    step = max(1, (1 << 22) // lookback)
+    for start in range(0, len(windows), step):
+        block = windows[start:start + step]
+        counts = np.count_nonzero(block <= block[:, -1:], axis=1)
+        out[lookback - 1 + start:lookback - 1 + start + len(block)] = counts / lookback
+    return out
 
 
 def percentile_rank(values: npt.ArrayLike, lookback: int = 252) -> FloatArray:

@@ -4,7 +4,7 @@ Conventions
 -----------
 * **Bollinger Bands**: the middle line is the chosen moving average of the last
   ``period`` prices; the upper and lower bands sit ``width`` deviations above
-  and below it, the deviation being :func:`sheetvol.kernels.dispersion.dispersion`
+  and below it, the deviation being :func:`sheetvol.core.dispersion.dispersion`
   about that same average (population divisor by default, as Bollinger uses).
   With ``average="simple"`` these are the classic bands.
 * **%b** is ``(price - lower) / (upper - lower)``: 0 on the lower band, 1 on the
@@ -15,10 +15,10 @@ Conventions
 * **ATR bands** (Keltner-type): the middle is the exponential average of the
   close (alpha = 2/(period+1), seeded with the simple mean of the first
   ``period`` closes); the bands are ``width`` times the Wilder ATR over
-  ``atr_period`` bars away (see :mod:`sheetvol.kernels.ranges`).
+  ``atr_period`` bars away (see :mod:`sheetvol.core.ranges`).
 * **Envelope**: the moving average plus and minus ``percent/100`` of itself.
 * Every line is NaN until its window is full and on gap rows (a bar whose
-  inputs are not all finite is skipped; see :mod:`sheetvol.kernels._gaps`).
+  inputs are not all finite is skipped; see :mod:`sheetvol.core._gaps`).
 """
 
 from __future__ import annotations
@@ -26,12 +26,12 @@ from __future__ import annotations
 import numpy as np
 import numpy.typing as npt
 
-from sheetvol.kernels._gaps import as_series, skip_gaps
-from sheetvol.kernels._types import FloatArray
-from sheetvol.kernels._windows import check_choice, check_period, window_mean_var
-from sheetvol.kernels.averages import KINDS, average_of
-from sheetvol.kernels.dispersion import DIVISORS, dispersion_of
-from sheetvol.kernels.ranges import average_true_range_of
+from sheetvol.core._gaps import as_series, skip_gaps
+from sheetvol.core._types import FloatArray
+from sheetvol.core._windows import check_choice, check_period, window_mean_var
+from sheetvol.core.averages import KINDS, average_of
+from sheetvol.core.dispersion import DIVISORS, dispersion_of
+from sheetvol.core.ranges import average_true_range_of
 
 __all__ = ["atr_bands", "bandwidth", "deviation_bands", "envelope", "percent_b"]
 

@@ -1,0 +1,1 @@
+"""Worksheet functions: the registry, argument conversion, call forms and the headless evaluator."""

@@ -1,0 +1,189 @@
+"""Worksheet-only forms of the trade arithmetic: dates as the spreadsheet passes them.
+
+The kernels in :mod:`sheetvol.core.risk` take day numbers and arrays; the forms here
+take what a worksheet formula holds (a date cell, a date typed as text, a blank) and
+return one value for one cell. They back SV_TRAIL and SV_OUTCOME.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import numpy as np
+import numpy.typing as npt
+
+from sheetvol.core._gaps import as_series
+from sheetvol.core.risk import (
+    MEASURE,
+    PERIOD,
+    TRAIL_MULTIPLE,
+    bar_on_or_before,
+    review_trade,
+    trailing_stop,
+    volatility,
+)
+from sheetvol.functions.cells import to_day_numbers
+
+__all__ = ["current_trail", "trade_outcome"]
+
+
+def _day(value: Any) -> float:
+    """A date argument as a day number; blank gives NaN."""
+    if value is None:
+        return math.nan
+    if isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(value, bool):
+        return float(value)
+    if isinstance(value, str) and value.strip() == "":
+        return math.nan
+    return float(to_day_numbers([value])[0])
+
+
+
+def current_trail(
+    dates: npt.ArrayLike,
+    high: npt.ArrayLike,
+    low: npt.ArrayLike,
+    close: npt.ArrayLike,
+    entry_date: Any,
+    entry_price: float,
+    side: str = "long",
+    multiple: float = TRAIL_MULTIPLE,
+    period: int = PERIOD,
+    measure: str = MEASURE,
+    tick: float = 0.0,
+) -> float:
+    """Trailing stop in force after the last given bar, for a trade entered on a date.
+
+    Parameters
+    ----------
+    dates : array_like
+        Day numbers of the bars (see :func:`sheetvol.functions.cells.to_day_numbers`), oldest first.
+    high, low, close : array_like
+        Aligned price columns.
+    entry_date : float or date
+        Entry date; the entry bar is the last bar on or before it.
+    entry_price : float
+        Entry price.
+    side : str, default "long"
+        Trade direction.
+    multiple : float, default 3.0
+        Volatility units between the best price since entry and the stop (see
+        :func:`trailing_stop`).
+    period : int, default 14
+        Bars in the volatility window.
+    measure : {"atr", "deviation"}, default "atr"
+        Volatility measure (see :func:`volatility`).
+    tick : float, default 0.0
+        Price increment; the level is rounded away from the price (see
+        :func:`trailing_stop`). 0 leaves it unrounded.
+
+    Returns
+    -------
+    float
+        The trailing level after the last bar (NaN when no bar is on or before
+        the entry date or the volatility is still warming up).
+
+    Examples
+    --------
+    True ranges 2, 2, 3 give a 2-bar Wilder ATR of 2 on day 2 and 2.5 on day 3.
+    Long at 10 on day 2: the stop starts at 10 - 2 x 2 = 6 and moves to
+    13 - 2 x 2.5 = 8 after the day-3 high of 13:
+
+    >>> current_trail([1, 2, 3], [11, 11, 13], [9, 9, 11], [10, 10, 12], 2, 10.0,
+    ...               "long", 2, 2)
+    8.0
+    """
+    days = as_series(dates, "dates")
+    i = bar_on_or_before(days, _day(entry_date))
+    if i is None:
+        return math.nan
+    vol = volatility(high, low, close, period, measure)
+    return float(trailing_stop(high, low, close, vol, i, entry_price, side, multiple,
+                               tick)[-1])
+
+
+def trade_outcome(
+    dates: npt.ArrayLike,
+    open: npt.ArrayLike,
+    high: npt.ArrayLike,
+    low: npt.ArrayLike,
+    close: npt.ArrayLike,
+    entry_date: Any,
+    entry_price: float,
+    side: str,
+    stop: float,
+    target: float,
+    trail_multiple: float = 0.0,
+    period: int = 14,
+    measure: str = "atr",
+    exit_date: Any = "",
+    exit_price: float = 0.0,
+    tick: float = 0.0,
+) -> tuple[str, float, float, float, float, float, float]:
+    """Outcome of one trade from dated bars, as the worksheet fields.
+
+    Parameters
+    ----------
+    dates : array_like
+        Day numbers of the bars, oldest first.
+    open, high, low, close : array_like
+        Aligned price columns.
+    entry_date : float or date
+        Entry date; the entry bar is the last bar on or before it.
+    entry_price, stop, target : float
+        Entry, initial stop and target prices.
+    side : str
+        Trade direction.
+    trail_multiple : float, default 0.0
+        Trailing-stop multiple of volatility; 0 means no trailing stop.
+    period : int, default 14
+        Bars in the volatility window (used only with a trailing stop).
+    measure : {"atr", "deviation"}, default "atr"
+        Volatility measure for the trailing stop.
+    exit_date : float or date, optional
+        Exit date from the log; the review ends on the last bar on or before it.
+    exit_price : float, default 0.0
+        Exit price from the log; 0 means no recorded exit.
+    tick : float, default 0.0
+        Price increment the trailing stop is rounded to, away from entry (0: none),
+        as the fill does with an instruments sheet's tick.
+
+    Returns
+    -------
+    tuple
+        ``(result, exit_price, exit_date, r, bars, adverse, favourable)`` in the
+        order of :data:`OUTCOME_FIELDS`; ``exit_date`` is a day number,
+        missing values are NaN. See :func:`review_trade`.
+
+    Examples
+    --------
+    >>> trade_outcome([1, 2, 3], [100, 101, 97], [100, 102, 98], [99, 100, 95],
+    ...               [100, 101, 96], 1, 100.0, "long", 98.0, 106.0)
+    ('stop', 97.0, 3.0, -1.5, 2.0, 3.0, 2.0)
+    """
+    days = as_series(dates, "dates")
+    nan_result = ("open", math.nan, math.nan, math.nan, math.nan, math.nan, math.nan)
+    i = bar_on_or_before(days, _day(entry_date))
+    if i is None:
+        return nan_result
+    trail = None
+    if trail_multiple and trail_multiple > 0:
+        vol = volatility(high, low, close, period, measure)
+        trail = trailing_stop(high, low, close, vol, i, entry_price, side, trail_multiple,
+                              tick)
+    exit_day = _day(exit_date)
+    exit_index = bar_on_or_before(days, exit_day) if math.isfinite(exit_day) else None
+    px = float(exit_price) if exit_price else None
+    rev = review_trade(open, high, low, close, i, entry_price, side, stop, target, trail,
+                       exit_index if px is not None else None, px)
+    exit_day_out = float(days[rev.exit_index]) if rev.exit_index is not None else math.nan
+    return (
+        rev.result,
+        rev.exit_price,
+        exit_day_out,
+        rev.r,
+        math.nan if rev.bars is None else float(rev.bars),
+        rev.adverse,
+        rev.favourable,
+    )
