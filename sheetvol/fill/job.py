@@ -185,6 +185,9 @@ class FillReport:
     formulas: list[FormulaNote] = field(default_factory=list)
     formulas_ok: int = 0
     warnings: list[str] = field(default_factory=list)
+    # What the fill assumed because the workbook did not say (a default point value,
+    # bars per year from the dates, a column it did not use): terminal and notes sheet.
+    assumptions: list[str] = field(default_factory=list)
     backup: Path | None = None
     trades: TradeReport | None = None
 
@@ -224,6 +227,8 @@ class FillReport:
                 f"  typed formulas evaluated: {self.formulas_ok}"
                 + (f", {failed} could not be (see warnings)" if failed else "")
             )
+        for a in self.assumptions:
+            lines.append(f"  assumed: {a}")
         for w in self.warnings:
             lines.append(f"  warning: {w}")
         if self.backup is not None:
@@ -910,6 +915,7 @@ def _notes_rows(src: Path, report: FillReport) -> list[list[object]]:
         written=report.written,
         formulas=report.formulas,
         warnings=report.warnings,
+        assumptions=report.assumptions,
         trade_columns=[] if trades is None else [
             (trades.sheet, letter, header, meaning) for letter, header, meaning in trades.written],
         trade_settings=[] if trades is None else [

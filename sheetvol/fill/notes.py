@@ -166,6 +166,7 @@ def build_notes(
     written: Sequence[WrittenColumn],
     formulas: Sequence[FormulaNote] = (),
     warnings: Sequence[str] = (),
+    assumptions: Sequence[str] = (),
     run_at: dt.datetime | None = None,
     trade_columns: Sequence[tuple[str, str, str, str]] = (),
     trade_settings: Sequence[tuple[str, str]] = (),
@@ -186,6 +187,9 @@ def build_notes(
         Typed formulas evaluated.
     warnings : sequence of str
         Anything the reader should know (e.g. unsorted rows).
+    assumptions : sequence of str
+        What the fill assumed because the workbook did not say (a default used, a
+        column not used, the bars per year), listed in a block of their own.
     run_at : datetime, optional
         Time of the run (UTC now by default).
     trade_columns : sequence of tuple
@@ -239,6 +243,10 @@ def build_notes(
         rows.append(["Typed formulas"])
         rows.append(["Cell", "Formula", "Result"])
         rows.extend([f.cell, "=" + f.formula, f.outcome] for f in formulas)
+        rows.append([])
+    if assumptions:
+        rows.append(["Assumptions"])
+        rows.extend([a] for a in assumptions)
         rows.append([])
     if warnings:
         rows.append(["Warnings"])
