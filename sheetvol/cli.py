@@ -382,8 +382,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     Examples
     --------
     >>> main(["functions", "SV_ATR"])  # doctest: +ELLIPSIS
-    SV_ATR(high, low, close, [period], [smoothing])
-    ...
+    SV_ATR(high, low, close, [period], ...)
+      Average true range: ...
     0
     """
     parser = build_parser()
