@@ -23,6 +23,7 @@ __all__ = [
     "col_letter",
     "col_number",
     "find_header",
+    "list_headers",
     "normalize_header",
     "resolve_column",
     "role_of",
@@ -87,7 +88,7 @@ in row 1: A 'Date'); give a header from that row or a column letter
         super().__init__(
             (f"{file}: " if file else "")
             + f'--{role}-col "{given}": no column headed "{given}"{on} (headers found in row '
-            f"{row}: {_list_headers(headers)}){also}; give a header from that row or a column "
+            f"{row}: {list_headers(headers)}){also}; give a header from that row or a column "
             "letter"
         )
 
@@ -308,11 +309,11 @@ def find_header(
             seen = _text_cells(rows.get(header_row, {}))
             raise LocateError(
                 f"{prefix}row {header_row} has no Close column (headers there: "
-                f"{_list_headers(seen)}); name it with --close-col or pick another --header-row"
+                f"{list_headers(seen)}); name it with --close-col or pick another --header-row"
             )
         raise LocateError(
             f"{prefix}no Close column found in the first {HEADER_SCAN_ROWS} rows "
-            f"(headers found: {_list_headers(_first_text_row(rows))}); name it with "
+            f"(headers found: {list_headers(_first_text_row(rows))}); name it with "
             "--close-col (header text or column letter) and, if needed, --header-row"
         )
     row, _, found = best
@@ -394,7 +395,12 @@ def _first_text_row(rows: Mapping[int, Mapping[int, object]]) -> dict[int, str]:
     return best
 
 
-def _list_headers(cells: Mapping[int, str]) -> str:
+def list_headers(cells: Mapping[int, str]) -> str:
+    """Header cells for a message: ``A 'Date', B 'Close'`` (the first 20, then a count).
+
+    >>> list_headers({1: "Date", 3: "Side"})
+    "A 'Date', C 'Side'"
+    """
     if not cells:
         return "none"
     shown = [f"{col_letter(c)} {t!r}" for c, t in sorted(cells.items())[:20]]
