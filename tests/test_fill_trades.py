@@ -524,7 +524,7 @@ def test_price_basis_option_through_the_fill(tmp_path, demo_direct):
     typical = ((upto["High"] + upto["Low"] + upto["Close"]) / 3).tolist()
     assert got[header][0] == pytest.approx(statistics.pstdev(typical), rel=1e-9)
     for table, words in (({"measure": "deviation", "options": {"basis": "middle"}},
-                          "basis must be one of close, open, high, low, median, typical"),
+                          "basis must be one of open, high, low, close, median, typical"),
                          ({"options": {"basis": "typical"}}, "SV_ATR reads high, low, close")):
         with pytest.raises(RecipeError, match=words):
             parse_trades(table, source="desk.toml")
