@@ -81,6 +81,8 @@ def test_choices_in_bar_order_then_derived_then_the_bar_average():
     # bar average; one list, which the registry uses as it is.
     assert BASES == ("open", "high", "low", "close", "median", "typical", "weighted", "average")
     assert registry.get("SV_PRICE").param("basis").choices is BASES
+    assert list(prices.DERIVED_FORMULAS) == list(prices.DERIVED_PRICES)
+    assert registry.get("SV_PRICE").param("basis").help.endswith("average (O+H+L+C)/4")
 
 
 def test_bar_average(bars):

@@ -16,6 +16,10 @@ and the bar average (O+H+L+C)/4."""
 BASES = BAR_PRICES + DERIVED_PRICES
 """Every price basis, in the order help and docs list them."""
 
+DERIVED_FORMULAS = {"median": "(H+L)/2", "typical": "(H+L+C)/3", "weighted": "(H+L+2C)/4",
+                    "average": "(O+H+L+C)/4"}
+"""How each derived price is made, for help texts."""
+
 
 def price_basis(
     open: FloatArray,  # the trade's word and the registry's name, though it shadows open()
@@ -74,4 +78,4 @@ def price_basis(
     return (o + h + lo + c) / 4.0
 
 
-__all__ = ["BAR_PRICES", "BASES", "DERIVED_PRICES", "price_basis"]
+__all__ = ["BAR_PRICES", "BASES", "DERIVED_FORMULAS", "DERIVED_PRICES", "price_basis"]

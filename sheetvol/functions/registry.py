@@ -28,7 +28,7 @@ from typing import Any, Literal
 import numpy as np
 
 from sheetvol.core.averages import KINDS, SEEDS
-from sheetvol.core.prices import BASES
+from sheetvol.core.prices import BASES, DERIVED_FORMULAS
 from sheetvol.core.ranges import FIRST_BAR, SMOOTHING
 from sheetvol.functions import cells
 
@@ -352,7 +352,8 @@ FUNCTIONS: tuple[Function, ...] = (
             _HIGH,
             _LOW,
             _CLOSE,
-            Param("basis", "choice", "which price of the bar", "typical", choices=BASES),
+            Param("basis", "choice", "which price of the bar; " + ", ".join(
+                f"{k} {v}" for k, v in DERIVED_FORMULAS.items()), "typical", choices=BASES),
         ),
         f"{_K}.prices:price_basis",
         "one price per bar",
