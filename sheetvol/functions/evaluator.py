@@ -478,10 +478,13 @@ def evaluate(
 
     Raises
     ------
+    ArgumentMessage
+        A sheetvol call has a bad argument; ``text`` is the message the live
+        add-in shows in the cell (e.g. ``"SV_ATR: period must be ..."``).
     FormulaError
-        With a message saying what could not be evaluated or which argument
-        is wrong (the function's own message, e.g. ``"SV_ATR: period must be
-        ..."``).
+        With a message saying what could not be evaluated (a function other
+        than sheetvol's and :data:`WORKSHEET_FUNCTIONS`, a defined name, an
+        error value such as ``#DIV/0!`` as the result...).
 
     Examples
     --------
