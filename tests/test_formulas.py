@@ -500,6 +500,8 @@ def test_worksheet_functions_around_sheetvol_calls(book):
         "=SV_DEVIATION_ON(DATE(2025,3,7),Prices!A2:A121,Prices!E2:E121,14)":
             float(dispersion(P["close"], 14)[60]),
         "=IFERROR(ROUND(SV_AVERAGE_LAST(Prices!E2:E121,1),2),-1)": -1.0,
+        # IF computes only the branch it takes: the bad call on the other one is not met.
+        "=IF(FALSE,SV_AVERAGE_LAST(Prices!E2:E121,1),5)": 5.0,
     }
     for formula, expected in cases.items():
         got = evaluate(formula, resolver, current_sheet="Log")
@@ -561,3 +563,12 @@ def test_fill_writes_values_messages_and_lists_what_stays_a_formula(tmp_path):
     assert set(listed) == cells
     assert "SQRT is not evaluated headless" in " ".join(map(str, listed["Log!E4"]))
     assert "period must be a whole number from 2" in " ".join(map(str, listed["Log!E3"]))
+
+
+def test_date_in_a_1904_workbook():
+    # The 1904 system counts from 1904-01-01, 1,462 days after the 1900 system's day 0
+    # (1899-12-30): DATE(2025,3,14) is 45730 in one (LibreOffice above) and 44268 in the other.
+    def cells(sheet, top, left, bottom, right):
+        return [[None]]
+
+    assert evaluate("=DATE(2025,3,14)", cells, date1904=True) == 45730.0 - 1462
