@@ -72,7 +72,7 @@ def deviation_bands(
         Bars in the window.
     width : float, default 2.0
         Band half-width in deviations.
-    average : {"simple", "exponential", "wilder", "linear"}, default "simple"
+    average : {"simple", "linear", "exponential", "wilder"}, default "simple"
         Moving average for the middle line; the deviation is measured about it.
     divisor : {"population", "sample"}, default "population"
         Divide the squared deviations by N or N-1.
@@ -243,7 +243,7 @@ def envelope(
         Bars in the moving average.
     percent : float, default 2.5
         Half-width in percent of the average (2.5 means 2.5 %).
-    average : {"simple", "exponential", "wilder", "linear"}, default "simple"
+    average : {"simple", "linear", "exponential", "wilder"}, default "simple"
         Moving average for the middle line.
 
     Returns

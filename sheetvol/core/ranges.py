@@ -49,7 +49,7 @@ __all__ = [
 ]
 
 FIRST_BAR = ("high-low", "blank")
-SMOOTHING = ("wilder", "simple", "exponential")
+SMOOTHING = ("simple", "exponential", "wilder")  # by family, as averages.KINDS
 
 
 def true_range_of(
@@ -195,7 +195,7 @@ def average_true_range(
         Aligned price columns, oldest bar first.
     period : int, default 14
         Bars averaged.
-    smoothing : {"wilder", "simple", "exponential"}, default "wilder"
+    smoothing : {"simple", "exponential", "wilder"}, default "wilder"
         Wilder smoothing (alpha = 1/period), a simple rolling mean, or an
         exponential average (alpha = 2/(period+1)).
     seed : {"average", "first"}, default "average"

@@ -27,6 +27,7 @@ from sheetvol.fill.locate import (
     LocateError,
     col_letter,
     find_header,
+    list_headers,
     normalize_header,
     still_headed,
 )
@@ -237,6 +238,9 @@ def find_trade_log(pkg: Package, recipe: TradeRecipe, skip: Sequence[str] = (),
                  if s.kind == "worksheet" and s.name.casefold() not in skipped]
     others = [s.name for s in pkg.sheets if s.kind == "worksheet"
               and s.name.casefold() not in skipped]
+    # The row most like a log header, over all sheets: where a header named in the
+    # recipe was looked for in vain.
+    closest: tuple[int, str, int, dict[str, int], dict[int, str]] | None = None
     for name in names:
         grid = pkg.read_grid(name, max_rows=HEADER_SCAN_ROWS)
         best: tuple[int, dict[str, int]] | None = None
@@ -246,16 +250,22 @@ def find_trade_log(pkg: Package, recipe: TradeRecipe, skip: Sequence[str] = (),
             headers = {c: str(v) for c, v in grid.rows[r].items()
                        if isinstance(v, str) and v.strip()}
             if all(k in roles for k in _REQUIRED):
+                _check_named_columns(recipe, name, r, roles, headers, where=where)
                 return TradeLog(name, r, roles, headers)
             if best is None or len(roles) > len(best[1]):
                 best = (r, roles)
+            if closest is None or len(roles) > closest[0]:
+                closest = (len(roles), name, r, roles, headers)
             no_instrument = all(k in roles for k in _REQUIRED if k != "instrument")
             if no_instrument and (recipe.sheet or "entry" in roles):
                 if only is None:
                     only = _only_price_sheet(pkg, [n for n in others if n != name])
                 if only:
+                    _check_named_columns(recipe, name, r, roles, headers, where=where)
                     return TradeLog(name, r, roles, headers, instrument=only)
         if recipe.sheet:
+            if closest is not None:
+                _check_named_columns(recipe, *closest[1:], where=where)
             row, roles = best if best is not None else (0, {})
             found = ", ".join(f"{k} ({col_letter(c)})" for k, c in roles.items()) or "none"
             missing = ", ".join(f"{k} ({'/'.join(LOG_COLUMNS[k][:3])})" for k in _REQUIRED
@@ -267,7 +277,25 @@ def find_trade_log(pkg: Package, recipe: TradeRecipe, skip: Sequence[str] = (),
                 f'{where}, sheet "{name}": no header row with the trade-log columns; '
                 f"{where_row}: found {found}; missing {missing}{extra}; name a column with "
                 '[trades] columns, e.g. columns = { side = "B/S" }')
+    if closest is not None:
+        _check_named_columns(recipe, *closest[1:], where=where)
     return None
+
+
+def _check_named_columns(recipe: TradeRecipe, sheet: str, row: int, roles: Mapping[str, int],
+                         headers: Mapping[int, str], *, where: str) -> None:
+    """Refuse headers named in ``[trades] columns`` that the closest header row lacks."""
+    absent = {role: given for role, given in recipe.columns.items() if role not in roles}
+    if not absent:
+        return
+    named = ", ".join(f'{role} = "{given}"' for role, given in absent.items())
+    heads = " or ".join(f'"{given}"' for given in absent.values())
+    usual = "; ".join(f"{role}: {'/'.join(LOG_COLUMNS[role][:3])}" for role in absent
+                      if role in LOG_COLUMNS)
+    raise TradeLogError(
+        f'{where}, sheet "{sheet}": [trades] columns: {named}: no column headed {heads} in row '
+        f"{row} (headers there: {list_headers(headers)}); give a header from that row, or "
+        f"remove it from [trades] columns so the usual names are looked for ({usual})")
 
 
 def _only_price_sheet(pkg: Package, names: Sequence[str]) -> str:

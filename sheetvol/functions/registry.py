@@ -27,6 +27,9 @@ from typing import Any, Literal
 
 import numpy as np
 
+from sheetvol.core.averages import KINDS, SEEDS
+from sheetvol.core.prices import BASES, DERIVED_FORMULAS
+from sheetvol.core.ranges import FIRST_BAR, SMOOTHING
 from sheetvol.functions import cells
 
 ParamKind = Literal["series", "dates", "date", "whole", "number", "choice", "text"]
@@ -255,8 +258,7 @@ def _show(value: Any) -> str:
 
 
 # -- shared parameter definitions ---------------------------------------------
-AVERAGES = ("simple", "exponential", "wilder", "linear")
-BASES = ("close", "open", "high", "low", "median", "typical", "weighted")
+AVERAGES = KINDS
 LINES = ("upper", "middle", "lower")
 
 
@@ -296,21 +298,21 @@ _SEED = Param(
     "choice",
     "start of exponential/Wilder averages: simple average of the first N bars, or the first bar",
     "average",
-    choices=("average", "first"),
+    choices=SEEDS,
 )
 _FIRST_BAR = Param(
     "first_bar",
     "choice",
     "the first bar has no previous close: use its high-low, or leave it blank",
     "high-low",
-    choices=("high-low", "blank"),
+    choices=FIRST_BAR,
 )
 _SMOOTHING = Param(
     "smoothing",
     "choice",
     "how true ranges are averaged",
     "wilder",
-    choices=("wilder", "simple", "exponential"),
+    choices=SMOOTHING,
 )
 _WIDTH = Param("width", "number", "band half-width in deviations", 2.0, 0, 100, low_inclusive=False)
 _SIDE = Param("side", "choice", "trade direction", "long", choices=("long", "short", "buy", "sell"))
@@ -330,7 +332,7 @@ FUNCTIONS: tuple[Function, ...] = (
     Function(
         "SV_AVERAGE",
         "averages",
-        "Moving average of a price column: simple, exponential, Wilder or linearly weighted.",
+        "Moving average of a price column: simple, linearly weighted, exponential or Wilder.",
         (
             _prices(),
             _period(14),
@@ -344,13 +346,14 @@ FUNCTIONS: tuple[Function, ...] = (
     Function(
         "SV_PRICE",
         "averages",
-        "Price basis of each bar from open, high, low and close (median, typical, weighted close...).",
+        "Price basis of each bar: open, high, low, close, median, typical, weighted close or bar average.",
         (
             _OPEN,
             _HIGH,
             _LOW,
             _CLOSE,
-            Param("basis", "choice", "which price of the bar", "typical", choices=BASES),
+            Param("basis", "choice", "which price of the bar; " + ", ".join(
+                f"{k} {v}" for k, v in DERIVED_FORMULAS.items()), "typical", choices=BASES),
         ),
         f"{_K}.prices:price_basis",
         "one price per bar",
