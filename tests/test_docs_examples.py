@@ -123,6 +123,8 @@ def kind(block: Block) -> str:
         return "recipe"
     if block.lang in ("bash", "sh", "shell", "console"):
         return "shell"
+    if block.lang == "text":
+        return "diagram"  # a drawing of the layout: its module names are checked below
     if block.lang:
         return "unknown"
     if lines and all(x.lstrip().startswith("=") for x in lines):
@@ -476,3 +478,28 @@ def test_cell_formula_tables_give_the_stated_figures(table, tmp_path):
     assert values[letters[1]] == pytest.approx(float(stop), abs=1e-12)
     assert values[letters[2]] == pytest.approx(float(target), abs=1e-12)
     assert values[letters[3]] == float(size)
+
+
+def test_diagrams_name_modules_that_exist():
+    # A drawing of the layout names folders ("fill/") and their modules ("job, locate"),
+    # or top-level modules ("cli.py"): each must exist, so the drawing cannot go stale.
+    package = ROOT / "sheetvol"
+    checked = 0
+    for block in _of("diagram"):
+        folder = None
+        for line in block.text.splitlines():
+            left = line[:64]
+            first = left.split()[0] if left.split() else ""
+            if first.endswith("/"):
+                folder = package / first.rstrip("/")
+                assert folder.is_dir(), f"{block.id}: no folder {first}"
+                names = left.split(None, 1)[1] if len(left.split(None, 1)) > 1 else ""
+            elif first == "faces":  # the top-level modules
+                folder, names = None, left.split(None, 1)[1]
+            else:
+                names = left if folder is not None else ""
+            for word in re.findall(r"[A-Za-z_]+(?:\.py)?", names):
+                path = (folder or package) / (word if word.endswith(".py") else word + ".py")
+                assert path.is_file(), f"{block.id}: {path.relative_to(ROOT)} does not exist"
+                checked += 1
+    assert checked >= 30
