@@ -1,8 +1,8 @@
 """Worksheet-only forms of the trade arithmetic: dates as the spreadsheet passes them.
 
-The kernels in :mod:`sheetvol.core.risk` take day numbers and arrays; the forms here
-take what a worksheet formula holds (a date cell, a date typed as text, a blank) and
-return one value for one cell. They back SV_TRAIL and SV_OUTCOME.
+The kernels in :mod:`sheetvol.core.levels` and :mod:`sheetvol.core.review` take day
+numbers and arrays; the forms here take what a worksheet formula holds (a date cell, a
+date typed as text, a blank) and return one value for one cell. They back SV_TRAIL and SV_OUTCOME.
 """
 
 from __future__ import annotations
@@ -14,15 +14,8 @@ import numpy as np
 import numpy.typing as npt
 
 from sheetvol.core._gaps import as_series
-from sheetvol.core.risk import (
-    MEASURE,
-    PERIOD,
-    TRAIL_MULTIPLE,
-    bar_on_or_before,
-    review_trade,
-    trailing_stop,
-    volatility,
-)
+from sheetvol.core.levels import TRAIL_MULTIPLE, trailing_stop
+from sheetvol.core.review import MEASURE, PERIOD, bar_on_or_before, review_trade, volatility
 from sheetvol.functions.cells import to_day_numbers
 
 __all__ = ["current_trail", "trade_outcome"]
