@@ -179,3 +179,46 @@ def test_trailing_stop_never_loosens(steps, spreads, vols, entry_at, side, multi
     gap = sign * (t[entry_at:] - r[entry_at:])
     assert (gap >= -1e-9).all() and (gap < 0.25 + 1e-9).all()
 
+
+
+# -- rounding at the extremes (issue 8) -----------------------------------------------------------
+def test_tick_rounding_beyond_half_a_billion_ticks_is_never_tighter():
+    # A tolerance relative to the tick count (1e-9 of it) called every price beyond about
+    # 5e8 ticks "on a tick" and rounded it to the nearest one. By hand:
+    # 1,234,567.8915 is 1,234,567,891.5 ticks of 0.001: a long rounds down to .891.
+    assert levels.to_tick(1234567.8915, 0.001, "long") == 1234567.891
+    assert levels.to_tick(1234567.8915, 0.001, "short") == 1234567.892
+    # 12,000,000 + 3 x 0.002 = 12,000,000.006 -> toward entry on 0.01 ticks: 12,000,000.00.
+    assert target_price(12_000_000.0, 0.002, 3, "long", 0.01) == 12_000_000.0
+    # 12,000,000 - 0.006 = 11,999,999.994 -> away from entry (down): 11,999,999.99.
+    assert stop_price(12_000_000.0, 0.002, 3, "long", 0.01) == 11_999_999.99
+
+
+TICKS = [(m, e) for m in (1, 2, 5, 25) for e in range(-8, 4)]
+
+
+@settings(max_examples=300, deadline=None)
+@given(
+    tick_parts=st.sampled_from(TICKS),
+    count=st.integers(1, 10**12),
+    fraction=st.integers(1, 99),
+    side=st.sampled_from(["long", "short"]),
+)
+def test_levels_are_never_tighter_at_any_magnitude(tick_parts, count, fraction, side):
+    # A price `fraction` hundredths of a tick past a whole number of ticks, for ticks from
+    # 1e-8 to 2,500 and prices from 1e-8 to about 1e12 (the decimal price is exact in
+    # Decimal; the float is its nearest). A long level must round down to `count` ticks and a
+    # short one up to `count + 1`: never tighter, never by a whole tick too far.
+    from decimal import Decimal
+
+    mantissa, exponent = tick_parts
+    tick = Decimal(mantissa) * Decimal(10) ** exponent
+    price = (Decimal(count) + Decimal(fraction) / 100) * tick
+    if price > Decimal(10) ** 12 or price < Decimal("1e-8"):
+        return  # outside the magnitudes the issue names (no assertion skipped: nothing to do)
+    got = levels.to_tick(float(price), float(tick), side)
+    want = count if side == "long" else count + 1
+    assert got == float(Decimal(want) * tick), (price, tick, side, got)
+    # A price already on a tick stays there, whatever the float noise of its division.
+    on = float(Decimal(count) * tick)
+    assert levels.to_tick(on, float(tick), side) == on

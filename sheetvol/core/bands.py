@@ -26,6 +26,7 @@ from __future__ import annotations
 import numpy as np
 import numpy.typing as npt
 
+from sheetvol.core import bounds
 from sheetvol.core._gaps import as_series, skip_gaps
 from sheetvol.core._types import FloatArray
 from sheetvol.core._windows import check_choice, check_period, window_mean_var
@@ -154,8 +155,9 @@ def bandwidth(
     Returns
     -------
     FloatArray
-        ``(upper - lower) / middle``; NaN during the warm-up, on gaps and where
-        the middle line is 0.
+        ``(upper - lower) / middle``; NaN during the warm-up and on gaps. A
+        price of 0 or below is refused (naming the bar): the middle line would
+        reach 0 or turn negative and the fraction flip sign.
 
     Examples
     --------
@@ -164,6 +166,7 @@ def bandwidth(
     >>> bool(abs(w[2] - 3 * math.sqrt(2 / 3) / 2) < 1e-12)
     True
     """
+    bounds.check_positive_prices("bandwidth (a share of the middle line)", prices=prices)
     middle, upper, lower = deviation_bands(prices, period, width, average, divisor)
     with np.errstate(divide="ignore", invalid="ignore"):
         return np.where(middle != 0, (upper - lower) / middle, np.nan)
@@ -217,6 +220,7 @@ def atr_bands(
     """
     period = check_period(period)
     atr_period = check_period(atr_period, "atr_period")
+    bounds.check_high_low(high, low, close)
     return _atr_bands(high, low, close, period, float(width), atr_period)
 
 
@@ -250,6 +254,8 @@ def envelope(
     -------
     middle, upper, lower : FloatArray
         The three lines in price units; NaN until a full window and on gaps.
+        A price of 0 or below is refused (naming the bar): a percentage of a
+        negative average would put the upper band below the lower one.
 
     Examples
     --------
@@ -258,4 +264,5 @@ def envelope(
     ([nan, 102.5], [nan, 97.5])
     """
     check_choice(average, "average", KINDS)
+    bounds.check_positive_prices("an envelope (a percentage of the average)", prices=prices)
     return _envelope(prices, check_period(period), float(percent), average)

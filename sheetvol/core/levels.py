@@ -28,6 +28,7 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
+from sheetvol.core import bounds
 from sheetvol.core._gaps import as_series
 from sheetvol.core._types import FloatArray
 
@@ -35,7 +36,7 @@ __all__ = [
     "SIDES",
     "STOP_MULTIPLE",
     "TARGET_MULTIPLE",
-    "TICK_EPSILON",
+    "TICK_ULPS",
     "TRAIL_MULTIPLE",
     "r_multiple",
     "side_sign",
@@ -54,12 +55,13 @@ TRAIL_MULTIPLE = 3.0
 #: Trade directions and their signs (the words a side may be given in, in any case).
 SIDES = {"long": 1.0, "buy": 1.0, "short": -1.0, "sell": -1.0}
 
-#: Relative tolerance when rounding a level to its tick. A price within one part
-#: in 10^9 (of the number of ticks) of a tick level counts as on it, so float
-#: noise such as 2157.75 / 0.25 = 8630.999999999998 keeps 2157.75 instead of
-#: moving a whole tick. A billionth of the tick count is far below any price
-#: distance that matters, so no real level is pulled onto a tick.
-TICK_EPSILON = 1e-9
+#: Tolerance when rounding a level to its tick, in ulps of the tick count. A price whose
+#: count of ticks is within this many float steps of a whole number counts as on the
+#: tick, so float noise such as 1.16059 / 0.00001 = 116058.99999999999 keeps 1.16059
+#: instead of moving a whole tick. The count comes from the level's few float operations
+#: and the tick's own representation, each off by at most half an ulp; a tolerance of a
+#: few ulps of the count never reaches a real price distance, at any magnitude.
+TICK_ULPS = 4.0
 
 
 # -- sides ------------------------------------------------------------------------------------
@@ -131,8 +133,14 @@ def to_tick(price: npt.ArrayLike, tick: npt.ArrayLike = 0.0, side: Any = "long")
     -------
     float or FloatArray
         A whole number of ticks, written with the tick's decimals (so the
-        result is the float nearest the decimal price). A level within
-        :data:`TICK_EPSILON` (relative, in ticks) of a tick level stays on it.
+        result is the float nearest the decimal price). A level whose tick
+        count is within :data:`TICK_ULPS` float steps of a whole number stays on
+        that tick.
+
+    Raises
+    ------
+    ValueError
+        When ``tick`` is below 0.
 
     Examples
     --------
@@ -145,7 +153,7 @@ def to_tick(price: npt.ArrayLike, tick: npt.ArrayLike = 0.0, side: Any = "long")
     """
     sign = side_sign(side)
     p = np.asarray(price, dtype=float)
-    t = np.asarray(tick, dtype=float)
+    t = np.asarray(bounds.check("tick", tick, bounds.TICK, blank_ok=True), dtype=float)
     p_b, t_b, s_b = np.broadcast_arrays(np.atleast_1d(p), np.atleast_1d(t), np.atleast_1d(sign))
     out = p_b.astype(float)
     ok = np.isfinite(p_b) & np.isfinite(t_b) & (t_b > 0)
@@ -153,7 +161,7 @@ def to_tick(price: npt.ArrayLike, tick: npt.ArrayLike = 0.0, side: Any = "long")
         rows = ok & (t_b == step)
         n = p_b[rows] / step
         nearest = np.round(n)
-        on_tick = np.abs(n - nearest) <= TICK_EPSILON * np.maximum(1.0, np.abs(nearest))
+        on_tick = np.abs(n - nearest) <= TICK_ULPS * np.spacing(np.abs(n))
         steps = np.where(on_tick, nearest, np.where(s_b[rows] > 0, np.floor(n), np.ceil(n)))
         out[rows] = np.round(steps * step, _tick_decimals(step))
     return _scalar_or_array(out, price, tick, side)
@@ -171,20 +179,27 @@ def stop_price(
     entry : float or array_like
         Entry price(s).
     volatility : float or array_like
-        Volatility in price units (ATR or a standard deviation) as of entry.
+        Volatility in price units (ATR or a standard deviation) as of entry,
+        0 or more (NaN gives NaN).
     multiple : float or array_like, default 2.0
-        Volatility units between entry and stop (2 is common practice, no source).
+        Volatility units between entry and stop, above 0 and up to 1000 (2 is
+        common practice, no source).
     side : str or sequence of str, default "long"
         Trade direction(s); see :func:`side_sign`.
     tick : float or array_like, default 0.0
-        Price increment; the stop is rounded *away from entry* to it (see
-        :func:`to_tick`). 0 leaves it unrounded.
+        Price increment, 0 or more; the stop is rounded *away from entry* to it
+        (see :func:`to_tick`). 0 leaves it unrounded.
 
     Returns
     -------
     float or FloatArray
         ``entry - multiple * volatility`` for long, ``entry + multiple * volatility``
         for short; a float when every input is a scalar.
+
+    Raises
+    ------
+    ValueError
+        Naming the first argument outside its range (:mod:`sheetvol.core.bounds`).
 
     Examples
     --------
@@ -214,20 +229,26 @@ def target_price(
     entry : float or array_like
         Entry price(s).
     volatility : float or array_like
-        Volatility in price units as of entry.
+        Volatility in price units as of entry, 0 or more (NaN gives NaN).
     multiple : float or array_like, default 3.0
-        Volatility units between entry and target (common practice, no source).
+        Volatility units between entry and target, above 0 and up to 1000
+        (common practice, no source).
     side : str or sequence of str, default "long"
         Trade direction(s); see :func:`side_sign`.
     tick : float or array_like, default 0.0
-        Price increment; the target is rounded *toward entry* to it (see
-        :func:`to_tick`). 0 leaves it unrounded.
+        Price increment, 0 or more; the target is rounded *toward entry* to it
+        (see :func:`to_tick`). 0 leaves it unrounded.
 
     Returns
     -------
     float or FloatArray
         ``entry + multiple * volatility`` for long, ``entry - multiple * volatility``
         for short.
+
+    Raises
+    ------
+    ValueError
+        Naming the first argument outside its range (:mod:`sheetvol.core.bounds`).
 
     Examples
     --------
@@ -248,6 +269,10 @@ def _level(entry: npt.ArrayLike, volatility: npt.ArrayLike, multiple: npt.ArrayL
     Rounding against the trade (down for long, up for short) moves a stop away from
     entry and a target toward it, so one rule serves both.
     """
+    bounds.check("entry", entry, bounds.PRICE, blank_ok=True)
+    bounds.check("volatility", volatility, bounds.VOLATILITY, blank_ok=True)
+    bounds.check("multiple", multiple, bounds.MULTIPLE)
+    bounds.check("tick", tick, bounds.TICK, blank_ok=True)
     sign = side_sign(side)
     out = np.asarray(entry, dtype=float) + away * sign * np.asarray(
         multiple, dtype=float) * np.asarray(volatility, dtype=float)
@@ -310,9 +335,11 @@ def trailing_stop(
     ----------
     high, low, close : array_like
         Aligned price columns, oldest bar first. A bar without a finite high,
-        low and close is skipped (its row carries the previous level).
+        low and close is skipped (its row carries the previous level); a high
+        below its low is refused.
     volatility : array_like
-        Volatility in price units on each bar (e.g. :func:`volatility`).
+        Volatility in price units on each bar, 0 or more (NaN during a warm-up;
+        e.g. :func:`sheetvol.core.review.volatility`).
     entry_index : int
         Row of the entry bar. The trade is entered at that bar's close.
     entry_price : float
@@ -320,11 +347,12 @@ def trailing_stop(
     side : str, default "long"
         Trade direction.
     multiple : float, default 3.0
-        Volatility units between the best price and the stop. The default is
+        Volatility units between the best price and the stop, above 0 and up to
+        1000. The default is
         common practice (no source): looser than the 2-unit initial stop, so the
         trail takes over once the price has moved about one unit the trade's way.
     tick : float, default 0.0
-        Price increment; each level is rounded away from the price (down for a
+        Price increment, 0 or more; each level is rounded away from the price (down for a
         long, up for a short; see :func:`to_tick`). Rounding is monotone, so
         the rounded trail never loosens either. 0 leaves it unrounded.
 
@@ -341,6 +369,12 @@ def trailing_stop(
         mirrors this with lows and a running minimum. The level never loosens;
         a bar with NaN volatility keeps the previous level.
 
+    Raises
+    ------
+    ValueError
+        Naming the first argument outside its range, or the bar whose high is
+        below its low.
+
     Examples
     --------
     Long at 100 with volatility 1 and multiple 2: starts at 98, rises to 101
@@ -355,6 +389,11 @@ def trailing_stop(
     n = len(h)
     if not (len(lo) == len(c) == len(vol) == n):
         raise ValueError("trailing_stop: high, low, close and volatility differ in length")
+    bounds.check("volatility", vol, bounds.VOLATILITY, blank_ok=True)
+    bounds.check("entry_price", entry_price, bounds.PRICE)
+    bounds.check("multiple", multiple, bounds.MULTIPLE)
+    bounds.check("tick", tick, bounds.TICK)
+    bounds.check_high_low(h, lo, c)
     out = np.full(n, np.nan)
     if not 0 <= entry_index < n:
         return out

@@ -39,6 +39,7 @@ from sheetvol.fill.locate import normalize_header
 from sheetvol.fill.recipe import split_basis
 from sheetvol.fill.table import find_roles
 from sheetvol.functions import cells, registry
+from sheetvol.functions.worksheet import size_words
 
 __all__ = [
     "LOG_COLUMNS",
@@ -501,7 +502,7 @@ def _review_row(
     size = sizing.size_with_reason(equity, settings.risk, entry, stop, inst.point_value,
                                  inst.lot_step, inst.min_qty, inst.max_qty, inst.fx_rate)
     row["Size"] = float(size.quantity[0])
-    row["Size note"] = "" if not math.isfinite(vol) else str(size.note[0])
+    row["Size note"] = "" if not math.isfinite(vol) else size_words(size)[0]
 
     trail = None
     if settings.trail_multiple > 0:
