@@ -216,3 +216,85 @@ def test_docstring_examples_run(module):
 
     mod = importlib.import_module(f"sheetvol.core.{module}")
     assert doctest.testmod(mod, optionflags=doctest.NORMALIZE_WHITESPACE).failed == 0
+
+
+# -- fills at prices that traded; logged exits on a bar that reaches a level (issue 8) ----------
+def test_a_missing_open_fills_at_no_better_than_the_bars_range():
+    # Long 100, stop 98, target 106; bar 2 has no open and its whole range (95..96) is below
+    # the stop. Filling at 98 reported a price that never traded (-1 R). By hand: the best
+    # price that traded on the bar is its high, 96 -> R = (96 - 100) / 2 = -2.
+    o, h, lo, c = _bars([(100, 100.5, 99.5, 100), (100, 100.8, 99, 99.2),
+                         (np.nan, 96, 95, 95.5)])
+    r = review_trade(o, h, lo, c, 0, 100.0, "long", 98.0, 106.0)
+    assert (r.result, r.exit_price, r.r, r.bars) == ("stop", 96.0, -2.0, 2)
+    assert r.flags == ("open_missing",)
+    # Short 100, stop 102: bar 1 has no open and trades 103..104 -> filled at its low 103.
+    o, h, lo, c = _bars([(100, 100.5, 99.5, 100), (np.nan, 104, 103, 103.5)])
+    r = review_trade(o, h, lo, c, 0, 100.0, "short", 102.0, 94.0)
+    assert (r.result, r.exit_price, r.r, r.flags) == ("stop", 103.0, -1.5, ("open_missing",))
+    # A target gapped beyond with no open: the worst price that traded (long: the low 107),
+    # still a price of the bar. By hand R = (107 - 100) / 2 = 3.5.
+    o, h, lo, c = _bars([(100, 100.5, 99.5, 100), (np.nan, 108, 107, 107.5)])
+    r = review_trade(o, h, lo, c, 0, 100.0, "long", 98.0, 106.0)
+    assert (r.result, r.exit_price, r.r, r.flags) == ("target", 107.0, 3.5, ("open_missing",))
+    # A missing open on a bar whose range holds the level: the level traded, fill there, but
+    # the gap check could not be made, so the flag is kept.
+    o, h, lo, c = _bars([(100, 100.5, 99.5, 100), (np.nan, 99, 97, 97.5)])
+    r = review_trade(o, h, lo, c, 0, 100.0, "long", 98.0, 106.0)
+    assert (r.result, r.exit_price, r.flags) == ("stop", 98.0, ("open_missing",))
+    # With the open there, nothing is flagged.
+    o[1] = 98.5
+    assert review_trade(o, h, lo, c, 0, 100.0, "long", 98.0, 106.0).flags == ()
+
+
+def test_a_logged_exit_on_a_bar_that_reaches_the_stop_is_ambiguous():
+    # Long 100, stop 98, target 106; the log says closed at 99 on bar 2, whose low 97.5
+    # reaches the stop. Which came first is unknown: ambiguous (the stop no longer overrides
+    # the log silently), with the log's exit kept in view: exit 99 on bar 2, R -0.5.
+    o, h, lo, c = _bars([(100, 100.5, 99.5, 100), (100, 101, 99.5, 100.5),
+                         (100.5, 100.8, 97.5, 99)])
+    r = review_trade(o, h, lo, c, 0, 100.0, "long", 98.0, 106.0, exit_index=2, exit_price=99.0)
+    assert (r.result, r.exit_index, r.exit_price, r.r, r.bars) == ("ambiguous", 2, 99.0, -0.5, 2)
+    assert r.flags == ("exit_bar_reached_stop",)
+    # Excursions on that bar stop at the stop level: adverse 100 - 98 = 2 at most.
+    assert r.adverse == 2.0
+    # The same with the target reached on the exit bar.
+    o, h, lo, c = _bars([(100, 100.5, 99.5, 100), (100.5, 106.5, 100.2, 105)])
+    r = review_trade(o, h, lo, c, 0, 100.0, "long", 98.0, 106.0, exit_index=1, exit_price=105.0)
+    assert (r.result, r.exit_price, r.r, r.flags) == (
+        "ambiguous", 105.0, 2.5, ("exit_bar_reached_target",))
+    # A gap through the stop at the exit bar's open is not ambiguous: the stop filled first.
+    o, h, lo, c = _bars([(100, 100.5, 99.5, 100), (97, 97.8, 96.5, 97.5)])
+    r = review_trade(o, h, lo, c, 0, 100.0, "long", 98.0, 106.0, exit_index=1, exit_price=97.5)
+    assert (r.result, r.exit_price, r.flags) == ("stop", 97.0, ())
+    # The summary leaves such trades out of the finished ones, as it does ambiguous bars.
+    s = summarise_outcomes(["ambiguous", "stop"], [-0.5, -1.0])
+    assert s["finished"] == 1 and s["total_r"] == -1.0
+
+
+def test_the_fills_row_note_says_when_the_open_was_missing_or_the_exit_bar_reached_a_level():
+    import pandas as pd
+
+    from sheetvol.core.review import REVIEW_FLAGS
+    from sheetvol.fill.review import TradeSettings, review_log
+    from sheetvol.functions.worksheet import REVIEW_FLAG_WORDS
+
+    assert set(REVIEW_FLAG_WORDS) == set(REVIEW_FLAGS)
+    # Bars with a true range of 2 each (high 11, low 9, close 10) -> ATR(3) 2 from bar 3; long
+    # at 10 on the 4th bar: stop 10 - 2 x 2 = 6. Bar 5 has no open and trades 4..5, wholly
+    # below the stop: filled at its high 5 (by hand R = (5 - 10) / 4 = -1.25).
+    days = pd.date_range("2025-01-06", periods=5)
+    bars = pd.DataFrame({"Open": [10.0] * 4 + [np.nan], "High": [11.0] * 4 + [5.0],
+                         "Low": [9.0] * 4 + [4.0], "Close": [10.0] * 4 + [4.5]}, index=days)
+    log = pd.DataFrame({"Date": [days[3]], "Instrument": ["KESTREL"], "Side": ["long"],
+                        "Entry": [10.0], "Equity": [10_000.0]})
+    settings = TradeSettings(options={"period": 3}, trail_multiple=0)
+    row = review_log(log, {"KESTREL": bars}, settings).iloc[0]
+    assert (row["Stop"], row["Result"], row["Exit price"], row["R"]) == (6.0, "stop", 5.0, -1.25)
+    assert "open missing: filled at no better than the bar's range" in row["Note"]
+    # A logged exit at 7 on bar 5, with the open there (7.5) and the low 4 reaching the stop.
+    bars.loc[days[4], ["Open", "High"]] = [7.5, 8.0]
+    log["Exit"], log["Exit date"] = [7.0], [days[4]]
+    row = review_log(log, {"KESTREL": bars}, settings).iloc[0]
+    assert (row["Result"], row["Exit price"], row["R"]) == ("ambiguous", 7.0, -0.75)
+    assert "the logged exit's bar also reached the stop" in row["Note"]

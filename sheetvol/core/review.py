@@ -30,6 +30,7 @@ __all__ = [
     "OUTCOME_FIELDS",
     "PERIOD",
     "RESULTS",
+    "REVIEW_FLAGS",
     "TradeReview",
     "bar_on_or_before",
     "review_trade",
@@ -47,6 +48,17 @@ MEASURES = ("atr", "deviation")
 
 #: Outcome names from :func:`review_trade`.
 RESULTS = ("stop", "target", "trail", "closed", "open", "ambiguous")
+
+#: Codes :func:`review_trade` sets in :attr:`TradeReview.flags` (the words are made by the
+#: layers above):
+#:
+#: * ``"open_missing"``: the exit bar has no open, so a gap could not be seen; the fill is
+#:   the level moved into the bar's own range (long stop: ``min(level, high)``; long
+#:   target: ``max(level, low)``; mirrored for short), a price that traded;
+#: * ``"exit_bar_reached_stop"``, ``"exit_bar_reached_target"``: the bar of the logged
+#:   exit also reached the stop in force (or the target) without opening beyond it; which
+#:   came first is unknown, so the result is ``"ambiguous"`` and the log's exit is shown.
+REVIEW_FLAGS = ("open_missing", "exit_bar_reached_stop", "exit_bar_reached_target")
 
 #: Outputs of the worksheet outcome, in order (the worksheet ``field`` values).
 OUTCOME_FIELDS = ("result", "exit_price", "exit_date", "r", "bars", "adverse", "favourable")
@@ -98,7 +110,8 @@ class TradeReview:
     """What the bars after entry did to one trade (see :func:`review_trade`).
 
     Prices are in price units, excursions are non-negative distances from
-    entry; ``*_r`` are the same in units of the initial risk.
+    entry; ``*_r`` are the same in units of the initial risk. ``flags`` holds
+    codes of :data:`REVIEW_FLAGS` for what the reader should know about the exit.
     """
 
     result: str
@@ -111,6 +124,7 @@ class TradeReview:
     adverse_r: float
     favourable_r: float
     trail: float
+    flags: tuple[str, ...] = ()
 
 
 def _first(mask: np.ndarray) -> int | None:
@@ -169,10 +183,17 @@ def review_trade(
           the high, short); it fills at the level, or at the open when the bar
           opens beyond it (a gap through the stop fills at the open, which is
           worse). A target fills the same way (a gap beyond it fills at the
-          better open).
+          better open). Every fill is a price that traded: with the bar's open
+          missing, the level is moved into the bar's range (long stop
+          ``min(level, high)``, long target ``max(level, low)``; mirrored for a
+          short) and ``flags`` holds ``"open_missing"``.
         * When one bar reaches both stop and target, the open decides only if it
           is already beyond one of them; otherwise the order within the bar is
           unknown and the result is ``"ambiguous"`` with no exit price or R.
+        * When the bar of a logged exit also reaches the stop in force or the
+          target (without opening beyond it), the result is ``"ambiguous"``
+          too, with the log's exit kept: its price, bar and R, and
+          ``"exit_bar_reached_stop"`` (or ``..._target``) in ``flags``.
         * ``r`` is ``(exit - entry) / |entry - stop|``, sign flipped for short.
           For an open trade it is the R at the last close (a mark, not a
           result) and ``exit_price``/``exit_index`` are empty.
@@ -237,17 +258,26 @@ def review_trade(
 
     # ho and lw are fresh arrays (fancy indexing copies): cut the exit bar at the fill below.
     result, fill, end = "open", math.nan, len(rows)
+    flags: list[str] = []
     if k is not None:
         end = k + 1
-        if stop_hit[k] and (not target_hit[k] or gap_stop[k]):
+        gapped = gap_stop[k] or gap_target[k]
+        if logged_exit and rows[k] == exit_index and not gapped:
+            # The log's exit and a level on the same bar: the order within it is unknown.
+            result, fill = "ambiguous", sign * float(exit_price)
+            flags.append("exit_bar_reached_stop" if stop_hit[k] else "exit_bar_reached_target")
+            ho[k] = min(ho[k], tg)
+            lw[k] = max(lw[k], guard[k])
+        elif stop_hit[k] and (not target_hit[k] or gap_stop[k]):
             result = "trail" if trailing[k] else "stop"
-            fill = op[k] if gap_stop[k] else guard[k]
+            # Without an open a gap cannot be seen: fill at a price the bar traded.
+            fill = op[k] if gap_stop[k] else min(guard[k], ho[k])
             lw[k] = fill
             if gap_stop[k]:  # out at the open: nothing later in the bar was held
                 ho[k] = fill
         elif target_hit[k] and (not stop_hit[k] or gap_target[k]):
             result = "target"
-            fill = op[k] if gap_target[k] else tg
+            fill = op[k] if gap_target[k] else max(tg, lw[k])
             ho[k] = fill
             if gap_target[k]:
                 lw[k] = fill
@@ -255,6 +285,8 @@ def review_trade(
             result = "ambiguous"
             ho[k] = min(ho[k], tg)
             lw[k] = max(lw[k], guard[k])
+        if not np.isfinite(op[k]) and result in ("stop", "trail", "target"):
+            flags.append("open_missing")
     elif logged_exit:
         result, fill = "closed", sign * float(exit_price)
 
@@ -267,7 +299,7 @@ def review_trade(
         bars = last - entry_index
     else:
         exit_row = last if result == "closed" else int(rows[k])
-        r = math.nan if result == "ambiguous" else (fill - e) / per_r
+        r = math.nan if result == "ambiguous" and not flags else (fill - e) / per_r
         bars = exit_row - entry_index
     trail_end = math.nan
     if trail is not None:
@@ -276,7 +308,7 @@ def review_trade(
     return TradeReview(
         result,
         exit_row,
-        math.nan if result in ("open", "ambiguous") else float(sign * fill),
+        math.nan if result == "open" or not math.isfinite(fill) else float(sign * fill),
         float(r),
         bars,
         adverse,
@@ -284,6 +316,7 @@ def review_trade(
         adverse / per_r,
         favourable / per_r,
         trail_end,
+        tuple(flags),
     )
 
 

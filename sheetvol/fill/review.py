@@ -39,7 +39,7 @@ from sheetvol.fill.locate import normalize_header
 from sheetvol.fill.recipe import split_basis
 from sheetvol.fill.table import find_roles
 from sheetvol.functions import cells, registry
-from sheetvol.functions.worksheet import size_words
+from sheetvol.functions.worksheet import REVIEW_FLAG_WORDS, size_words
 
 __all__ = [
     "LOG_COLUMNS",
@@ -531,6 +531,7 @@ def _review_row(
         "Adverse R": review.adverse_r,
         "Favourable R": review.favourable_r,
     })
+    notes.extend(REVIEW_FLAG_WORDS[flag] for flag in review.flags)
     if review.result == "open":
         qty = quantity if math.isfinite(quantity) else row["Size"]
         guard = stop if trail is None else sign * max(sign * stop, sign * float(trail[-1]))

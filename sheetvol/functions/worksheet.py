@@ -21,7 +21,17 @@ from sheetvol.core.review import MEASURE, PERIOD, bar_on_or_before, review_trade
 from sheetvol.core.sizing import SizeResult, size_with_reason
 from sheetvol.functions.cells import to_day_numbers
 
-__all__ = ["current_trail", "size_or_reason", "size_words", "trade_outcome"]
+__all__ = ["REVIEW_FLAG_WORDS", "current_trail", "size_or_reason", "size_words",
+           "trade_outcome"]
+
+#: What a trade's row note says for each review flag (:data:`sheetvol.core.review.REVIEW_FLAGS`).
+REVIEW_FLAG_WORDS = {
+    "open_missing": "open missing: filled at no better than the bar's range",
+    "exit_bar_reached_stop": "the logged exit's bar also reached the stop: which came first "
+                             "is unknown (ambiguous); the log's exit is shown",
+    "exit_bar_reached_target": "the logged exit's bar also reached the target: which came "
+                               "first is unknown (ambiguous); the log's exit is shown",
+}
 
 
 # -- size in words ----------------------------------------------------------------------------
