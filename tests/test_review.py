@@ -298,3 +298,67 @@ def test_the_fills_row_note_says_when_the_open_was_missing_or_the_exit_bar_reach
     row = review_log(log, {"KESTREL": bars}, settings).iloc[0]
     assert (row["Result"], row["Exit price"], row["R"]) == ("ambiguous", 7.0, -0.75)
     assert "the logged exit's bar also reached the stop" in row["Note"]
+
+
+def test_worksheet_trade_forms_take_the_fills_defaults_from_one_place():
+    # Issue 8: SV_OUTCOME reviewed without a trailing stop while the fill trailed at 3 units,
+    # so the template said "stop" where the fill said "trailing stop hit".
+    from sheetvol.core import levels, sizing
+    from sheetvol.fill.review import TradeSettings
+
+    fill = TradeSettings()
+    outcome, trail = registry.get("SV_OUTCOME"), registry.get("SV_TRAIL")
+    assert outcome.param("trail_multiple").default == fill.trail_multiple == levels.TRAIL_MULTIPLE
+    assert trail.param("multiple").default == fill.trail_multiple
+    for f in (outcome, trail):
+        assert f.param("period").default == fill.options["period"] == trade_review.PERIOD
+        assert f.param("measure").default == fill.measure == trade_review.MEASURE
+        assert f.param("measure").choices == trade_review.MEASURES
+    assert registry.get("SV_STOP").param("multiple").default == fill.stop_multiple
+    assert registry.get("SV_TARGET").param("multiple").default == fill.target_multiple
+    assert fill.risk == sizing.RISK_SHARE
+    assert registry.get("SV_STOP").param("side").choices == tuple(levels.SIDES)
+
+
+def test_outcome_trail_field_is_the_trail_at_the_exit_as_the_fill_gives_it():
+    # The bars of test_outcome_worksheet_function_trails_on_the_tick (by hand there): the
+    # trail in force for bar 7 is 103 - 2 x 2 = 99 and bar 7 exits at it, so the trail at the
+    # exit, the fill's Trail column, is 99.
+    close = np.array([99.0, 99.5, 100.0, 101.0, 102.0, 101.5, 99.6])
+    opens = close.copy()
+    opens[-1] = 100.0
+    f = registry.get("SV_OUTCOME")
+    args = dict(dates=np.arange(1.0, 8.0), open=opens, high=close + 1, low=close - 1,
+                close=close, entry_date=3.0, entry_price=100.0, side="long", stop=96.0,
+                target=110.0, trail_multiple=2, period=3)
+    assert f(**args, field="trail") == 99.0
+    assert f(**args, field="result") == "trail"
+
+
+def test_review_refuses_what_it_cannot_review():
+    o, h, lo, c = _bars([(100, 100.5, 99.5, 100), (100, 99, 101, 100)])
+    with pytest.raises(ValueError, match="high is below low on bar 2"):
+        review_trade(o, h, lo, c, 0, 100.0, "long", 98.0, 106.0)
+    o, h, lo, c = _bars([(100, 100.5, 99.5, 100), (100, 101, 99, 100)])
+    with pytest.raises(ValueError, match="stop must be a number, got nothing"):
+        review_trade(o, h, lo, c, 0, 100.0, "long", math.nan, 106.0)
+    # No target (NaN) is allowed: the trade is open after a bar that reached neither level.
+    assert review_trade(o, h, lo, c, 0, 100.0, "long", 98.0, math.nan).result == "open"
+
+
+def test_a_size_input_out_of_range_is_that_rows_size_note():
+    # A log row with a negative equity used to size against it; now its own Size note says
+    # why there is no size, and the other rows are sized as usual (hand-worked: ATR(3) = 2,
+    # stop 10 - 4 = 6, 1% of 10,000 over a loss of 4 per unit = 25 units).
+    import pandas as pd
+
+    from sheetvol.fill.review import TradeSettings, review_log
+
+    days = pd.date_range("2025-01-06", periods=5)
+    bars = pd.DataFrame({"High": [11.0] * 5, "Low": [9.0] * 5, "Close": [10.0] * 5}, index=days)
+    log = pd.DataFrame({"Date": [days[3]] * 2, "Instrument": ["KESTREL"] * 2,
+                        "Side": ["long"] * 2, "Entry": [10.0] * 2, "Equity": [-5.0, 10_000.0]})
+    got = review_log(log, {"KESTREL": bars}, TradeSettings(options={"period": 3}))
+    assert math.isnan(got["Size"][0])
+    assert got["Size note"][0] == "size not computed: equity must be a number above 0, got -5"
+    assert got["Size"][1] == 25.0

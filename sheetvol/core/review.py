@@ -20,6 +20,7 @@ from dataclasses import dataclass
 import numpy as np
 import numpy.typing as npt
 
+from sheetvol.core import bounds
 from sheetvol.core._gaps import as_series
 from sheetvol.core._types import FloatArray
 from sheetvol.core.levels import side_sign
@@ -61,7 +62,8 @@ RESULTS = ("stop", "target", "trail", "closed", "open", "ambiguous")
 REVIEW_FLAGS = ("open_missing", "exit_bar_reached_stop", "exit_bar_reached_target")
 
 #: Outputs of the worksheet outcome, in order (the worksheet ``field`` values).
-OUTCOME_FIELDS = ("result", "exit_price", "exit_date", "r", "bars", "adverse", "favourable")
+OUTCOME_FIELDS = ("result", "exit_price", "exit_date", "r", "bars", "adverse", "favourable",
+                  "trail")
 
 
 # -- volatility for the worksheet trade functions ----------------------------------------------
@@ -161,7 +163,8 @@ def review_trade(
     side : str
         Trade direction.
     stop, target : float
-        Initial stop and target. ``target`` may be NaN (no target).
+        Initial stop and target, finite numbers. ``target`` may be NaN (no
+        target). A bar whose high is below its low is refused.
     trail : array_like, optional
         Trailing-stop levels from :func:`trailing_stop`; the level set at a
         bar's close guards the next bar, and the tighter of it and ``stop`` is
@@ -219,6 +222,10 @@ def review_trade(
                    ((open, "open"), (high, "high"), (low, "low"), (close, "close")))
     n = len(c)
     sign = side_sign(side)
+    bounds.check("entry_price", entry_price, bounds.PRICE)
+    bounds.check("stop", stop, bounds.PRICE)
+    bounds.check("target", target, bounds.PRICE, blank_ok=True)
+    bounds.check_high_low(h, lo, c)
     risk = abs(entry_price - stop)
     per_r = risk if risk > 0 else math.nan
 

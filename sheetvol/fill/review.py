@@ -10,7 +10,8 @@ Everything as of entry uses only bars dated on or before the entry date (the
 last such bar is the *entry bar*; the trade is assumed entered at its close),
 so no figure in an entry column can see a later price. The review and the
 trailing stop start on the bar after the entry bar. The arithmetic lives in
-:mod:`sheetvol.core.risk`; this module finds the columns, looks up the bars
+:mod:`sheetvol.core.levels`, :mod:`sheetvol.core.sizing` and :mod:`sheetvol.core.review`;
+this module finds the columns, looks up the bars
 and writes down, per row, what it could not compute and why.
 """
 
@@ -499,10 +500,13 @@ def _review_row(
     row.update({"Stop": stop, "Target": target,
                 "Target R": levels.r_multiple(entry, stop, target, side)})
 
-    size = sizing.size_with_reason(equity, settings.risk, entry, stop, inst.point_value,
-                                 inst.lot_step, inst.min_qty, inst.max_qty, inst.fx_rate)
-    row["Size"] = float(size.quantity[0])
-    row["Size note"] = "" if not math.isfinite(vol) else size_words(size)[0]
+    try:
+        size = sizing.size_with_reason(equity, settings.risk, entry, stop, inst.point_value,
+                                       inst.lot_step, inst.min_qty, inst.max_qty, inst.fx_rate)
+        row["Size"] = float(size.quantity[0])
+        row["Size note"] = "" if not math.isfinite(vol) else size_words(size)[0]
+    except ValueError as exc:  # an input out of its range (say a negative equity): this row
+        row["Size"], row["Size note"] = math.nan, f"size not computed: {exc}"
 
     trail = None
     if settings.trail_multiple > 0:

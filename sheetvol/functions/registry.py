@@ -691,7 +691,8 @@ FUNCTIONS: tuple[Function, ...] = (
         ),
         "sheetvol.functions.worksheet:trade_outcome",
         'result: "stop", "target", "trail", "closed", "open" or "ambiguous"; exit_date: a date; '
-        "r, bars, adverse, favourable: numbers",
+        "r, bars, adverse, favourable: numbers; trail: the trailing stop in force at the end "
+        "of the review (at the exit)",
         shape="scalar",
         unit="number",
         select="field",

@@ -229,7 +229,7 @@ def trade_outcome(
     exit_date: Any = "",
     exit_price: float = 0.0,
     tick: float = 0.0,
-) -> tuple[str, float, float, float, float, float, float]:
+) -> tuple[str, float, float, float, float, float, float, float]:
     """Outcome of one trade from dated bars, as the worksheet fields.
 
     Parameters
@@ -262,18 +262,20 @@ def trade_outcome(
     Returns
     -------
     tuple
-        ``(result, exit_price, exit_date, r, bars, adverse, favourable)`` in the
-        order of :data:`OUTCOME_FIELDS`; ``exit_date`` is a day number,
-        missing values are NaN. See :func:`review_trade`.
+        ``(result, exit_price, exit_date, r, bars, adverse, favourable, trail)``
+        in the order of :data:`sheetvol.core.review.OUTCOME_FIELDS`;
+        ``exit_date`` is a day number, ``trail`` the trailing stop in force at
+        the end of the review (at the exit, as the fill's Trail column), missing
+        values are NaN. See :func:`sheetvol.core.review.review_trade`.
 
     Examples
     --------
     >>> trade_outcome([1, 2, 3], [100, 101, 97], [100, 102, 98], [99, 100, 95],
     ...               [100, 101, 96], 1, 100.0, "long", 98.0, 106.0)
-    ('stop', 97.0, 3.0, -1.5, 2.0, 3.0, 2.0)
+    ('stop', 97.0, 3.0, -1.5, 2.0, 3.0, 2.0, nan)
     """
     days = as_series(dates, "dates")
-    nan_result = ("open", math.nan, math.nan, math.nan, math.nan, math.nan, math.nan)
+    nan_result = ("open", *(math.nan,) * 7)
     i = bar_on_or_before(days, _day(entry_date))
     if i is None:
         return nan_result
@@ -296,4 +298,5 @@ def trade_outcome(
         math.nan if rev.bars is None else float(rev.bars),
         rev.adverse,
         rev.favourable,
+        rev.trail,
     )
