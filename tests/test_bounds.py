@@ -174,3 +174,22 @@ def test_every_trade_argument_range_comes_from_the_core():
     }
     for (name, arg), bound in expected.items():
         assert registry.get(name).param(arg).bound == bound, (name, arg)
+
+
+def test_band_widths_are_refused_on_both_faces():
+    # A negative width swapped the upper and lower bands in Python while the worksheet
+    # refused it: one range now, from the core.
+    prices = [10.0, 11.0, 12.0]
+    for kernel, args in (
+        (sheetvol.deviation_bands, (prices, 2, -2.0)),
+        (sheetvol.atr_bands, ([11.0] * 3, [9.0] * 3, [10.0] * 3, 2, -2.0)),
+    ):
+        with pytest.raises(ValueError) as err:
+            kernel(*args)
+        assert str(err.value) == "width must be a number above 0, up to 100, got -2"
+    assert _sheet_message("SV_BAND", [prices, "upper", 2, -2.0]) == (
+        "SV_BAND: width must be a number above 0, up to 100, got -2")
+    with pytest.raises(ValueError, match="percent must be a number above 0, up to 100, got 0"):
+        sheetvol.envelope(prices, 2, 0.0)
+    assert registry.get("SV_ENVELOPE").param("percent").bound == bounds.PERCENT
+    assert registry.get("SV_BAND").param("width").bound == bounds.WIDTH

@@ -72,7 +72,7 @@ def deviation_bands(
     period : int, default 20
         Bars in the window.
     width : float, default 2.0
-        Band half-width in deviations.
+        Band half-width in deviations, above 0 and up to 100.
     average : {"simple", "exponential", "wilder", "linear"}, default "simple"
         Moving average for the middle line; the deviation is measured about it.
     divisor : {"population", "sample"}, default "population"
@@ -95,6 +95,7 @@ def deviation_bands(
     period = check_period(period, minimum=2)
     check_choice(average, "average", KINDS)
     check_choice(divisor, "divisor", DIVISORS)
+    bounds.check("width", width, bounds.WIDTH)
     return _deviation_bands(prices, period, float(width), average, divisor)
 
 
@@ -199,7 +200,7 @@ def atr_bands(
     period : int, default 20
         Bars in the exponential middle line.
     width : float, default 2.0
-        Band half-width in ATRs.
+        Band half-width in ATRs, above 0 and up to 100.
     atr_period : int, default 10
         Bars in the Wilder ATR.
 
@@ -221,6 +222,7 @@ def atr_bands(
     period = check_period(period)
     atr_period = check_period(atr_period, "atr_period")
     bounds.check_high_low(high, low, close)
+    bounds.check("width", width, bounds.WIDTH)
     return _atr_bands(high, low, close, period, float(width), atr_period)
 
 
@@ -246,7 +248,8 @@ def envelope(
     period : int, default 20
         Bars in the moving average.
     percent : float, default 2.5
-        Half-width in percent of the average (2.5 means 2.5 %).
+        Half-width in percent of the average (2.5 means 2.5 %), above 0 and up
+        to 100.
     average : {"simple", "exponential", "wilder", "linear"}, default "simple"
         Moving average for the middle line.
 
@@ -265,4 +268,5 @@ def envelope(
     """
     check_choice(average, "average", KINDS)
     bounds.check_positive_prices("an envelope (a percentage of the average)", prices=prices)
+    bounds.check("percent", percent, bounds.PERCENT)
     return _envelope(prices, check_period(period), float(percent), average)

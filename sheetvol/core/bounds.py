@@ -26,12 +26,14 @@ __all__ = [
     "FX_RATE",
     "LOT_STEP",
     "MULTIPLE",
+    "PERCENT",
     "POINT_VALUE",
     "PRICE",
     "QUANTITY",
     "RISK",
     "TICK",
     "VOLATILITY",
+    "WIDTH",
     "Bound",
     "check",
     "check_high_low",
@@ -115,6 +117,10 @@ VOLATILITY = Bound(0.0)
 MULTIPLE = Bound(0.0, 1000.0, low_open=True)
 #: Price increment levels are rounded to (0 means no rounding).
 TICK = Bound(0.0)
+#: Band half-width in deviations or ATRs (beyond 100 the bands say nothing).
+WIDTH = Bound(0.0, 100.0, low_open=True)
+#: Envelope half-width in percent of the average.
+PERCENT = Bound(0.0, 100.0, low_open=True)
 #: Bars per year for annualising (252 trading days, 365 for round-the-clock markets, more
 #: for intraday bars).
 BARS_PER_YEAR = Bound(0.0, low_open=True)

@@ -305,7 +305,7 @@ _SMOOTHING = Param(
     "wilder",
     choices=("wilder", "simple", "exponential"),
 )
-_WIDTH = Param("width", "number", "band half-width in deviations", 2.0, 0, 100, low_inclusive=False)
+_WIDTH = bounded("width", "band half-width in deviations", 2.0, bounds.WIDTH)
 _SIDE = Param("side", "choice", "trade direction", "long", choices=tuple(SIDES))
 _TICK = "price increment; the {} is rounded {} to it (0 = no rounding)"
 _VOL = bounded("volatility", "volatility in price units (ATR or deviation)", REQUIRED,
@@ -461,15 +461,8 @@ FUNCTIONS: tuple[Function, ...] = (
             _prices(),
             Param("line", "choice", "which line of the envelope", "upper", choices=LINES),
             _period(20),
-            Param(
-                "percent",
-                "number",
-                "envelope half-width in percent of the average",
-                2.5,
-                0,
-                100,
-                low_inclusive=False,
-            ),
+            bounded("percent", "envelope half-width in percent of the average", 2.5,
+                    bounds.PERCENT),
             _average(),
         ),
         f"{_K}.bands:envelope",
