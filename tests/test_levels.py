@@ -197,28 +197,42 @@ def test_tick_rounding_beyond_half_a_billion_ticks_is_never_tighter():
 TICKS = [(m, e) for m in (1, 2, 5, 25) for e in range(-8, 4)]
 
 
-@settings(max_examples=300, deadline=None)
-@given(
-    tick_parts=st.sampled_from(TICKS),
-    count=st.integers(1, 10**12),
-    fraction=st.integers(1, 99),
-    side=st.sampled_from(["long", "short"]),
-)
-def test_levels_are_never_tighter_at_any_magnitude(tick_parts, count, fraction, side):
-    # A price `fraction` hundredths of a tick past a whole number of ticks, for ticks from
-    # 1e-8 to 2,500 and prices from 1e-8 to about 1e12 (the decimal price is exact in
-    # Decimal; the float is its nearest). A long level must round down to `count` ticks and a
-    # short one up to `count + 1`: never tighter, never by a whole tick too far.
+@st.composite
+def price_on_a_tick_grid(draw):
+    """A tick from 1e-8 to 2,500 and a whole count of ticks keeping the price within 1e12.
+
+    Counts stay within 1e12 too: a hundredth of a tick is then some 80 float steps of the
+    count, so the price as a float still tells it from the tick (beyond about 1e13 ticks it
+    no longer can, whatever the rounding rule).
+    """
     from decimal import Decimal
 
-    mantissa, exponent = tick_parts
+    mantissa, exponent = draw(st.sampled_from(TICKS))
     tick = Decimal(mantissa) * Decimal(10) ** exponent
+    count = draw(st.integers(1, min(10**12, max(1, int(Decimal(10) ** 12 / tick) - 1))))
+    return tick, count
+
+
+@settings(max_examples=300, deadline=None)
+@given(grid=price_on_a_tick_grid(), fraction=st.integers(1, 99),
+       side=st.sampled_from(["long", "short"]))
+def test_levels_are_never_tighter_at_any_magnitude(grid, fraction, side):
+    # A price `fraction` hundredths of a tick past a whole number of ticks, for ticks from
+    # 1e-8 to 2,500 and prices up to 1e12 (the decimal price is exact in Decimal; the float
+    # is its nearest). A long level must round down to `count` ticks and a short one up to
+    # `count + 1`: never tighter, never a whole tick too far.
+    from decimal import Decimal
+
+    tick, count = grid
     price = (Decimal(count) + Decimal(fraction) / 100) * tick
-    if price > Decimal(10) ** 12 or price < Decimal("1e-8"):
-        return  # outside the magnitudes the issue names (no assertion skipped: nothing to do)
     got = levels.to_tick(float(price), float(tick), side)
     want = count if side == "long" else count + 1
     assert got == float(Decimal(want) * tick), (price, tick, side, got)
     # A price already on a tick stays there, whatever the float noise of its division.
     on = float(Decimal(count) * tick)
     assert levels.to_tick(on, float(tick), side) == on
+    # Through the level functions: a long stop computed at `price` (entry - 1 x volatility)
+    # rounds away from entry, a long target toward it; both to the same tick below.
+    entry = float(price) + 1.0
+    if side == "long" and entry - 1.0 == float(price):
+        assert stop_price(entry, 1.0, 1.0, "long", float(tick)) == float(Decimal(count) * tick)
