@@ -193,3 +193,18 @@ def test_band_widths_are_refused_on_both_faces():
         sheetvol.envelope(prices, 2, 0.0)
     assert registry.get("SV_ENVELOPE").param("percent").bound == bounds.PERCENT
     assert registry.get("SV_BAND").param("width").bound == bounds.WIDTH
+
+
+def test_last_and_on_forms_name_the_row_of_the_users_ranges():
+    # _LAST and _ON read only the last bars they need; a refusal about a bar names its row
+    # in the ranges the user gave (here row 296 of 300), not its place in the part read.
+    close = list(np.linspace(100.0, 120.0, 300))
+    close[295] = 0.0
+    col = [[v] for v in close]
+    assert _sheet_message("SV_CLOSEVOL_LAST", [col, 5]) == (
+        "SV_CLOSEVOL_LAST: close is 0 on row 296 of the ranges: a volatility estimator "
+        "(it takes logarithms of prices) needs prices above 0")
+    dates = [[45000.0 + i] for i in range(300)]
+    assert "close is 0 on row 296 of the ranges" in _sheet_message(
+        "SV_CLOSEVOL_ON", [45299.0, dates, col, 5])
+    assert "close is 0 on bar 296:" in _sheet_message("SV_CLOSEVOL", [col, 5])

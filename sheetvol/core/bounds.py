@@ -34,11 +34,34 @@ __all__ = [
     "TICK",
     "VOLATILITY",
     "WIDTH",
+    "BarError",
     "Bound",
     "check",
     "check_high_low",
     "check_positive_prices",
 ]
+
+
+class BarError(ValueError):
+    """A refusal about one bar of the arrays given; ``bar`` is its position (from 0).
+
+    The message says ``bar N`` (counted from 1); a caller that passed only part
+    of a sheet's range can name the row instead with :meth:`at`.
+
+    Examples
+    --------
+    >>> err = BarError("close is 0 on {bar}", 2)
+    >>> str(err), err.at("row 40 of the ranges")
+    ('close is 0 on bar 3', 'close is 0 on row 40 of the ranges')
+    """
+
+    def __init__(self, text: str, bar: int) -> None:
+        self.text, self.bar = text, bar
+        super().__init__(text.format(bar=f"bar {bar + 1}"))
+
+    def at(self, where: str) -> str:
+        """The message with ``where`` in place of ``bar N``."""
+        return self.text.format(bar=where)
 
 
 @dataclass(frozen=True)
@@ -191,7 +214,7 @@ def check_high_low(high: npt.ArrayLike, low: npt.ArrayLike,
 
     Raises
     ------
-    ValueError
+    BarError
         Naming the first such bar, counted from 1.
 
     Examples
@@ -214,9 +237,9 @@ def check_high_low(high: npt.ArrayLike, low: npt.ArrayLike,
         bad = np.flatnonzero(np.ravel(wrong))
     if bad.size:
         i = int(bad[0])
-        raise ValueError(
-            f"high is below low on bar {i + 1} (high {np.ravel(h)[i]:.10g}, "
-            f"low {np.ravel(lo)[i]:.10g}); are the columns swapped?"
+        raise BarError(
+            f"high is below low on {{bar}} (high {np.ravel(h)[i]:.10g}, "
+            f"low {np.ravel(lo)[i]:.10g}); are the columns swapped?", i
         )
 
 
@@ -233,7 +256,7 @@ def check_positive_prices(why: str, **prices: npt.ArrayLike) -> None:
 
     Raises
     ------
-    ValueError
+    BarError
         Naming the column, the first such bar (counted from 1) and its value.
 
     Examples
@@ -251,6 +274,6 @@ def check_positive_prices(why: str, **prices: npt.ArrayLike) -> None:
             bad = np.flatnonzero(np.ravel((a <= 0) & np.isfinite(a)))
         if bad.size:
             i = int(bad[0])
-            raise ValueError(
-                f"{name} is {np.ravel(a)[i]:.10g} on bar {i + 1}: {why} needs prices above 0"
+            raise BarError(
+                f"{name} is {np.ravel(a)[i]:.10g} on {{bar}}: {why} needs prices above 0", i
             )
