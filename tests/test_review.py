@@ -209,12 +209,13 @@ def test_outcome_worksheet_function_trails_on_the_tick():
     assert f(**args, field="r", tick=0.4) == pytest.approx(-0.3)
 
 
-@pytest.mark.parametrize("module", ["levels", "sizing", "review"])
+@pytest.mark.parametrize("module", ["core.levels", "core.sizing", "core.review", "core.bounds",
+                                    "functions.worksheet"])
 def test_docstring_examples_run(module):
     import doctest
     import importlib
 
-    mod = importlib.import_module(f"sheetvol.core.{module}")
+    mod = importlib.import_module(f"sheetvol.{module}")
     assert doctest.testmod(mod, optionflags=doctest.NORMALIZE_WHITESPACE).failed == 0
 
 

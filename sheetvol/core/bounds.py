@@ -229,7 +229,10 @@ def check_high_low(high: npt.ArrayLike, low: npt.ArrayLike,
     if h.shape != lo.shape:
         return  # the length check of the kernel itself names the columns
     with np.errstate(invalid="ignore"):
-        wrong = (h < lo) & np.isfinite(h) & np.isfinite(lo)
+        wrong = h < lo  # False where either is NaN
+        if not wrong.any():  # the usual case: one comparison of the whole columns
+            return
+        wrong &= np.isfinite(h) & np.isfinite(lo)
         for other in others:
             o = np.asarray(other, dtype=float)
             if o.shape == h.shape:
