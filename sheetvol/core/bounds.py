@@ -219,10 +219,11 @@ def check_high_low(high: npt.ArrayLike, low: npt.ArrayLike,
 
     Examples
     --------
-    >>> check_high_low([10.0, 9.0], [9.0, 9.5])
-    Traceback (most recent call last):
-    ...
-    ValueError: high is below low on bar 2 (high 9, low 9.5); are the columns swapped?
+    >>> try:
+    ...     check_high_low([10.0, 9.0], [9.0, 9.5])
+    ... except ValueError as err:
+    ...     print(err)
+    high is below low on bar 2 (high 9, low 9.5); are the columns swapped?
     """
     h = np.asarray(high, dtype=float)
     lo = np.asarray(low, dtype=float)
@@ -264,10 +265,11 @@ def check_positive_prices(why: str, **prices: npt.ArrayLike) -> None:
 
     Examples
     --------
-    >>> check_positive_prices("a share of the close", close=[10.0, -1.0])
-    Traceback (most recent call last):
-    ...
-    ValueError: close is -1 on bar 2: a share of the close needs prices above 0
+    >>> try:
+    ...     check_positive_prices("a share of the close", close=[10.0, -1.0])
+    ... except ValueError as err:
+    ...     print(err)
+    close is -1 on bar 2: a share of the close needs prices above 0
     """
     for name, p in prices.items():
         a = np.asarray(p, dtype=float)
