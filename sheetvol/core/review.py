@@ -102,7 +102,7 @@ def volatility(
     if measure == "deviation":
         from sheetvol.core.dispersion import dispersion
 
-        return dispersion(close, period)
+        return dispersion(as_series(close, "close"), period)
     raise ValueError(f"measure must be one of {', '.join(MEASURES)}; got {measure!r}")
 
 
@@ -236,8 +236,10 @@ def review_trade(
     if not 0 <= entry_index < n:
         return TradeReview("open", None, math.nan, math.nan, None, math.nan, math.nan, math.nan,
                            math.nan, math.nan)
-    logged_exit = exit_index is not None and exit_price is not None and math.isfinite(exit_price)
-    last = min(max(exit_index, entry_index), n - 1) if logged_exit else n - 1
+    logged: tuple[int, float] | None = None  # the log's exit bar and price
+    if exit_index is not None and exit_price is not None and math.isfinite(exit_price):
+        logged = (exit_index, float(exit_price))
+    last = min(max(logged[0], entry_index), n - 1) if logged else n - 1
 
     rows = np.arange(entry_index + 1, last + 1)
     usable = np.isfinite(h[rows]) & np.isfinite(lo[rows]) & np.isfinite(c[rows])
@@ -269,9 +271,9 @@ def review_trade(
     if k is not None:
         end = k + 1
         gapped = gap_stop[k] or gap_target[k]
-        if logged_exit and rows[k] == exit_index and not gapped:
+        if logged is not None and rows[k] == logged[0] and not gapped:
             # The log's exit and a level on the same bar: the order within it is unknown.
-            result, fill = "ambiguous", sign * float(exit_price)
+            result, fill = "ambiguous", sign * logged[1]
             flags.append("exit_bar_reached_stop" if stop_hit[k] else "exit_bar_reached_target")
             ho[k] = min(ho[k], tg)
             lw[k] = max(lw[k], guard[k])
@@ -294,20 +296,21 @@ def review_trade(
             lw[k] = max(lw[k], guard[k])
         if not np.isfinite(op[k]) and result in ("stop", "trail", "target"):
             flags.append("open_missing")
-    elif logged_exit:
-        result, fill = "closed", sign * float(exit_price)
+    elif logged is not None:
+        result, fill = "closed", sign * logged[1]
 
     held_high, held_low = ho[:end], lw[:end]
     adverse = max(0.0, e - float(held_low.min())) if end else 0.0
     favourable = max(0.0, float(held_high.max()) - e) if end else 0.0
+    exit_row: int | None = None
     if result == "open":
-        exit_row = None
         r = ((float(cl[-1]) if len(cl) else e) - e) / per_r  # a mark at the last close
         bars = last - entry_index
     else:
-        exit_row = last if result == "closed" else int(rows[k])
+        exit_bar = last if k is None or result == "closed" else int(rows[k])
         r = math.nan if result == "ambiguous" and not flags else (fill - e) / per_r
-        bars = exit_row - entry_index
+        bars = exit_bar - entry_index
+        exit_row = exit_bar
     trail_end = math.nan
     if trail is not None:
         t = as_series(trail, "trail")
