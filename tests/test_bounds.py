@@ -135,8 +135,9 @@ def test_dispersion_and_atr_keep_working_on_negative_prices():
     # deviation 1 (statistics.pstdev([-1, -3]) == 1.0); true ranges 2 and 2 -> ATR(2) 2.
     assert sheetvol.dispersion([-1.0, -3.0], 2)[1] == 1.0
     assert sheetvol.average_true_range([0.0, -1.0], [-2.0, -3.0], [-1.0, -2.0], 2)[1] == 2.0
-    # %b is a ratio of distances, valid at any price level: (-1 - -3) / (-1 - -3) ... the last
-    # price -1 sits on the upper band of a 2-bar window of -1, -3 with width 1 -> 1.
+    # %b is a ratio of distances, valid at any price level. By hand: the window -3, -1 has
+    # mean -2 and population deviation 1, so with width 1 the bands are -1 and -3; the price
+    # -1 is on the upper band: (-1 - -3) / (-1 - -3) = 1.
     assert sheetvol.percent_b([-3.0, -1.0], 2, 1.0)[1] == 1.0
 
 
