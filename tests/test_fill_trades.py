@@ -26,7 +26,6 @@ import talib
 from openpyxl import Workbook, load_workbook
 
 from sheetvol.cli import main
-from sheetvol.core import risk as risk_module
 from sheetvol.fill import recipe as recipe_module
 from sheetvol.fill import review as trades_module
 from sheetvol.fill import trade_log as trade_fill
@@ -460,7 +459,7 @@ def test_scaled_format_by_hand():
     assert scaled_format(np.array([1.0, 1.5, 2.0]), [5, 2, 5]) == "#,##0.00000"
 
 
-@pytest.mark.parametrize("module", [recipe_module, trade_fill, trades_module, risk_module],
+@pytest.mark.parametrize("module", [recipe_module, trade_fill, trades_module],
                          ids=lambda m: m.__name__)
 def test_docstring_examples_run(module):
     assert doctest.testmod(module, optionflags=doctest.NORMALIZE_WHITESPACE).failed == 0

@@ -133,7 +133,8 @@ def test_a_spec_computes_like_its_reference():
 
 def test_trade_recipe_defaults_are_the_review_defaults():
     # Two dataclasses carry the trade defaults (importing one from the other would be
-    # circular); both take them from sheetvol.core.risk, and this keeps it that way.
+    # circular); both take them from the core (sheetvol.core.levels,
+    # sizing and review), and this keeps it that way.
     from sheetvol.fill.recipe import TradeRecipe
     from sheetvol.fill.review import TradeSettings
 

@@ -18,7 +18,7 @@ import openpyxl
 import pandas as pd
 import pytest
 
-from sheetvol.core.risk import RESULTS
+from sheetvol.core.review import RESULTS
 from sheetvol.fill.review import (
     OUTPUT_COLUMNS,
     Instrument,

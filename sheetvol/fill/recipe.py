@@ -37,14 +37,9 @@ from typing import Any
 
 import numpy as np
 
-from sheetvol.core.risk import (
-    MEASURE,
-    PERIOD,
-    RISK_SHARE,
-    STOP_MULTIPLE,
-    TARGET_MULTIPLE,
-    TRAIL_MULTIPLE,
-)
+from sheetvol.core.levels import STOP_MULTIPLE, TARGET_MULTIPLE, TRAIL_MULTIPLE
+from sheetvol.core.review import MEASURE, PERIOD
+from sheetvol.core.sizing import RISK_SHARE
 from sheetvol.functions import registry
 
 if sys.version_info >= (3, 11):

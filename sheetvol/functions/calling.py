@@ -30,6 +30,7 @@ from typing import Any
 import numpy as np
 
 from sheetvol.core._types import FloatArray
+from sheetvol.core.bounds import BarError
 from sheetvol.functions import cells
 from sheetvol.functions import convert as _convert
 from sheetvol.functions.registry import (
@@ -229,7 +230,7 @@ def _call_series(
             columns, _ = reader.whole()
             part = columns, np.arange(reader.height)
         _check_high_low(wname, *part)
-        return _convert.to_cell(_compute(func, wname, part[0], opts)[-1])
+        return _convert.to_cell(_compute(func, wname, part[0], opts, part[1])[-1])
     return _on(reader, opts, need, date_arg, dates_arg, date1904)
 
 
@@ -344,11 +345,15 @@ def _same_height(wname: str, heights: Mapping[str, int]) -> None:
         )
 
 
-def _compute(func: Function, wname: str, columns: dict[str, FloatArray], opts: dict) -> FloatArray:
+def _compute(func: Function, wname: str, columns: dict[str, FloatArray], opts: dict,
+             rows: np.ndarray | None = None) -> FloatArray:
     try:
         out = func.compute({**columns, **opts})
     except ArgumentError:
         raise
+    except BarError as exc:  # name the row of the user's ranges, not of the part read
+        where = f"row {int(rows[exc.bar]) + 1} of the ranges" if rows is not None else None
+        raise ArgumentError(f"{wname}: {exc.at(where) if where else exc}") from None
     except (ValueError, TypeError) as exc:
         raise ArgumentError(f"{wname}: {exc}") from None
     return np.asarray(out, dtype=np.float64)
@@ -403,7 +408,7 @@ def _on(
     usable = np.flatnonzero(_usable(columns.values()))
     if usable.size == 0:
         return None
-    out = _compute(func, wname, columns, opts)
+    out = _compute(func, wname, columns, opts, rows)
     return _convert.to_cell(out[usable[-1]])
 
 
