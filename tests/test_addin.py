@@ -298,7 +298,7 @@ def test_scalar_functions_single_and_row_by_row():
         (lambda c: addin.SV_AVERAGE(c, 5, "weekly"), 'SV_AVERAGE: kind must be one of "simple"'),
         (lambda c: addin.SV_ATR([r * 2 for r in c], c, c), "SV_ATR: high must be one column"),
         (lambda c: addin.SV_ATR(c[:-1], c, c), "SV_ATR: the ranges differ in height"),
-        (lambda c: addin.SV_ATR(None, c, c), "SV_ATR: high is required"),
+        (lambda c: addin.SV_ATR(None, c, c), "SV_ATR: the ranges differ in height (high 1, low 30"),
         (lambda c: addin.SV_DEVIATION([["x"], *c], 5), None),  # header: accepted
         (lambda c: addin.SV_DEVIATION([*c, ["oops"]], 5), "SV_DEVIATION: prices item 31 is 'oops'"),
         (lambda c: addin.SV_DEVIATION_ON("soon", c, c), "SV_DEVIATION_ON: date is 'soon'"),

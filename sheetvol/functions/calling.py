@@ -206,7 +206,9 @@ def _call_series(
     raw: dict[str, Any] = {}
     for p, a in zip(func.params, args, strict=True):
         if p.is_column:
-            raw[p.name] = a
+            # An empty one-cell range arrives as nothing on some paths, so nothing is read
+            # as that one blank cell everywhere: a _LAST over a blank row is blank.
+            raw[p.name] = [[None]] if _convert.is_empty_cell(a) else a
         else:
             options[p.name] = _option(p, a, wname, date1904)
     # bind() validates options and notices missing columns; columns are converted below.
@@ -216,6 +218,7 @@ def _call_series(
     reader = _Reader(func, wname, raw, decimal_comma)
 
     if variant == "column":
+        reader.cut_blank_tail()
         columns, horizontal = reader.whole()
         _check_high_low(wname, columns)
         out = _compute(func, wname, columns, opts)
@@ -242,6 +245,21 @@ class _Reader:
         heights = {k: _convert.line_length(a, func=wname, param=k) for k, a in raw.items()}
         _same_height(wname, heights)
         self.height = next(iter(heights.values()), 0)
+
+    def cut_blank_tail(self) -> None:
+        """Drop the rows below the last value of every column (a whole column, ``C:C``).
+
+        One height for all columns, so that the bars stay aligned; a result is
+        then as tall as the data. The ``_LAST`` form does not cut: its value
+        belongs to the last row of the ranges as given.
+        """
+        height = max((_convert.data_height(a) for a in self.raw.values()), default=0)
+        if height == 0 and self.raw:
+            names = " and ".join(self.raw)
+            raise ArgumentError(f"{self.wname}: {names} hold no values (every cell is blank)")
+        if height < self.height:
+            self.raw = {k: _convert.head(a, height) for k, a in self.raw.items()}
+            self.height = height
 
     def whole(self) -> tuple[dict[str, FloatArray], bool]:
         columns: dict[str, FloatArray] = {}
@@ -425,7 +443,7 @@ def _call_scalar(
     horizontal = False
     for i, (p, a) in enumerate(zip(func.params, args, strict=True)):
         if p.is_column:
-            if a is None:
+            if _convert.is_empty_cell(a):
                 fixed[i] = None  # bind() reports the missing column
             elif p.kind == "dates":
                 fixed[i] = _convert.day_numbers(a, func=wname, param=p.name, date1904=date1904)

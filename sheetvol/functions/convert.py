@@ -29,7 +29,14 @@ from sheetvol.functions.registry import ArgumentError
 # Types that np.array(..., dtype=float64) turns into the right float without surprises
 # (None becomes NaN). bool is deliberately absent: TRUE must not become a price of 1.0.
 _PLAIN = frozenset({float, int, type(None), np.float64})
-_DATES = frozenset({dt.datetime, dt.date, pd.Timestamp, type(None)})
+# Error cells as the Windows COM layer hands them over: pywin32 turns a VT_ERROR value
+# into an int, 0x800A0000 + the spreadsheet's error number (2000 #NULL!, 2007 #DIV/0!,
+# 2015 #VALUE!, 2023 #REF!, 2029 #NAME?, 2036 #NUM!, 2042 #N/A; newer ones such as
+# #SPILL! follow). Cell numbers come over as floats, so an int in this range is an error
+# cell, read as a gap like the blank that xlwings' own cleaning would have made of it.
+_COM_ERROR_BASE = -2146828288  # 0x800A0000 as a signed 32-bit number
+COM_ERRORS = range(_COM_ERROR_BASE + 2000, _COM_ERROR_BASE + 2100)
+COM_NA = _COM_ERROR_BASE + 2042  # #N/A
 _SERIAL_SHIFT_1904 = 1462.0  # days from 1899-12-30 to 1904-01-01
 _EPOCH_US = int(np.datetime64(cells.EPOCH_1900, "us").astype(np.int64))
 _US_PER_DAY = 86_400_000_000.0
@@ -190,6 +197,131 @@ def line_slice(value: Any, start: int, stop: int) -> Any:
     return value[start:stop]
 
 
+_BLANK_CELLS = (None, "")
+
+
+def data_height(value: Any) -> int:
+    """Cells of a column (or row) argument down to its last non-blank one.
+
+    The one rule for ranges taller than their data (a whole-column reference
+    such as ``C:C`` arrives as 1,048,576 cells): trailing blank cells (empty,
+    or empty text) carry no bar, so a result stops where the data stops.
+    Blocks are judged by whole rows. The common case, a last cell that is not
+    blank, costs nothing; otherwise the blank tail is found by counting
+    blanks in growing slices, without a Python loop over the cells.
+
+    Parameters
+    ----------
+    value : Any
+        A column or row argument as :func:`column` takes it.
+
+    Returns
+    -------
+    int
+        Number of leading cells to keep (0 when every cell is blank).
+
+    Examples
+    --------
+    >>> data_height(((1.0,), (None,), (2.0,), (None,), (None,)))
+    3
+    >>> data_height([[1.0, 2.0, None]])
+    2
+    >>> data_height(np.array([1.0, np.nan]))
+    1
+    """
+    if isinstance(value, np.ndarray):
+        flat = value.reshape(-1)
+        if flat.dtype.kind == "f":
+            filled = np.flatnonzero(~np.isnan(flat))
+        elif flat.dtype == object:
+            filled = np.flatnonzero([not cells.is_blank(v) for v in flat.tolist()])
+        else:
+            return int(flat.size)
+        return int(filled[-1]) + 1 if filled.size else 0
+    if not isinstance(value, (list, tuple)):
+        return 0 if value in _BLANK_CELLS else 1
+    if not value:
+        return 0
+    first = value[0]
+    if isinstance(first, (list, tuple)):
+        if len(value) == 1:  # one row: its cells
+            return _filled_length(first, _BLANK_CELLS)
+        last = value[-1]
+        width = len(last)
+        blank_rows = tuple(type(last)((b,) * width) for b in _BLANK_CELLS)
+        return _filled_length(value, blank_rows)
+    return _filled_length(value, _BLANK_CELLS)
+
+
+def _filled_length(seq: Sequence[Any], blanks: tuple[Any, ...]) -> int:
+    end = len(seq)
+    if end == 0 or seq[-1] not in blanks:
+        return end
+
+    def all_blank(start: int, stop: int) -> bool:
+        part = seq[start:stop]
+        return sum(part.count(b) for b in blanks) == len(part)  # type: ignore[attr-defined]
+
+    size = 64
+    while True:  # slices doubling upwards until one holds a non-blank cell
+        start = max(0, end - size)
+        if not all_blank(start, end):
+            break
+        if start == 0:
+            return 0
+        end, size = start, size * 2
+    while end - start > 64:  # halve: seq[end:] stays blank, seq[start:end] holds a value
+        mid = (start + end) // 2
+        if all_blank(mid, end):
+            end = mid
+        else:
+            start = mid
+    for i in range(end - 1, start - 1, -1):
+        if seq[i] not in blanks:
+            return i + 1
+    return start  # pragma: no cover - the slice held a non-blank cell
+
+
+def head(value: Any, height: int) -> Any:
+    """The first ``height`` cells of a column (or row) argument, in the same layout.
+
+    Examples
+    --------
+    >>> head(((1.0,), (2.0,), (None,)), 2)
+    ((1.0,), (2.0,))
+    >>> head([[1.0, 2.0, None]], 2)
+    [[1.0, 2.0]]
+    """
+    if isinstance(value, np.ndarray):
+        if value.ndim == 2 and value.shape[0] == 1:
+            return value[:, :height]
+        return value[:height]
+    if not isinstance(value, (list, tuple)):
+        return value
+    if len(value) == 1 and isinstance(value[0], (list, tuple)) and height:
+        return type(value)([value[0][:height]])
+    return value[:height]
+
+
+def is_empty_cell(value: Any) -> bool:
+    """True for an omitted argument and for a range of one empty cell.
+
+    The two cannot be told apart on every path (the in-Excel runtime passes
+    both as nothing), so sheetvol treats them alike everywhere: a missing
+    argument.
+
+    Examples
+    --------
+    >>> is_empty_cell(None), is_empty_cell([[None]]), is_empty_cell([[1.0]])
+    (True, True, False)
+    """
+    if isinstance(value, np.ndarray):
+        return False
+    while isinstance(value, (list, tuple)) and len(value) == 1:
+        value = value[0]
+    return value is None or (isinstance(value, str) and value == "")
+
+
 def column(
     value: Any, *, func: str, param: str, decimal_comma: bool = False, first_item: int = 0
 ) -> Column:
@@ -233,13 +365,16 @@ def column(
         flat = flat.tolist()
     kinds = set(map(type, flat))
     if kinds <= _PLAIN:
-        return Column(np.array(flat, dtype=np.float64), horizontal)
+        out = np.array(flat, dtype=np.float64)
+        if int in kinds:
+            _blank_com_errors(flat, out)
+        return Column(out, horizontal)
     out = np.empty(len(flat), dtype=np.float64)
     seen_number = False
     header: int | None = None
     for i, v in enumerate(flat):
         if type(v) in _PLAIN:
-            out[i] = math.nan if v is None else float(v)
+            out[i] = math.nan if v is None or (type(v) is int and v in COM_ERRORS) else float(v)
             seen_number = seen_number or v is not None
             continue
         try:
@@ -258,6 +393,13 @@ def column(
             f"{func}: {param} item {header + 1} is {_show(flat[header])}, not a number"
         )
     return Column(out, horizontal)
+
+
+def _blank_com_errors(flat: Sequence[Any], out: FloatArray) -> None:
+    # Only ints can be COM error cells; a column of floats never pays for this loop.
+    for i, v in enumerate(flat):
+        if type(v) is int and v in COM_ERRORS:
+            out[i] = math.nan
 
 
 def day_numbers(value: Any, *, func: str, param: str, date1904: bool = False) -> FloatArray:
@@ -283,8 +425,12 @@ def day_numbers(value: Any, *, func: str, param: str, date1904: bool = False) ->
     kinds = set(map(type, flat))
     if kinds <= _PLAIN:
         out = np.array(flat, dtype=np.float64)
+        if int in kinds:
+            _blank_com_errors(flat, out)
         return out + _SERIAL_SHIFT_1904 if date1904 else _fix_1900(out)
-    if kinds <= _DATES:
+    if all(k is type(None) or issubclass(k, (dt.date, pd.Timestamp)) for k in kinds):
+        # Any date or datetime type, also pywin32's own datetime (a subclass carrying a
+        # UTC time zone): pandas reads them all; the wall-clock time is kept below.
         try:
             stamps = pd.DatetimeIndex(flat)
         except (TypeError, ValueError):
@@ -302,6 +448,9 @@ def day_numbers(value: Any, *, func: str, param: str, date1904: bool = False) ->
     seen = False
     header: int | None = None
     for i, v in enumerate(flat):
+        if type(v) is int and v in COM_ERRORS:
+            out[i] = math.nan
+            continue
         try:
             when = cells.to_datetime(v, date1904=date1904)
         except cells.CellValueError:
@@ -327,6 +476,8 @@ def day_number(value: Any, *, func: str, param: str, date1904: bool = False) -> 
     45659.0
     """
     v = single(value, func=func, param=param)
+    if type(v) is int and v in COM_ERRORS:
+        v = None  # an error cell holds no date
     try:
         when = cells.to_datetime(v, date1904=date1904)
     except cells.CellValueError:
@@ -351,31 +502,36 @@ def _show(v: Any) -> str:
     return text if len(text) <= 40 else text[:37] + "..."
 
 
-def to_cells(values: FloatArray | Sequence[float], *, horizontal: bool = False) -> list[list[Any]]:
-    """Turn a result column into rows for the spreadsheet: NaN becomes None (a true blank).
+def to_cells(
+    values: FloatArray | Sequence[float], *, horizontal: bool = False, blank: Any = None
+) -> list[list[Any]]:
+    """Turn a result column into rows for the spreadsheet, ``blank`` where there is no value.
 
-    xlwings shows NaN in a returned array as an empty *text*, which formulas
-    then see as text; None leaves the cell blank.
+    NaN and inf (warm-up rows, gaps) become ``blank``; the add-in passes the
+    marker its spreadsheet path shows as "no value" (see :mod:`sheetvol.addin`).
 
     Examples
     --------
     >>> to_cells(np.array([np.nan, 1.5]))
     [[None], [1.5]]
+    >>> to_cells(np.array([np.nan, 1.5]), horizontal=True, blank="#N/A")
+    [['#N/A', 1.5]]
     """
     raw = np.asarray(values)
     if raw.dtype == object:  # mixed text and numbers (e.g. trade outcomes)
         cells_ = [to_cell(v) for v in raw.reshape(-1).tolist()]
+        cells_ = [blank if v is None else v for v in cells_]
         return [cells_] if horizontal else [[v] for v in cells_]
     arr = raw.astype(np.float64).reshape(-1)
     bad = np.flatnonzero(~np.isfinite(arr)).tolist()
     if horizontal:
         row = arr.tolist()
         for i in bad:
-            row[i] = None
+            row[i] = blank
         return [row]
     rows = arr.reshape(-1, 1).tolist()
     for i in bad:
-        rows[i][0] = None
+        rows[i][0] = blank
     return rows
 
 
