@@ -355,15 +355,17 @@ def test_module_imports_without_xlwings():
     assert out.stdout.split() == ["False", "96.0", str(len(ALL))]
 
 
-def test_benchmark_runs_and_reports_every_case():
+def test_benchmark_runs_and_reports_every_part():
     # Functional check only: speed targets live in python -m benches.addin, which
-    # prints the per-call cost against the budget; no time limit is asserted here.
+    # prints read, compute and write against the budget; no time limit is asserted here.
     from benches import addin as bench_addin
 
     results = bench_addin.run(rows=500, repeat=1)
-    assert "SV_DEVIATION whole column (1 column)" in results
-    for best, median in results.values():
-        assert 0 <= best <= median
+    parts = results["SV_DEVIATION whole column C:C"]
+    assert set(parts) == {"read", "compute", "write", "whole call_udf"}
+    for part in results.values():
+        for best, median in part.values():
+            assert 0 <= best <= median
 
 
 SCALAR_CASES = {
@@ -547,18 +549,26 @@ def test_last_form_equals_the_whole_column_computation(func, opts, monkeypatch):
 
 @pytest.mark.parametrize(("func", "opts"), [c for c in TAIL_CASES if c[1].get("period") == 5
                                             or c[1].get("lookback") == 5])
-def test_recursive_functions_really_need_the_whole_history(func, opts):
-    # The other side of the table: where it says "whole history", the last value computed
-    # from a generous tail (8 x period bars) differs from the whole column's, so reading
-    # only a tail would be wrong there.
+def test_the_tail_table_is_exact_both_ways(func, opts):
+    # Both sides of the table, on bars without gaps. Where it says "whole history", the
+    # last value computed from a generous tail (8 x period bars) differs from the whole
+    # column's, so reading only a tail would be wrong there. Where it gives a number of
+    # bars, exactly that many last bars give the whole column's value and one bar fewer
+    # does not (no value, or another one): the table is neither short nor generous.
     data = bars(400, seed=4)
     cols = [data[p.name] for p in func.columns]
     bound = func.bind((), {**{p.name: 0.0 for p in func.columns}, **opts})
-    if calling.tail_bars(func, bound) is not None:
-        return
+    need = calling.tail_bars(func, bound)
     full = func(*cols, **opts)[-1]
-    short = func(*(c[-40:] for c in cols), **opts)[-1]
-    assert abs(short - full) > 1e-9 * abs(full), (func.name, opts)
+    assert math.isfinite(full)
+    if need is None:
+        short = func(*(c[-40:] for c in cols), **opts)[-1]
+        assert abs(short - full) > 1e-9 * abs(full), (func.name, opts)
+        return
+    tail = func(*(c[-need:] for c in cols), **opts)[-1]
+    assert tail == pytest.approx(full, rel=1e-12), (func.name, opts, need)
+    fewer = func(*(c[-need + 1:] for c in cols), **opts)[-1] if need > 1 else math.nan
+    assert math.isnan(fewer) or abs(fewer - full) > 1e-12 * abs(full), (func.name, opts)
 
 
 @settings(max_examples=60, deadline=None)

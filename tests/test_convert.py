@@ -282,3 +282,20 @@ def test_an_empty_one_cell_range_is_a_missing_argument():
         assert _convert.is_empty_cell(v), v
     for v in ([[1.0]], [[None], [None]], np.array([np.nan]), 0.0):
         assert not _convert.is_empty_cell(v), v
+
+
+def test_a_header_above_plain_numbers_reads_like_cell_by_cell():
+    # The vectorised path below a header must give what reading each cell gives: the
+    # header blank, error cells blank, text numbers in the header block read as numbers.
+    cells_ = [("Close",), ("note",), (1.5,), (None,), (-2146826246,), (2.0,)]
+    got = _convert.column(tuple(cells_), func="SV_X", param="prices").values
+    np.testing.assert_array_equal(got, [np.nan, np.nan, 1.5, np.nan, np.nan, 2.0])
+    got = _convert.column((("1.25",), (2.0,)), func="SV_X", param="prices").values
+    np.testing.assert_array_equal(got, [1.25, 2.0])
+    with pytest.raises(ArgumentError, match=r"prices item 1 is 'Close', not a number"):
+        _convert.column((("Close",), (None,)), func="SV_X", param="prices")
+    days = _convert.day_numbers((("Date",), ("2025-01-02",), (dt.datetime(2025, 1, 3),)),
+                                func="SV_X_ON", param="dates")
+    np.testing.assert_array_equal(days, [np.nan, 45659.0, 45660.0])  # serials: module doc
+    days = _convert.day_numbers((("Date",), (45659.0,)), func="SV_X_ON", param="dates")
+    np.testing.assert_array_equal(days, [np.nan, 45659.0])

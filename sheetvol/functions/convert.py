@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import datetime as dt
 import math
+import operator
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -37,6 +38,7 @@ _PLAIN = frozenset({float, int, type(None), np.float64})
 _COM_ERROR_BASE = -2146828288  # 0x800A0000 as a signed 32-bit number
 COM_ERRORS = range(_COM_ERROR_BASE + 2000, _COM_ERROR_BASE + 2100)
 COM_NA = _COM_ERROR_BASE + 2042  # #N/A
+_FIRST = operator.itemgetter(0)
 _SERIAL_SHIFT_1904 = 1462.0  # days from 1899-12-30 to 1904-01-01
 _EPOCH_US = int(np.datetime64(cells.EPOCH_1900, "us").astype(np.int64))
 _US_PER_DAY = 86_400_000_000.0
@@ -138,7 +140,7 @@ def line_values(value: Any, func: str, param: str) -> tuple[list[Any] | np.ndarr
         # Spreadsheet ranges are rectangular, so the first and last rows tell the width;
         # checking every row's width cost as much as converting the column.
         try:
-            return [r[0] for r in value], False
+            return list(map(_FIRST, value)), False
         except IndexError:
             pass  # ragged rows (not from a spreadsheet): judged row by row below
     widths = set(map(len, value))
@@ -260,7 +262,12 @@ def _filled_length(seq: Sequence[Any], blanks: tuple[Any, ...]) -> int:
 
     def all_blank(start: int, stop: int) -> bool:
         part = seq[start:stop]
-        return sum(part.count(b) for b in blanks) == len(part)  # type: ignore[attr-defined]
+        left = len(part)
+        for b in blanks:  # mostly the first kind of blank alone settles it
+            left -= part.count(b)  # type: ignore[attr-defined]
+            if left == 0:
+                return True
+        return False
 
     size = 64
     while True:  # slices doubling upwards until one holds a non-blank cell
@@ -363,12 +370,36 @@ def column(
         return Column(flat.astype(np.float64, copy=False), horizontal)
     if isinstance(flat, np.ndarray):
         flat = flat.tolist()
-    kinds = set(map(type, flat))
-    if kinds <= _PLAIN:
-        out = np.array(flat, dtype=np.float64)
+    # Text cells at the top (a header caught by a whole-column reference) are read one by
+    # one; the cells below them take the vectorised path when they are plain numbers.
+    top = 0
+    while top < len(flat) and type(flat[top]) is str:
+        top += 1
+    rest = flat[top:] if top else flat
+    kinds = set(map(type, rest))
+    if not kinds <= _PLAIN:
+        out, seen_number, header = _read_cells(flat, func, param, decimal_comma, first_item)
+    else:
+        out = np.array(rest, dtype=np.float64)
         if int in kinds:
-            _blank_com_errors(flat, out)
-        return Column(out, horizontal)
+            _blank_com_errors(rest, out)
+        if not top:
+            return Column(out, horizontal)
+        head, seen_number, header = _read_cells(flat[:top], func, param, decimal_comma,
+                                                first_item)
+        seen_number = seen_number or not np.isnan(out).all()
+        out = np.concatenate([head, out])
+    if header is not None and not seen_number:
+        raise ArgumentError(
+            f"{func}: {param} item {header + 1} is {_show(flat[header])}, not a number"
+        )
+    return Column(out, horizontal)
+
+
+def _read_cells(
+    flat: Sequence[Any], func: str, param: str, decimal_comma: bool, first_item: int
+) -> tuple[FloatArray, bool, int | None]:
+    """Cell by cell: the values, whether a number was seen, and the first header cell."""
     out = np.empty(len(flat), dtype=np.float64)
     seen_number = False
     header: int | None = None
@@ -388,11 +419,7 @@ def column(
                 f"{func}: {param} item {first_item + i + 1} is {_show(v)}, not a number"
             ) from None
         seen_number = seen_number or not math.isnan(out[i])
-    if header is not None and not seen_number:
-        raise ArgumentError(
-            f"{func}: {param} item {header + 1} is {_show(flat[header])}, not a number"
-        )
-    return Column(out, horizontal)
+    return out, seen_number, header
 
 
 def _blank_com_errors(flat: Sequence[Any], out: FloatArray) -> None:
@@ -422,28 +449,54 @@ def day_numbers(value: Any, *, func: str, param: str, date1904: bool = False) ->
             out = flat.astype(np.float64)
             return out + _SERIAL_SHIFT_1904 if date1904 else _fix_1900(out)
         flat = flat.tolist()
+    top = 0  # text cells at the top: a header, or dates typed as text
+    while top < len(flat) and type(flat[top]) is str:
+        top += 1
+    fast = _days_at_once(flat[top:] if top else flat, date1904)
+    if fast is None:
+        out, seen, header = _read_days(flat, func, param, date1904)
+    elif not top:
+        return fast
+    else:
+        head, seen, header = _read_days(flat[:top], func, param, date1904)
+        seen = seen or bool(np.isfinite(fast).any())
+        out = np.concatenate([head, fast])
+    if header is not None and not seen:
+        raise ArgumentError(f"{func}: {param} item {header + 1} is {_show(flat[header])}, "
+                            "not a date")
+    return out
+
+
+def _days_at_once(flat: Sequence[Any], date1904: bool) -> FloatArray | None:
+    """Day numbers of serials or date objects in one pass; None when cells are mixed."""
     kinds = set(map(type, flat))
     if kinds <= _PLAIN:
         out = np.array(flat, dtype=np.float64)
         if int in kinds:
             _blank_com_errors(flat, out)
         return out + _SERIAL_SHIFT_1904 if date1904 else _fix_1900(out)
-    if all(k is type(None) or issubclass(k, (dt.date, pd.Timestamp)) for k in kinds):
-        # Any date or datetime type, also pywin32's own datetime (a subclass carrying a
-        # UTC time zone): pandas reads them all; the wall-clock time is kept below.
-        try:
-            stamps = pd.DatetimeIndex(flat)
-        except (TypeError, ValueError):
-            stamps = None  # e.g. mixed time zones: fall back to one cell at a time
-        if stamps is not None:
-            if stamps.tz is not None:
-                stamps = stamps.tz_localize(None)
-            # Integer microseconds since the epoch, then one numpy division: cheaper than
-            # pandas' own timedelta arithmetic (NaT, from None, becomes NaN).
-            micros = stamps.as_unit("us").asi8
-            days = (micros - _EPOCH_US) / _US_PER_DAY
-            days[stamps.isna()] = math.nan
-            return days
+    if not all(k is type(None) or issubclass(k, (dt.date, pd.Timestamp)) for k in kinds):
+        return None
+    # Any date or datetime type, also pywin32's own datetime (a subclass carrying a UTC
+    # time zone): pandas reads them all; the wall-clock time is kept below.
+    try:
+        stamps = pd.DatetimeIndex(flat)
+    except (TypeError, ValueError):
+        return None  # e.g. mixed time zones: one cell at a time
+    if stamps.tz is not None:
+        stamps = stamps.tz_localize(None)
+    # Integer microseconds since the epoch, then one numpy division: cheaper than pandas'
+    # own timedelta arithmetic (NaT, from None, becomes NaN).
+    micros = stamps.as_unit("us").asi8
+    days = (micros - _EPOCH_US) / _US_PER_DAY
+    days[stamps.isna()] = math.nan
+    return days
+
+
+def _read_days(
+    flat: Sequence[Any], func: str, param: str, date1904: bool
+) -> tuple[FloatArray, bool, int | None]:
+    """Cell by cell: day numbers, whether a date was seen, and the first header cell."""
     out = np.empty(len(flat), dtype=np.float64)
     seen = False
     header: int | None = None
@@ -461,10 +514,7 @@ def day_numbers(value: Any, *, func: str, param: str, date1904: bool = False) ->
             raise ArgumentError(f"{func}: {param} item {i + 1} is {_show(v)}, not a date") from None
         out[i] = math.nan if when is None else cells.datetime_to_serial(when)
         seen = seen or when is not None
-    if header is not None and not seen:
-        raise ArgumentError(f"{func}: {param} item {header + 1} is {_show(flat[header])}, "
-                            "not a date")
-    return out
+    return out, seen, header
 
 
 def day_number(value: Any, *, func: str, param: str, date1904: bool = False) -> float:
