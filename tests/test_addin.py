@@ -20,6 +20,7 @@ import io
 import math
 import re
 import sys
+import textwrap
 import types
 from pathlib import Path
 
@@ -656,3 +657,14 @@ def test_tail_reading_of_headers_and_bad_cells():
     assert isinstance(addin.SV_DEVIATION_LAST(far, 5), float)
     assert addin.SV_AVERAGE_LAST(far, 5, "exponential").startswith(
         "SV_AVERAGE_LAST: prices item 11 is True")
+
+
+def test_python_lines_of_the_add_in_guide_run_as_written():
+    # docs/addin.md's Python blocks (the line for xlwings Lite's main.py) run as written.
+    text = (Path(__file__).resolve().parent.parent / "docs" / "addin.md").read_text("utf-8")
+    blocks = re.findall(r"```python\n(.*?)```", text, flags=re.S)
+    assert blocks
+    for code in blocks:
+        scope: dict[str, object] = {}
+        exec(compile(textwrap.dedent(code), "docs/addin.md", "exec"), scope)
+        assert "SV_ATR" in scope and "SV_DEVIATION_ON" in scope

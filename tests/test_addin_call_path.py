@@ -300,6 +300,9 @@ def test_messages_arrive_as_short_text(classic):
         (("SV_ATR", c, c, ComRange(c.value[:-1])), "SV_ATR: the ranges differ in height"),
         (("SV_DEVIATION", ComRange(((1.0, 2.0), (3.0, 4.0)))), "SV_DEVIATION: prices must be"),
         (("SV_DEVIATION", ComRange(((1.0,), (True,)))), "SV_DEVIATION: prices item 2 is True"),
+        # A period cell holding #DIV/0! (COM passes -2146826281): named, not read as -2e9.
+        (("SV_DEVIATION", c, ComRange(DIV0_CODE)), "SV_DEVIATION: period is an error cell "
+                                                   "(#DIV/0!)"),
     ]:
         out = classic(*call)
         assert isinstance(out, str) and out.startswith(start), out

@@ -348,6 +348,8 @@ def _check_high_low(wname: str, columns: Mapping[str, FloatArray],
 
 def _option(p: Param, value: Any, wname: str, date1904: bool) -> Any:
     v = _convert.single(value, func=wname, param=p.name)
+    if type(v) is int and v in _convert.COM_ERRORS:  # an error cell, as COM passes it
+        raise ArgumentError(f"{wname}: {p.name} is an error cell ({_convert.com_error_name(v)})")
     if p.kind == "date" and not cells.is_blank(v):
         return _convert.day_number(v, func=wname, param=p.name, date1904=date1904)
     return v

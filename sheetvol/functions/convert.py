@@ -38,6 +38,19 @@ _PLAIN = frozenset({float, int, type(None), np.float64})
 _COM_ERROR_BASE = -2146828288  # 0x800A0000 as a signed 32-bit number
 COM_ERRORS = range(_COM_ERROR_BASE + 2000, _COM_ERROR_BASE + 2100)
 COM_NA = _COM_ERROR_BASE + 2042  # #N/A
+_COM_ERROR_NAMES = {2000: "#NULL!", 2007: "#DIV/0!", 2015: "#VALUE!", 2023: "#REF!",
+                    2029: "#NAME?", 2036: "#NUM!", 2042: "#N/A"}
+
+
+def com_error_name(code: int) -> str:
+    """The spreadsheet's name of a COM error cell.
+
+    Examples
+    --------
+    >>> com_error_name(-2146826246)
+    '#N/A'
+    """
+    return _COM_ERROR_NAMES.get(code - _COM_ERROR_BASE, "an error value")
 _FIRST = operator.itemgetter(0)
 _SERIAL_SHIFT_1904 = 1462.0  # days from 1899-12-30 to 1904-01-01
 _EPOCH_US = int(np.datetime64(cells.EPOCH_1900, "us").astype(np.int64))
