@@ -16,8 +16,12 @@ separately, then the whole ``call_udf``:
 Not included, because it happens outside Python: Excel's side and pywin32's
 marshalling of the values between Excel and Python.
 
-Budget: a whole-column call (``C:C``, 1,048,576 cells, 100,000 of them
-prices) under 50 ms, median, read + compute + write.
+Budget: a whole-column-form call on 100,000 rows under 50 ms, median, read +
+compute + write; verdicts are printed for an exact 100,000-row range and for
+whole-column references (``C:C``: 1,048,576 cells, 100,000 of them prices).
+Target for the per-cell forms (``_LAST``, ``_ON``) on 300 bars: under 30
+microseconds a call; a numpy call timed in the same run shows how loaded the
+machine is.
 """
 
 from __future__ import annotations
@@ -287,8 +291,13 @@ def per_cell(bars: int = 300, repeat: int = 5, number: int = 200) -> dict[str, f
         "SV_ATR_ON Wilder": lambda: call_worksheet("SV_ATR_ON", [on, dates, high, low, close,
                                                                  14]),
     }
+    ref = np.asarray([v[0] for v in close[-14:]], dtype=np.float64)
+    cases[REFERENCE] = lambda: ref.std()  # how slow the machine is right now
     return {k: min(timeit.repeat(f, number=number, repeat=repeat)) / number * 1e6
             for k, f in cases.items()}
+
+
+REFERENCE = "reference: numpy std of 14 floats"
 
 
 PER_CELL_BUDGET_US = 30.0
@@ -314,18 +323,19 @@ def main(argv: list[str] | None = None) -> int:
         cells = " ".join(f"{parts[p][1]:7.2f} ({parts[p][0]:5.2f})"
                          for p in ("read", "compute", "write"))
         print(f"  {label:<{width}}  {cells} {total:8.2f} {parts['whole call_udf'][1]:9.2f}")
-    for label in ("SV_DEVIATION whole column C:C", "SV_ATR whole columns (3)"):
+    for label in ("SV_DEVIATION exact range", "SV_DEVIATION whole column C:C",
+                  "SV_ATR whole columns (3)"):
         parts = results[label]
         total = sum(parts[p][1] for p in ("read", "compute", "write"))
         met = total <= BUDGET_MS
-        over = over or (not met and ns.rows <= 100_000)
+        over = over or (not met and ns.rows <= 100_000)  # the budget is for 100,000 rows
         print(f"verdict: {label}, read + compute + write {total:.1f} ms, budget "
               f"{BUDGET_MS:.0f} ms: {'met' if met else 'NOT met'} (x{total / BUDGET_MS:.2f})")
     cost = per_cell()
     print("per-cell forms on 300 bars, microseconds per call (best of 5 x 200):")
     for label, us in cost.items():
         print(f"  {label:<30} {us:8.1f}")
-    worst = max(cost.values())
+    worst = max(v for k, v in cost.items() if k != REFERENCE)
     print(f"verdict: per-cell fixed cost, worst {worst:.0f} us, target "
           f"{PER_CELL_BUDGET_US:.0f} us: {'met' if worst <= PER_CELL_BUDGET_US else 'NOT met'}"
           f" (x{worst / PER_CELL_BUDGET_US:.2f})")

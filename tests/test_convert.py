@@ -227,7 +227,9 @@ def test_whole_column_is_cut_below_its_last_value():
     assert _convert.data_height([[1.0], [None], [2.0], [""], [None]]) == 3
     assert _convert.data_height([1.0, None, None]) == 1  # a flat list
     assert _convert.data_height([[1.0, None, 2.0, None]]) == 3  # a row
-    assert _convert.data_height(np.array([[1.0], [np.nan]])) == 1  # a nested result
+    # A nested result's NaN rows are "no value" (#N/A on the sheet), not blank cells.
+    assert _convert.data_height(np.array([[1.0], [np.nan]])) == 2
+    assert _convert.data_height(np.array([1.0, None, ""], dtype=object)) == 1
     assert _convert.data_height(((None,),) * 5) == 0
     assert _convert.data_height(7.0) == 1 and _convert.data_height(None) == 0
     # Blocks: a row counts as blank only when all its cells are.
