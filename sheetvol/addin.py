@@ -16,7 +16,7 @@ What each generated function does:
 * calls :func:`sheetvol.functions.calling.call_worksheet`, the same code the headless
   evaluator uses;
 * returns a column as rows, or one value. Rows without a value (warm-up,
-  gaps) hold the "no value" marker of :data:`BLANKS`: by default the #N/A
+  gaps) hold the "no value" marker of :func:`blanks_policy`: by default the #N/A
   error value, which line charts skip and ``ISNA`` tests; ``"empty"`` gives
   empty text instead. A spreadsheet function cannot return a true blank on
   either path (xlwings writes None as empty text);
@@ -94,9 +94,11 @@ RUNTIMES = ("classic", "lite", "python")
 
 
 def _detect_runtime() -> str:
-    if sys.platform == "emscripten":
+    if sys.platform == "emscripten":  # Pyodide: the only place xlwings Lite runs
         return "lite"
-    if sys.platform.startswith("win") and XLWINGS:
+    if "xlwings.com_server" in sys.modules:
+        # xlwings' UDF server (Windows) imports this module from its COM server, for
+        # Import Functions and for every call; plain Python on Windows is "python".
         return "classic"
     return "python"
 

@@ -379,3 +379,14 @@ def test_variant_params_cover_the_call_path_padding():
     for name, func, variant in ALL:
         assert len(variant_params(func, variant)) == len(
             inspect.signature(addin.UDFS[name]).parameters)
+
+
+def test_the_path_is_told_by_where_the_module_is_imported(monkeypatch):
+    # Plain Python (here) is "python"; inside xlwings' COM server, whose module is loaded
+    # before it imports the UDF module, "classic".
+    assert addin.RUNTIME == "python"
+    assert addin._detect_runtime() == "python"
+    monkeypatch.setitem(sys.modules, "xlwings.com_server", types.ModuleType("stub"))
+    assert addin._detect_runtime() == "classic"
+    monkeypatch.setattr(sys, "platform", "emscripten")
+    assert addin._detect_runtime() == "lite"
