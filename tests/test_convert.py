@@ -301,3 +301,14 @@ def test_a_header_above_plain_numbers_reads_like_cell_by_cell():
     np.testing.assert_array_equal(days, [np.nan, 45659.0, 45660.0])  # serials: module doc
     days = _convert.day_numbers((("Date",), (45659.0,)), func="SV_X_ON", param="dates")
     np.testing.assert_array_equal(days, [np.nan, 45659.0])
+
+
+def test_currency_cells_from_com_are_numbers():
+    # pywin32 returns a cell formatted as currency (VT_CY) as decimal.Decimal.
+    from decimal import Decimal
+
+    got = _convert.column(((Decimal("101.25"),), (None,), (102.5,)), func="SV_X",
+                          param="prices").values
+    np.testing.assert_array_equal(got, [101.25, np.nan, 102.5])
+    got = _convert.column(((Decimal("101.25"),), ("102.5",)), func="SV_X", param="prices")
+    np.testing.assert_array_equal(got.values, [101.25, 102.5])

@@ -14,6 +14,7 @@ the shape handling and a vectorised fast path for big ranges.
 from __future__ import annotations
 
 import datetime as dt
+import decimal
 import math
 import operator
 from collections.abc import Sequence
@@ -29,7 +30,8 @@ from sheetvol.functions.registry import ArgumentError
 
 # Types that np.array(..., dtype=float64) turns into the right float without surprises
 # (None becomes NaN). bool is deliberately absent: TRUE must not become a price of 1.0.
-_PLAIN = frozenset({float, int, type(None), np.float64})
+# Decimal: pywin32 hands over a cell formatted as currency (VT_CY) as a decimal.Decimal.
+_PLAIN = frozenset({float, int, type(None), np.float64, decimal.Decimal})
 # Error cells as the Windows COM layer hands them over: pywin32 turns a VT_ERROR value
 # into an int, 0x800A0000 + the spreadsheet's error number (2000 #NULL!, 2007 #DIV/0!,
 # 2015 #VALUE!, 2023 #REF!, 2029 #NAME?, 2036 #NUM!, 2042 #N/A; newer ones such as
