@@ -390,3 +390,39 @@ def test_the_path_is_told_by_where_the_module_is_imported(monkeypatch):
     assert addin._detect_runtime() == "classic"
     monkeypatch.setattr(sys, "platform", "emscripten")
     assert addin._detect_runtime() == "lite"
+
+
+def test_whole_columns_cut_the_same_in_the_add_in_and_the_headless_evaluator(classic, tmp_path):
+    # One rule (sheetvol.functions.convert.data_height, applied jointly to the ranges of a
+    # call): the evaluator on a saved workbook and the add-in on the same sheet's whole
+    # columns give columns of the same height and values. Column C ends two rows above D
+    # and E, and a styled-but-empty cell below the data holds nothing.
+    import openpyxl
+
+    from sheetvol.functions.evaluator import evaluate, openpyxl_resolver
+
+    data = bars()
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.title = "Prices"
+    ws.append(["High", "Low", "Close"])
+    cols = {"high": data["high"].copy(), "low": data["low"].copy(),
+            "close": data["close"].copy()}
+    cols["high"][-2:] = np.nan
+    for i in range(N):
+        ws.append([None if math.isnan(cols[k][i]) else float(cols[k][i])
+                   for k in ("high", "low", "close")])
+    ws.cell(row=N + 30, column=1).number_format = "0.00"  # formatted, no value
+    path = tmp_path / "prices.xlsx"
+    wb.save(path)
+    book = openpyxl.load_workbook(path, data_only=True)
+    headless = evaluate("=SV_ATR(A:A, B:B, C:C, 14)", openpyxl_resolver(book),
+                        current_sheet="Prices")
+    live = classic("SV_ATR", *(com_column(cols[k], header=k, whole=True)
+                               for k in ("high", "low", "close")), 14.0)
+    assert len(live) == len(headless) == N + 1
+    got = numbers(live)
+    np.testing.assert_array_equal(np.isnan(got), np.isnan(headless))
+    # Equal to rounding: the saved workbook holds the prices as decimal text, which can
+    # move their last bit.
+    np.testing.assert_allclose(got, headless, rtol=1e-12)
