@@ -33,7 +33,7 @@ ALLOWED_THIRD_PARTY = {
     1: {"numpy", "pandas", "openpyxl"},
     2: {"numpy", "defusedxml"},
     3: {"numpy", "pandas", "defusedxml", "tqdm", "tomli", "xlsxwriter", "openpyxl"},
-    4: {"numpy", "pandas", "xlwings"},
+    4: {"numpy", "pandas", "xlwings", "pythoncom", "win32com"},  # pywin32: xlwings on Windows
 }
 STDLIB = set(sys.stdlib_module_names)
 
