@@ -220,7 +220,11 @@ class _Job:
                 self.add_part(part, MINIMAL_STYLES, CT_STYLES, REL_STYLES, "styles.xml")
                 self.styles = StyleBook(MINIMAL_STYLES)
             else:
-                self.styles = StyleBook(self.part(part))
+                try:
+                    self.styles = StyleBook(self.part(part))
+                except WorkbookError as exc:
+                    raise WorkbookError(f"{self.file}: {part}: {exc}; open the workbook in its "
+                                        "spreadsheet program and save it again") from None
             self.styles_part = part
         return self.styles
 
