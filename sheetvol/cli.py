@@ -41,7 +41,8 @@ def _default_lines() -> str:
 FILL_DESCRIPTION = """\
 Add volatility columns to price exports (.xlsx, .xlsm or .csv) and write a copy.
 
-Every sheet that looks like bars is filled (--sheet picks some). Its
+Every sheet of bars (a Date and a Close column with numbers below the
+header) is filled; other sheets are left alone (--sheet picks some). Its
 Date/Open/High/Low/Close(/Volume) columns are found by their headers (any
 case, usual spellings such as "Close*", "Close/Last", "Last Price", "<CLOSE>";
 the header row may be below a title; a separate Time column of an intraday

@@ -120,8 +120,8 @@ class FillOptions:
     shows numbers in any spreadsheet program, and lists each formula's text on
     the notes sheet for add-in users; ``"keep"`` keeps the formulas and stores
     their results beside them; ``"skip"`` leaves them untouched.
-    ``sheets`` names the price sheets (default: every sheet that looks like
-    bars: a Close column, and a Date column beyond the first such sheet).
+    ``sheets`` names the price sheets (default: every sheet of bars: a Date and
+    a Close column with numbers below the header; see ``PRICE_SHEET_RULE``).
     ``columns`` maps a role (``date``, ``open``, ``high``, ``low``, ``close``,
     ``volume``) to a header text or column letter. ``trades`` holds the trade-log settings
     (None: the defaults); a trade log found in the workbook is reviewed unless
@@ -190,6 +190,7 @@ class FillReport:
     assumptions: list[str] = field(default_factory=list)
     backup: Path | None = None
     trades: TradeReport | None = None
+    skipped: list[str] = field(default_factory=list)  # sheets that are not price sheets: why
 
     # The first (often only) price sheet, for short access.
     @property
@@ -219,6 +220,10 @@ class FillReport:
         lines = [f"{self.input.name} -> {self.output}"]
         for s in self.sheets:
             lines.extend(s.summary())
+        if self.skipped:
+            lines.append(f"  sheets left alone, not price sheets: {', '.join(self.skipped)} "
+                         "(to fill one, name it with --sheet and its columns with --date-col "
+                         "and --close-col)")
         if self.trades is not None:
             lines.extend(self.trades.lines())
         if self.formulas:
@@ -546,41 +551,83 @@ def _where(src: Path, sheet: str) -> str:
     return f'{src.name}, sheet "{sheet}"'
 
 
+# A price sheet needs bars: a date column, and a close column with numbers below the header.
+PRICE_SHEET_RULE = "a price sheet needs a Date column and a Close column with numbers below it"
+QUALIFY_ROWS = 20  # rows below the header looked at to see numbers in the Close column
+_NUMBER_LIKE = re.compile(r"[\s+\-\u2212(]*(?:[^\W\d_]{1,3}|[$\u20ac\u00a3\u00a5])?"
+                          r"\s*\d[\d\s.,'\u2019]*[)%]?\s*")
+
+
+def _not_prices(grid_rows: Mapping[int, Mapping[int, object]], match: HeaderMatch
+                ) -> str | None:
+    """Why a sheet with this header is not a price sheet (None: it is one)."""
+    if "date" not in match.columns:
+        return "no date column"
+    close, date = match.columns["close"], match.columns["date"]
+    below = [grid_rows[r] for r in sorted(grid_rows)
+             if match.row < r <= match.row + QUALIFY_ROWS]
+    for cells_ in below:
+        value = cells_.get(close)
+        number = ((isinstance(value, (int, float)) and not isinstance(value, bool))
+                  # text written like a number (any separators: the price table says
+                  # which option reads it)
+                  or (isinstance(value, str) and _NUMBER_LIKE.fullmatch(value) is not None))
+        if number and not cells.is_blank(cells_.get(date)):
+            return None
+    return "no numbers below the Close header"
+
+
 def _choose_sheets(pkg: Package, src: Path, options: FillOptions,
-                   exclude: frozenset[str] = frozenset()) -> list[tuple[str, HeaderMatch, int]]:
+                   exclude: frozenset[str] = frozenset(), skipped: list[str] | None = None,
+                   ) -> list[tuple[str, HeaderMatch, int]]:
     """The price sheets with their header match and the rightmost used column near the top.
 
-    By default every sheet that looks like bars (``exclude``: the trade log and
-    the instrument details, casefolded); ``--sheet`` names restrict the choice.
+    By default every sheet that holds bars (``exclude``: the trade log and the
+    instrument details, casefolded); the others are listed in ``skipped`` with the
+    reason. ``--sheet`` names restrict the choice, and a named sheet that holds no
+    bars is an error.
     """
-    def locate(name: str) -> tuple[str, HeaderMatch, int]:
-        grid = pkg.read_grid(name, max_rows=HEADER_SCAN_ROWS)
+    def locate(name: str) -> tuple[tuple[str, HeaderMatch, int], str | None]:
+        grid = pkg.read_grid(name, max_rows=HEADER_SCAN_ROWS + QUALIFY_ROWS)
         match = find_header(grid.rows, header_row=options.header_row,
                             overrides=options.columns, where=_where(src, name),
                             file=src.name, sheet=name)
-        return name, match, grid.max_col
+        return (name, match, grid.max_col), _not_prices(grid.rows, match)
 
     if options.sheets:
-        return [locate(pkg.sheet(name).name) for name in dict.fromkeys(options.sheets)]
+        chosen = []
+        for name in dict.fromkeys(options.sheets):
+            hit, why = locate(pkg.sheet(name).name)
+            if why:
+                raise FillError(
+                    f"{_where(src, hit[0])}: not a price sheet ({why}; {PRICE_SHEET_RULE}); "
+                    "name the Date and Close columns with --date-col and --close-col, or "
+                    "choose another sheet with --sheet")
+            chosen.append(hit)
+        return chosen
     found: list[tuple[str, HeaderMatch, int]] = []
     tried: list[str] = []
+    passed: dict[str, str] = {}  # sheets with a Close header that hold no bars: why
     first_error: LocateError | None = None
     flag_errors: list[ColumnFlagError] = []
     for info in pkg.sheets:
         if info.kind != "worksheet" or info.name.casefold() in OWN_SHEETS | exclude:
             continue
         try:
-            hit = locate(info.name)
+            hit, why = locate(info.name)
         except LocateError as exc:
             first_error = first_error or exc
             tried.append(info.name)
             if isinstance(exc, ColumnFlagError):
                 flag_errors.append(exc)
             continue
-        # beyond the first, only sheets that look like bars (a date and a close)
-        if not found or "date" in hit[1].columns:
+        if why:
+            passed[info.name] = why
+        else:
             found.append(hit)
     if found:
+        if skipped is not None and passed:
+            skipped.extend(f'"{name}" ({why})' for name, why in passed.items())
         return found
     if flag_errors:  # a column the user named by flag: that is the news, said first
         # told about the sheet that looks most like prices (most headers known)
@@ -589,6 +636,12 @@ def _choose_sheets(pkg: Package, src: Path, options: FillOptions,
         others = [t for t in tried if t != best.sheet]
         also = f"; not on {', '.join(repr(t) for t in others)} either" if others else ""
         raise ColumnFlagError(**{**best.fields, "also": also})
+    if passed:
+        why = "; ".join(f"{name!r}: {w}" for name, w in passed.items())
+        others = f"; no Close header on {', '.join(repr(t) for t in tried)}" if tried else ""
+        raise FillError(
+            f"{src.name}: no price sheet found ({PRICE_SHEET_RULE}; {why}{others}); pick the "
+            "sheet with --sheet and name its columns with --date-col and --close-col")
     if len(tried) == 1 and first_error is not None:
         raise first_error
     if not tried:
@@ -692,7 +745,7 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport,
     progress = progress or _Progress()
     log, instruments = _find_log(pkg, src, options)
     exclude = frozenset(n.casefold() for n in (log.sheet if log else "", instruments[0]) if n)
-    chosen = _choose_sheets(pkg, src, options, exclude)
+    chosen = _choose_sheets(pkg, src, options, exclude, report.skipped)
     progress.sheets([name for name, _, _ in chosen])
     progress.stage(f"{src.name}: looking for typed sheetvol formulas")
     typed = pkg.formula_cells() if options.formulas != "skip" else []
