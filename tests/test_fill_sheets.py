@@ -124,3 +124,25 @@ def test_a_close_column_of_text_does_not_qualify(tmp_path):
     assert [s.sheet for s in report.sheets] == ["Prices"]
     line = next(ln for ln in report.summary() if "not price sheets" in ln)
     assert '"Form" (no numbers below the Close header)' in line
+
+
+def test_a_note_column_right_of_the_table_is_kept_and_the_summary_says_where(tmp_path):
+    src = tmp_path / "book.xlsx"
+    wb = xlsxwriter.Workbook(str(src))
+    ws = wb.add_worksheet("Prices")
+    data = [[45000 + i, 101 + i % 3, 99 - i % 2, 100 + (i % 5) * 0.5] for i in range(30)]
+    ws.add_table("A1:D31", {"name": "Bars", "data": data,
+                            "columns": [{"header": h} for h in ("Date", "High", "Low", "Close")]})
+    ws.write("E1", "Note")
+    ws.write("E5", "roll day")
+    wb.close()
+    report = fill_file(src)
+    letters = [w.letter for w in report.written]
+    assert letters[0] == "F"  # right of the note column, which keeps its cells
+    ws = openpyxl.load_workbook(report.output)["Prices"]
+    assert (ws["E1"].value, ws["E5"].value) == ("Note", "roll day")
+    assert ws.tables["Bars"].ref == "A1:D31"  # the table is not stretched over the note
+    text = "\n".join(report.summary())
+    assert ('table "Bars" (A1:D31) ends at column D and column E holds other cells '
+            "(E1 'Note')") in text
+    assert f"went to {letters[0]}:{letters[-1]}, outside the table" in text

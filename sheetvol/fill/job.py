@@ -820,9 +820,11 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
     # Where each column goes: its own earlier place, else a freed earlier place, else new
     # columns right of everything used (top rows, a table, typed formulas, cells below).
     own = _own_columns(match, recorded, specs)
+    table_of_bars = None
     for t in pkg.tables(sheet):
         if t.header_row == match.row and t.left <= match.columns["close"] <= t.right:
             max_col = max(max_col, t.right)
+            table_of_bars = t
     max_col = max([max_col, *own, *typed_cols])
     headers = {s.header for s in specs}
     reused = {h: c for c, h in own.items() if h in headers}
@@ -841,6 +843,8 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
         read = pkg.read_columns(sheet, list(range(start, start + n_new)),
                                 first_row=match.row + 1) | {c: read[c] for c in price_cols}
     new_cols = list(range(start, start + n_new))
+    if table_of_bars is not None and new_cols and new_cols[0] > table_of_bars.right + 1:
+        warnings.append(_outside_table(where, table_of_bars, new_cols, match.headers))
     targets = [reused[s.header] if s.header in reused else (free or new_cols).pop(0)
                for s in specs]
     sr.replaced = sum(1 for c in targets if c in own)
@@ -882,6 +886,19 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
                                  first_row=first_row, values=np.full(1, np.nan),
                                  number_format="General"))
     return columns, targets
+
+
+def _outside_table(where: str, table: Any, new_cols: Sequence[int],
+                   headers: Mapping[int, str]) -> str:
+    """Why new columns went right of a busy column instead of into the table of bars."""
+    first = table.right + 1
+    head = headers.get(first)
+    held = f" ({col_letter(first)}{table.header_row} {head!r})" if head else ""
+    return (f'{where}: table "{table.display_name or table.name}" ({table.ref}) ends at column '
+            f"{col_letter(table.right)} and column {col_letter(first)} holds other "
+            f"cells{held}, so the new columns went to {col_letter(new_cols[0])}:"
+            f"{col_letter(new_cols[-1])}, outside the table; to have them inside, widen the "
+            f"table over column {col_letter(first)} (or move those cells) and fill again")
 
 
 def _instrument_column(match: HeaderMatch) -> int | None:
