@@ -10,6 +10,7 @@ from __future__ import annotations
 import argparse
 import dataclasses
 import glob
+import os
 import sys
 from collections.abc import Sequence
 from pathlib import Path
@@ -30,6 +31,7 @@ __all__ = ["build_parser", "main"]
 
 PROG = "sheetvol"
 ROLES = ("date", "open", "high", "low", "close", "volume")
+NAME_PREFIX = "SV_"  # every worksheet function's name starts with it
 
 
 def _default_lines() -> str:
@@ -137,6 +139,24 @@ rules and local regulation.
 """
 
 
+def _share(text: str) -> float:
+    """A share given as ``1%`` or ``0.01`` (the percent sign divides by 100).
+
+    Examples
+    --------
+    >>> _share("1%"), _share("0.5 %"), _share("0.02")
+    (0.01, 0.005, 0.02)
+    """
+    raw = text.strip()
+    try:
+        if raw.endswith("%"):
+            return float(raw[:-1].strip()) / 100
+        return float(raw)
+    except ValueError:
+        raise argparse.ArgumentTypeError(
+            f"{text!r} is not a share; write one percent as 1% or 0.01") from None
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser (also used to render the help in the docs).
 
@@ -165,6 +185,7 @@ def build_parser() -> argparse.ArgumentParser:
         epilog=FILL_EPILOG,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
+    fill.set_defaults(command_parser=fill)  # its own usage for its errors
     fill.add_argument("files", nargs="+", type=Path, metavar="FILE",
                       help="one or more .xlsx, .xlsm or .csv files")
     where = fill.add_argument_group("output (default: NAME-filled.xlsx beside each input)")
@@ -199,9 +220,9 @@ def build_parser() -> argparse.ArgumentParser:
                        help="do not review a trade log")
     trade.add_argument("--trades-sheet", metavar="NAME",
                        help="the trade-log sheet (default: found by its headers)")
-    trade.add_argument("--risk", type=float, metavar="SHARE",
-                       help="share of equity risked per trade (default 0.01 = 1%%; above 0, "
-                            "at most 0.25; a warning above 0.05)")
+    trade.add_argument("--risk", type=_share, metavar="SHARE",
+                       help="share of equity risked per trade, as 1%% or 0.01 (default 1%%; "
+                            "above 0, at most 25%%; a warning above 5%%)")
     trade.add_argument("--stop-multiple", type=float, metavar="K",
                        help="stop at K volatility units from entry (default 2)")
     trade.add_argument("--target-multiple", type=float, metavar="K",
@@ -262,14 +283,16 @@ def _print_functions(name: str | None) -> int:
               "NAME_ON(date, dates, ...)\n(value on or before a date). "
               "`sheetvol functions NAME` shows the arguments.")
         return 0
+    shown = name.strip().upper()
+    if not shown.startswith(NAME_PREFIX):  # "atr" means SV_ATR: the prefix is optional
+        shown = NAME_PREFIX + shown
     try:
-        func, variant = registry.variant_of(name)
+        func, variant = registry.variant_of(shown)
     except KeyError:
         print(f"{PROG}: no function named {name!r}; `sheetvol functions` lists them",
               file=sys.stderr)
         return 1
     params = registry.variant_params(func, variant)
-    shown = name.strip().upper()
     print(f"{shown}({', '.join(p.name if p.required else f'[{p.name}]' for p in params)})")
     print(f"  {func.summary}")
     print(f"  returns: {func.returns}")
@@ -329,7 +352,8 @@ def _run_fill(args: argparse.Namespace, parser: argparse.ArgumentParser) -> int:
             try:
                 changes[key] = check_trade_number(key, value)
             except RecipeError:
-                parser.error(f"--{key.replace('_', '-')} {value:g}: {TRADE_KEYS[key]}")
+                pct = f" ({value:g} is {value * 100:g}%)" if key == "risk" else ""
+                parser.error(f"--{key.replace('_', '-')} {value:g}: {TRADE_KEYS[key]}{pct}")
     if args.trades_sheet:
         changes["sheet"] = args.trades_sheet
     trades = dataclasses.replace(trades, **changes)
@@ -391,11 +415,16 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         args = parser.parse_args(argv)
         if args.command == "fill":
-            return _run_fill(args, parser)
+            return _run_fill(args, args.command_parser)
+        if args.command == "functions":
+            return _print_functions(args.name)
+        parser.print_help()
+        return 0
     except SystemExit as exc:  # argparse exits for --help, --version and usage errors
         return exc.code if isinstance(exc.code, int) else 2
-    if args.command == "functions":
-        return _print_functions(args.name)
-    parser.print_help()
-    return 0
+    except BrokenPipeError:
+        # the reader went away (`sheetvol functions | head -1`): stop quietly, and point
+        # stdout at nothing so the interpreter's last flush does not complain either
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 1
 

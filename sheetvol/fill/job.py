@@ -168,6 +168,8 @@ class SheetReport:
             lines.append(f"    rows skipped: {_describe_counts(t.skipped) or 'none'}")
             if self.gaps:
                 lines.append(f"    {_describe_gaps(self.gaps)}")
+                if where := _gap_cells(t, self.match, self.gaps):
+                    lines.append(f"    cells to fix or clear: {where}")
         if self.written:
             cols = ", ".join(f"{w.letter} {w.spec.header}" for w in self.written)
             again = f" ({self.replaced} replaced from an earlier fill)" if self.replaced else ""
@@ -245,6 +247,20 @@ class FillReport:
 
 def _describe_counts(counts: Mapping[str, int]) -> str:
     return ", ".join(f"{n} {what}" for what, n in counts.items() if n)
+
+
+GAP_CELLS_SHOWN = 5  # cells named one by one in the summary; the rest are counted
+
+
+def _gap_cells(table: PriceTable, match: HeaderMatch, gaps: Mapping[str, int]) -> str:
+    """The cells holding an error or a word on a bar (first few by name, then a count)."""
+    needed = " ".join(gaps)
+    found = sorted((row, match.columns[role], what) for (row, role), what in
+                   table.unusable.items()
+                   if role in match.columns and f"in {role.capitalize()}" in needed)
+    shown = [f"{col_letter(col)}{row} {what}" for row, col, what in found[:GAP_CELLS_SHOWN]]
+    more = len(found) - len(shown)
+    return ", ".join(shown) + (f" and {more} more" if more > 0 else "")
 
 
 def _describe_gaps(gaps: Mapping[str, int]) -> str:
