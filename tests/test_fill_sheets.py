@@ -146,3 +146,34 @@ def test_a_note_column_right_of_the_table_is_kept_and_the_summary_says_where(tmp
     assert ('table "Bars" (A1:D31) ends at column D and column E holds other cells '
             "(E1 'Note')") in text
     assert f"went to {letters[0]}:{letters[-1]}, outside the table" in text
+
+
+def test_a_user_sheet_with_our_sheet_name_gets_a_way_out_that_exists(tmp_path):
+    src = tmp_path / "book.xlsx"
+    wb = xlsxwriter.Workbook(str(src))
+    add_prices(wb)
+    wb.add_worksheet("sheetvol notes").write("A1", "my own notes")
+    wb.close()
+    with pytest.raises(USER_ERRORS) as err:
+        fill_file(src)
+    text = str(err.value)
+    assert "'sheetvol notes'" in text and "rename that sheet" in text
+    assert "choose another name" not in text  # there is no option to choose one
+
+
+def test_writing_over_a_value_names_the_real_option(tmp_path):
+    import numpy as np
+
+    from sheetvol.workbook import NewColumn, Package, WorkbookError, write_package
+
+    src = tmp_path / "book.xlsx"
+    wb = xlsxwriter.Workbook(str(src))
+    add_prices(wb)
+    wb.close()
+    edit = NewColumn(sheet="Prices", col=4, header_row=1, header="Mine", first_row=2,
+                     values=np.ones(3), number_format="General", replace=False)
+    with pytest.raises(WorkbookError) as err:
+        write_package(Package.open(src), tmp_path / "out.xlsx", [edit])
+    text = str(err.value)
+    assert "D1" in text or "D2" in text
+    assert "allow replacing" not in text and "replace=True" in text

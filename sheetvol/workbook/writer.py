@@ -393,7 +393,8 @@ class _Job:
             if not self._is_ours(existing, ns):
                 raise WorkbookError(
                     f"{self.file} already has a sheet named {existing.name!r} that sheetvol did "
-                    "not write; rename that sheet or choose another name.")
+                    "not write, and sheetvol writes its own sheet under that name; rename "
+                    "that sheet (or move it to another workbook) and run again.")
             self.replaced[existing.part] = xml
             self.new_sheet_parts[name.casefold()] = existing.part
             return
