@@ -23,7 +23,7 @@ import tempfile
 import warnings
 import zipfile
 from collections import Counter
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Callable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -89,6 +89,7 @@ from sheetvol.workbook import (
     WorkbookError,
     write_package,
 )
+from sheetvol.workbook.newbook import write_new_workbook
 
 __all__ = ["FillError", "FillOptions", "FillReport", "fill_file", "output_path"]
 
@@ -390,8 +391,6 @@ def _csv_to_workbook(src: Path, dest: Path, options: FillOptions) -> None:
     Cells that are neither stay text, so the price reader later names them exactly
     as it would in a workbook (row and column are the CSV's).
     """
-    import xlsxwriter
-
     raw = src.read_bytes()
     text = raw.decode("utf-8-sig") if _is_utf8(raw) else raw.decode("cp1252", errors="replace")
     sample = text[:65536]
@@ -420,29 +419,27 @@ def _csv_to_workbook(src: Path, dest: Path, options: FillOptions) -> None:
 
         bar = tqdm(total=len(rows), desc=f"{src.name}: converting to a workbook", unit=" rows",
                    file=sys.stderr, leave=False)
-    wb = xlsxwriter.Workbook(str(dest), {"constant_memory": True, "strings_to_numbers": False})
-    try:
-        ws = wb.add_worksheet(sheet_name)
-        date_fmt = wb.add_format({"num_format": "yyyy-mm-dd"})
-        time_fmt = wb.add_format({"num_format": "yyyy-mm-dd hh:mm"})
+
+    def values() -> Iterator[list[object]]:
         for i, row in enumerate(rows):
             if bar is not None and i and not i % 10_000:  # by blocks of rows, not per cell
                 bar.update(10_000)
+            out: list[object] = []
             for j, value in enumerate(row):
                 if not value.strip():
+                    out.append(None)
                     continue
                 stamp = when.get(i - header_row) if j + 1 == date_col else None
                 if stamp is not None:
-                    fmt = time_fmt if stamp.time() != dt.time() else date_fmt
-                    ws.write_datetime(i, j, stamp, fmt)
+                    out.append(stamp)  # a date cell (with its time when not midnight)
                     continue
                 number = _csv_number(value, options.decimal_comma) if i + 1 > header_row else None
-                if number is not None:
-                    ws.write_number(i, j, number)
-                else:
-                    ws.write_string(i, j, value)
+                out.append(number if number is not None else value)
+            yield out
+
+    try:
+        write_new_workbook(dest, sheet_name, values())
     finally:
-        wb.close()
         if bar is not None:
             bar.close()
 
