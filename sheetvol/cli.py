@@ -85,7 +85,8 @@ rows the fill skips or leaves blank:
   Gaps: on a kept bar, a blank price cell, an error (#N/A) or a blank word
   ("n/a", "-"); the columns that need that price are blank on that bar and
   their windows continue over the other bars. The summary counts each
-  skipped row and each gap bar once.
+  skipped row and each gap bar once, and names the cells holding an error
+  or a word (the first five, then how many more).
   Text that is not a number ("abc"), High below Low, the same date twice or
   an unreadable date stop the fill with the cell named; nothing is written.
 
@@ -264,10 +265,11 @@ def build_parser() -> argparse.ArgumentParser:
         help="list the worksheet functions, or show one",
         description="List sheetvol's worksheet functions (usable in recipes and as "
                     "formulas), or show one function's arguments.",
-        epilog="examples:\n  sheetvol functions\n  sheetvol functions SV_ATR",
+        epilog="examples:\n  sheetvol functions\n  sheetvol functions SV_ATR\n"
+               "  sheetvol functions atr_last      (any case; the SV_ prefix is optional)",
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
-    funcs.add_argument("name", nargs="?", help="a function name, e.g. SV_ATR")
+    funcs.add_argument("name", nargs="?", help="a function name, e.g. SV_ATR or atr")
     return parser
 
 
