@@ -94,6 +94,17 @@ def _structure(text: str) -> tuple[str, tuple[int, int], int, list[_Child]]:
     raise WorkbookError("the styles part is not one well-formed styleSheet element")
 
 
+_START = re.compile(r"<[A-Za-z_][\w.:\-]*(?:[^>\"']|\"[^\"]*\"|'[^']*')*?/?>")
+
+
+def _inner(element: str) -> str | None:
+    """The content of one element's text (None when it is self-closing)."""
+    tag = _START.match(element)
+    if tag is None or tag[0].endswith("/>"):
+        return None
+    return element[tag.end():element.rindex("</")]
+
+
 class StyleBook:
     """Edits one styles part as text; call :meth:`finish` for the new bytes.
 
@@ -107,70 +118,86 @@ class StyleBook:
     """
 
     def __init__(self, data: bytes) -> None:
-        self.text = data.decode("utf-8")
-        prefix, tag, _end, _children = _structure(self.text)
+        text = data.decode("utf-8")
+        prefix, tag, end, children = _structure(text)
         self.prefix = prefix
-        if _end < 0:  # <styleSheet .../>: open it, so children have somewhere to go
-            start_tag = self.text[tag[0]:tag[1]]
-            opened = re.sub(r"\s*/>$", ">", start_tag) + f"</{prefix}styleSheet>"
-            self.text = self.text[:tag[0]] + opened + self.text[tag[1]:]
+        if end < 0:  # <styleSheet .../>: open it, so children have somewhere to go
+            self.head = text[:tag[0]] + re.sub(r"\s*/>$", ">", text[tag[0]:tag[1]])
+            self.tail = f"</{prefix}styleSheet>" + text[tag[1]:]
+            self.pieces: list[list] = []
+        else:
+            # the root's content as pieces: [name, text] for a child element, [None, text]
+            # for what lies between (whitespace, comments), each edited on its own
+            self.head, self.tail, self.pieces = text[:tag[1]], text[end:], []
+            at = tag[1]
+            for c in children:
+                if c.start > at:
+                    self.pieces.append([None, text[at:c.start]])
+                self.pieces.append([c.name, text[c.start:c.end]])
+                at = c.end
+            if end > at:
+                self.pieces.append([None, text[at:end]])
         self.changed = False
-        self._seen: tuple[str, tuple] = ("", ())
+        self._cache: dict[str, list[str]] = {}
 
-    def _parts(self) -> tuple[str, tuple[int, int], int, list[_Child]]:
-        """:func:`_structure` of the current text (kept until the text changes)."""
-        if self._seen[0] is not self.text:
-            self._seen = (self.text, _structure(self.text))
-        return self._seen[1]
+    def _index(self, name: str) -> int | None:
+        return next((k for k, (n, _) in enumerate(self.pieces) if n == name), None)
 
-    def _child(self, name: str) -> _Child | None:
-        return next((c for c in self._parts()[3] if c.name == name), None)
+    def _set(self, k: int, name: str, text: str, insert: bool = False) -> None:
+        if insert:
+            self.pieces.insert(k, [name, text])
+        else:
+            self.pieces[k] = [name, text]
+        self._cache.pop(name, None)
+        self.changed = True
 
     def _items(self, name: str) -> list[str]:
         """The entries of block ``name`` as text (none when the block is absent)."""
-        c = self._child(name)
-        if c is None or c.inner is None:
-            return []
-        p = re.escape(self.prefix)
-        item = _ITEM[name]
-        inner = self.text[c.inner[0]:c.inner[1]]
-        return [x[0] for x in re.finditer(
-            rf"<{p}{item}(?=[\s>/])(?:[^>\"']|\"[^\"]*\"|'[^']*')*?(/>|>.*?</{p}{item}>)",
-            inner, re.S)]
+        if name not in self._cache:
+            k = self._index(name)
+            inner = _inner(self.pieces[k][1]) if k is not None else None
+            p = re.escape(self.prefix)
+            item = _ITEM[name]
+            self._cache[name] = [] if inner is None else [x[0] for x in re.finditer(
+                rf"<{p}{item}(?=[\s>/])(?:[^>\"']|\"[^\"]*\"|'[^']*')*?(/>|>.*?</{p}{item}>)",
+                inner, re.S)]
+        return self._cache[name]
 
     def _create(self, name: str, entries: list[str]) -> None:
         """Insert block ``name`` holding ``entries`` at its schema place."""
         p = self.prefix
-        _, _, end, children = self._parts()
         later = set(ORDER[ORDER.index(name) + 1:])
-        where = next((c.start for c in children if c.name in later), end)
+        where = next((k for k, (n, _) in enumerate(self.pieces) if n in later),
+                     len(self.pieces))
         block = f'<{p}{name} count="{len(entries)}">{"".join(entries)}</{p}{name}>'
-        self.text = self.text[:where] + block + self.text[where:]
-        self.changed = True
+        self._set(where, name, block, insert=True)
 
     def _ensure(self, name: str) -> None:
         """Block ``name`` with its default entries, when the part has none."""
         if name in _DEFAULTS and not self._items(name):
-            c = self._child(name)
-            if c is not None:  # present but empty: replace it with the defaults
-                self.text = self.text[:c.start] + self.text[c.end:]
+            k = self._index(name)
+            if k is not None:  # present but empty: replaced by one with the defaults
+                del self.pieces[k]
+                self._cache.pop(name, None)
             self._create(name, [d.format(p=self.prefix) for d in _DEFAULTS[name]])
 
     def _append(self, name: str, element: str) -> int:
         """Append ``element`` to block ``name`` (creating the block); return its index."""
         p = self.prefix
-        c = self._child(name)
-        if c is None:
+        k = self._index(name)
+        if k is None:
             self._create(name, [element])
             return 0
-        count = len(self._items(name))
-        tag = self.text[c.start:c.inner[0] if c.inner else c.end]
-        attrs = re.sub(r"^<[\w.:\-]+|/?>$", "", tag)
+        items = self._items(name)
+        count = len(items)
+        text = self.pieces[k][1]
+        tag = _START.match(text)
+        assert tag is not None  # a piece with a name starts with its start tag
+        attrs = re.sub(r"^<[\w.:\-]+|/?>$", "", tag[0])
         attrs = re.sub(r'\s+count\s*=\s*["\']\d*["\']', "", attrs) + f' count="{count + 1}"'
-        inner = self.text[c.inner[0]:c.inner[1]] if c.inner else ""
-        self.text = (self.text[:c.start] + f"<{p}{name}{attrs}>{inner}{element}</{p}{name}>"
-                     + self.text[c.end:])
-        self.changed = True
+        inner = _inner(text) or ""
+        self._set(k, name, f"<{p}{name}{attrs}>{inner}{element}</{p}{name}>")
+        self._cache[name] = [*items, element]  # known without reading the block again
         return count
 
     def number_format_id(self, code: str) -> int:
@@ -234,7 +261,7 @@ class StyleBook:
 
     def finish(self) -> bytes:
         """The styles part as bytes."""
-        return self.text.encode("utf-8")
+        return (self.head + "".join(t for _, t in self.pieces) + self.tail).encode("utf-8")
 
 
 MINIMAL_STYLES = (
