@@ -177,3 +177,20 @@ def test_writing_over_a_value_names_the_real_option(tmp_path):
     text = str(err.value)
     assert "D1" in text or "D2" in text
     assert "allow replacing" not in text and "replace=True" in text
+
+
+def test_a_sheet_without_dates_is_filled_when_named_with_its_close_column(tmp_path):
+    # A closes-only export: the user names the sheet and the column, so it is taken, in row
+    # order, and the summary says so.
+    src = tmp_path / "book.xlsx"
+    wb = xlsxwriter.Workbook(str(src))
+    ws = wb.add_worksheet("Closes")
+    ws.write("A1", "Close")
+    for i in range(30):
+        ws.write(i + 1, 0, 100 + (i % 5) * 0.5)
+    wb.close()
+    with pytest.raises(USER_ERRORS, match="no date column"):
+        fill_file(src, FillOptions(sheets=("Closes",)))
+    report = fill_file(src, FillOptions(sheets=("Closes",), columns={"close": "A"}))
+    assert [s.sheet for s in report.sheets] == ["Closes"]
+    assert any("no date column: rows taken as oldest first" in w for w in report.warnings)

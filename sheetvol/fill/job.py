@@ -566,6 +566,7 @@ def _where(src: Path, sheet: str) -> str:
 
 # A price sheet needs bars: a date column, and a close column with numbers below the header.
 PRICE_SHEET_RULE = "a price sheet needs a Date column and a Close column with numbers below it"
+NO_DATE = "no date column"
 QUALIFY_ROWS = 20  # rows below the header looked at to see numbers in the Close column
 _NUMBER_LIKE = re.compile(r"[\s+\-\u2212(]*(?:[^\W\d_]{1,3}|[$\u20ac\u00a3\u00a5])?"
                           r"\s*\d[\d\s.,'\u2019]*[)%]?\s*")
@@ -575,7 +576,7 @@ def _not_prices(grid_rows: Mapping[int, Mapping[int, object]], match: HeaderMatc
                 ) -> str | None:
     """Why a sheet with this header is not a price sheet (None: it is one)."""
     if "date" not in match.columns:
-        return "no date column"
+        return NO_DATE
     close, date = match.columns["close"], match.columns["date"]
     below = [grid_rows[r] for r in sorted(grid_rows)
              if match.row < r <= match.row + QUALIFY_ROWS]
@@ -611,11 +612,14 @@ def _choose_sheets(pkg: Package, src: Path, options: FillOptions,
         chosen = []
         for name in dict.fromkeys(options.sheets):
             hit, why = locate(pkg.sheet(name).name)
+            if why == NO_DATE and options.columns.get("close"):
+                why = None  # sheet and Close column both named: bars in row order (warned)
             if why:
                 raise FillError(
                     f"{_where(src, hit[0])}: not a price sheet ({why}; {PRICE_SHEET_RULE}); "
-                    "name the Date and Close columns with --date-col and --close-col, or "
-                    "choose another sheet with --sheet")
+                    "name the Date and Close columns with --date-col and --close-col (a sheet "
+                    "without dates: --close-col alone, bars in row order), or choose another "
+                    "sheet with --sheet")
             chosen.append(hit)
         return chosen
     found: list[tuple[str, HeaderMatch, int]] = []
