@@ -127,3 +127,14 @@ def test_a_styles_part_that_is_not_xml_is_refused_by_name(tmp_path):
                        b"<styleSheet><fonts></styleSheet>")
     with pytest.raises(WorkbookError, match=r"p\.xlsx: xl/styles\.xml: .*not one well-formed"):
         fill_file(src)
+
+
+@pytest.mark.parametrize("case", ["self-closing root", "no fonts", "namespace prefix on the root"])
+def test_libreoffice_opens_the_result_with_bold_new_headers_only(tmp_path, libreoffice, case):
+    src = replace_part(price_book(tmp_path / "p.xlsx"), "xl/styles.xml", CASES[case].encode())
+    report = fill_file(src)
+    resaved = libreoffice(report.output)  # LibreOffice as the reader a colleague would use
+    ws = openpyxl.load_workbook(resaved)["Prices"]
+    # D3 is bar 2: 100 + (1 % 5) * 0.5 = 100.5, as price_book writes it
+    assert ws["D3"].value == 100.5 and not ws["D1"].font.b and not ws["D3"].font.b
+    assert ws.cell(1, 5).value == report.written[0].spec.header and ws.cell(1, 5).font.b
