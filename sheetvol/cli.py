@@ -202,8 +202,8 @@ def build_parser() -> argparse.ArgumentParser:
         "where the prices are (found by their headers unless given)"
     )
     cols.add_argument("--sheet", metavar="NAME", action="append",
-                      help="sheet to fill (default: every sheet that looks like bars); "
-                           "repeat for several")
+                      help="sheet to fill (default: every sheet with a Date and a Close "
+                           "column of numbers); repeat for several")
     cols.add_argument("--header-row", type=int, metavar="N",
                       help="row of the column headers (default: searched in the first 50 rows)")
     for role, letter in zip(ROLES, "ABCDEF", strict=True):
