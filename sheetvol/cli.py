@@ -10,6 +10,7 @@ from __future__ import annotations
 import argparse
 import dataclasses
 import glob
+import os
 import sys
 from collections.abc import Sequence
 from pathlib import Path
@@ -30,6 +31,7 @@ __all__ = ["build_parser", "main"]
 
 PROG = "sheetvol"
 ROLES = ("date", "open", "high", "low", "close", "volume")
+NAME_PREFIX = "SV_"  # every worksheet function's name starts with it
 
 
 def _default_lines() -> str:
@@ -41,7 +43,8 @@ def _default_lines() -> str:
 FILL_DESCRIPTION = """\
 Add volatility columns to price exports (.xlsx, .xlsm or .csv) and write a copy.
 
-Every sheet that looks like bars is filled (--sheet picks some). Its
+Every sheet of bars (a Date and a Close column with numbers below the
+header) is filled; other sheets are left alone (--sheet picks some). Its
 Date/Open/High/Low/Close(/Volume) columns are found by their headers (plain
 trade words such as Close, Last, Settle, in any case, with brackets, asterisks,
 units or "price" around them; the header row may be below a title; a
@@ -83,7 +86,8 @@ rows the fill skips or leaves blank:
   Gaps: on a kept bar, a blank price cell, an error (#N/A) or a blank word
   ("n/a", "-"); the columns that need that price are blank on that bar and
   their windows continue over the other bars. The summary counts each
-  skipped row and each gap bar once.
+  skipped row and each gap bar once, and names the cells holding an error
+  or a word (the first five, then how many more).
   Text that is not a number ("abc"), High below Low, the same date twice or
   an unreadable date stop the fill with the cell named; nothing is written.
 
@@ -137,6 +141,24 @@ rules and local regulation.
 """
 
 
+def _share(text: str) -> float:
+    """A share given as ``1%`` or ``0.01`` (the percent sign divides by 100).
+
+    Examples
+    --------
+    >>> _share("1%"), _share("0.5 %"), _share("0.02")
+    (0.01, 0.005, 0.02)
+    """
+    raw = text.strip()
+    try:
+        if raw.endswith("%"):
+            return float(raw[:-1].strip()) / 100
+        return float(raw)
+    except ValueError:
+        raise argparse.ArgumentTypeError(
+            f"{text!r} is not a share; write one percent as 1% or 0.01") from None
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser (also used to render the help in the docs).
 
@@ -165,6 +187,7 @@ def build_parser() -> argparse.ArgumentParser:
         epilog=FILL_EPILOG,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
+    fill.set_defaults(command_parser=fill)  # its own usage for its errors
     fill.add_argument("files", nargs="+", type=Path, metavar="FILE",
                       help="one or more .xlsx, .xlsm or .csv files")
     where = fill.add_argument_group("output (default: NAME-filled.xlsx beside each input)")
@@ -180,8 +203,8 @@ def build_parser() -> argparse.ArgumentParser:
         "where the prices are (found by their headers unless given)"
     )
     cols.add_argument("--sheet", metavar="NAME", action="append",
-                      help="sheet to fill (default: every sheet that looks like bars); "
-                           "repeat for several")
+                      help="sheet to fill (default: every sheet with a Date and a Close "
+                           "column of numbers); repeat for several")
     cols.add_argument("--header-row", type=int, metavar="N",
                       help="row of the column headers (default: searched in the first 50 rows)")
     for role, letter in zip(ROLES, "ABCDEF", strict=True):
@@ -199,9 +222,9 @@ def build_parser() -> argparse.ArgumentParser:
                        help="do not review a trade log")
     trade.add_argument("--trades-sheet", metavar="NAME",
                        help="the trade-log sheet (default: found by its headers)")
-    trade.add_argument("--risk", type=float, metavar="SHARE",
-                       help="share of equity risked per trade (default 0.01 = 1%%; above 0, "
-                            "at most 0.25; a warning above 0.05)")
+    trade.add_argument("--risk", type=_share, metavar="SHARE",
+                       help="share of equity risked per trade, as 1%% or 0.01 (default 1%%; "
+                            "above 0, at most 25%%; a warning above 5%%)")
     trade.add_argument("--stop-multiple", type=float, metavar="K",
                        help="stop at K volatility units from entry (default 2)")
     trade.add_argument("--target-multiple", type=float, metavar="K",
@@ -243,10 +266,11 @@ def build_parser() -> argparse.ArgumentParser:
         help="list the worksheet functions, or show one",
         description="List sheetvol's worksheet functions (usable in recipes and as "
                     "formulas), or show one function's arguments.",
-        epilog="examples:\n  sheetvol functions\n  sheetvol functions SV_ATR",
+        epilog="examples:\n  sheetvol functions\n  sheetvol functions SV_ATR\n"
+               "  sheetvol functions atr_last      (any case; the SV_ prefix is optional)",
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
-    funcs.add_argument("name", nargs="?", help="a function name, e.g. SV_ATR")
+    funcs.add_argument("name", nargs="?", help="a function name, e.g. SV_ATR or atr")
     return parser
 
 
@@ -262,14 +286,16 @@ def _print_functions(name: str | None) -> int:
               "NAME_ON(date, dates, ...)\n(value on or before a date). "
               "`sheetvol functions NAME` shows the arguments.")
         return 0
+    shown = name.strip().upper()
+    if not shown.startswith(NAME_PREFIX):  # "atr" means SV_ATR: the prefix is optional
+        shown = NAME_PREFIX + shown
     try:
-        func, variant = registry.variant_of(name)
+        func, variant = registry.variant_of(shown)
     except KeyError:
         print(f"{PROG}: no function named {name!r}; `sheetvol functions` lists them",
               file=sys.stderr)
         return 1
     params = registry.variant_params(func, variant)
-    shown = name.strip().upper()
     print(f"{shown}({', '.join(p.name if p.required else f'[{p.name}]' for p in params)})")
     print(f"  {func.summary}")
     print(f"  returns: {func.returns}")
@@ -329,7 +355,8 @@ def _run_fill(args: argparse.Namespace, parser: argparse.ArgumentParser) -> int:
             try:
                 changes[key] = check_trade_number(key, value)
             except RecipeError:
-                parser.error(f"--{key.replace('_', '-')} {value:g}: {TRADE_KEYS[key]}")
+                pct = f" ({value:g} is {value * 100:g}%)" if key == "risk" else ""
+                parser.error(f"--{key.replace('_', '-')} {value:g}: {TRADE_KEYS[key]}{pct}")
     if args.trades_sheet:
         changes["sheet"] = args.trades_sheet
     trades = dataclasses.replace(trades, **changes)
@@ -391,11 +418,16 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         args = parser.parse_args(argv)
         if args.command == "fill":
-            return _run_fill(args, parser)
+            return _run_fill(args, args.command_parser)
+        if args.command == "functions":
+            return _print_functions(args.name)
+        parser.print_help()
+        return 0
     except SystemExit as exc:  # argparse exits for --help, --version and usage errors
         return exc.code if isinstance(exc.code, int) else 2
-    if args.command == "functions":
-        return _print_functions(args.name)
-    parser.print_help()
-    return 0
+    except BrokenPipeError:
+        # the reader went away (`sheetvol functions | head -1`): stop quietly, and point
+        # stdout at nothing so the interpreter's last flush does not complain either
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 1
 

@@ -354,11 +354,13 @@ def _gappy_export(path: Path, block: str) -> Path:
         ws.cell(row=10, column=col).value = None
     for col, v in zip(range(2, 7), ("#N/A", "n/a", "n/a", "#N/A", None), strict=True):
         ws.cell(row=20, column=col).value = v
-    # Gaps: #N/A in Close; "n/a" in High; "n/a" in High with #N/A in Close; a blank Low.
-    ws.cell(row=40, column=5).value = "#N/A"
-    ws.cell(row=50, column=3).value = "n/a"
-    ws.cell(row=60, column=3).value = "n/a"
-    ws.cell(row=60, column=5).value = "#N/A"
+    # Gaps: #N/A in Close; "n/a" in High; "n/a" in High with #N/A in Close (in the cells
+    # the sample names, when it names them); and a blank Low.
+    named = re.search(r"cells to fix or clear: (.*)", block)
+    cells = (re.findall(r'([A-Z]+\d+) (#N/A|"n/a")', named[1]) if named else
+             [("E40", "#N/A"), ("C50", '"n/a"'), ("C60", '"n/a"'), ("E60", "#N/A")])
+    for ref, value in cells:
+        ws[ref].value = value.strip('"')
     ws.cell(row=70, column=4).value = None
     wb.save(path)
     return path

@@ -443,6 +443,8 @@ def test_gaps_counted_once_per_bar_and_skipped_rows_apart(tmp_path, capsys):
     assert line == ('bars with a gap: 4 (1 #N/A in Close, 1 "n/a" in High, 1 "n/a" in High + '
                     "#N/A in Close, 1 blank Low); the columns that need that price are blank "
                     "on those bars")
+    # the same four bars by cell (header in row 1: bar i is row i + 2; Close E, High C)
+    assert '    cells to fix or clear: E102 #N/A, C122 "n/a", C182 "n/a", E182 #N/A' in out
     filled = tmp_path / "gaps-filled.xlsx"
     notes = load_workbook(filled)["sheetvol notes"].iter_rows(values_only=True)
     assert next(r for r in notes if r[0] == "Prices")[5].startswith("bars with a gap: 4 (")

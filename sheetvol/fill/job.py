@@ -23,7 +23,7 @@ import tempfile
 import warnings
 import zipfile
 from collections import Counter
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Callable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -89,6 +89,7 @@ from sheetvol.workbook import (
     WorkbookError,
     write_package,
 )
+from sheetvol.workbook.newbook import write_new_workbook
 
 __all__ = ["FillError", "FillOptions", "FillReport", "fill_file", "output_path"]
 
@@ -120,8 +121,8 @@ class FillOptions:
     shows numbers in any spreadsheet program, and lists each formula's text on
     the notes sheet for add-in users; ``"keep"`` keeps the formulas and stores
     their results beside them; ``"skip"`` leaves them untouched.
-    ``sheets`` names the price sheets (default: every sheet that looks like
-    bars: a Close column, and a Date column beyond the first such sheet).
+    ``sheets`` names the price sheets (default: every sheet of bars: a Date and
+    a Close column with numbers below the header; see ``PRICE_SHEET_RULE``).
     ``columns`` maps a role (``date``, ``open``, ``high``, ``low``, ``close``,
     ``volume``) to a header text or column letter. ``trades`` holds the trade-log settings
     (None: the defaults); a trade log found in the workbook is reviewed unless
@@ -168,6 +169,8 @@ class SheetReport:
             lines.append(f"    rows skipped: {_describe_counts(t.skipped) or 'none'}")
             if self.gaps:
                 lines.append(f"    {_describe_gaps(self.gaps)}")
+                if where := _gap_cells(t, self.match, self.gaps):
+                    lines.append(f"    cells to fix or clear: {where}")
         if self.written:
             cols = ", ".join(f"{w.letter} {w.spec.header}" for w in self.written)
             again = f" ({self.replaced} replaced from an earlier fill)" if self.replaced else ""
@@ -190,6 +193,7 @@ class FillReport:
     assumptions: list[str] = field(default_factory=list)
     backup: Path | None = None
     trades: TradeReport | None = None
+    skipped: list[str] = field(default_factory=list)  # sheets that are not price sheets: why
 
     # The first (often only) price sheet, for short access.
     @property
@@ -219,6 +223,10 @@ class FillReport:
         lines = [f"{self.input.name} -> {self.output}"]
         for s in self.sheets:
             lines.extend(s.summary())
+        if self.skipped:
+            lines.append(f"  sheets left alone, not price sheets: {', '.join(self.skipped)} "
+                         "(to fill one, name it with --sheet and its columns with --date-col "
+                         "and --close-col)")
         if self.trades is not None:
             lines.extend(self.trades.lines())
         if self.formulas:
@@ -240,6 +248,20 @@ class FillReport:
 
 def _describe_counts(counts: Mapping[str, int]) -> str:
     return ", ".join(f"{n} {what}" for what, n in counts.items() if n)
+
+
+GAP_CELLS_SHOWN = 5  # cells named one by one in the summary; the rest are counted
+
+
+def _gap_cells(table: PriceTable, match: HeaderMatch, gaps: Mapping[str, int]) -> str:
+    """The cells holding an error or a word on a bar (first few by name, then a count)."""
+    needed = " ".join(gaps)
+    found = sorted((row, match.columns[role], what) for (row, role), what in
+                   table.unusable.items()
+                   if role in match.columns and f"in {role.capitalize()}" in needed)
+    shown = [f"{col_letter(col)}{row} {what}" for row, col, what in found[:GAP_CELLS_SHOWN]]
+    more = len(found) - len(shown)
+    return ", ".join(shown) + (f" and {more} more" if more > 0 else "")
 
 
 def _describe_gaps(gaps: Mapping[str, int]) -> str:
@@ -369,8 +391,6 @@ def _csv_to_workbook(src: Path, dest: Path, options: FillOptions) -> None:
     Cells that are neither stay text, so the price reader later names them exactly
     as it would in a workbook (row and column are the CSV's).
     """
-    import xlsxwriter
-
     raw = src.read_bytes()
     text = raw.decode("utf-8-sig") if _is_utf8(raw) else raw.decode("cp1252", errors="replace")
     sample = text[:65536]
@@ -399,29 +419,27 @@ def _csv_to_workbook(src: Path, dest: Path, options: FillOptions) -> None:
 
         bar = tqdm(total=len(rows), desc=f"{src.name}: converting to a workbook", unit=" rows",
                    file=sys.stderr, leave=False)
-    wb = xlsxwriter.Workbook(str(dest), {"constant_memory": True, "strings_to_numbers": False})
-    try:
-        ws = wb.add_worksheet(sheet_name)
-        date_fmt = wb.add_format({"num_format": "yyyy-mm-dd"})
-        time_fmt = wb.add_format({"num_format": "yyyy-mm-dd hh:mm"})
+
+    def values() -> Iterator[list[object]]:
         for i, row in enumerate(rows):
             if bar is not None and i and not i % 10_000:  # by blocks of rows, not per cell
                 bar.update(10_000)
+            out: list[object] = []
             for j, value in enumerate(row):
                 if not value.strip():
+                    out.append(None)
                     continue
                 stamp = when.get(i - header_row) if j + 1 == date_col else None
                 if stamp is not None:
-                    fmt = time_fmt if stamp.time() != dt.time() else date_fmt
-                    ws.write_datetime(i, j, stamp, fmt)
+                    out.append(stamp)  # a date cell (with its time when not midnight)
                     continue
                 number = _csv_number(value, options.decimal_comma) if i + 1 > header_row else None
-                if number is not None:
-                    ws.write_number(i, j, number)
-                else:
-                    ws.write_string(i, j, value)
+                out.append(number if number is not None else value)
+            yield out
+
+    try:
+        write_new_workbook(dest, sheet_name, values())
     finally:
-        wb.close()
         if bar is not None:
             bar.close()
 
@@ -546,41 +564,87 @@ def _where(src: Path, sheet: str) -> str:
     return f'{src.name}, sheet "{sheet}"'
 
 
+# A price sheet needs bars: a date column, and a close column with numbers below the header.
+PRICE_SHEET_RULE = "a price sheet needs a Date column and a Close column with numbers below it"
+NO_DATE = "no date column"
+QUALIFY_ROWS = 20  # rows below the header looked at to see numbers in the Close column
+_NUMBER_LIKE = re.compile(r"[\s+\-\u2212(]*(?:[^\W\d_]{1,3}|[$\u20ac\u00a3\u00a5])?"
+                          r"\s*\d[\d\s.,'\u2019]*[)%]?\s*")
+
+
+def _not_prices(grid_rows: Mapping[int, Mapping[int, object]], match: HeaderMatch
+                ) -> str | None:
+    """Why a sheet with this header is not a price sheet (None: it is one)."""
+    if "date" not in match.columns:
+        return NO_DATE
+    close, date = match.columns["close"], match.columns["date"]
+    below = [grid_rows[r] for r in sorted(grid_rows)
+             if match.row < r <= match.row + QUALIFY_ROWS]
+    for cells_ in below:
+        value = cells_.get(close)
+        number = ((isinstance(value, (int, float)) and not isinstance(value, bool))
+                  # text written like a number (any separators: the price table says
+                  # which option reads it)
+                  or (isinstance(value, str) and _NUMBER_LIKE.fullmatch(value) is not None))
+        if number and not cells.is_blank(cells_.get(date)):
+            return None
+    return "no numbers below the Close header"
+
+
 def _choose_sheets(pkg: Package, src: Path, options: FillOptions,
-                   exclude: frozenset[str] = frozenset()) -> list[tuple[str, HeaderMatch, int]]:
+                   exclude: frozenset[str] = frozenset(), skipped: list[str] | None = None,
+                   ) -> list[tuple[str, HeaderMatch, int]]:
     """The price sheets with their header match and the rightmost used column near the top.
 
-    By default every sheet that looks like bars (``exclude``: the trade log and
-    the instrument details, casefolded); ``--sheet`` names restrict the choice.
+    By default every sheet that holds bars (``exclude``: the trade log and the
+    instrument details, casefolded); the others are listed in ``skipped`` with the
+    reason. ``--sheet`` names restrict the choice, and a named sheet that holds no
+    bars is an error.
     """
-    def locate(name: str) -> tuple[str, HeaderMatch, int]:
-        grid = pkg.read_grid(name, max_rows=HEADER_SCAN_ROWS)
+    def locate(name: str) -> tuple[tuple[str, HeaderMatch, int], str | None]:
+        grid = pkg.read_grid(name, max_rows=HEADER_SCAN_ROWS + QUALIFY_ROWS)
         match = find_header(grid.rows, header_row=options.header_row,
                             overrides=options.columns, where=_where(src, name),
                             file=src.name, sheet=name)
-        return name, match, grid.max_col
+        return (name, match, grid.max_col), _not_prices(grid.rows, match)
 
     if options.sheets:
-        return [locate(pkg.sheet(name).name) for name in dict.fromkeys(options.sheets)]
+        chosen = []
+        for name in dict.fromkeys(options.sheets):
+            hit, why = locate(pkg.sheet(name).name)
+            if why == NO_DATE and options.columns.get("close"):
+                why = None  # sheet and Close column both named: bars in row order (warned)
+            if why:
+                raise FillError(
+                    f"{_where(src, hit[0])}: not a price sheet ({why}; {PRICE_SHEET_RULE}); "
+                    "name the Date and Close columns with --date-col and --close-col (a sheet "
+                    "without dates: --close-col alone, bars in row order), or choose another "
+                    "sheet with --sheet")
+            chosen.append(hit)
+        return chosen
     found: list[tuple[str, HeaderMatch, int]] = []
     tried: list[str] = []
+    passed: dict[str, str] = {}  # sheets with a Close header that hold no bars: why
     first_error: LocateError | None = None
     flag_errors: list[ColumnFlagError] = []
     for info in pkg.sheets:
         if info.kind != "worksheet" or info.name.casefold() in OWN_SHEETS | exclude:
             continue
         try:
-            hit = locate(info.name)
+            hit, why = locate(info.name)
         except LocateError as exc:
             first_error = first_error or exc
             tried.append(info.name)
             if isinstance(exc, ColumnFlagError):
                 flag_errors.append(exc)
             continue
-        # beyond the first, only sheets that look like bars (a date and a close)
-        if not found or "date" in hit[1].columns:
+        if why:
+            passed[info.name] = why
+        else:
             found.append(hit)
     if found:
+        if skipped is not None and passed:
+            skipped.extend(f'"{name}" ({why})' for name, why in passed.items())
         return found
     if flag_errors:  # a column the user named by flag: that is the news, said first
         # told about the sheet that looks most like prices (most headers known)
@@ -589,6 +653,12 @@ def _choose_sheets(pkg: Package, src: Path, options: FillOptions,
         others = [t for t in tried if t != best.sheet]
         also = f"; not on {', '.join(repr(t) for t in others)} either" if others else ""
         raise ColumnFlagError(**{**best.fields, "also": also})
+    if passed:
+        why = "; ".join(f"{name!r}: {w}" for name, w in passed.items())
+        others = f"; no Close header on {', '.join(repr(t) for t in tried)}" if tried else ""
+        raise FillError(
+            f"{src.name}: no price sheet found ({PRICE_SHEET_RULE}; {why}{others}); pick the "
+            "sheet with --sheet and name its columns with --date-col and --close-col")
     if len(tried) == 1 and first_error is not None:
         raise first_error
     if not tried:
@@ -692,7 +762,7 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport,
     progress = progress or _Progress()
     log, instruments = _find_log(pkg, src, options)
     exclude = frozenset(n.casefold() for n in (log.sheet if log else "", instruments[0]) if n)
-    chosen = _choose_sheets(pkg, src, options, exclude)
+    chosen = _choose_sheets(pkg, src, options, exclude, report.skipped)
     progress.sheets([name for name, _, _ in chosen])
     progress.stage(f"{src.name}: looking for typed sheetvol formulas")
     typed = pkg.formula_cells() if options.formulas != "skip" else []
@@ -767,9 +837,11 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
     # Where each column goes: its own earlier place, else a freed earlier place, else new
     # columns right of everything used (top rows, a table, typed formulas, cells below).
     own = _own_columns(match, recorded, specs)
+    table_of_bars = None
     for t in pkg.tables(sheet):
         if t.header_row == match.row and t.left <= match.columns["close"] <= t.right:
             max_col = max(max_col, t.right)
+            table_of_bars = t
     max_col = max([max_col, *own, *typed_cols])
     headers = {s.header for s in specs}
     reused = {h: c for c, h in own.items() if h in headers}
@@ -788,6 +860,8 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
         read = pkg.read_columns(sheet, list(range(start, start + n_new)),
                                 first_row=match.row + 1) | {c: read[c] for c in price_cols}
     new_cols = list(range(start, start + n_new))
+    if table_of_bars is not None and new_cols and new_cols[0] > table_of_bars.right + 1:
+        warnings.append(_outside_table(where, table_of_bars, new_cols, match.headers))
     targets = [reused[s.header] if s.header in reused else (free or new_cols).pop(0)
                for s in specs]
     sr.replaced = sum(1 for c in targets if c in own)
@@ -829,6 +903,19 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
                                  first_row=first_row, values=np.full(1, np.nan),
                                  number_format="General"))
     return columns, targets
+
+
+def _outside_table(where: str, table: Any, new_cols: Sequence[int],
+                   headers: Mapping[int, str]) -> str:
+    """Why new columns went right of a busy column instead of into the table of bars."""
+    first = table.right + 1
+    head = headers.get(first)
+    held = f" ({col_letter(first)}{table.header_row} {head!r})" if head else ""
+    return (f'{where}: table "{table.display_name or table.name}" ({table.ref}) ends at column '
+            f"{col_letter(table.right)} and column {col_letter(first)} holds other "
+            f"cells{held}, so the new columns went to {col_letter(new_cols[0])}:"
+            f"{col_letter(new_cols[-1])}, outside the table; to have them inside, widen the "
+            f"table over column {col_letter(first)} (or move those cells) and fill again")
 
 
 def _instrument_column(match: HeaderMatch) -> int | None:

@@ -556,7 +556,8 @@ class RowEditor:
                 if not new[c][1] and c not in act:
                     raise WorkbookError(
                         f"{self.e.file}: sheet {self.e.sheet!r} cell {cell_name(r, c)} already "
-                        "holds a value; choose an empty column or allow replacing.")
+                        "holds a value; write to an empty column, or give the edit "
+                        "replace=True to clear its column on purpose.")
                 continue
             cells.append((c, raw))
         for c, fn in mods.items():

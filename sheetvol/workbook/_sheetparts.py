@@ -11,7 +11,7 @@ import re
 from collections.abc import Callable
 
 from sheetvol.workbook._rowedit import SheetEdits, text_cell, value_cell
-from sheetvol.workbook._sheetxml import SheetStream, cell_name, col_letters, parse_ref
+from sheetvol.workbook._sheetxml import SheetStream, cell_name, col_letters, escape_text, parse_ref
 from sheetvol.workbook.edits import NewSheet, Styled
 
 NS_MAIN = "http://schemas.openxmlformats.org/spreadsheetml/2006/main"
@@ -116,18 +116,90 @@ def new_sheet_xml(ns: NewSheet, header_style: int,
         if cells:
             rows_xml.append(f'<row r="{i}">{"".join(cells)}</row>')
     dim = f"A1:{cell_name(max(len(ns.rows), 1), max(max_col, 1))}"
-    cols = ""
-    if ns.widths:
-        cols = "<cols>" + "".join(
-            f'<col min="{j}" max="{j}" width="{float(w)!r}" customWidth="1"/>'
-            for j, w in enumerate(ns.widths, start=1) if w) + "</cols>"
-        if cols == "<cols></cols>":
-            cols = ""
+    widths = fitted_widths(ns.rows, ns.widths or [])
+    cols = "".join(f'<col min="{j}" max="{j}" width="{float(w)!r}" customWidth="1"/>'
+                   for j, w in enumerate(widths, start=1) if w)
+    cols = f"<cols>{cols}</cols>" if cols else ""
     return (
         '<?xml version="1.0" encoding="UTF-8" standalone="yes"?>\n'
         f'<worksheet xmlns="{NS_MAIN}" xmlns:r="{NS_REL}">'
+        # printed landscape, one page wide, as many pages down as it takes (18.3.1.65)
+        '<sheetPr><pageSetUpPr fitToPage="1"/></sheetPr>'
         f'<dimension ref="{dim}"/><sheetViews><sheetView workbookViewId="0"/></sheetViews>'
         f'<sheetFormatPr defaultRowHeight="15"/>{cols}<sheetData>{"".join(rows_xml)}</sheetData>'
         '<pageMargins left="0.7" right="0.7" top="0.75" bottom="0.75" header="0.3" footer="0.3"/>'
+        '<pageSetup orientation="landscape" fitToWidth="1" fitToHeight="0"/>'
         "</worksheet>"
     ).encode()
+
+
+MAX_FITTED_WIDTH = 60.0  # characters; longer text wraps onto the next column's space anyway
+
+
+def _shown(value: object) -> str:
+    value = value.value if isinstance(value, Styled) else value
+    if value is None or isinstance(value, (dt.date, dt.datetime)):
+        return ""  # dates show in their (short) number format
+    return value if isinstance(value, str) else str(value)
+
+
+def fitted_widths(rows: list[list[object]], widths: list[float]) -> list[float]:
+    """Column widths (characters) wide enough for text that has a value to its right.
+
+    Text beside an empty cell runs on into it, as spreadsheet programs show it; text
+    beside a value would be cut off, so its column is widened (up to
+    ``MAX_FITTED_WIDTH``; the bold first row counts a tenth wider).
+
+    Examples
+    --------
+    >>> fitted_widths([["Title"], ["Volatility measure", "ATR"], ["A long sentence alone"]],
+    ...               [10])
+    [20.0]
+    """
+    out = [float(w or 0) for w in widths]
+    for i, row in enumerate(rows):
+        for j, value in enumerate(row[:-1]):
+            if _shown(row[j + 1]) == "":
+                continue
+            need = min(len(_shown(value)) * (1.1 if i == 0 else 1.0) + 2, MAX_FITTED_WIDTH)
+            out.extend([0.0] * (j + 1 - len(out)))
+            if need > out[j] and _shown(value):
+                out[j] = round(need, 1)
+    return out
+
+
+def add_print_titles(workbook_xml: str, index: int, name: str) -> str:
+    """Repeat row 1 of sheet number ``index`` (0-based) on every printed page.
+
+    A ``_xlnm.Print_Titles`` defined name local to the sheet (ECMA-376 Part 1, 18.2.6);
+    one the sheet already has is left as it is.
+
+    Examples
+    --------
+    >>> print(add_print_titles('<workbook><sheets/><calcPr/></workbook>', 0, "Review"))
+    <workbook><sheets/><definedNames><definedName name="_xlnm.Print_Titles" \
+localSheetId="0">'Review'!$1:$1</definedName></definedNames><calcPr/></workbook>
+    """
+    root = re.search(r"<([\w.\-]+:)?workbook(?=[\s>])", workbook_xml)
+    p = (root[1] if root else "") or ""
+    for m in re.finditer(rf"<{re.escape(p)}definedName\b[^>]*>", workbook_xml):
+        if ("_xlnm.Print_Titles" in m[0]
+                and re.search(rf'localSheetId\s*=\s*["\']{index}["\']', m[0])):
+            return workbook_xml
+    quoted = "'" + name.replace("'", "''") + "'"
+    entry = (f'<{p}definedName name="_xlnm.Print_Titles" localSheetId="{index}">'
+             f"{escape_text(quoted)}!$1:$1</{p}definedName>")
+    end = re.search(rf"</{re.escape(p)}definedNames>", workbook_xml)
+    if end:
+        return workbook_xml[:end.start()] + entry + workbook_xml[end.start():]
+    block = f"<{p}definedNames>{entry}</{p}definedNames>"
+    # definedNames follows sheets (and functionGroups, externalReferences): 18.2.27
+    after = None
+    for tag in ("externalReferences", "functionGroups", "sheets"):
+        after = (re.search(rf"</{re.escape(p)}{tag}>", workbook_xml)
+                 or re.search(rf"<{re.escape(p)}{tag}\b[^>]*/>", workbook_xml))
+        if after:
+            break
+    if after is None:
+        raise ValueError("workbook part without a sheet list")
+    return workbook_xml[:after.end()] + block + workbook_xml[after.end():]

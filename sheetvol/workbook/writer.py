@@ -64,7 +64,12 @@ from sheetvol.workbook._rowedit import (
     text_cell,
 )
 from sheetvol.workbook._safety import read_part
-from sheetvol.workbook._sheetparts import edit_head, new_sheet_xml, set_first_attr
+from sheetvol.workbook._sheetparts import (
+    add_print_titles,
+    edit_head,
+    new_sheet_xml,
+    set_first_attr,
+)
 from sheetvol.workbook._sheetxml import (
     Patterns,
     SheetStream,
@@ -73,6 +78,7 @@ from sheetvol.workbook._sheetxml import (
     col_letters,
     escape_text,
     parse_ref,
+    unescape,
 )
 from sheetvol.workbook._styles import MINIMAL_STYLES, StyleBook
 from sheetvol.workbook._zipcopy import (
@@ -220,7 +226,11 @@ class _Job:
                 self.add_part(part, MINIMAL_STYLES, CT_STYLES, REL_STYLES, "styles.xml")
                 self.styles = StyleBook(MINIMAL_STYLES)
             else:
-                self.styles = StyleBook(self.part(part))
+                try:
+                    self.styles = StyleBook(self.part(part))
+                except WorkbookError as exc:
+                    raise WorkbookError(f"{self.file}: {part}: {exc}; open the workbook in its "
+                                        "spreadsheet program and save it again") from None
             self.styles_part = part
         return self.styles
 
@@ -299,6 +309,8 @@ class _Job:
             self._tables(part, [e for e in edits if isinstance(e, NewColumn)])
         for sheet in self.new_sheets:
             self._new_sheet(sheet)
+        if self.new_sheets:
+            self._print_titles()
         if self.charts:
             self._charts()
         self._calc_chain()
@@ -389,7 +401,8 @@ class _Job:
             if not self._is_ours(existing, ns):
                 raise WorkbookError(
                     f"{self.file} already has a sheet named {existing.name!r} that sheetvol did "
-                    "not write; rename that sheet or choose another name.")
+                    "not write, and sheetvol writes its own sheet under that name; rename "
+                    "that sheet (or move it to another workbook) and run again.")
             self.replaced[existing.part] = xml
             self.new_sheet_parts[name.casefold()] = existing.part
             return
@@ -560,6 +573,19 @@ class _Job:
             return False
         a1 = self.pkg.read_range(info.name, 1, 1, 1, 1)[0][0]
         return a1 is not None and str(a1) == str(ns.rows[0][0])
+
+    def _print_titles(self) -> None:
+        """Row 1 of each new sheet repeated on every printed page."""
+        part = self.pkg.workbook_part
+        text = self.part(part).decode("utf-8")
+        names = [unescape(m[1].encode()).casefold() for m in re.finditer(
+            r"<(?:[\w.\-]+:)?sheet\b[^>]*?\sname\s*=\s*[\"']([^\"']*)", text)]
+        new = text
+        for ns in self.new_sheets:
+            if ns.name.casefold() in names:
+                new = add_print_titles(new, names.index(ns.name.casefold()), ns.name)
+        if new != text:
+            self.replaced[part] = new.encode("utf-8")
 
     def _workbook_sheet(self, name: str, rid: str) -> None:
         part = self.pkg.workbook_part
