@@ -61,22 +61,17 @@ _NEGLIGIBLE = 1e-30
 
 
 def _weights(r: float, scale: float) -> tuple[FloatArray, FloatArray]:
-    """The matrices of one block: local ends, and the block from its inputs and carry.
+    """The matrices of one block of the recursion (see :func:`_recur_into`).
 
-    ``ends`` (length L): weight of input k in the block's last value, ``scale r^(L-1-k)``.
-    ``block`` (L+1 by L): row k < L holds ``scale r^(j-k)`` for outputs j >= k, the last
-    row ``r^(j+1)``, the weight of the value carried in from the block before.
+    ``block`` (L by L): ``scale r^(j-k)``, the weight of input k in output j >= k.
+    ``ends`` (length L): its last column, the weights of the block's last output.
     """
     size = _RECURSION_BLOCK
     j = np.arange(size)
     lag = j[None, :] - j[:, None]
-    block = np.zeros((size + 1, size))
-    block[:size] = np.where(lag >= 0, r ** np.maximum(lag, 0).astype(np.float64), 0.0) * scale
-    block[size] = r ** (j + 1.0)
-    ends = block[:size, -1].copy()
+    block = np.where(lag >= 0, r ** np.maximum(lag, 0).astype(np.float64), 0.0) * scale
     block[np.abs(block) < _NEGLIGIBLE] = 0.0
-    ends[np.abs(ends) < _NEGLIGIBLE] = 0.0
-    return ends, block
+    return np.ascontiguousarray(block[:, -1]), block
 
 
 def _recur_into(
@@ -85,48 +80,45 @@ def _recur_into(
     """``out_t = shift + e_t`` with ``e_t = r e_(t-1) + scale (x_t - shift)``, ``e_(-1) = 0``.
 
     ``x`` and ``out`` are contiguous 1-D float64 arrays of one length (``out`` may be
-    ``x``). The series is cut into blocks of 16 values. Within a block the recursion
-    is a fixed 16 by 16 matrix of powers of ``r``; one more row adds the value
-    carried in from the block before. So: (1) every block's end from its own inputs
-    (one matrix-vector product), (2) the true ends, which follow the same recursion
-    with factor ``r^16`` over a sixteenth of the values (solved by this function
-    again), (3) every block from its inputs and the carried end (one matrix
+    ``x``). The series is cut into blocks of 16 values; within a block the recursion
+    is a fixed 16 by 16 matrix of powers of ``r``. So: (1) every block's last value
+    from its own inputs (a matrix-vector product), (2) the true block ends, which
+    follow the same recursion with factor ``r^16`` over a sixteenth of the values
+    (solved by this function again), (3) every block from its inputs, the end of the
+    block before entering as ``r E / scale`` added to the first input (one matrix
     product). Steps 1 and 3 run over ``_RECURSION_ROWS`` blocks at a time, so the
-    working set stays in the CPU cache whatever the length (three sweeps over the
+    working set stays in the CPU cache whatever the length (a few sweeps over the
     data, instead of the many strided ones a position-by-position recursion makes),
     and each product stays small enough that the BLAS library runs it on one thread.
     """
     n, size, rows = len(x), _RECURSION_BLOCK, _RECURSION_ROWS
     n_blocks = n // size
     acc = 0.0
-    if n_blocks >= 2:
+    start = 0
+    if n_blocks >= 2 and scale != 0.0:
         full = n_blocks * size
         xb = x[:full].reshape(n_blocks, size)
         ob = out[:full].reshape(n_blocks, size)
         ends_w, block_w = _weights(r, scale)
-        work = np.empty((min(rows, n_blocks), size + 1))
         ends = np.empty(n_blocks)
-        for b0 in range(0, n_blocks, rows):
+        for b0 in range(0, n_blocks, rows):  # (1); ob holds the deviations until (3)
             b1 = min(b0 + rows, n_blocks)
-            w = work[: b1 - b0, :size]
-            np.subtract(xb[b0:b1], shift, out=w)
-            np.matmul(w, ends_w, out=ends[b0:b1])
-        # True ends: E_b = local_b + r^16 E_(b-1); the carry into block b is E_(b-1).
-        if r**size >= _NEGLIGIBLE:  # else the carry across a whole block is nil
+            np.subtract(xb[b0:b1], shift, out=ob[b0:b1])
+            np.matmul(ob[b0:b1], ends_w, out=ends[b0:b1])
+        if r**size >= _NEGLIGIBLE:  # (2); else nothing is carried across a whole block
             _recur_into(ends, ends, r**size)
-        for b0 in range(0, n_blocks, rows):
+        work = np.empty((min(rows, n_blocks), size))
+        carry = r / scale
+        for b0 in range(0, n_blocks, rows):  # (3)
             b1 = min(b0 + rows, n_blocks)
-            w = work[: b1 - b0]
-            np.subtract(xb[b0:b1], shift, out=w[:, :size])
-            w[0, size] = ends[b0 - 1] if b0 else 0.0
-            w[1:, size] = ends[b0 : b1 - 1]
-            np.matmul(w, block_w, out=ob[b0:b1])
-            if shift:
-                ob[b0:b1] += shift
+            dev, w = ob[b0:b1], work[: b1 - b0]
+            if b0:
+                dev[0, 0] += carry * ends[b0 - 1]
+            dev[1:, 0] += carry * ends[b0 : b1 - 1]
+            np.matmul(dev, block_w, out=w)
+            np.add(w, shift, out=dev)
         acc = float(ends[-1])
         start = full
-    else:
-        start = 0
     # What is left (short series, the last partial block): plain loop.
     for i in range(start, n):
         acc = r * acc + scale * (float(x[i]) - shift)
@@ -165,13 +157,16 @@ def linear_recurrence(u: FloatArray, r: float) -> FloatArray:
 
 
 def recursive_average(
-    values: FloatArray, alpha: float, start: int, seed_value: float
+    values: FloatArray,
+    alpha: float,
+    start: int,
+    seed_value: float,
+    out: FloatArray | None = None,
 ) -> FloatArray:
     """Run ``m_t = m_{t-1} + alpha (x_t - m_{t-1})`` from ``m_start = seed_value``.
 
     Vectorised by the blocked solver of :func:`linear_recurrence` (no Python loop
-    per bar), in one sweep over the data. The recursion runs on deviations from the
-    seed, ``m_t = seed + e_t`` with
+    per bar). The recursion runs on deviations from the seed, ``m_t = seed + e_t`` with
     ``e_t = (1 - alpha) e_{t-1} + alpha (x_t - seed)``, which keeps more digits
     when prices are large and moves small.
 
@@ -185,6 +180,9 @@ def recursive_average(
         Index of the first output; earlier rows are NaN.
     seed_value : float
         The average on bar ``start``.
+    out : numpy.ndarray, optional
+        Where to write the result (contiguous float64, the length of ``values``);
+        may be ``values`` itself, which saves a fresh array on long series.
 
     Returns
     -------
@@ -197,7 +195,8 @@ def recursive_average(
     array([  nan, 1.5  , 2.25 , 3.125])
     """
     x = np.ascontiguousarray(as_series(values))
-    out = np.empty(len(x))
+    if out is None:
+        out = np.empty(len(x))
     out[:start] = np.nan
     if start >= len(x):
         return out
@@ -206,7 +205,9 @@ def recursive_average(
     return out
 
 
-def average_of(prices: FloatArray, period: int, kind: str, seed: str) -> FloatArray:
+def average_of(
+    prices: FloatArray, period: int, kind: str, seed: str, overwrite: bool = False
+) -> FloatArray:
     """:func:`moving_average` on finite prices with checked options (no gap handling).
 
     For kernels that already run inside ``skip_gaps`` and need an average.
@@ -221,6 +222,9 @@ def average_of(prices: FloatArray, period: int, kind: str, seed: str) -> FloatAr
         One of :data:`KINDS`.
     seed : str
         One of :data:`SEEDS`.
+    overwrite : bool, default False
+        The recursive kinds may write their result into ``prices`` (a contiguous
+        scratch array of the caller's), which saves a fresh array on long series.
 
     Returns
     -------
@@ -240,11 +244,12 @@ def average_of(prices: FloatArray, period: int, kind: str, seed: str) -> FloatAr
     if kind == "linear":
         return window_linear(prices, period)
     alpha = smoothing_factor(kind, period)
+    out = prices if overwrite else None
     if seed == "average":
         # Seed = mean of the first N values (taken from the accurate window mean).
-        first_mean = window_mean(prices[:period], period)[-1]
-        return recursive_average(prices, alpha, period - 1, first_mean)
-    out = recursive_average(prices, alpha, 0, prices[0])
+        first_mean = float(window_mean(prices[:period], period)[-1])
+        return recursive_average(prices, alpha, period - 1, first_mean, out)
+    out = recursive_average(prices, alpha, 0, float(prices[0]), out)
     out[: period - 1] = np.nan
     return out
 
