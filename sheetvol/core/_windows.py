@@ -185,13 +185,19 @@ class _Grid:
     def column(self, b: int) -> FloatArray:
         return self.view[:, b] if b < self.whole else self.last  # type: ignore[return-value]
 
-    def put(self, out: FloatArray, b0: int, b1: int) -> None:
-        """Copy blocks b0..b1-1 into the columns of ``out``."""
+    def put(self, out: FloatArray, b0: int, b1: int, minus: FloatArray | None = None) -> None:
+        """Copy blocks b0..b1-1 into the columns of ``out``, less ``minus`` per column."""
         top = min(b1, self.whole)
+        if minus is None:
+            if top > b0:
+                out[:, : top - b0] = self.view[:, b0:top]
+            if b1 > self.whole:
+                out[:, -1] = self.last
+            return
         if top > b0:
-            out[:, : top - b0] = self.view[:, b0:top]
+            np.subtract(self.view[:, b0:top], minus[: top - b0], out=out[:, : top - b0])
         if b1 > self.whole:
-            out[:, -1] = self.last
+            np.subtract(self.last, minus[-1], out=out[:, -1])
 
 
 def _engine(
@@ -243,9 +249,11 @@ def _engine(
         # Wide chunks: one row per position (row loop); narrow: one contiguous block
         # per column (numpy's cumulative sum); every later step follows this order.
         y = y_buf if m == cols else np.empty((period, m + 1), order=order)
-        gx.put(y[:, 1:], b0, b1)
-        y[:, 0] = gx.column(b0 - 1) if b0 else sh[0]
-        y -= sh
+        gx.put(y[:, 1:], b0, b1, minus=sh[1:])  # deviations from each block's shift
+        if b0:
+            np.subtract(gx.column(b0 - 1), sh[0], out=y[:, 0])
+        else:
+            y[:, 0] = 0.0
         d = sh[:-1] - sh[1:]  # moves the older part onto the newer block's shift
         kd, t1, t2, t3, t4 = (w if m == cols else w[:, :m] for w in work)
         np.multiply(k, d, out=kd)
@@ -300,7 +308,8 @@ def _engine(
         s2 += kd
         np.multiply(s1, mean, out=s1)
         s2 -= s1  # minus N * (mean - shift)^2
-        np.maximum(s2, 0.0, out=s2)  # rounding may give -1e-30
+        # Rounding may leave s2 a hair below 0 on a flat window: such windows are below
+        # their bound and recomputed by _refine (and their square roots ignored).
         if mode == "deviation" and gl is not None:
             # mean - level in the local frame: (level - shift) is exact nearby.
             gap = kd
@@ -325,7 +334,8 @@ def _engine(
             s2 /= big_n  # the same roundings as window_mean_var, so callers can mix them
             if sample:
                 s2 *= big_n / (big_n - 1.0)
-            np.sqrt(s2, out=grids[0][:, here])
+            with np.errstate(invalid="ignore"):
+                np.sqrt(s2, out=grids[0][:, here])
     for o in outs:
         o[: period - 1] = np.nan
     outs = [o[:n] for o in outs]

@@ -101,22 +101,23 @@ def _recur_into(
         ob = out[:full].reshape(n_blocks, size)
         ends_w, block_w = _weights(r, scale)
         ends = np.empty(n_blocks)
-        for b0 in range(0, n_blocks, rows):  # (1); ob holds the deviations until (3)
+        work = np.empty((min(rows, n_blocks), size))
+        for b0 in range(0, n_blocks, rows):  # (1)
             b1 = min(b0 + rows, n_blocks)
-            np.subtract(xb[b0:b1], shift, out=ob[b0:b1])
-            np.matmul(ob[b0:b1], ends_w, out=ends[b0:b1])
+            dev = np.subtract(xb[b0:b1], shift, out=work[: b1 - b0])
+            np.matmul(dev, ends_w, out=ends[b0:b1])
         if r**size >= _NEGLIGIBLE:  # (2); else nothing is carried across a whole block
             _recur_into(ends, ends, r**size)
-        work = np.empty((min(rows, n_blocks), size))
         carry = r / scale
-        for b0 in range(0, n_blocks, rows):  # (3)
+        for b0 in range(0, n_blocks, rows):  # (3); x is read again rather than stored
             b1 = min(b0 + rows, n_blocks)
-            dev, w = ob[b0:b1], work[: b1 - b0]
+            dev = np.subtract(xb[b0:b1], shift, out=work[: b1 - b0])
             if b0:
                 dev[0, 0] += carry * ends[b0 - 1]
             dev[1:, 0] += carry * ends[b0 : b1 - 1]
-            np.matmul(dev, block_w, out=w)
-            np.add(w, shift, out=dev)
+            np.matmul(dev, block_w, out=ob[b0:b1])
+            if shift:
+                ob[b0:b1] += shift
         acc = float(ends[-1])
         start = full
     # What is left (short series, the last partial block): plain loop.
