@@ -319,10 +319,11 @@ def _engine(
             gap *= gap
             gap *= big_n
             s2 += gap
-        low = s2 < bound
-        if low.any():
-            rows, cols_ = np.nonzero(low)
-            flagged.append((b0 + cols_) * period + rows)
+        # Blocks with a window below its bound: a reduction first, rows only for those.
+        few = np.flatnonzero(s2.min(axis=0) < bound)
+        if len(few):
+            rows, at = np.nonzero(s2[:, few] < bound[few])
+            flagged.append((b0 + few[at]) * period + rows)
         if mode == "moments":
             np.add(mean, sh[1:], out=grids[0][:, here])
             np.divide(s2, big_n, out=grids[1][:, here])

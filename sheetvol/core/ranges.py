@@ -87,17 +87,19 @@ def true_range_of(
     # both round the same largest difference of two prices. Three operations, run
     # chunk by chunk so the scratch stays in the CPU cache on long columns.
     part = np.empty(min(n - 1, _CHUNK))
+    inverted = np.empty(len(part), dtype=bool)
     for i in range(1, n, _CHUNK):
         j = min(i + _CHUNK, n)
-        prev, tr, lower = close[i - 1 : j - 1], out[i:j], part[: j - i]
-        np.maximum(high[i:j], prev, out=tr)
-        np.minimum(low[i:j], prev, out=lower)
-        tr -= lower
-    # A bar with its high below its low breaks that identity: keep the definition there.
-    bad = np.flatnonzero(high[1:] < low[1:]) + 1
-    if len(bad):
-        h, lo, prev = high[bad], low[bad], close[bad - 1]
-        out[bad] = np.maximum(np.maximum(h - lo, np.abs(h - prev)), np.abs(lo - prev))
+        h, lo, prev, tr = high[i:j], low[i:j], close[i - 1 : j - 1], out[i:j]
+        np.maximum(h, prev, out=tr)
+        np.minimum(lo, prev, out=part[: j - i])
+        tr -= part[: j - i]
+        # A bar with its high below its low breaks that identity: keep the definition.
+        bad = np.less(h, lo, out=inverted[: j - i])
+        if bad.any():
+            k = np.flatnonzero(bad)
+            hk, lk, pk = h[k], lo[k], prev[k]
+            tr[k] = np.maximum(np.maximum(hk - lk, np.abs(hk - pk)), np.abs(lk - pk))
     out[0] = high[0] - low[0] if first_bar == "high-low" else np.nan
     return out
 
