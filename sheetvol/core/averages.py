@@ -16,6 +16,8 @@ average carries on over the remaining bars (see ``sheetvol.core._gaps``).
 
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 
 from sheetvol.core._gaps import as_series, skip_gaps
@@ -60,18 +62,23 @@ _RECURSION_ROWS = 1024
 _NEGLIGIBLE = 1e-30
 
 
+@functools.lru_cache(maxsize=64)
 def _weights(r: float, scale: float) -> tuple[FloatArray, FloatArray]:
     """The matrices of one block of the recursion (see :func:`_recur_into`).
 
     ``block`` (L by L): ``scale r^(j-k)``, the weight of input k in output j >= k.
     ``ends`` (length L): its last column, the weights of the block's last output.
+    Kept for reuse (read only): a long series asks for the same few factors again.
     """
     size = _RECURSION_BLOCK
     j = np.arange(size)
     lag = j[None, :] - j[:, None]
     block = np.where(lag >= 0, r ** np.maximum(lag, 0).astype(np.float64), 0.0) * scale
     block[np.abs(block) < _NEGLIGIBLE] = 0.0
-    return np.ascontiguousarray(block[:, -1]), block
+    ends = np.ascontiguousarray(block[:, -1])
+    block.setflags(write=False)
+    ends.setflags(write=False)
+    return ends, block
 
 
 def _recur_into(
