@@ -7,6 +7,14 @@ otherwise. Each kernel runs at two periods to show that its cost does not grow
 with the period. An accuracy section compares the rolling deviation of
 sheetvol, TA-Lib and pandas with exact arithmetic (Python's ``statistics``) on
 sampled windows of long walks near 100 and near 1e7.
+
+A targets section then prints one verdict line per target of the recursive
+kernels and the dispersion (met / not met, with the ratio measured in this run):
+cost per bar at the large size within 1.25x of the small size (``--scaling``),
+within 6x of TA-Lib (4x for the dispersion) at ``--bars``. Their accuracy is
+asserted against TA-Lib, plain Python loops and exact sums: the run stops with
+an error if it is off. The speed verdicts depend on the machine and its load and
+do not change the exit code.
 """
 
 from __future__ import annotations
@@ -146,18 +154,26 @@ def cases() -> list[Case]:
     return out
 
 
-def best_ms(fns: list[Callable[[], Any]], repeat: int) -> list[float]:
-    """Best wall time of each function over ``repeat`` rounds, in milliseconds.
+CLOCKS = {"cpu": time.process_time, "wall": time.perf_counter}
+
+
+def best_ms(fns: list[Callable[[], Any]], repeat: int, clock: str = "cpu") -> list[float]:
+    """Best time of each function over ``repeat`` rounds, in milliseconds.
 
     The functions take turns within each round, so a busy machine slows them alike
-    and the ratios stay fair.
+    and the ratios stay fair. ``clock="cpu"`` (the default) counts the processor time
+    of this process (``time.process_time``: user and system, page faults included),
+    which on a shared machine leaves out the time other jobs hold the core; every
+    kernel and reference here runs on one thread, so on a free core it equals the
+    wall time. ``clock="wall"`` counts elapsed time.
     """
+    tick = CLOCKS[clock]
     best = [math.inf] * len(fns)
     for _ in range(repeat):
         for i, fn in enumerate(fns):
-            start = time.perf_counter()
+            start = tick()
             fn()
-            best[i] = min(best[i], time.perf_counter() - start)
+            best[i] = min(best[i], tick() - start)
     return [b * 1e3 for b in best]
 
 
@@ -186,10 +202,187 @@ def accuracy(n: int, samples: int = 200) -> list[tuple[str, str, float]]:
     return rows
 
 
-def run(bars: int, repeat: int, periods: tuple[int, ...]) -> None:
-    """Print the timing table and the accuracy table."""
+# -- targets of the recursive kernels and the dispersion ---------------------------------
+SCALING_LIMIT = 1.25  # ns per bar at the large size over ns per bar at the small size
+RECURSION_LIMIT = 6.0  # our time over TA-Lib's, recursive kernels
+DISPERSION_LIMIT = 4.0  # our time over TA-Lib's STDDEV
+RECURSION_ACCURACY = 1e-13  # worst relative difference from TA-Lib or a plain loop
+DISPERSION_ACCURACY = 1e-14  # worst relative error against exact sums
+
+
+@dataclass(frozen=True)
+class Target:
+    """A kernel held to a target, with the TA-Lib computation it is compared with."""
+
+    name: str
+    ours: Callable[[Bars], Any]
+    ref_name: str
+    ref: Callable[[Bars], Any]
+    limit: float
+
+
+def _pieces(result: Any) -> list[np.ndarray]:
+    return list(result) if isinstance(result, tuple) else [result]
+
+
+def targets(ta: Any) -> list[Target]:
+    """The kernels of the targets; each reference is TA-Lib doing the same work."""
+    from sheetvol.core.bands import atr_bands
+    from sheetvol.core.ranges import average_true_range
+
+    hlc = ("high", "low", "close")
+
+    def ta_exp_dispersion(b: Bars) -> np.ndarray:
+        # Deviation about the EMA from TA-Lib's pieces: var + (window mean - EMA)^2.
+        c = b["close"]
+        gap = ta.SMA(c, 14) - ta.EMA(c, 14)
+        return np.sqrt(ta.STDDEV(c, 14, 1) ** 2 + gap * gap)
+
+    def ta_atr_bands(b: Bars) -> tuple[np.ndarray, ...]:
+        middle = ta.EMA(b["close"], 20)
+        atr = ta.ATR(*(b[k] for k in hlc), 10)
+        return middle, middle + 2.0 * atr, middle - 2.0 * atr
+
+    return [
+        Target("EMA, period 14", lambda b: moving_average(b["close"], 14, "exponential"),
+               "talib.EMA(14)", lambda b: ta.EMA(b["close"], 14), RECURSION_LIMIT),
+        # Wilder's alpha 1/N is TA-Lib's EMA alpha 2/(M+1) with M = 2N - 1.
+        Target("Wilder average, period 14", lambda b: moving_average(b["close"], 14, "wilder"),
+               "talib.EMA(27)", lambda b: ta.EMA(b["close"], 27), RECURSION_LIMIT),
+        Target("ATR, period 14", lambda b: average_true_range(*(b[k] for k in hlc), 14),
+               "talib.ATR(14)", lambda b: ta.ATR(*(b[k] for k in hlc), 14), RECURSION_LIMIT),
+        Target("dispersion about the EMA, 14",
+               lambda b: dispersion(b["close"], 14, "exponential"),
+               "talib STDDEV, SMA, EMA", ta_exp_dispersion, RECURSION_LIMIT),
+        Target("ATR bands (20, 2, 10)", lambda b: atr_bands(*(b[k] for k in hlc)),
+               "talib EMA + ATR", ta_atr_bands, RECURSION_LIMIT),
+        Target("dispersion simple, period 14", lambda b: dispersion(b["close"], 14),
+               "talib.STDDEV(14)", lambda b: ta.STDDEV(b["close"], 14, 1), DISPERSION_LIMIT),
+        Target("dispersion simple, period 200", lambda b: dispersion(b["close"], 200),
+               "talib.STDDEV(200)", lambda b: ta.STDDEV(b["close"], 200, 1), DISPERSION_LIMIT),
+    ]
+
+
+def _loop_average(x: np.ndarray, alpha: float, period: int) -> np.ndarray:
+    """Plain Python m += alpha (x - m), seeded with the exact mean of the first N."""
+    out = [math.nan] * len(x)
+    m = math.fsum(x[:period].tolist()) / period
+    out[period - 1] = m
+    for t, value in enumerate(x[period:].tolist(), start=period):
+        m = m + alpha * (value - m)
+        out[t] = m
+    return np.array(out)
+
+
+def _worst(got: np.ndarray, want: np.ndarray, skip: int = 0) -> float:
+    got, want = got[skip:], want[skip:]
+    ok = np.isfinite(want) & (want != 0)
+    if not np.array_equal(np.isfinite(got), np.isfinite(want)):
+        return math.inf
+    return float(np.max(np.abs(got[ok] - want[ok]) / np.abs(want[ok])))
+
+
+def target_accuracy(data: Bars, ta: Any) -> list[tuple[str, str, float, float]]:
+    """Worst relative differences of the target kernels from outside references.
+
+    Returns rows of (kernel, reference, worst, limit). TA-Lib's EMA and ATR are plain
+    loops in C; the Wilder average is checked against a plain Python loop; the
+    dispersions against two passes with exact sums (``math.fsum``) on sampled windows
+    (about the window mean, and about our EMA for the one about the EMA).
+    """
+    from sheetvol.core.bands import atr_bands
+    from sheetvol.core.ranges import average_true_range
+
+    c = data["close"]
+    hlc = [data[k] for k in ("high", "low", "close")]
+    n = len(c)
+    rows = [
+        ("EMA, period 14", "talib.EMA",
+         _worst(moving_average(c, 14, "exponential"), ta.EMA(c, 14)), RECURSION_ACCURACY),
+        ("Wilder average, period 14", "plain Python loop",
+         _worst(moving_average(c, 14, "wilder"), _loop_average(c, 1 / 14, 14)),
+         RECURSION_ACCURACY),
+        # TA-Lib's ATR leaves the first bar out, as first_bar="blank" does.
+        ("ATR, period 14", "talib.ATR",
+         _worst(average_true_range(*hlc, 14, first_bar="blank"), ta.ATR(*hlc, 14)),
+         RECURSION_ACCURACY),
+    ]
+    # ATR bands: after the seeding transient of the default first bar (1e-3 of the
+    # start-up difference is left after 100 bars at period 10).
+    middle, upper, lower = atr_bands(*hlc)
+    ta_middle, ta_atr = ta.EMA(c, 20), ta.ATR(*hlc, 10)
+    rows.append(("ATR bands (20, 2, 10)", "talib EMA, ATR",
+                 max(_worst(middle, ta_middle, 400), _worst(upper, ta_middle + 2.0 * ta_atr, 400),
+                     _worst(lower, ta_middle - 2.0 * ta_atr, 400)),
+                 RECURSION_ACCURACY))
+    rng = np.random.default_rng(5)
+    # The centre of the second is the EMA (checked above): the check is of the window sums.
+    ema = moving_average(c, 14, "exponential")
+    for name, average, level in (("dispersion simple, period 14", "simple", None),
+                                 ("dispersion about the EMA, 14", "exponential", ema)):
+        got = dispersion(c, 14, average)
+        worst = 0.0
+        for t in rng.integers(n - max(n // 10, 14), n, 200):
+            window = c[t - 13 : t + 1]
+            centre = math.fsum(window.tolist()) / 14 if level is None else level[t]
+            exact = math.sqrt(math.fsum(((window - centre) ** 2).tolist()) / 14)
+            worst = max(worst, abs(got[t] - exact) / exact)
+        rows.append((name, "two passes, math.fsum", worst, DISPERSION_ACCURACY))
+    return rows
+
+
+def run_targets(bars: int, repeat: int, scaling: tuple[int, int], clock: str = "cpu") -> None:
+    """Print one verdict line per target and assert the accuracy of the target kernels."""
+    ta = _talib()
+    if ta is None:
+        print("targets: TA-Lib is not installed, no verdicts (pip install ta-lib)")
+        return
+    small, large = scaling
+    print()
+    print(f"Targets ({clock} time; {repeat} rounds, each timing {bars:,} bars twice, "
+          f"{small:,} five times and {large:,} once; best kept; ratios from this run):")
     data = synthetic_bars(bars)
-    print(f"sheetvol benchmark: {bars:,} bars, best of {repeat}, numpy {np.__version__}, "
+    failures = []
+    for name, ref_name, worst, limit in target_accuracy(data, ta):
+        ok = worst <= limit
+        print(f"  accuracy  {name:<30} worst rel. diff {worst:8.1e} from {ref_name:<22} "
+              f"(limit {limit:.0e}): {'met' if ok else 'NOT MET'}")
+        if not ok:
+            failures.append(name)
+    sets = [(data, 2), (synthetic_bars(small, seed=2), 5), (synthetic_bars(large, seed=3), 1)]
+    for tgt in targets(ta):
+        # The sizes take turns round after round, so a change of load hits them alike;
+        # within a round each size runs a few times in a row (its steady state: the
+        # first call after another size pays for memory the allocator gave back).
+        best = [math.inf] * 6
+        for _ in range(repeat):
+            times = []
+            for d, runs in sets:
+                times += best_ms([lambda t=tgt, d=d: t.ours(d), lambda t=tgt, d=d: t.ref(d)],
+                                 runs, clock)
+            best = [min(a, b) for a, b in zip(best, times, strict=True)]
+        ours, ref, mine_s, ref_s, mine_l, ref_l = best
+        ratio = ours / ref
+        verdict = "met" if ratio <= tgt.limit else "NOT MET"
+        print(f"  speed     {tgt.name:<30} {ours:8.2f} ms vs {tgt.ref_name} {ref:7.2f} ms: "
+              f"{ratio:4.1f}x (target {tgt.limit:g}x): {verdict}")
+        small_ns, large_ns = mine_s * 1e6 / small, mine_l * 1e6 / large
+        grow = large_ns / small_ns
+        ref_grow = (ref_l / large) / (ref_s / small)
+        verdict = "met" if grow <= SCALING_LIMIT else "NOT MET"
+        print(f"  scaling   {tgt.name:<30} {small_ns:6.2f} -> {large_ns:6.2f} "
+              f"ns/bar: {grow:4.2f}x (target {SCALING_LIMIT}x; TA-Lib {ref_grow:4.2f}x): "
+              f"{verdict}")
+    if failures:
+        raise AssertionError(f"accuracy target not met: {', '.join(failures)}")
+
+
+def run(bars: int, repeat: int, periods: tuple[int, ...],
+        scaling: tuple[int, int] | None = (100_000, 10_000_000), clock: str = "cpu") -> None:
+    """Print the timing table, the accuracy table and the target verdicts."""
+    data = synthetic_bars(bars)
+    print(f"sheetvol benchmark: {bars:,} bars, best of {repeat} ({clock} time), "
+          f"numpy {np.__version__}, "
           f"pandas {pd.__version__}, python {sys.version.split()[0]}")
     print()
     print(f"| {'kernel':<28} | {'period':>6} | {'ours ms':>8} | {'reference':<28} "
@@ -200,7 +393,7 @@ def run(bars: int, repeat: int, periods: tuple[int, ...]) -> None:
             fns = [lambda c=case, p=period: c.ours(data, p)]
             if case.ref is not None:
                 fns.append(lambda c=case, p=period: c.ref(data, p))
-            times = best_ms(fns, repeat)
+            times = best_ms(fns, repeat, clock)
             ours = times[0]
             if case.ref is None:
                 ref_text, ratio_text = "-", "-"
@@ -217,6 +410,8 @@ def run(bars: int, repeat: int, periods: tuple[int, ...]) -> None:
     print(f"|{'-' * 12}|{'-' * 24}|{'-' * 17}:|")
     for label, name, err in accuracy(bars):
         print(f"| {label:<10} | {name:<22} | {err:16.1e} |")
+    if scaling is not None:
+        run_targets(bars, repeat, scaling, clock)
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -227,10 +422,20 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--repeat", type=int, default=5, help="runs per timing (best is kept)")
     parser.add_argument("--periods", type=int, nargs="+", default=[14, 200],
                         help="periods to time each windowed kernel at")
+    parser.add_argument("--scaling", type=int, nargs=2, default=[100_000, 10_000_000],
+                        metavar=("SMALL", "LARGE"),
+                        help="series lengths whose cost per bar the scaling target compares")
+    parser.add_argument("--clock", choices=sorted(CLOCKS), default="cpu",
+                        help="processor time of this process (default) or elapsed time")
+    parser.add_argument("--no-targets", action="store_true",
+                        help="leave out the targets section (verdicts and accuracy asserts)")
     args = parser.parse_args(argv)
     if args.bars < max(args.periods) + 2 or args.repeat < 1:
         parser.error("--bars must exceed the largest period and --repeat must be at least 1")
-    run(args.bars, args.repeat, tuple(args.periods))
+    if min(args.bars, *args.scaling) < 1000:
+        parser.error("--bars and --scaling need at least 1000 bars (the targets use period 200)")
+    scaling = None if args.no_targets else (args.scaling[0], args.scaling[1])
+    run(args.bars, args.repeat, tuple(args.periods), scaling, args.clock)
     return 0
 
 

@@ -110,16 +110,47 @@ def test_first_seed_converges_to_average_seed(walk):
     np.testing.assert_allclose(a[-1], f[-1], rtol=1e-12)
 
 
-@pytest.mark.parametrize("n", [1, 31, 32, 33, 64, 1025, 40_000])
-@pytest.mark.parametrize("r", [0.0, 1 / 3, 0.9, 0.999, 1.0])
-def test_blocked_recurrence_equals_plain_loop(n, r):
-    # Blocks of 32, carries solved recursively (three levels at 40,000): plain loop oracle.
-    u = np.random.default_rng(n).normal(0.0, 1.0, n)
+def loop_recurrence(u, r):
+    """Plain Python y_t = r y_(t-1) + u_t from y_(-1) = 0 (the oracle of the blocked solver)."""
     want, acc = [], 0.0
-    for value in u:
+    for value in np.asarray(u, dtype=float).tolist():
         acc = r * acc + value
         want.append(acc)
-    np.testing.assert_allclose(linear_recurrence(u, r), want, rtol=1e-11, atol=1e-11)
+    return np.array(want)
+
+
+@pytest.mark.parametrize("n", [1, 15, 16, 17, 31, 32, 33, 64, 1025, 16_385, 40_000])
+@pytest.mark.parametrize("r", [0.0, 1 / 3, 0.9, 0.999, 1.0])
+def test_blocked_recurrence_equals_plain_loop(n, r):
+    # Blocks of 16, carries solved recursively (four levels at 40,000): plain loop oracle.
+    u = np.random.default_rng(n).normal(0.0, 1.0, n)
+    np.testing.assert_allclose(linear_recurrence(u, r), loop_recurrence(u, r),
+                               rtol=1e-11, atol=1e-11)
+
+
+@pytest.mark.parametrize("rows", [2, 3, 7, 64])
+@pytest.mark.parametrize("n", [33, 50, 1000, 5003])
+def test_recurrence_chunk_edges_do_not_change_results(monkeypatch, rows, n):
+    # The solver works through a few blocks at a time; every chunk edge (and the last,
+    # partial block) must carry the value across exactly as the plain loop does.
+    monkeypatch.setattr(averages, "_RECURSION_ROWS", rows)
+    u = np.random.default_rng(rows * n).normal(0.0, 1.0, n)
+    for r in (1 / 3, 13 / 15, 0.995):
+        np.testing.assert_allclose(linear_recurrence(u, r), loop_recurrence(u, r),
+                                   rtol=1e-12, atol=1e-12)
+
+
+@pytest.mark.parametrize("kind", ["exponential", "wilder"])
+def test_recursive_average_equals_plain_loop_on_a_million_bars_near_1e7(long_walk_1e7, kind):
+    # Oracle: the plain loop m += alpha (x - m) over the whole million-bar walk near 1e7
+    # (moves of 0.01), every bar compared: the blocked solver, its chunk edges and its
+    # carries agree with it to about one ulp, with no drift along the series.
+    x = long_walk_1e7
+    period = 20
+    alpha = 2 / (period + 1) if kind == "exponential" else 1 / period
+    got = moving_average(x, period, kind)
+    want = loop_recursive(x, alpha, period, "average")
+    assert_close(got, want, 1e-15)
 
 
 # -- accuracy on long series ---------------------------------------------------------------

@@ -2,14 +2,47 @@
 
 from __future__ import annotations
 
+import re
+
+import pytest
+import talib
+
 from benches import addin as bench_addin
 from benches import kernels as bench
 
 
 def test_kernel_benchmark_runs_and_prints_ratios(capsys):
-    assert bench.main(["--bars", "3000", "--repeat", "1"]) in (0, None)
+    assert bench.main(["--bars", "3000", "--repeat", "1", "--scaling", "2000", "6000"]) in (0, None)
     out = capsys.readouterr().out
     assert "dispersion" in out and "ratio" in out.lower()
+
+
+def test_kernel_benchmark_prints_a_verdict_per_target(capsys):
+    # One line per target: speed against TA-Lib and cost per bar at two sizes, each
+    # with its ratio and "met" or "NOT MET"; accuracy lines for every target kernel.
+    bench.main(["--bars", "3000", "--repeat", "1", "--scaling", "2000", "6000"])
+    lines = capsys.readouterr().out.splitlines()
+    for tgt in bench.targets(talib):
+        for kind in ("speed", "scaling"):
+            found = [ln for ln in lines if ln.split()[:1] == [kind] and tgt.name in ln]
+            assert len(found) == 1, (kind, tgt.name)
+            assert re.search(r"\d+\.\d+x \(target [\d.]+x", found[0])
+            assert found[0].endswith(": met") or found[0].endswith(": NOT MET")
+    accuracy = [ln for ln in lines if ln.split()[:1] == ["accuracy"]]
+    assert len(accuracy) == 6 and all(ln.endswith(": met") for ln in accuracy)
+
+
+def test_kernel_benchmark_stops_when_accuracy_is_off(monkeypatch):
+    # The accuracy of the target kernels is asserted by the benchmark itself: a kernel
+    # that is off by 1e-12 relative makes the run fail.
+    real = bench.moving_average
+
+    def off(prices, period=14, kind="simple", seed="average"):
+        return real(prices, period, kind, seed) * (1.0 + 1e-12)
+
+    monkeypatch.setattr(bench, "moving_average", off)
+    with pytest.raises(AssertionError, match="EMA"):
+        bench.main(["--bars", "3000", "--repeat", "1", "--scaling", "2000", "6000"])
 
 
 def test_addin_benchmark_runs(capsys):

@@ -220,3 +220,16 @@ def test_registry_function_calls_the_kernel(walk):
 
 def test_docstring_examples():
     assert doctest.testmod(dispersion_module).failed == 0
+
+
+def test_a_tiny_deviation_after_a_jump_about_a_warming_average_is_refined():
+    # Found by the property test above: a window whose centre is still warming up in
+    # the same block hid the block's other windows from the accuracy check, and the
+    # rounded-negative variance of the last window came out as NaN. Reference: the
+    # definition, summed exactly with math.fsum (hand-checked case, no library).
+    x = [182.0, 0.0, 0.0, 1.8716707232776688e-06, 0.0]
+    w = x[1:]
+    wma = math.fsum(v * (i + 1) for i, v in enumerate(w)) / 10.0
+    expected = math.sqrt(math.fsum((v - wma) ** 2 for v in w) / 4)
+    got = dispersion(np.array(x), 4, "linear")[-1]
+    assert got == pytest.approx(expected, rel=1e-12)

@@ -178,3 +178,15 @@ def test_talib_ema_is_poisoned_by_one_nan_and_ours_is_not():
     assert np.isnan(talib.EMA(c, N)[100:]).all()
     ours = moving_average(c, N, "exponential")
     assert np.isnan(ours[100]) and np.isfinite(ours[101:]).all()
+
+
+def test_huge_finite_prices_are_not_gaps():
+    # The gap check first sums each column; a sum that overflows to inf must not make
+    # finite bars look like gaps. Hand-worked: the mean of 1e308 and 1e308 is 1e308,
+    # of 1e308 and 5e307 is 7.5e307; nothing is blank.
+    x = np.tile([1e308, 1e308, 5e307], 2000)  # long enough for the check by sums
+    np.testing.assert_array_equal(moving_average(x, 2)[:3] / 1e307, [np.nan, 10.0, 7.5])
+    assert np.isfinite(moving_average(x, 2)[1:]).all()
+    x[1] = np.inf  # a real gap among huge values is still a gap
+    got = moving_average(x, 1)
+    assert np.isnan(got[1]) and got[2] == 5e307 and np.isfinite(np.delete(got, 1)).all()

@@ -199,3 +199,14 @@ def test_atr_scales_by_the_absolute_factor(seed, scale, period):
 def test_docstring_examples():
     result = doctest.testmod(ranges)
     assert result.attempted > 0 and result.failed == 0
+
+
+def test_true_range_equals_the_three_way_definition_bit_for_bit():
+    # Oracle: the definition itself, max(H-L, |H-pC|, |L-pC|), in a plain loop, on bars
+    # that gap up, gap down and stay inside, on 40,000 bars (several chunks). Bars whose
+    # high is below their low are refused (tests/test_bounds.py).
+    _, h, lo, c = random_bars(40_000, seed=7)
+    want = [h[0] - lo[0]] + [
+        max(h[i] - lo[i], abs(h[i] - c[i - 1]), abs(lo[i] - c[i - 1])) for i in range(1, 40_000)
+    ]
+    np.testing.assert_array_equal(true_range(h, lo, c), want)

@@ -185,13 +185,19 @@ class _Grid:
     def column(self, b: int) -> FloatArray:
         return self.view[:, b] if b < self.whole else self.last  # type: ignore[return-value]
 
-    def put(self, out: FloatArray, b0: int, b1: int) -> None:
-        """Copy blocks b0..b1-1 into the columns of ``out``."""
+    def put(self, out: FloatArray, b0: int, b1: int, minus: FloatArray | None = None) -> None:
+        """Copy blocks b0..b1-1 into the columns of ``out``, less ``minus`` per column."""
         top = min(b1, self.whole)
+        if minus is None:
+            if top > b0:
+                out[:, : top - b0] = self.view[:, b0:top]
+            if b1 > self.whole:
+                out[:, -1] = self.last
+            return
         if top > b0:
-            out[:, : top - b0] = self.view[:, b0:top]
+            np.subtract(self.view[:, b0:top], minus[: top - b0], out=out[:, : top - b0])
         if b1 > self.whole:
-            out[:, -1] = self.last
+            np.subtract(self.last, minus[-1], out=out[:, -1])
 
 
 def _engine(
@@ -226,21 +232,31 @@ def _engine(
         cols = max(_GROUPED_CALL // math.isqrt(period), _CHUNK_ELEMENTS // period)
     cols = min(n_blocks, cols)
     flagged: list[np.ndarray] = []
+    # Every chunk works in the same few buffers: fresh temporaries of this size would
+    # each be paged in again (the allocator hands their memory back between chunks).
+    order = "C" if wide else "F"
+    y_buf = np.empty((period, cols + 1), order=order)
+    y2_buf = np.empty((period, cols + 1), order=order) if mode != "linear" else None
+    work = [np.empty((period, cols), order=order) for _ in range(5)]
     for b0 in range(0, n_blocks, cols):
         b1 = min(b0 + cols, n_blocks)
+        m = b1 - b0
         here = slice(b0, b1)
         # Column 0 is the previous block; before block 0 a dummy of zero deviations.
-        sh = np.empty(b1 - b0 + 1)
+        sh = np.empty(m + 1)
         sh[1:] = shift[here]
         sh[0] = shift[b0 - 1] if b0 else shift[0]
         # Wide chunks: one row per position (row loop); narrow: one contiguous block
         # per column (numpy's cumulative sum); every later step follows this order.
-        y = np.empty((period, b1 - b0 + 1), order="C" if wide else "F")
-        gx.put(y[:, 1:], b0, b1)
-        y[:, 0] = gx.column(b0 - 1) if b0 else sh[0]
-        y -= sh
+        y = y_buf if m == cols else np.empty((period, m + 1), order=order)
+        gx.put(y[:, 1:], b0, b1, minus=sh[1:])  # deviations from each block's shift
+        if b0:
+            np.subtract(gx.column(b0 - 1), sh[0], out=y[:, 0])
+        else:
+            y[:, 0] = 0.0
         d = sh[:-1] - sh[1:]  # moves the older part onto the newer block's shift
-        kd = k * d
+        kd, t1, t2, t3, t4 = (w if m == cols else w[:, :m] for w in work)
+        np.multiply(k, d, out=kd)
         if mode == "linear":
             pj = _cumsum_rows(y * pos)
             p1 = _cumsum_rows(y)
@@ -256,19 +272,21 @@ def _engine(
             acc += sh[1:]
             grids[0][:, here] = acc
             continue
-        y2 = y * y if mode in ("moments", "frame", "deviation") else None
+        y2 = None
+        if mode in ("moments", "frame", "deviation"):
+            y2 = y2_buf if m == cols else np.empty((period, m + 1), order=order)
+            np.multiply(y, y, out=y2)
         p1 = _cumsum_rows(y)
-        q1 = _older(p1)
-        s1 = p1[:, 1:] + q1
+        q1 = np.subtract(p1[-1, :-1], p1[:, :-1], out=t1)  # the older part of each window
+        s1 = np.add(p1[:, 1:], q1, out=t2)
         s1 += kd
         if mode == "sum":
             s1 += big_n * sh[1:]
             grids[0][:, here] = s1
             continue
-        mean = s1 / big_n  # the window mean minus the shift
+        mean = np.divide(s1, big_n, out=t3)  # the window mean minus the shift
         if y2 is None:
-            mean += sh[1:]
-            grids[0][:, here] = mean
+            np.add(mean, sh[1:], out=grids[0][:, here])
             continue
         p2 = _cumsum_rows(y2)
         # Size of the terms that cancel in s2, per block: block sums of squares, the
@@ -280,36 +298,47 @@ def _engine(
         bound += 2.0 * np.abs(d) * np.sqrt(big_n * prev_total)
         bound += big_n * d * d
         bound *= _REFINE_RATIO
-        s2 = p2[:, 1:] + _older(p2)
-        s2 += (2.0 * d) * q1
-        s2 += kd * d
-        s2 -= s1 * mean  # minus N * (mean - shift)^2
-        np.maximum(s2, 0.0, out=s2)  # N * population variance; rounding may give -1e-30
+        # s2 = N * population variance in the block's frame, term by term in the
+        # buffers of the terms that are done with.
+        s2 = np.subtract(p2[-1, :-1], p2[:, :-1], out=t4)
+        s2 += p2[:, 1:]
+        np.multiply(q1, 2.0 * d, out=q1)
+        s2 += q1
+        np.multiply(kd, d, out=kd)
+        s2 += kd
+        np.multiply(s1, mean, out=s1)
+        s2 -= s1  # minus N * (mean - shift)^2
+        # Rounding may leave s2 a hair below 0 on a flat window: such windows are below
+        # their bound and recomputed by _refine (and their square roots ignored).
         if mode == "deviation" and gl is not None:
             # mean - level in the local frame: (level - shift) is exact nearby.
-            gap = np.empty_like(mean)
+            gap = kd
             gl.put(gap, b0, b1)
             gap -= sh[1:]
             np.subtract(mean, gap, out=gap)
             gap *= gap
             gap *= big_n
             s2 += gap
-        low = s2 < bound
-        if low.any():
-            rows, cols_ = np.nonzero(low)
-            flagged.append((b0 + cols_) * period + rows)
+        # Blocks with a window below its bound: a reduction first, rows only for those.
+        # fmin skips the NaN of windows whose level is still warming up (a plain min
+        # would be NaN and hide the block's other windows).
+        few = np.flatnonzero(np.fmin.reduce(s2, axis=0) < bound)
+        if len(few):
+            rows, at = np.nonzero(s2[:, few] < bound[few])
+            flagged.append((b0 + few[at]) * period + rows)
         if mode == "moments":
-            grids[0][:, here] = mean + sh[1:]
-            grids[1][:, here] = s2 / big_n
+            np.add(mean, sh[1:], out=grids[0][:, here])
+            np.divide(s2, big_n, out=grids[1][:, here])
         elif mode == "frame":
             grids[0][:, here] = sh[1:]
             grids[1][:, here] = mean
-            grids[2][:, here] = s2 / big_n
+            np.divide(s2, big_n, out=grids[2][:, here])
         else:
             s2 /= big_n  # the same roundings as window_mean_var, so callers can mix them
             if sample:
                 s2 *= big_n / (big_n - 1.0)
-            grids[0][:, here] = np.sqrt(s2, out=s2)
+            with np.errstate(invalid="ignore"):
+                np.sqrt(s2, out=grids[0][:, here])
     for o in outs:
         o[: period - 1] = np.nan
     outs = [o[:n] for o in outs]

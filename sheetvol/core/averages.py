@@ -16,6 +16,8 @@ average carries on over the remaining bars (see ``sheetvol.core._gaps``).
 
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 
 from sheetvol.core._gaps import as_series, skip_gaps
@@ -56,19 +58,93 @@ def smoothing_factor(kind: str, period: int) -> float:
     return 2.0 / (period + 1.0) if kind == "exponential" else 1.0 / period
 
 
-# Block length of the vectorised recursion: short blocks make each numpy call a
-# long strided pass over all blocks at once (measured fastest at 8-32 on 1e6 bars).
-_RECURSION_BLOCK = 32
+# Block length of the recursion, and blocks per matrix product (see _recur_into): 1024
+# blocks of 16 keep a product's data (about 260 KB) in the CPU cache and below the size
+# at which OpenBLAS starts a second thread (measured on 1e5-1e7 values).
+_RECURSION_BLOCK = 16
+_RECURSION_ROWS = 1024
+# Weights below this are dropped: they cannot move a result and subnormal arithmetic is slow.
+_NEGLIGIBLE = 1e-30
+
+
+@functools.lru_cache(maxsize=64)
+def _weights(r: float, scale: float) -> tuple[FloatArray, FloatArray]:
+    """The matrices of one block of the recursion (see :func:`_recur_into`).
+
+    ``block`` (L by L): ``scale r^(j-k)``, the weight of input k in output j >= k.
+    ``ends`` (length L): its last column, the weights of the block's last output.
+    Kept for reuse (read only): a long series asks for the same few factors again.
+    """
+    size = _RECURSION_BLOCK
+    j = np.arange(size)
+    lag = j[None, :] - j[:, None]
+    block = np.where(lag >= 0, r ** np.maximum(lag, 0).astype(np.float64), 0.0) * scale
+    block[np.abs(block) < _NEGLIGIBLE] = 0.0
+    ends = np.ascontiguousarray(block[:, -1])
+    block.setflags(write=False)
+    ends.setflags(write=False)
+    return ends, block
+
+
+def _recur_into(
+    x: FloatArray, out: FloatArray, r: float, scale: float = 1.0, shift: float = 0.0
+) -> None:
+    """``out_t = shift + e_t`` with ``e_t = r e_(t-1) + scale (x_t - shift)``, ``e_(-1) = 0``.
+
+    ``x`` and ``out`` are contiguous 1-D float64 arrays of one length (``out`` may be
+    ``x``). The series is cut into blocks of 16 values; within a block the recursion
+    is a fixed 16 by 16 matrix of powers of ``r``. So: (1) every block's last value
+    from its own inputs (a matrix-vector product), (2) the true block ends, which
+    follow the same recursion with factor ``r^16`` over a sixteenth of the values
+    (solved by this function again), (3) every block from its inputs, the end of the
+    block before entering as ``r E / scale`` added to the first input (one matrix
+    product). Steps 1 and 3 run over ``_RECURSION_ROWS`` blocks at a time, so the
+    working set stays in the CPU cache whatever the length (a few sweeps over the
+    data, instead of the many strided ones a position-by-position recursion makes),
+    and each product stays small enough that the BLAS library runs it on one thread.
+    """
+    n, size, rows = len(x), _RECURSION_BLOCK, _RECURSION_ROWS
+    n_blocks = n // size
+    acc = 0.0
+    start = 0
+    if n_blocks >= 2 and scale != 0.0:
+        full = n_blocks * size
+        xb = x[:full].reshape(n_blocks, size)
+        ob = out[:full].reshape(n_blocks, size)
+        ends_w, block_w = _weights(r, scale)
+        ends = np.empty(n_blocks)
+        work = np.empty((min(rows, n_blocks), size))
+        for b0 in range(0, n_blocks, rows):  # (1)
+            b1 = min(b0 + rows, n_blocks)
+            dev = np.subtract(xb[b0:b1], shift, out=work[: b1 - b0])
+            np.matmul(dev, ends_w, out=ends[b0:b1])
+        if r**size >= _NEGLIGIBLE:  # (2); else nothing is carried across a whole block
+            _recur_into(ends, ends, r**size)
+        carry = r / scale
+        for b0 in range(0, n_blocks, rows):  # (3); x is read again rather than stored
+            b1 = min(b0 + rows, n_blocks)
+            dev = np.subtract(xb[b0:b1], shift, out=work[: b1 - b0])
+            if b0:
+                dev[0, 0] += carry * ends[b0 - 1]
+            dev[1:, 0] += carry * ends[b0 : b1 - 1]
+            np.matmul(dev, block_w, out=ob[b0:b1])
+            if shift:
+                ob[b0:b1] += shift
+        acc = float(ends[-1])
+        start = full
+    # What is left (short series, the last partial block): plain loop.
+    for i in range(start, n):
+        acc = r * acc + scale * (float(x[i]) - shift)
+        out[i] = shift + acc
 
 
 def linear_recurrence(u: FloatArray, r: float) -> FloatArray:
     """Solve ``y_t = r * y_{t-1} + u_t`` with ``y_{-1} = 0``, vectorised and O(n).
 
-    The series is cut into blocks of 32. Each block runs the recursion from zero,
-    all blocks at once (one numpy call per position in the block). The true value
-    carried into each block is itself a recursion over the block ends with factor
-    ``r^32``, solved the same way (recursively, so a Python loop only ever runs
-    over at most 32 values), and added back as ``r^(j+1) * carry``.
+    Blocks of 16 values are solved by small matrix products, the values carried
+    between blocks by the same recursion on the block ends (see ``_recur_into``).
+    Each value is a sum of at most 16 products plus one carry, so the rounding is
+    that of the plain loop (a few ulps), and nothing accumulates along the series.
 
     Parameters
     ----------
@@ -87,50 +163,23 @@ def linear_recurrence(u: FloatArray, r: float) -> FloatArray:
     >>> linear_recurrence([1.0, 1.0, 1.0], 0.5)
     array([1.  , 1.5 , 1.75])
     """
-    out = as_series(u).copy()
-    _recur_in_place(out, r)
+    x = np.ascontiguousarray(as_series(u))
+    out = np.empty_like(x)
+    _recur_into(x, out, float(r))
     return out
 
 
-def _recur_in_place(y: FloatArray, r: float) -> None:
-    """:func:`linear_recurrence` overwriting ``y`` (a contiguous 1-D float64 array)."""
-    n, size = len(y), _RECURSION_BLOCK
-    full = (n // size) * size
-    if full > size:
-        n_blocks = full // size
-        grid = y[:full].reshape(n_blocks, size)  # one row per block, a view of y
-        tmp = np.empty(n_blocks)
-        for j in range(1, size):
-            np.multiply(grid[:, j - 1], r, out=tmp)
-            grid[:, j] += tmp
-        # True value at the end of each block: local end plus r^size times the previous.
-        ends = grid[:, -1].copy()
-        _recur_in_place(ends, r**size)
-        powers = r ** np.arange(1.0, size + 1.0)
-        powers[powers < 1e-30] = 0.0  # negligible, and avoids slow subnormal arithmetic
-        carry = tmp[:-1]
-        for j in range(size):
-            if powers[j] == 0.0:
-                break
-            np.multiply(ends[:-1], powers[j], out=carry)
-            grid[1:, j] += carry
-        start, acc = full, float(y[full - 1])
-    else:
-        start, acc = 0, 0.0
-    if start < n:  # what is left (short series, or the last partial block): plain loop
-        tail = y[start:]
-        for i, value in enumerate(tail.tolist()):
-            acc = r * acc + value
-            tail[i] = acc
-
-
 def recursive_average(
-    values: FloatArray, alpha: float, start: int, seed_value: float
+    values: FloatArray,
+    alpha: float,
+    start: int,
+    seed_value: float,
+    out: FloatArray | None = None,
 ) -> FloatArray:
     """Run ``m_t = m_{t-1} + alpha (x_t - m_{t-1})`` from ``m_start = seed_value``.
 
-    Vectorised through :func:`linear_recurrence` (no Python loop per bar). The
-    recursion runs on deviations from the seed, ``m_t = seed + e_t`` with
+    Vectorised by the blocked solver of :func:`linear_recurrence` (no Python loop
+    per bar). The recursion runs on deviations from the seed, ``m_t = seed + e_t`` with
     ``e_t = (1 - alpha) e_{t-1} + alpha (x_t - seed)``, which keeps more digits
     when prices are large and moves small.
 
@@ -144,6 +193,9 @@ def recursive_average(
         Index of the first output; earlier rows are NaN.
     seed_value : float
         The average on bar ``start``.
+    out : numpy.ndarray, optional
+        Where to write the result (contiguous float64, the length of ``values``);
+        may be ``values`` itself, which saves a fresh array on long series.
 
     Returns
     -------
@@ -155,20 +207,20 @@ def recursive_average(
     >>> recursive_average([1.0, 2.0, 3.0, 4.0], 0.5, 1, 1.5)
     array([  nan, 1.5  , 2.25 , 3.125])
     """
-    x = as_series(values)
-    out = np.full(len(x), np.nan)
+    x = np.ascontiguousarray(as_series(values))
+    if out is None:
+        out = np.empty(len(x))
+    out[:start] = np.nan
     if start >= len(x):
         return out
-    work = out[start:]
-    np.subtract(x[start:], seed_value, out=work)
-    work *= alpha
-    work[0] = 0.0  # the seed itself: no deviation
-    _recur_in_place(work, 1.0 - alpha)
-    work += seed_value
+    out[start] = seed_value
+    _recur_into(x[start + 1 :], out[start + 1 :], 1.0 - alpha, alpha, float(seed_value))
     return out
 
 
-def average_of(prices: FloatArray, period: int, kind: str, seed: str) -> FloatArray:
+def average_of(
+    prices: FloatArray, period: int, kind: str, seed: str, overwrite: bool = False
+) -> FloatArray:
     """:func:`moving_average` on finite prices with checked options (no gap handling).
 
     For kernels that already run inside ``skip_gaps`` and need an average.
@@ -183,6 +235,9 @@ def average_of(prices: FloatArray, period: int, kind: str, seed: str) -> FloatAr
         One of :data:`KINDS`.
     seed : str
         One of :data:`SEEDS`.
+    overwrite : bool, default False
+        The recursive kinds may write their result into ``prices`` (a contiguous
+        scratch array of the caller's), which saves a fresh array on long series.
 
     Returns
     -------
@@ -202,11 +257,12 @@ def average_of(prices: FloatArray, period: int, kind: str, seed: str) -> FloatAr
     if kind == "linear":
         return window_linear(prices, period)
     alpha = smoothing_factor(kind, period)
+    out = prices if overwrite else None
     if seed == "average":
         # Seed = mean of the first N values (taken from the accurate window mean).
-        first_mean = window_mean(prices[:period], period)[-1]
-        return recursive_average(prices, alpha, period - 1, first_mean)
-    out = recursive_average(prices, alpha, 0, prices[0])
+        first_mean = float(window_mean(prices[:period], period)[-1])
+        return recursive_average(prices, alpha, period - 1, first_mean, out)
+    out = recursive_average(prices, alpha, 0, float(prices[0]), out)
     out[: period - 1] = np.nan
     return out
 

@@ -48,12 +48,25 @@ def _deviation_bands(
         # moving_average and dispersion, computed once).
         middle, variance = window_mean_var(prices, period)
         if divisor == "sample":
-            variance = variance * (period / (period - 1.0))
-        deviation = np.sqrt(variance)
+            variance *= period / (period - 1.0)
+        deviation = np.sqrt(variance, out=variance)
     else:
         middle = average_of(prices, period, average, "average")
         deviation = dispersion_of(prices, period, average, divisor, "average")
-    return middle, middle + width * deviation, middle - width * deviation
+    return _around(middle, width, deviation)
+
+
+def _around(middle: FloatArray, width: float, distance: FloatArray) -> Bands:
+    """``middle`` and ``middle +/- width * distance``, reusing ``distance`` for the lower.
+
+    The same roundings as the plain expressions, with no full-length temporaries
+    (each is paged in afresh on long columns).
+    """
+    upper = np.multiply(distance, width)
+    upper += middle
+    lower = np.multiply(distance, -width, out=distance)
+    lower += middle
+    return middle, upper, lower
 
 
 def deviation_bands(
@@ -180,7 +193,7 @@ def _atr_bands(
 ) -> Bands:
     middle = average_of(close, period, "exponential", "average")
     atr = average_true_range_of(high, low, close, atr_period)
-    return middle, middle + width * atr, middle - width * atr
+    return _around(middle, width, atr)
 
 
 def atr_bands(

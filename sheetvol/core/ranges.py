@@ -50,6 +50,8 @@ __all__ = [
 ]
 
 FIRST_BAR = ("high-low", "blank")
+# Bars per step of the true range: the scratch stays in the CPU cache on long columns.
+_CHUNK = 16384
 SMOOTHING = ("simple", "exponential", "wilder")  # by family, as averages.KINDS
 
 
@@ -82,16 +84,23 @@ def true_range_of(
     out = np.empty(n)
     if n == 0:
         return out
-    prev = close[:-1]
-    h, lo, tr = high[1:], low[1:], out[1:]
-    # In place, to keep 1e6-bar columns cheap: tr = max(H-L, |H-pC|, |L-pC|).
-    np.subtract(h, lo, out=tr)
-    part = np.subtract(h, prev)
-    np.abs(part, out=part)
-    np.maximum(tr, part, out=tr)
-    np.subtract(lo, prev, out=part)
-    np.abs(part, out=part)
-    np.maximum(tr, part, out=tr)
+    # max(H-L, |H-pC|, |L-pC|) = max(H, pC) - min(L, pC) for H >= L, and bit for bit:
+    # both round the same largest difference of two prices. Three operations, run
+    # chunk by chunk so the scratch stays in the CPU cache on long columns.
+    part = np.empty(min(n - 1, _CHUNK))
+    inverted = np.empty(len(part), dtype=bool)
+    for i in range(1, n, _CHUNK):
+        j = min(i + _CHUNK, n)
+        h, lo, prev, tr = high[i:j], low[i:j], close[i - 1 : j - 1], out[i:j]
+        np.maximum(h, prev, out=tr)
+        np.minimum(lo, prev, out=part[: j - i])
+        tr -= part[: j - i]
+        # A bar with its high below its low breaks that identity: keep the definition.
+        bad = np.less(h, lo, out=inverted[: j - i])
+        if bad.any():
+            k = np.flatnonzero(bad)
+            hk, lk, pk = h[k], lo[k], prev[k]
+            tr[k] = np.maximum(np.maximum(hk - lk, np.abs(hk - pk)), np.abs(lk - pk))
     out[0] = high[0] - low[0] if first_bar == "high-low" else np.nan
     return out
 
@@ -168,13 +177,12 @@ def average_true_range_of(
     [nan, 2.0]
     """
     tr = true_range_of(high, low, close, first_bar)
-    start = 0 if first_bar == "high-low" else 1
-    if start == 0:
-        return average_of(tr, period, smoothing, seed)
-    out = np.full(len(tr), np.nan)
-    if len(tr) > start:
-        out[start:] = average_of(tr[start:], period, smoothing, seed)
-    return out
+    # The true ranges are ours: the recursive averages overwrite them in place.
+    if first_bar == "high-low":
+        return average_of(tr, period, smoothing, seed, overwrite=True)
+    if len(tr) > 1:
+        tr[1:] = average_of(tr[1:], period, smoothing, seed, overwrite=True)
+    return tr
 
 
 _average_true_range = skip_gaps(3)(average_true_range_of)
