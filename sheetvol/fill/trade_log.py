@@ -78,7 +78,7 @@ _CANONICAL = {"date": "Date", "instrument": "Instrument", "side": "Side", "entry
               "exit": "Exit", "exit_date": "Exit date", "quantity": "Quantity",
               "equity": "Equity"}
 _REQUIRED = ("date", "instrument", "side")
-# Headers this module writes (any parameters): recognised on a re-run without the notes.
+# Headers this module writes (any parameters).
 OWN_HEADER = re.compile(
     r"^(Entry-bar .+|Stop \S+×vol|Target \S+×vol|Target in R|Size at \S+ risk"
     r"|Trail \S+×vol|Reviewed exit|Reviewed exit date|R multiple|Bars held|Worst move"
@@ -471,12 +471,13 @@ def _read_log(pkg: Package, log: TradeLog) -> tuple[pd.DataFrame, Any]:
 
 
 def _own_columns(log: TradeLog, grid: Any, recorded: Mapping[str, str]) -> dict[int, str]:
-    """Columns an earlier fill wrote right of the log: col -> header."""
+    """Columns an earlier fill wrote right of the log: col -> header.
+
+    Only the notes sheet's record says so; a header alone (see :data:`OWN_HEADER`)
+    never makes a user's column ours.
+    """
     header_cells = grid.rows.get(log.header_row, {})
     own = still_headed(recorded, header_cells)
-    for col, value in header_cells.items():
-        if isinstance(value, str) and OWN_HEADER.match(value):
-            own[col] = value
     return {c: h for c, h in own.items() if c not in set(log.roles.values())}
 
 
