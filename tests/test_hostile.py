@@ -154,6 +154,8 @@ HOSTILE_CELLS = {
     # a character reference beyond Unicode (U+10FFFF is the last code point)
     "char-ref-beyond": (5, b'<c r="G5" t="str"><f>"x"</f><v>&#x110000;</v></c>', "G5"),
     # a numeric character reference too large for any integer type
+    # invalid UTF-8 inside a typed sheetvol formula's text
+    "bad-utf8-formula": (7, b'<c r="G7"><f>SV_ATR(B2:B9,"\xff")</f><v>1</v></c>', "G7"),
     "char-ref-huge": (6, b'<c r="G6" t="inlineStr"><is><t>&#' + b"9" * 40 + b";</t></is></c>",
                       "G6"),
 }
@@ -569,3 +571,23 @@ def test_users_trade_log_column_headed_like_ours_is_kept(tmp_path):
     assert out["E1"].value == "R multiple" and out["E2"].value == "my own figure"
     assert report.trades is not None
     assert all(letter != "E" for letter, _, _ in report.trades.written)
+    said = " ".join(report.summary())
+    assert "column E" in said and "not written by sheetvol" in said, said
+
+
+def test_sheet_limits_are_stated_once():
+    # 1,048,576 rows and 16,384 columns: one statement (sheetvol.functions.grid),
+    # imported wherever a row or column number is checked
+    from sheetvol.functions import grid
+
+    assert (grid.MAX_ROW, grid.MAX_COL) == (2**20, 2**14)  # the .xlsx grid: XFD1048576
+    literal = re.compile(r"(?<![\d,_])(1_?048_?576|16_?384)(?![\d,_])")
+    found = []
+    for path in sorted((ROOT / "sheetvol").rglob("*.py")):
+        if path.name == "grid.py":
+            continue
+        for n, line in enumerate(path.read_text(encoding="utf-8").splitlines(), start=1):
+            code = line.split("#", 1)[0]
+            if literal.search(code) and '"""' not in code and not code.strip().startswith(">>>"):
+                found.append(f"{path.relative_to(ROOT)}:{n}: {line.strip()}")
+    assert not found, "\n".join(found)

@@ -547,6 +547,13 @@ def plan_trade_review(
 
     heads = _headers(recipe)
     own = _own_columns(log, grid, recorded or {})
+    for col, value in sorted(grid.rows.get(log.header_row, {}).items()):
+        if (col not in own and col not in log.roles.values() and isinstance(value, str)
+                and OWN_HEADER.match(value)):
+            report.problems.append(
+                f'{where}, sheet "{log.sheet}": column {col_letter(col)} is headed "{value}" '
+                "like a sheetvol column, but no record of an earlier fill says sheetvol wrote "
+                "it, so it is left as it is (not written by sheetvol)")
     # Earlier columns of ours are reused in order; more go right of every used column.
     used = [c for row in grid.rows.values() for c, v in row.items() if v is not None]
     start = max([*used, *log.roles.values()]) + 1

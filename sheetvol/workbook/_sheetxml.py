@@ -102,8 +102,12 @@ def parse_ref(ref: str) -> tuple[int, int, int, int]:
     return min(top, bottom), min(left, right), max(top, bottom), max(left, right)
 
 
-class CellTextError(ValueError):
-    """Cell text that is not XML character data (bad UTF-8, a reference to no character)."""
+class CellTextError(WorkbookError):
+    """Cell text that is not XML character data (bad UTF-8, a reference to no character).
+
+    The readers that know the cell re-raise it naming the cell; anywhere else it still
+    reaches the user as a refusal, never a traceback.
+    """
 
 
 def unescape(raw: bytes) -> str:

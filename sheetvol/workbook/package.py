@@ -12,6 +12,7 @@ import hashlib
 import os
 import posixpath
 import re
+import weakref
 import zipfile
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -171,6 +172,7 @@ class Package:
         )
         fh = _safety.open_file(path)
         pkg = cls(path=path, limits=limits, _fh=fh, _stat=_identity(os.fstat(fh.fileno())))
+        weakref.finalize(pkg, fh.close)  # a Package dropped without close() lets go too
         try:
             with pkg._zip() as zf:
                 _safety.check_package(zf, path.name, limits)
@@ -225,16 +227,25 @@ class Package:
         return digest.hexdigest()
 
     def copy_to(self, dest: Path) -> None:
-        """Write the file as opened to ``dest``, which must not exist yet."""
-        with open(dest, "xb") as out:
-            if self._fh is None:
-                with open(self.path, "rb") as fh:
-                    for block in iter(lambda: fh.read(1 << 20), b""):
-                        out.write(block)
-                return
-            self._fh.seek(0)
-            for block in iter(lambda: self._fh.read(1 << 20), b""):  # type: ignore[union-attr]
-                out.write(block)
+        """Write the file as opened to ``dest`` (which must not exist yet), keeping its
+        permissions and times as a copy by the file manager would."""
+        own = self._fh is None
+        fh = open(self.path, "rb") if own else self._fh
+        assert fh is not None
+        try:
+            with open(dest, "xb") as out:
+                fh.seek(0)
+                for block in iter(lambda: fh.read(1 << 20), b""):
+                    out.write(block)
+            st = os.fstat(fh.fileno())
+        finally:
+            if own:
+                fh.close()
+        try:
+            os.chmod(dest, st.st_mode & 0o777)
+            os.utime(dest, ns=(st.st_atime_ns, st.st_mtime_ns))
+        except OSError:
+            pass  # a backup with today's time is still a backup
 
     # -- structure -------------------------------------------------------------------
     def _zip(self) -> zipfile.ZipFile:
@@ -433,10 +444,12 @@ class Package:
         try:
             return reader.value(attrs, inner)
         except CellTextError as exc:
-            raise WorkbookError(f'{self.path.name}, sheet "{info.name}", cell '
-                                f"{col_letters(c)}{r}: the cell holds {exc}; the file is "
-                                "damaged. Fix or clear the cell in your spreadsheet program."
-                                ) from None
+            raise self._bad_text(info, r, c, exc) from None
+
+    def _bad_text(self, info: SheetInfo, r: int, c: int, exc: Exception) -> WorkbookError:
+        return WorkbookError(f'{self.path.name}, sheet "{info.name}", cell {col_letters(c)}{r}: '
+                             f"the cell holds {exc}; the file is damaged. Fix or clear the "
+                             "cell in your spreadsheet program.")
 
     def read_columns(self, sheet: str, cols: list[int], first_row: int = 1) -> dict[int, Column]:
         """Only the asked columns, rows ``first_row`` to the last row with a cell in any of them.
@@ -579,7 +592,10 @@ class Package:
                 for r, c, _attrs, inner in iter_cells(stream, skip_chunk=skip):
                     if not inner or (b"<f" not in inner and b":f" not in inner):
                         continue
-                    got = reader.formula(inner)
+                    try:
+                        got = reader.formula(inner)
+                    except CellTextError as exc:
+                        raise self._bad_text(info, r, c, exc) from None
                     if got is None:
                         continue
                     _raw, text, fattrs = got
