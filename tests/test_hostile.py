@@ -591,3 +591,58 @@ def test_sheet_limits_are_stated_once():
             if literal.search(code) and '"""' not in code and not code.strip().startswith(">>>"):
                 found.append(f"{path.relative_to(ROOT)}:{n}: {line.strip()}")
     assert not found, "\n".join(found)
+
+
+def _fill_messages(path: Path, out: Path, capsys) -> tuple[int, str]:
+    rc = main(["fill", str(path), "-q", "-o", str(out)])
+    return rc, capsys.readouterr().err
+
+
+@pytest.mark.parametrize(("part", "edit", "said"), [
+    # a part the writer edits as text, with bytes that are not UTF-8
+    ("xl/styles.xml", lambda d: d.replace(b"<fonts", b"<!--\xff--><fonts", 1), "not UTF-8"),
+    # an XML declaration naming an encoding no codec knows
+    ("xl/_rels/workbook.xml.rels", lambda d: d.replace(b"UTF-8", b"TF-8", 1), "TF-8"),
+])
+def test_damaged_small_parts_are_named(tmp_path, capsys, part, edit, said):
+    base = price_book(tmp_path / "base.xlsx")
+    bad = edit_part(base, tmp_path / "bad.xlsx", part, edit)
+    rc, err = _fill_messages(bad, tmp_path / "out.xlsx", capsys)
+    assert rc == 1
+    (line,) = error_lines(err)
+    assert "bad.xlsx" in line and part in line and said in line and "unexpected" not in line, \
+        line
+
+
+def test_mangled_parts_give_a_known_refusal_or_a_fill(tmp_path, capsys):
+    """Seeded random edits of the parts the fill reads: every outcome is a fill or one
+    line of a known refusal, never an unexpected failure."""
+    import random
+
+    base = trade_book(tmp_path / "base.xlsx")
+    parts = [SHEET, "xl/worksheets/sheet2.xml", "xl/styles.xml", "xl/workbook.xml",
+             "xl/sharedStrings.xml", "[Content_Types].xml", "xl/_rels/workbook.xml.rels"]
+    inserts = [b"<", b">", b'"', b"&#x110000;", b"99999999999", b"</row>", b"<c>", b"\xff",
+               b'r="0"', b"ZZZZ"]
+    rng = random.Random(13)
+    for k in range(24):
+        part = parts[k % len(parts)]
+
+        def mutate(data: bytes) -> bytes:
+            b = bytearray(data)
+            for _ in range(rng.randint(1, 4)):
+                i = rng.randrange(len(b))
+                op = rng.random()
+                if op < 0.4:
+                    b[i] = rng.randrange(256)
+                elif op < 0.7:
+                    del b[i:i + rng.randint(1, 20)]
+                else:
+                    b[i:i] = rng.choice(inserts)
+            return bytes(b)
+
+        bad = edit_part(base, tmp_path / f"m{k}.xlsx", part, mutate)
+        rc, err = _fill_messages(bad, tmp_path / "out.xlsx", capsys)
+        assert rc in (0, 1)
+        assert "unexpected" not in err and "Traceback" not in err, (part, err)
+        assert len(error_lines(err)) == rc, err

@@ -327,6 +327,19 @@ def read_part(zf: zipfile.ZipFile, part: str, name: str, limits: Limits | None =
         raise WorkbookError(f"{name}: part {part} is damaged ({exc}).") from None
 
 
+def read_xml_part(zf: zipfile.ZipFile, part: str, name: str, limits: Limits | None = None
+                  ) -> bytes:
+    """Inflate an XML part that will be edited as text; refuse it unless it is UTF-8."""
+    data = read_part(zf, part, name, limits)
+    try:
+        data.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise WorkbookError(f"{name}: part {part} is not UTF-8 text ({exc.reason} at byte "
+                            f"{exc.start}); the file is damaged. Open it in your spreadsheet "
+                            "program and save it again.") from None
+    return data
+
+
 def parse_xml(data: bytes, part: str, name: str) -> Element:
     """Parse a (small) XML part with entities and DOCTYPEs refused."""
     try:
@@ -336,6 +349,8 @@ def parse_xml(data: bytes, part: str, name: str) -> Element:
         raise WorkbookError(refused_dtd(part, name)) from None
     except DET.ParseError as exc:
         raise WorkbookError(f"{name}: part {part} is not well-formed XML ({exc}).") from None
+    except (LookupError, ValueError) as exc:  # e.g. an encoding no codec knows
+        raise WorkbookError(f"{name}: part {part} cannot be read as XML ({exc}).") from None
 
 
 def refused_dtd(part: str, name: str) -> str:

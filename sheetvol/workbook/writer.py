@@ -64,7 +64,7 @@ from sheetvol.workbook._rowedit import (
     plain_value_cell,
     text_cell,
 )
-from sheetvol.workbook._safety import open_part, read_part
+from sheetvol.workbook._safety import open_part, read_part, read_xml_part
 from sheetvol.workbook._sheetparts import edit_head, new_sheet_xml, set_first_attr
 from sheetvol.workbook._sheetxml import (
     Patterns,
@@ -214,7 +214,7 @@ class _Job:
             return self.replaced[name]
         if name in self.added:
             return self.added[name]
-        return read_part(self.zin, name, self.file)
+        return read_xml_part(self.zin, name, self.file)  # edited as text: UTF-8 checked
 
     def style_book(self) -> StyleBook:
         if self.styles is None:
