@@ -646,3 +646,15 @@ def test_mangled_parts_give_a_known_refusal_or_a_fill(tmp_path, capsys):
         assert rc in (0, 1)
         assert "unexpected" not in err and "Traceback" not in err, (part, err)
         assert len(error_lines(err)) == rc, err
+
+
+def test_fill_guide_lists_each_refusal():
+    # the safety section names every refusal this file tests, with its reason
+    text = (ROOT / "docs" / "fill.md").read_text(encoding="utf-8")
+    section = text.split("## Safety: what the fill refuses, and why", 1)[1].split("\n## ", 1)[0]
+    for phrase in ("password-protected", "zip bomb", "inflates beyond the size its zip entry "
+                   "declares", "`..`", "backslashes", "the same entry name twice", "deflate64",
+                   "encryption flag", "DOCTYPE", "1,048,576 rows, 16,384 columns",
+                   "not UTF-8", "beyond Unicode", "131,072", "replaced or saved by another "
+                   "program", "names the output path", "Ctrl-C"):
+        assert phrase in section, phrase

@@ -169,6 +169,8 @@ def write_package(
     except WorkbookError:
         unlink_quietly(tmp)
         raise
+    if out_path.resolve() == pkg.path.resolve():
+        pkg.close()  # some systems cannot replace a file that is still open
     # renamed once the input is closed, so writing over the input itself also works
     try:
         os.replace(tmp, out_path)
