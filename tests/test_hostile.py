@@ -377,10 +377,15 @@ def test_duplicate_entry_names_are_refused(tmp_path, recwarn):
     b'<?xml version="1.0"?><!DOCTYPE x [<!ENTITY e SYSTEM "file:///etc/passwd">]>',
     b'<?xml version="1.0"?>' + b"<!-- " + b"pad " * 5000 + b"-->" + b"<!DOCTYPE x>",
 ])
-def test_doctype_in_a_part_only_copied_is_refused(tmp_path, head):
+@pytest.mark.parametrize("encoding", ["utf-8", "utf-16", "utf-16-le"])
+def test_doctype_in_a_part_only_copied_is_refused(tmp_path, head, encoding):
     base = price_book(tmp_path / "base.xlsx")
-    bad = edit_part(base, tmp_path / "bad.xlsx", "docProps/core.xml",
-                    lambda d: head + d.split(b"?>", 1)[1])
+
+    def edit(data: bytes) -> bytes:
+        text = (head + data.split(b"?>", 1)[1]).decode("utf-8")
+        return text.encode(encoding)  # "utf-16" writes a byte-order mark first
+
+    bad = edit_part(base, tmp_path / "bad.xlsx", "docProps/core.xml", edit)
     with pytest.raises(WorkbookError, match=r"docProps/core.xml.*DOCTYPE"):
         fill_file(bad)
     assert not (tmp_path / "bad-filled.xlsx").exists()

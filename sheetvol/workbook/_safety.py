@@ -149,10 +149,11 @@ def check_package(zf: zipfile.ZipFile, name: str, limits: Limits) -> None:
             continue
         with PartReader(zf, info, name, limits) as fh:
             head = fh.read(512)
-            if not _looks_xml(head):
+            utf16 = _utf16(head)
+            if not utf16 and not _looks_xml(head):
                 continue
             while True:
-                state = prolog_state(head)
+                state = prolog_state(_as_utf8(head, utf16))
                 if state is not None:
                     if state:
                         raise WorkbookError(refused_dtd(info.filename, name))
@@ -171,6 +172,23 @@ def check_package(zf: zipfile.ZipFile, name: str, limits: Limits) -> None:
 def _looks_xml(head: bytes) -> bool:
     text = head.lstrip(b"\xef\xbb\xbf \t\r\n")
     return text.startswith(b"<")
+
+
+def _utf16(head: bytes) -> str:
+    """The UTF-16 codec of a part written in UTF-16 (XML allows it), else ""."""
+    if head.startswith((b"\xff\xfe", b"\xfe\xff")):
+        return "utf-16"
+    if head.startswith(b"<\0"):  # no mark: told by the first "<" (XML 1.0, appendix F)
+        return "utf-16-le"
+    if head.startswith(b"\0<"):
+        return "utf-16-be"
+    return ""
+
+
+def _as_utf8(head: bytes, codec: str) -> bytes:
+    if not codec:
+        return head
+    return head[: len(head) // 2 * 2].decode(codec, errors="replace").encode("utf-8")
 
 
 class PartReader:
