@@ -14,6 +14,7 @@ only copied. Macros (``vbaProject.bin``) are never opened, only copied.
 from __future__ import annotations
 
 import struct
+import threading
 import zipfile
 import zlib
 from dataclasses import dataclass
@@ -205,11 +206,14 @@ class PartReader:
                  limits: Limits) -> None:
         self.info, self.name = info, name
         self.fp = zf.fp
+        # zipfile's own readers share the file under this lock; take it for each seek+read
+        self.lock = getattr(zf, "_lock", None) or threading.RLock()
         self.limit = min(info.file_size, limits.max_total)
         if self.fp is None:
             raise WorkbookError(f"{name}: the package is closed.")
-        self.fp.seek(info.header_offset)
-        head = self.fp.read(30)
+        with self.lock:
+            self.fp.seek(info.header_offset)
+            head = self.fp.read(30)
         if len(head) != 30 or head[:4] != b"PK\x03\x04":
             raise self._damaged("its local header is missing")
         name_len, extra_len = struct.unpack("<HH", head[26:30])
@@ -232,8 +236,9 @@ class PartReader:
         if not self.left:
             return b""
         assert self.fp is not None
-        self.fp.seek(self.pos)
-        data = self.fp.read(min(n, self.left))
+        with self.lock:
+            self.fp.seek(self.pos)
+            data = self.fp.read(min(n, self.left))
         if not data:
             raise self._damaged("it is cut short")
         self.pos += len(data)
