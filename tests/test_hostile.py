@@ -663,3 +663,25 @@ def test_fill_guide_lists_each_refusal():
                    "not UTF-8", "beyond Unicode", "131,072", "replaced or saved by another "
                    "program", "names the output path", "Ctrl-C"):
         assert phrase in section, phrase
+
+
+FULL_DISK_IN_PLACE = """
+import resource, signal, sys
+from sheetvol.cli import main
+signal.signal(signal.SIGXFSZ, signal.SIG_IGN)
+resource.setrlimit(resource.RLIMIT_FSIZE, (2000, 2000))
+sys.exit(main(["fill", sys.argv[1], "--in-place", "-q"]))
+"""
+
+
+def test_backup_that_cannot_be_written_leaves_nothing_behind(tmp_path):
+    book = price_book(tmp_path / "in.xlsx")
+    before = _sha(book)
+    got = subprocess.run([sys.executable, "-c", FULL_DISK_IN_PLACE, str(book)],
+                         capture_output=True, text=True, cwd=ROOT, timeout=120,
+                         env={**os.environ, "PYTHONPATH": str(ROOT)})
+    assert got.returncode == 1
+    (line,) = got.stderr.strip().splitlines()
+    assert str(tmp_path / "in.bak.xlsx") in line and "File too large" in line, line
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["in.xlsx"]
+    assert _sha(book) == before

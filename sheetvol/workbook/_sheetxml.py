@@ -121,8 +121,8 @@ def unescape(raw: bytes) -> str:
 
     Examples
     --------
-    >>> unescape(b"a &amp; b &#x263A; _x0009_")
-    'a & b \u263a \t'
+    >>> unescape(b"a &amp; b &#65;&#x42; _x0043_")
+    'a & b AB C'
     """
     try:
         text = raw.decode("utf-8")

@@ -234,9 +234,14 @@ class Package:
         assert fh is not None
         try:
             with open(dest, "xb") as out:
-                fh.seek(0)
-                for block in iter(lambda: fh.read(1 << 20), b""):
-                    out.write(block)
+                try:
+                    fh.seek(0)
+                    for block in iter(lambda: fh.read(1 << 20), b""):
+                        out.write(block)
+                except BaseException:
+                    out.close()
+                    dest.unlink(missing_ok=True)  # no half backup that looks whole
+                    raise
             st = os.fstat(fh.fileno())
         finally:
             if own:
