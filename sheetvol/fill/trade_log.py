@@ -454,8 +454,8 @@ def _read_log(pkg: Package, log: TradeLog) -> tuple[pd.DataFrame, Any]:
     grid = pkg.read_grid(log.sheet)
     rows = []
     index = []
-    for r in range(log.header_row + 1, grid.max_row + 1):
-        cells_r = grid.rows.get(r, {})
+    for r in sorted(r for r in grid.rows if r > log.header_row):  # rows with cells only
+        cells_r = grid.rows[r]
         values = {role: _plain(cells_r.get(col)) for role, col in log.roles.items()}
         if all(v is None or (isinstance(v, str) and not v.strip()) for v in values.values()):
             continue
