@@ -685,3 +685,20 @@ def test_backup_that_cannot_be_written_leaves_nothing_behind(tmp_path):
     assert str(tmp_path / "in.bak.xlsx") in line and "File too large" in line, line
     assert sorted(p.name for p in tmp_path.iterdir()) == ["in.xlsx"]
     assert _sha(book) == before
+
+
+def test_csv_input_replaced_during_the_fill_is_refused(tmp_path, monkeypatch):
+    src = tmp_path / "p.csv"
+    rows = ["Date,Open,High,Low,Close"] + [
+        f"2024-01-{d:02d},{100 + d},{101 + d},{99 + d},{100.5 + d}" for d in range(1, 29)]
+    src.write_text("\n".join(rows) + "\n", encoding="utf-8")
+    real = job.compute_columns
+
+    def replace_then_compute(*a, **k):
+        src.write_text("Date,Close\n2024-02-01,1\n", encoding="utf-8")  # an editor's save
+        return real(*a, **k)
+
+    monkeypatch.setattr(job, "compute_columns", replace_then_compute)
+    with pytest.raises(WorkbookError, match=r"p.csv changed during the fill"):
+        fill_file(src)
+    assert not (tmp_path / "p-filled.xlsx").exists()

@@ -89,6 +89,7 @@ from sheetvol.workbook import (
     WorkbookError,
     write_package,
 )
+from sheetvol.workbook.package import changed_during_fill
 
 __all__ = ["FillError", "FillOptions", "FillReport", "fill_file", "output_path"]
 
@@ -593,9 +594,7 @@ def fill_file(src: str | Path, options: FillOptions | None = None) -> FillReport
             try:
                 edits = _plan(pkg, src, options, report, progress)
                 if book != src and _changed(src, seen):
-                    raise FillError(f"{src.name} changed during the fill (another program "
-                                    "replaced or saved it); nothing was written. Run the fill "
-                                    "again once the file is settled.")
+                    raise changed_during_fill(src.name)
                 if options.in_place:
                     pkg.check_unchanged()  # no backup of a file about to be refused
                     report.backup = _keep_backup(pkg, src)
@@ -606,9 +605,6 @@ def fill_file(src: str | Path, options: FillOptions | None = None) -> FillReport
                         continue
                     report.cleaned.append(stale)
                 _write(pkg, out, edits, report, progress)
-            except OSError as exc:  # the output's folder or disk, never the input here
-                raise FillError(f"{src.name}: cannot write the output {out}: "
-                                f"{exc.strerror or exc}") from None
             finally:
                 progress.close()
     return report

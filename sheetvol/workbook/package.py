@@ -209,9 +209,7 @@ class Package:
         except OSError:
             now = ()
         if now != self._stat:
-            raise WorkbookError(
-                f"{self.path.name} changed during the fill (another program replaced or saved "
-                "it); nothing was written. Run the fill again once the file is settled.")
+            raise changed_during_fill(self.path.name)
 
     def sha256(self) -> str:
         """SHA-256 of the file as opened (read through the held handle)."""
@@ -652,6 +650,12 @@ class Package:
         return out
 
 
+def changed_during_fill(name: str) -> WorkbookError:
+    """The refusal of an input that another program replaced or saved meanwhile."""
+    return WorkbookError(f"{name} changed during the fill (another program replaced or saved "
+                         "it); nothing was written. Run the fill again once the file is settled.")
+
+
 def _identity(st: os.stat_result) -> tuple[int, ...]:
     """What tells one file at a path from another: device, inode, size, modified time."""
     return (st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns)
@@ -699,4 +703,4 @@ def _bulk_numbers(
 
 
 __all__ = ["CellError", "Column", "FormulaCell", "Grid", "Package", "SheetInfo", "TableInfo",
-           "WorkbookError", "shift_formula"]
+           "WorkbookError", "changed_during_fill", "shift_formula"]
