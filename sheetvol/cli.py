@@ -1,8 +1,10 @@
 """The ``sheetvol`` command: ``fill`` exports, list ``functions``.
 
-Errors go to stderr as one line per file, naming the file, sheet and cell;
-the exit code is 0 when every file was filled, 1 when any failed and 2 for a
-command line that cannot be understood.
+Errors go to stderr as one line per file, naming the file, sheet and cell
+(never a traceback; a batch goes on to the next file whatever failed, and Ctrl-C
+stops the run with one line); the exit code is 0 when every file was filled, 1
+when any failed or the run was interrupted, and 2 for a command line that cannot
+be understood.
 """
 
 from __future__ import annotations
@@ -197,7 +199,8 @@ def build_parser() -> argparse.ArgumentParser:
     dest.add_argument("--out-dir", type=Path, metavar="DIR",
                       help="folder for the outputs of several inputs")
     dest.add_argument("--in-place", action="store_true",
-                      help="replace the input (written atomically; NAME.bak.xlsx keeps the old)")
+                      help="replace the input (written atomically; NAME.bak.xlsx keeps the old, "
+                           "or NAME.bak2.xlsx, ... when taken: never overwritten)")
 
     cols = fill.add_argument_group(
         "where the prices are (found by their headers unless given)"
@@ -372,7 +375,7 @@ def _run_fill(args: argparse.Namespace, parser: argparse.ArgumentParser) -> int:
     if len(set(outputs)) < len(outputs):
         parser.error("two inputs would write the same output file; use separate runs")
     failed = 0
-    for src in files:
+    for k, src in enumerate(files):
         try:
             report = fill_file(src, options)
         except USER_ERRORS as exc:
@@ -381,7 +384,22 @@ def _run_fill(args: argparse.Namespace, parser: argparse.ArgumentParser) -> int:
             continue
         except OSError as exc:
             failed += 1
-            print(f"{PROG}: error: {src}: {exc.strerror or exc}", file=sys.stderr)
+            where = f" ({exc.filename})" if exc.filename and str(exc.filename) != str(src) else ""
+            print(f"{PROG}: error: {src}{where}: {exc.strerror or exc}", file=sys.stderr)
+            continue
+        except KeyboardInterrupt:
+            # Ctrl-C stops the run: the file being filled gets no output (the writer
+            # removes its temporary file), and the files after it are not started.
+            rest = len(files) - k - 1
+            print(f"{PROG}: interrupted while filling {src.name}; its output was not written"
+                  + (f", and {rest} more file{'s' if rest > 1 else ''} not started" if rest
+                     else ""), file=sys.stderr)
+            return 1
+        except Exception as exc:  # one file's failure never stops the batch
+            failed += 1
+            print(f"{PROG}: error: {src.name}: unexpected failure ({type(exc).__name__}: {exc}); "
+                  "nothing was written for it. Please report this with the file if you can.",
+                  file=sys.stderr)
             continue
         if not args.quiet:
             print("\n".join(report.summary()))
@@ -429,5 +447,8 @@ def main(argv: Sequence[str] | None = None) -> int:
         # the reader went away (`sheetvol functions | head -1`): stop quietly, and point
         # stdout at nothing so the interpreter's last flush does not complain either
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 1
+    except KeyboardInterrupt:  # between files or while summarising: nothing half-written
+        print(f"{PROG}: interrupted", file=sys.stderr)
         return 1
 

@@ -14,14 +14,15 @@ from __future__ import annotations
 
 import csv
 import datetime as dt
+import hashlib
 import io
 import math
+import os
 import re
-import shutil
 import sys
 import tempfile
+import time
 import warnings
-import zipfile
 from collections import Counter
 from collections.abc import Callable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
@@ -50,7 +51,6 @@ from sheetvol.fill.notes import (
     WrittenColumn,
     build_notes,
     read_record,
-    sha256_of,
 )
 from sheetvol.fill.price_table import (
     PriceTable,
@@ -90,6 +90,7 @@ from sheetvol.workbook import (
     write_package,
 )
 from sheetvol.workbook.newbook import write_new_workbook
+from sheetvol.workbook.package import changed_during_fill
 
 __all__ = ["FillError", "FillOptions", "FillReport", "fill_file", "output_path"]
 
@@ -194,6 +195,8 @@ class FillReport:
     backup: Path | None = None
     trades: TradeReport | None = None
     skipped: list[str] = field(default_factory=list)  # sheets that are not price sheets: why
+    input_sha256: str = ""  # of the input as read (the notes sheet names it)
+    cleaned: list[Path] = field(default_factory=list)  # stale temporary files removed
 
     # The first (often only) price sheet, for short access.
     @property
@@ -241,6 +244,8 @@ class FillReport:
             lines.append(f"  warning: {w}")
         if self.backup is not None:
             lines.append(f"  backup of the input: {self.backup}")
+        for path in self.cleaned:
+            lines.append(f"  removed a temporary file left by an interrupted run: {path}")
         # Sizes were printed: spell the cautions out; otherwise point at the notes sheet.
         lines.append(f"  {TRADE_CAUTION_LINE if self.trades is not None else CAUTION_LINE}")
         return lines
@@ -296,7 +301,7 @@ class _Progress:
         if not (options.progress and sys.stderr.isatty()):
             return cls()
         parts = {s.part: s.name for s in pkg.sheets if s.kind == "worksheet"}
-        with zipfile.ZipFile(pkg.path) as zf:  # the central directory only: no part inflated
+        with pkg._zip() as zf:  # the central directory only: no part inflated
             sizes = {parts[i.filename]: i.file_size for i in zf.infolist()
                      if i.filename in parts}
         if sum(sizes.values()) < PROGRESS_MIN_BYTES:
@@ -364,13 +369,18 @@ def output_path(src: Path, options: FillOptions) -> Path:
     return folder / f"{src.stem}-filled{suffix}"
 
 
-def backup_path(src: Path) -> Path:
+def backup_path(src: Path, number: int = 1) -> Path:
     """Where ``--in-place`` keeps the old file: ``prices.xlsx`` -> ``prices.bak.xlsx``.
+
+    A backup is never overwritten: when that name is taken, the next free of
+    ``prices.bak2.xlsx``, ``prices.bak3.xlsx``, ... is used (``number``).
 
     Parameters
     ----------
     src : Path
         The input file.
+    number : int
+        1 for the first backup name, 2 and up for the numbered ones.
 
     Returns
     -------
@@ -380,25 +390,70 @@ def backup_path(src: Path) -> Path:
     --------
     >>> backup_path(Path("a/prices.xlsx")).as_posix()
     'a/prices.bak.xlsx'
+    >>> backup_path(Path("a/prices.xlsx"), 2).as_posix()
+    'a/prices.bak2.xlsx'
     """
-    return src.with_name(f"{src.stem}.bak{src.suffix}")
+    return src.with_name(f"{src.stem}.bak{number if number > 1 else ''}{src.suffix}")
+
+
+def _keep_backup(pkg: Package, src: Path) -> Path:
+    """Copy the input as read to the first free backup name (never over a file)."""
+    for number in range(1, 10_000):
+        dest = backup_path(src, number)
+        try:
+            pkg.copy_to(dest)
+        except FileExistsError:
+            continue
+        except OSError as exc:
+            raise FillError(f"{src.name}: cannot write the backup {dest}: {exc.strerror}; "
+                            "nothing was changed") from None
+        return dest
+    raise FillError(f"{src.name}: every backup name up to {backup_path(src, 9999).name} is "
+                    "taken; move some backups away and run again")
+
+
+# The writer's temporary file: ".NAME.xlsx.<8 random characters>.part" (tempfile.mkstemp).
+def _stale_parts(out: Path, before: float) -> list[Path]:
+    """This output's temporary files left by an interrupted run (older than ``before``)."""
+    pattern = re.compile(r"\." + re.escape(out.name) + r"\.[a-z0-9_]{8}\.part")
+    found = []
+    try:
+        names = os.listdir(out.parent if str(out.parent) else ".")
+    except OSError:
+        return []
+    for name in names:
+        if pattern.fullmatch(name):
+            path = out.parent / name
+            try:
+                if path.is_file() and path.stat().st_mtime < before:
+                    found.append(path)
+            except OSError:
+                continue
+    return sorted(found)
 
 
 # -- CSV input ---------------------------------------------------------------------------
-def _csv_to_workbook(src: Path, dest: Path, options: FillOptions) -> None:
+def _csv_to_workbook(src: Path, dest: Path, options: FillOptions) -> str:
     """Write a CSV export as a one-sheet workbook: numbers as numbers, the date column as dates.
 
     Cells that are neither stay text, so the price reader later names them exactly
-    as it would in a workbook (row and column are the CSV's).
+    as it would in a workbook (row and column are the CSV's). Returns the SHA-256 of
+    the bytes read (the file is read once).
     """
     raw = src.read_bytes()
+    digest = hashlib.sha256(raw).hexdigest()
     text = raw.decode("utf-8-sig") if _is_utf8(raw) else raw.decode("cp1252", errors="replace")
     sample = text[:65536]
     try:
         dialect: type[csv.Dialect] | csv.Dialect = csv.Sniffer().sniff(sample, ",;\t|")
     except csv.Error:
         dialect = csv.excel
-    rows = list(csv.reader(io.StringIO(text), dialect))
+    reader = csv.reader(io.StringIO(text), dialect)
+    try:
+        rows = list(reader)
+    except csv.Error as exc:  # e.g. a field over csv.field_size_limit() characters
+        raise FillError(f"{src.name}, line {reader.line_num}: not readable as CSV ({exc}); "
+                        "check that the file is a price export") from None
     if not any(any(cell.strip() for cell in row) for row in rows):
         raise FillError(f"{src.name} is empty")
     top = {i: {j: v for j, v in enumerate(row, start=1) if v.strip()}
@@ -442,6 +497,7 @@ def _csv_to_workbook(src: Path, dest: Path, options: FillOptions) -> None:
     finally:
         if bar is not None:
             bar.close()
+    return digest
 
 
 def _csv_dates(rows: Sequence[Sequence[str]], col: int, dayfirst: bool
@@ -538,26 +594,47 @@ def fill_file(src: str | Path, options: FillOptions | None = None) -> FillReport
     if not out.parent.exists():
         raise FillError(f"output folder {out.parent} does not exist")
 
+    started = time.time()
     report = FillReport(input=src, output=out)
     with tempfile.TemporaryDirectory(prefix="sheetvol-") as tmp:
         book = src
         if suffix in TEXT_SUFFIXES:
             book = Path(tmp) / (src.stem + ".xlsx")
-            _csv_to_workbook(src, book, options)
-        pkg = Package.open(book)
-        if pkg.is_macro_enabled and not want_xlsm:
-            raise FillError(f"{src.name} holds macros but is named .xlsx; rename it to .xlsm")
-        progress = _Progress.start(pkg, src, options)
-        try:
-            edits = _plan(pkg, src, options, report, progress)
-            if options.in_place:
-                backup = backup_path(src)
-                shutil.copy2(src, backup)
-                report.backup = backup
-            _write(pkg, out, edits, report, progress)
-        finally:
-            progress.close()
+            seen = os.stat(src)
+            report.input_sha256 = _csv_to_workbook(src, book, options)
+        with Package.open(book) as pkg:
+            if pkg.is_macro_enabled and not want_xlsm:
+                raise FillError(f"{src.name} holds macros but is named .xlsx; rename it to "
+                                ".xlsm")
+            if book == src:
+                report.input_sha256 = pkg.sha256()
+            progress = _Progress.start(pkg, src, options)
+            try:
+                edits = _plan(pkg, src, options, report, progress)
+                if book != src and _changed(src, seen):
+                    raise changed_during_fill(src.name)
+                if options.in_place:
+                    pkg.check_unchanged()  # no backup of a file about to be refused
+                    report.backup = _keep_backup(pkg, src)
+                for stale in _stale_parts(out, started):
+                    try:
+                        stale.unlink()
+                    except OSError:
+                        continue
+                    report.cleaned.append(stale)
+                _write(pkg, out, edits, report, progress)
+            finally:
+                progress.close()
     return report
+
+
+def _changed(path: Path, seen: os.stat_result) -> bool:
+    try:
+        now = os.stat(path)
+    except OSError:
+        return True
+    return (now.st_ino, now.st_size, now.st_mtime_ns) != (seen.st_ino, seen.st_size,
+                                                           seen.st_mtime_ns)
 
 
 def _where(src: Path, sheet: str) -> str:
@@ -671,18 +748,25 @@ def _choose_sheets(pkg: Package, src: Path, options: FillOptions,
     )
 
 
-def _own_columns(match: HeaderMatch, recorded: Mapping[str, str],
-                 specs: Sequence[ColumnSpec]) -> dict[int, str]:
+def _own_columns(match: HeaderMatch, recorded: Mapping[str, str]) -> dict[int, str]:
     """Columns of a price sheet an earlier fill wrote: col -> header.
 
-    Recognised from the notes sheet's record (letter and header must still
-    agree) or, when the notes sheet is gone, by a header we would write now.
+    Only the workbook's own record says so (the notes sheet's ``Columns written``,
+    letter and header still agreeing); a header alone never makes a column ours, as
+    a user may head a column of their own exactly like one of ours.
     """
     own = still_headed(recorded, match.headers)
-    ours = {s.header for s in specs}
-    own.update({col: text for col, text in match.headers.items() if text in ours})
     used = set(match.columns.values())
     return {c: h for c, h in own.items() if c not in used}
+
+
+def _look_alikes(match: HeaderMatch, own: Mapping[int, str],
+                 specs: Sequence[ColumnSpec]) -> dict[int, str]:
+    """Columns headed like one of ours that no record says sheetvol wrote: col -> header."""
+    ours = {s.header for s in specs}
+    used = set(match.columns.values())
+    return {c: t for c, t in match.headers.items()
+            if isinstance(t, str) and t in ours and c not in own and c not in used}
 
 
 def _recorded(pkg: Package) -> dict[str, dict[str, str]]:
@@ -836,7 +920,8 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
     where = _where(src, sheet)
     # Where each column goes: its own earlier place, else a freed earlier place, else new
     # columns right of everything used (top rows, a table, typed formulas, cells below).
-    own = _own_columns(match, recorded, specs)
+    own = _own_columns(match, recorded)
+    look_alikes = _look_alikes(match, own, specs)
     table_of_bars = None
     for t in pkg.tables(sheet):
         if t.header_row == match.row and t.left <= match.columns["close"] <= t.right:
@@ -865,6 +950,20 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
     targets = [reused[s.header] if s.header in reused else (free or new_cols).pop(0)
                for s in specs]
     sr.replaced = sum(1 for c in targets if c in own)
+    for col, text in sorted(look_alikes.items()):
+        moved = next((col_letter(t) for s, t in zip(specs, targets, strict=True)
+                      if s.header == text), "")
+        warnings.append(
+            f'{where}: column {col_letter(col)} is headed "{text}" like a sheetvol column, but '
+            "no record of an earlier fill says sheetvol wrote it, so it is left as it is (not "
+            f"written by sheetvol){'; the new one is column ' + moved if moved else ''}")
+    hidden = pkg.hidden_columns(sheet) & set(targets)
+    if hidden:
+        letters_ = ", ".join(col_letter(c) for c in sorted(hidden))
+        warnings.append(f"{where}: column{'s' if len(hidden) > 1 else ''} {letters_} "
+                        "written by the fill "
+                        f"{'are' if len(hidden) > 1 else 'is'} hidden in the workbook; "
+                        "unhide them to see the results")
 
     table = build_price_table(
         {role: read[match.columns[role]] for role in roles},
@@ -997,7 +1096,7 @@ def _notes_rows(src: Path, report: FillReport) -> list[list[object]]:
     trades = report.trades
     return build_notes(
         input_name=src.name,
-        input_sha256=sha256_of(src),
+        input_sha256=report.input_sha256,
         sheets=notes,
         written=report.written,
         formulas=report.formulas,
@@ -1143,6 +1242,11 @@ def _write(pkg: Package, out: Path, edits: list, report: FillReport,
     callback = progress.writer(sum(int(t.rows.max()) for t in tables))
     # Stored results only help if the program does not recalculate everything on opening.
     kept = any(isinstance(e, (CellResult, SpillResult)) for e in edits)
-    write_package(pkg, out, edits, progress=callback, calc_on_load=False if kept else None)
+    try:
+        write_package(pkg, out, edits, progress=callback,
+                      calc_on_load=False if kept else None)
+    except OSError as exc:  # the output's folder or disk, never the input here
+        raise FillError(f"{report.input.name}: cannot write the output {out}: "
+                        f"{exc.strerror or exc}") from None
     progress.advance(100.0)  # the rest (sheets beyond the price rows), then shown full
     progress.stage(f"wrote {out.name}")

@@ -17,6 +17,8 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
+from sheetvol.functions.grid import MAX_COL
+
 __all__ = [
     "HEADER_SCAN_ROWS",
     "ColumnFlagError",
@@ -423,7 +425,7 @@ def resolve_column(
     for col, header in header_cells.items():
         if header.lower() == text.lower():
             return col
-    if re.fullmatch(r"[A-Za-z]{1,3}", text) and col_number(text) <= 16384:
+    if re.fullmatch(r"[A-Za-z]{1,3}", text) and col_number(text) <= MAX_COL:
         return col_number(text)
     raise ColumnFlagError(role=role, given=text, row=row, headers=header_cells,
                           file=file or where, sheet=sheet)

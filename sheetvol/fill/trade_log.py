@@ -79,7 +79,7 @@ _CANONICAL = {"date": "Date", "instrument": "Instrument", "side": "Side", "entry
               "exit": "Exit", "exit_date": "Exit date", "quantity": "Quantity",
               "equity": "Equity"}
 _REQUIRED = ("date", "instrument", "side")
-# Headers this module writes (any parameters): recognised on a re-run without the notes.
+# Headers this module writes (any parameters).
 OWN_HEADER = re.compile(
     r"^(Entry-bar .+|Stop \S+×vol|Target \S+×vol|Target in R|Size at \S+ risk"
     r"|Trail \S+×vol|Reviewed exit|Reviewed exit date|R multiple|Bars held|Worst move"
@@ -482,8 +482,8 @@ def _read_log(pkg: Package, log: TradeLog) -> tuple[pd.DataFrame, Any]:
     grid = pkg.read_grid(log.sheet)
     rows = []
     index = []
-    for r in range(log.header_row + 1, grid.max_row + 1):
-        cells_r = grid.rows.get(r, {})
+    for r in sorted(r for r in grid.rows if r > log.header_row):  # rows with cells only
+        cells_r = grid.rows[r]
         values = {role: _plain(cells_r.get(col)) for role, col in log.roles.items()}
         if all(v is None or (isinstance(v, str) and not v.strip()) for v in values.values()):
             continue
@@ -499,12 +499,13 @@ def _read_log(pkg: Package, log: TradeLog) -> tuple[pd.DataFrame, Any]:
 
 
 def _own_columns(log: TradeLog, grid: Any, recorded: Mapping[str, str]) -> dict[int, str]:
-    """Columns an earlier fill wrote right of the log: col -> header."""
+    """Columns an earlier fill wrote right of the log: col -> header.
+
+    Only the notes sheet's record says so; a header alone (see :data:`OWN_HEADER`)
+    never makes a user's column ours.
+    """
     header_cells = grid.rows.get(log.header_row, {})
     own = still_headed(recorded, header_cells)
-    for col, value in header_cells.items():
-        if isinstance(value, str) and OWN_HEADER.match(value):
-            own[col] = value
     return {c: h for c, h in own.items() if c not in set(log.roles.values())}
 
 
@@ -574,6 +575,13 @@ def plan_trade_review(
 
     heads = _headers(recipe)
     own = _own_columns(log, grid, recorded or {})
+    for col, value in sorted(grid.rows.get(log.header_row, {}).items()):
+        if (col not in own and col not in log.roles.values() and isinstance(value, str)
+                and OWN_HEADER.match(value)):
+            report.problems.append(
+                f'{where}, sheet "{log.sheet}": column {col_letter(col)} is headed "{value}" '
+                "like a sheetvol column, but no record of an earlier fill says sheetvol wrote "
+                "it, so it is left as it is (not written by sheetvol)")
     # Earlier columns of ours are reused in order; more go right of every used column.
     used = [c for row in grid.rows.values() for c, v in row.items() if v is not None]
     start = max([*used, *log.roles.values()]) + 1

@@ -33,6 +33,8 @@ from openpyxl.utils.cell import column_index_from_string
 from sheetvol.functions import cells as _cells
 from sheetvol.functions import convert as _convert
 from sheetvol.functions.calling import Result, call_worksheet
+from sheetvol.functions.grid import MAX_COL as MAX_COLS
+from sheetvol.functions.grid import MAX_ROW as MAX_ROWS
 from sheetvol.functions.registry import ArgumentError, variant_of
 
 Resolver = Callable[[str | None, int, int, int | None, int | None], list[list[object]]]
@@ -42,8 +44,6 @@ Resolver = Callable[[str | None, int, int, int | None, int | None], list[list[ob
 column (read to the last used row) and ``right`` None for a whole row.
 """
 
-MAX_ROWS = 1_048_576
-MAX_COLS = 16_384
 _PREFIXES = ("_xludf.", "_xlfn.", "_xlws.")
 _SV_NAME = re.compile(r"SV_[A-Z0-9_]*$", re.IGNORECASE)
 

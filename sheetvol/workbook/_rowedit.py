@@ -15,6 +15,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from sheetvol.functions.grid import MAX_COL
 from sheetvol.workbook._sheetxml import (
     ATTR_R_CELL,
     ATTR_R_ROW,
@@ -42,7 +43,6 @@ _SHARED_ATTRS = re.compile(rb"""\s+(?:t|si|ref)\s*=\s*(["'])[^"']*\1""")
 # whole-column (E:E) and whole-row (2:5) references: not moved by shift_formula
 _LINE_REF = re.compile(r"""(?<![\w$.:])\$?(?:[A-Z]{1,3}:\$?[A-Z]{1,3}|\d+:\$?\d+)(?![\w(!:])""")
 _INF = float("inf")
-MAX_COL = 16_384
 
 
 def _drop_spans(attrs: bytes) -> bytes:

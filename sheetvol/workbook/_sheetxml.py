@@ -21,6 +21,7 @@ from collections.abc import Callable, Iterator
 from functools import lru_cache
 from typing import IO
 
+from sheetvol.functions.grid import MAX_COL, MAX_ROW
 from sheetvol.workbook._safety import check_prolog
 from sheetvol.workbook.errors import CellError, WorkbookError
 
@@ -77,8 +78,8 @@ def col_index(letters: bytes) -> int:
 
 def col_letters(col: int) -> str:
     """Column letters of a 1-based column number (1 -> ``"A"``)."""
-    if not 1 <= col <= 16384:
-        raise ValueError(f"column {col} is outside 1..16384")
+    if not 1 <= col <= MAX_COL:
+        raise ValueError(f"column {col} is outside 1..{MAX_COL}")
     out = ""
     while col:
         col, rem = divmod(col - 1, 26)
@@ -101,9 +102,33 @@ def parse_ref(ref: str) -> tuple[int, int, int, int]:
     return min(top, bottom), min(left, right), max(top, bottom), max(left, right)
 
 
+class CellTextError(WorkbookError):
+    """Cell text that is not XML character data (bad UTF-8, a reference to no character).
+
+    The readers that know the cell re-raise it naming the cell; anywhere else it still
+    reaches the user as a refusal, never a traceback.
+    """
+
+
 def unescape(raw: bytes) -> str:
-    """Text of XML character data: entity references and ``_xHHHH_`` escapes decoded."""
-    text = raw.decode("utf-8")
+    """Text of XML character data: entity references and ``_xHHHH_`` escapes decoded.
+
+    Raises
+    ------
+    CellTextError
+        Bytes that are not UTF-8, or a character reference beyond Unicode (the callers
+        name the cell).
+
+    Examples
+    --------
+    >>> unescape(b"a &amp; b &#65;&#x42; _x0043_")
+    'a & b AB C'
+    """
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise CellTextError(f"bytes that are not UTF-8 text ({exc.reason} at byte "
+                            f"{exc.start})") from None
     if "&" in text:
         text = _ENTITY.sub(_entity, text)
     if "_x" in text:
@@ -119,8 +144,23 @@ def unescape_ooxml(text: str) -> str:
 def _entity(m: re.Match[str]) -> str:
     body = m[1]
     if body[0] == "#":
-        return chr(int(body[2:], 16) if body[1] in "xX" else int(body[1:]))
+        digits = body[2:] if body[1] in "xX" else body[1:]
+        if len(digits) > 8:  # int() of a huge text is slow and chr() of it overflows
+            raise CellTextError(f"a character reference {m[0][:20]}... beyond Unicode")
+        code = int(digits, 16) if body[1] in "xX" else int(digits)
+        if not 0 < code <= 0x10FFFF:
+            raise CellTextError(f"a character reference {m[0]} beyond Unicode (at most "
+                                "U+10FFFF)")
+        return chr(code)
     return _NAMED[body]
+
+
+def beyond_sheet(name: str, part: str, ref: str) -> WorkbookError:
+    """The refusal of a cell or row number beyond the sheet's limits."""
+    return WorkbookError(
+        f"{name}: part {part}, cell {ref}: beyond the sheet's limits ({MAX_ROW:,} rows, "
+        f"{MAX_COL:,} columns); the file is damaged or was not written by a spreadsheet "
+        "program.")
 
 
 def escape_text(text: str) -> str:
@@ -299,6 +339,10 @@ def iter_cells(
         for rm in row_re.finditer(chunk):
             mr = ATTR_R_ROW.search(rm[1])
             r = int(mr[1]) if mr else r + 1
+            if r > MAX_ROW:
+                first = ATTR_R_CELL.search(rm[3] or b"")
+                ref = (first[1].decode() if first else "") + str(r)
+                raise beyond_sheet(stream.name, stream.part, ref if first else f"row {r}")
             if max_row is not None and r > max_row:
                 return
             inner = rm[3]
@@ -309,6 +353,9 @@ def iter_cells(
                 attrs = cm[1]
                 mc = ATTR_R_CELL.search(attrs)
                 c = col_index(mc[1]) if mc else c + 1
+                if c > MAX_COL:
+                    raise beyond_sheet(stream.name, stream.part,
+                                       (mc[1].decode() if mc else f"column {c} ") + str(r))
                 yield r, c, attrs, cm[3]
 
 
@@ -333,7 +380,7 @@ def shift_formula(text: str, drow: int, dcol: int) -> str:
         cabs, letters, rabs, digits = m[3], m[4], m[5], m[6]
         col = col_index(letters.encode())
         row = int(digits)
-        if col > 16384 or row > 1048576:
+        if col > MAX_COL or row > MAX_ROW:
             return m[0]
         if not cabs:
             col += dcol

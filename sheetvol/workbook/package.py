@@ -8,23 +8,30 @@ enough for the largest sheets; nothing here ever opens or runs a macro.
 
 from __future__ import annotations
 
+import hashlib
+import os
 import posixpath
 import re
+import weakref
 import zipfile
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import IO
 from xml.etree.ElementTree import Element
 
 import numpy as np
 
+from sheetvol.functions.grid import MAX_COL, MAX_ROW
 from sheetvol.workbook import _safety
 from sheetvol.workbook._safety import Limits, local, parse_xml, read_part
 from sheetvol.workbook._sheetxml import (
     ATTR_R_CELL,
     ATTR_R_ROW,
     CellReader,
+    CellTextError,
     Patterns,
     SheetStream,
+    beyond_sheet,
     col_index,
     col_letters,
     iter_cells,
@@ -38,6 +45,10 @@ NS_REL = "http://schemas.openxmlformats.org/officeDocument/2006/relationships"
 NS_PKG_REL = "http://schemas.openxmlformats.org/package/2006/relationships"
 MACRO_TYPES = ("macroEnabled", "vbaProject")
 _SV = re.compile(rb"(?i)\bSV_")
+_COL = re.compile(rb"<(?:[A-Za-z_][\w.\-]*:)?col(?=[\s>/])([^>]*)>")
+_HIDDEN = re.compile(rb"""\shidden\s*=\s*["'](?:1|true)["']""")
+_MIN = re.compile(rb"""\smin\s*=\s*["'](\d+)["']""")
+_MAX = re.compile(rb"""\smax\s*=\s*["'](\d+)["']""")
 
 
 @dataclass(frozen=True)
@@ -108,7 +119,9 @@ class TableInfo:
 class Package:
     """An .xlsx/.xlsm opened safely (zip-bomb limits, no XML entities, encrypted refused).
 
-    Use :meth:`open`; the zip file is reopened for each read, so nothing stays locked.
+    Use :meth:`open`. Every read goes through the one file handle opened there, so a
+    file replaced at the path meanwhile is never mixed in; :meth:`check_unchanged` says
+    whether the path still holds that file, and :meth:`close` lets the handle go.
 
     Examples
     --------
@@ -124,6 +137,8 @@ class Package:
     workbook_part: str = "xl/workbook.xml"
     _shared: list[str] | None = field(default=None, repr=False)
     _shared_loaded: bool = field(default=False, repr=False)
+    _fh: IO[bytes] | None = field(default=None, repr=False)
+    _stat: tuple[int, ...] = field(default=(), repr=False)
 
     @classmethod
     def open(cls, path: str | Path, *, max_total: int | None = None,
@@ -155,17 +170,95 @@ class Package:
             max_total=_safety.DEFAULT_MAX_TOTAL if max_total is None else max_total,
             max_ratio=_safety.DEFAULT_MAX_RATIO if max_ratio is None else max_ratio,
         )
-        pkg = cls(path=path, limits=limits)
-        with _safety.open_zip(path, limits) as zf:
-            pkg._read_structure(zf)
+        fh = _safety.open_file(path)
+        pkg = cls(path=path, limits=limits, _fh=fh, _stat=_identity(os.fstat(fh.fileno())))
+        weakref.finalize(pkg, fh.close)  # a Package dropped without close() lets go too
+        try:
+            with pkg._zip() as zf:
+                _safety.check_package(zf, path.name, limits)
+                pkg._read_structure(zf)
+        except BaseException:
+            pkg.close()
+            raise
         return pkg
+
+    def close(self) -> None:
+        """Let the file handle go (reads after this reopen the path)."""
+        if self._fh is not None:
+            self._fh.close()
+            self._fh = None
+
+    def __enter__(self) -> Package:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+    def check_unchanged(self) -> None:
+        """Refuse when the file at the path is no longer the one opened (replaced, edited).
+
+        Raises
+        ------
+        WorkbookError
+            The path was replaced, removed or written to since :meth:`open`.
+        """
+        if not self._stat:
+            return
+        try:
+            now = _identity(os.stat(self.path))
+        except OSError:
+            now = ()
+        if now != self._stat:
+            raise changed_during_fill(self.path.name)
+
+    def sha256(self) -> str:
+        """SHA-256 of the file as opened (read through the held handle)."""
+        digest = hashlib.sha256()
+        if self._fh is None:
+            with open(self.path, "rb") as fh:
+                for block in iter(lambda: fh.read(1 << 20), b""):
+                    digest.update(block)
+            return digest.hexdigest()
+        self._fh.seek(0)
+        for block in iter(lambda: self._fh.read(1 << 20), b""):  # type: ignore[union-attr]
+            digest.update(block)
+        return digest.hexdigest()
+
+    def copy_to(self, dest: Path) -> None:
+        """Write the file as opened to ``dest`` (which must not exist yet), keeping its
+        permissions and times as a copy by the file manager would."""
+        own = self._fh is None
+        fh = open(self.path, "rb") if own else self._fh
+        assert fh is not None
+        try:
+            with open(dest, "xb") as out:
+                try:
+                    fh.seek(0)
+                    for block in iter(lambda: fh.read(1 << 20), b""):
+                        out.write(block)
+                except BaseException:
+                    out.close()
+                    dest.unlink(missing_ok=True)  # no half backup that looks whole
+                    raise
+            st = os.fstat(fh.fileno())
+        finally:
+            if own:
+                fh.close()
+        try:
+            os.chmod(dest, st.st_mode & 0o777)
+            os.utime(dest, ns=(st.st_atime_ns, st.st_mtime_ns))
+        except OSError:
+            pass  # a backup with today's time is still a backup
 
     # -- structure -------------------------------------------------------------------
     def _zip(self) -> zipfile.ZipFile:
-        return _safety.open_zip(self.path, self.limits)
+        if self._fh is None:
+            return _safety.open_zip(self.path, self.limits)
+        return _safety.open_zip(self._fh, self.limits, self.path.name)
 
     def _xml(self, zf: zipfile.ZipFile, part: str) -> Element:
-        return parse_xml(read_part(zf, part, self.path.name), part, self.path.name)
+        return parse_xml(read_part(zf, part, self.path.name, self.limits), part,
+                         self.path.name)
 
     def _read_structure(self, zf: zipfile.ZipFile) -> None:
         name = self.path.name
@@ -287,12 +380,36 @@ class Package:
 
     # -- cells -----------------------------------------------------------------------
     def _stream(self, zf: zipfile.ZipFile, info: SheetInfo) -> SheetStream:
-        try:
-            fh = zf.open(info.part)
-        except KeyError:
+        if info.part not in zf.NameToInfo:
             raise WorkbookError(f"{self.path.name}: the part of sheet {info.name!r} "
-                                f"({info.part}) is missing; the workbook is damaged.") from None
+                                f"({info.part}) is missing; the workbook is damaged.")
+        fh = _safety.open_part(zf, info.part, self.path.name, self.limits)
         return SheetStream(fh, info.part, self.path.name)
+
+    def hidden_columns(self, sheet: str) -> set[int]:
+        """Columns the sheet's ``<cols>`` block hides (1-based).
+
+        Parameters
+        ----------
+        sheet : str
+            Sheet name.
+
+        Returns
+        -------
+        set of int
+        """
+        info = self._worksheet(sheet)
+        with self._zip() as zf:
+            head = self._stream(zf, info).head
+        out: set[int] = set()
+        for m in _COL.finditer(head):
+            attrs = m[1]
+            if not _HIDDEN.search(attrs):
+                continue
+            lo, hi = _MIN.search(attrs), _MAX.search(attrs)
+            if lo and hi:
+                out.update(range(int(lo[1]), min(int(hi[1]), MAX_COL) + 1))
+        return out
 
     def read_grid(self, sheet: str, max_rows: int | None = None) -> Grid:
         """All cells of a sheet (up to row ``max_rows``), for header detection and small sheets.
@@ -316,13 +433,26 @@ class Package:
             stream = self._stream(zf, info)
             reader = CellReader(stream.pat, self.shared_strings(zf))
             for r, c, attrs, inner in iter_cells(stream, max_rows):
-                value = reader.value(attrs, inner)
+                value = self._value(reader, info, r, c, attrs, inner)
                 if value is None:
                     continue
                 rows.setdefault(r, {})[c] = value
                 max_row = max(max_row, r)
                 max_col = max(max_col, c)
         return Grid(rows=rows, max_row=max_row, max_col=max_col)
+
+    def _value(self, reader: CellReader, info: SheetInfo, r: int, c: int, attrs: bytes,
+               inner: bytes | None) -> object:
+        """A cell's value; text that is not XML character data is refused by cell."""
+        try:
+            return reader.value(attrs, inner)
+        except CellTextError as exc:
+            raise self._bad_text(info, r, c, exc) from None
+
+    def _bad_text(self, info: SheetInfo, r: int, c: int, exc: Exception) -> WorkbookError:
+        return WorkbookError(f'{self.path.name}, sheet "{info.name}", cell {col_letters(c)}{r}: '
+                             f"the cell holds {exc}; the file is damaged. Fix or clear the "
+                             "cell in your spreadsheet program.")
 
     def read_columns(self, sheet: str, cols: list[int], first_row: int = 1) -> dict[int, Column]:
         """Only the asked columns, rows ``first_row`` to the last row with a cell in any of them.
@@ -344,7 +474,7 @@ class Package:
         info = self._worksheet(sheet)
         wanted = set(cols)
         for c in wanted:
-            if not 1 <= c <= 16384:
+            if not 1 <= c <= MAX_COL:
                 raise WorkbookError(f"{self.path.name}: column {c} is outside the sheet.")
         pieces: dict[int, list[tuple[np.ndarray, np.ndarray]]] = {c: [] for c in wanted}
         other: dict[int, dict[int, object]] = {c: {} for c in wanted}
@@ -373,6 +503,11 @@ class Package:
                     others = rest.findall(chunk)
                     if found:
                         got = _bulk_numbers(found, wanted_letters, first_row)
+                        if got is not None and any(int(rows_.max()) > MAX_ROW
+                                                   for _, rows_, _ in got):
+                            bad = next(f for f in found if int(f[1]) > MAX_ROW)
+                            raise beyond_sheet(self.path.name, info.part,
+                                               (bad[0] + bad[1]).decode())
                         if got is None:  # some text that numpy cannot read: one by one
                             others = [(lt, row, b"", b"<v>" + v + b"</v>")
                                       for lt, row, v in found] + others
@@ -384,10 +519,13 @@ class Package:
                     others = [x for x in _cells_general(chunk, pat) if x[0] in wanted_letters]
                 for letters, row, attrs, cinner in others:
                     r = int(row)
+                    if r > MAX_ROW:
+                        raise beyond_sheet(self.path.name, info.part,
+                                           (letters + row).decode())
                     if r < first_row or not cinner:
                         continue
                     c = wanted_letters[letters]
-                    value = reader.value(attrs, cinner)
+                    value = self._value(reader, info, r, c, attrs, cinner)
                     if value is None:
                         continue
                     if isinstance(value, float):
@@ -428,7 +566,7 @@ class Package:
             reader = CellReader(stream.pat, self.shared_strings(zf))
             for r, c, attrs, inner in iter_cells(stream, bottom):
                 if r >= top and left <= c <= right:
-                    out[r - top][c - left] = reader.value(attrs, inner)
+                    out[r - top][c - left] = self._value(reader, info, r, c, attrs, inner)
         return out
 
     def formula_cells(self) -> list[FormulaCell]:
@@ -457,7 +595,10 @@ class Package:
                 for r, c, _attrs, inner in iter_cells(stream, skip_chunk=skip):
                     if not inner or (b"<f" not in inner and b":f" not in inner):
                         continue
-                    got = reader.formula(inner)
+                    try:
+                        got = reader.formula(inner)
+                    except CellTextError as exc:
+                        raise self._bad_text(info, r, c, exc) from None
                     if got is None:
                         continue
                     _raw, text, fattrs = got
@@ -509,6 +650,17 @@ class Package:
         return out
 
 
+def changed_during_fill(name: str) -> WorkbookError:
+    """The refusal of an input that another program replaced or saved meanwhile."""
+    return WorkbookError(f"{name} changed during the fill (another program replaced or saved "
+                         "it); nothing was written. Run the fill again once the file is settled.")
+
+
+def _identity(st: os.stat_result) -> tuple[int, ...]:
+    """What tells one file at a path from another: device, inode, size, modified time."""
+    return (st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns)
+
+
 def _cells_general(chunk: bytes, pat: Patterns) -> list[tuple[bytes, bytes, bytes, bytes]]:
     """(letters, row, attrs, inner) of every cell of a chunk, positions implied if needed."""
     out = []
@@ -520,7 +672,8 @@ def _cells_general(chunk: bytes, pat: Patterns) -> list[tuple[bytes, bytes, byte
         for cm in pat.cell.finditer(rm[3] or b""):
             mc = ATTR_R_CELL.search(cm[1])
             c = col_index(mc[1]) if mc else c + 1
-            out.append((col_letters(c).encode(), str(r).encode(), cm[1], cm[3]))
+            letters = mc[1] if mc else col_letters(min(c, MAX_COL)).encode()
+            out.append((letters, str(r).encode(), cm[1], cm[3]))
     return out
 
 
@@ -550,4 +703,4 @@ def _bulk_numbers(
 
 
 __all__ = ["CellError", "Column", "FormulaCell", "Grid", "Package", "SheetInfo", "TableInfo",
-           "WorkbookError", "shift_formula"]
+           "WorkbookError", "changed_during_fill", "shift_formula"]

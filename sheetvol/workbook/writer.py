@@ -40,6 +40,7 @@ from pathlib import Path
 
 import numpy as np
 
+from sheetvol.functions.grid import MAX_COL, MAX_ROW
 from sheetvol.workbook._chart import (
     CT_CHART,
     CT_DRAWING,
@@ -63,7 +64,7 @@ from sheetvol.workbook._rowedit import (
     plain_value_cell,
     text_cell,
 )
-from sheetvol.workbook._safety import read_part
+from sheetvol.workbook._safety import open_part, read_part, read_xml_part
 from sheetvol.workbook._sheetparts import (
     add_print_titles,
     edit_head,
@@ -103,8 +104,6 @@ from sheetvol.workbook.package import NS_PKG_REL, NS_REL, Package, SheetInfo, Ta
 # default 6 for a part about 20% larger (measured, see docs/performance.md).
 SHEET_LEVEL = 1
 SMALL_LEVEL = 6
-MAX_ROW = 1_048_576
-MAX_COL = 16_384
 SHEETVOL_PART = "xl/worksheets/sheetvol"
 CT_WORKSHEET = "application/vnd.openxmlformats-officedocument.spreadsheetml.worksheet+xml"
 CT_STYLES = "application/vnd.openxmlformats-officedocument.spreadsheetml.styles+xml"
@@ -171,6 +170,13 @@ def write_package(
         if calc_on_load is not None:
             job.calc_on_load(calc_on_load)
         tmp = job.write(out_path, progress)
+    try:
+        pkg.check_unchanged()  # values from the file as opened go only over that file
+    except WorkbookError:
+        unlink_quietly(tmp)
+        raise
+    if out_path.resolve() == pkg.path.resolve():
+        pkg.close()  # some systems cannot replace a file that is still open
     # renamed once the input is closed, so writing over the input itself also works
     try:
         os.replace(tmp, out_path)
@@ -216,7 +222,7 @@ class _Job:
             return self.replaced[name]
         if name in self.added:
             return self.added[name]
-        return read_part(self.zin, name, self.file)
+        return read_xml_part(self.zin, name, self.file)  # edited as text: UTF-8 checked
 
     def style_book(self) -> StyleBook:
         if self.styles is None:
@@ -226,8 +232,9 @@ class _Job:
                 self.add_part(part, MINIMAL_STYLES, CT_STYLES, REL_STYLES, "styles.xml")
                 self.styles = StyleBook(MINIMAL_STYLES)
             else:
+                data = self.part(part)  # a refusal here already names the file and part
                 try:
-                    self.styles = StyleBook(self.part(part))
+                    self.styles = StyleBook(data)
                 except WorkbookError as exc:
                     raise WorkbookError(f"{self.file}: {part}: {exc}; open the workbook in its "
                                         "spreadsheet program and save it again") from None
@@ -623,7 +630,8 @@ class _Job:
                     elif name in self.replaced:
                         write_entry(zout, clone_info(info), self.replaced[name], SMALL_LEVEL)
                     elif not raw_copy(zout, self.zin, info):
-                        write_entry(zout, clone_info(info), self.zin.read(info), SMALL_LEVEL)
+                        write_entry(zout, clone_info(info), read_part(self.zin, name, self.file),
+                                    SMALL_LEVEL)
                 now = dt.datetime.now().timetuple()[:6]
                 for name, data in self.added.items():
                     zi = zipfile.ZipInfo(name, date_time=now)
@@ -641,7 +649,7 @@ class _Job:
     def _write_sheet(self, zout: zipfile.ZipFile, info: zipfile.ZipInfo,
                      progress: Callable[[int], None] | None) -> None:
         sheet = next(s for s in self.pkg.sheets if s.part == info.filename)
-        with self.zin.open(info) as fh:
+        with open_part(self.zin, info.filename, self.file) as fh:
             stream = SheetStream(fh, info.filename, self.file)
             edits = self._sheet_edits(sheet, stream)
             editor = RowEditor(edits, stream.pat)
