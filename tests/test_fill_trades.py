@@ -357,10 +357,12 @@ def test_one_long_price_sheet_with_an_instrument_column(tmp_path):
     # the notes are text beside the numbers: no entry price logged, a size of zero
     assert got["Review note"][:3] == direct["Note"].tolist()
     assert "entry bar's close" in got["Review note"][0]
-    assert got["Size note"][:3] == [None, None, direct["Size note"][2]]
+    # no contract sheet: every size says its point value of 1 was assumed
+    assumed = "point value not given: 1 assumed"
+    assert got["Size note"][:3] == [assumed, assumed, direct["Size note"][2]]
     assert got["Size at 1% risk"][2] == 0
     assert got["Size note"][2].startswith("risk budget buys 0.0")  # units, not lots
-    assert got["Size note"][2].endswith("units, less than one lot of 1")
+    assert got["Size note"][2].endswith(f"units, less than one lot of 1; {assumed}")
 
 
 def test_recipe_trades_table_errors_name_the_key(tmp_path):

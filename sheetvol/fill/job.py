@@ -66,6 +66,7 @@ from sheetvol.fill.table import ComputeError, compute_columns, needed_roles
 from sheetvol.fill.trade_log import (
     REVIEW_SHEET,
     TRADE_CAUTION_LINE,
+    Contracts,
     TradeLog,
     TradeLogError,
     TradeReport,
@@ -674,15 +675,15 @@ def _select_specs(options: FillOptions, match: HeaderMatch, where: str,
 
 
 def _find_log(pkg: Package, src: Path, options: FillOptions
-              ) -> tuple[TradeLog | None, tuple[str, dict]]:
+              ) -> tuple[TradeLog | None, Contracts]:
     """The trade log and instrument details, when the fill reviews trades."""
     recipe = options.trades or TradeRecipe()
     if not (options.review_trades and recipe.enabled):
-        return None, ("", {})
+        return None, Contracts()
     own = [s.name for s in pkg.sheets if s.name.casefold() in OWN_SHEETS]
     log = find_trade_log(pkg, recipe, skip=own, where=src.name)
     if log is None:
-        return None, ("", {})
+        return None, Contracts()
     return log, find_instruments(pkg, recipe, skip=[*own, log.sheet], where=src.name)
 
 
@@ -691,7 +692,7 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport,
     """Every edit of the fill, computed before anything is written."""
     progress = progress or _Progress()
     log, instruments = _find_log(pkg, src, options)
-    exclude = frozenset(n.casefold() for n in (log.sheet if log else "", instruments[0]) if n)
+    exclude = frozenset(n.casefold() for n in (log.sheet if log else "", instruments.sheet) if n)
     chosen = _choose_sheets(pkg, src, options, exclude)
     progress.sheets([name for name, _, _ in chosen])
     progress.stage(f"{src.name}: looking for typed sheetvol formulas")
@@ -742,6 +743,7 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport,
         taken.setdefault(log.sheet, set()).update(
             e.col for e in trade_edits if isinstance(e, NewColumn))
         report.warnings.extend(report.trades.problems)
+        report.assumptions.extend(report.trades.assumptions)
     if typed:
         progress.stage(f"{src.name}: evaluating typed sheetvol formulas")
         edits.extend(_evaluate_formulas(pkg, typed, taken, report, keep=options.formulas == "keep"))

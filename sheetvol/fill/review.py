@@ -17,6 +17,7 @@ and writes down, per row, what it could not compute and why.
 from __future__ import annotations
 
 import math
+import re
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
 from typing import Any
@@ -41,11 +42,15 @@ from sheetvol.fill.table import find_roles
 from sheetvol.functions import cells, registry
 
 __all__ = [
+    "CONTRACT_DETAILS",
     "LOG_COLUMNS",
+    "NO_EQUITY",
     "OUTPUT_COLUMNS",
+    "POINT_VALUE_ASSUMED",
     "SUMMARY_LABELS",
     "Instrument",
     "TradeSettings",
+    "contract_role",
     "instruments_from_frame",
     "missing_roles_message",
     "review_log",
@@ -66,6 +71,67 @@ LOG_COLUMNS: dict[str, tuple[str, ...]] = {
 }
 _REQUIRED_ROLES = ("date", "instrument", "side")
 
+#: Contract details a contract sheet can give (besides the instrument column), in the
+#: order they are described. The header words for each are matched by
+#: :func:`contract_role`.
+CONTRACT_DETAILS = ("point_value", "tick", "tick_value", "lot_step", "min_qty", "max_qty",
+                    "fx_rate")
+# Words read as one before the rules below apply (after normalize_header).
+_SAME_WORD = {"minimum": "min", "maximum": "max", "quantity": "qty", "quantities": "qty",
+              "lots": "lot", "increment": "step", "exchange": "fx", "conversion": "fx",
+              "multiplier": "point", "big": "", "per": "", "value": "value", "of": "",
+              "contract": "contract", "number": "qty", "units": "qty", "unit": "qty",
+              "size": "size", "amount": "qty", "volume": "qty", "trade": "qty",
+              "order": "qty", "position": "qty"}
+
+
+def contract_role(header: object) -> str | None:
+    """The contract detail a contract-sheet header names, by general rules (None: not one).
+
+    The header is normalised (case, brackets with units, punctuation); the words
+    "minimum", "quantity", "lots", "increment", "exchange", "conversion",
+    "multiplier" and the like are read as their short forms; then: a tick with
+    a value is the tick value, any other tick (or a price step) the tick size; a
+    min or max with a quantity, lot or size is that limit; an FX word is the FX
+    rate; a point (or multiplier) or a contract size/unit is the point value; a
+    lot or a quantity step is the lot step. The instrument column takes the
+    words of :data:`LOG_COLUMNS` (one list for the log, the long price sheet and
+    the contract sheet).
+
+    Parameters
+    ----------
+    header : object
+        A header cell's value.
+
+    Returns
+    -------
+    str or None
+        ``"instrument"``, one of :data:`CONTRACT_DETAILS`, or None.
+
+    Examples
+    --------
+    >>> contract_role("Contract size"), contract_role("Tick value ($)"), contract_role("Margin")
+    ('point_value', 'tick_value', None)
+    """
+    text = normalize_header(header)
+    if text in {normalize_header(w) for w in LOG_COLUMNS["instrument"]}:
+        return "instrument"
+    words = {_SAME_WORD.get(w, w) for w in re.split(r"[\s/\-.,$]+", text)} - {""}
+    if "tick" in words:
+        return "tick_value" if "value" in words else "tick"
+    if "price" in words and "step" in words:
+        return "tick"
+    for limit in ("min", "max"):
+        if limit in words and (words & {"qty", "lot", "size"} or words == {limit}):
+            return f"{limit}_qty"
+    if "fx" in words or words == {"rate"}:
+        return "fx_rate"
+    if "point" in words or ("contract" in words and words & {"size", "qty", "value"}):
+        return "point_value"
+    if "lot" in words or ("step" in words and words & {"qty", "size"}):
+        return "lot_step"
+    return None
+
 #: Columns :func:`review_log` returns, in order.
 OUTPUT_COLUMNS = (
     "Volatility", "Bar date", "Stop", "Target", "Target R", "Size", "Size note", "Trail",
@@ -81,18 +147,30 @@ class Instrument:
     """Contract details of one instrument, for sizing and open risk.
 
     ``point_value`` is money per 1.0 price move per unit in the instrument's
-    currency; ``fx_rate`` is account currency per unit of instrument currency;
-    ``min_qty``/``max_qty`` of 0 mean no limit; ``tick`` is the price increment
-    levels are rounded to (0: not rounded; see :func:`sheetvol.core.risk.to_tick`).
+    currency (NaN: not given; 1 is used and every row of the instrument says
+    so, see :data:`POINT_VALUE_ASSUMED`); ``fx_rate`` is account currency per
+    unit of instrument currency; ``min_qty``/``max_qty`` of 0 mean no limit;
+    ``tick`` is the price increment levels are rounded to (0: not rounded; see
+    :func:`sheetvol.core.risk.to_tick`).
     """
 
-    point_value: float = 1.0
+    point_value: float = math.nan
     lot_step: float = 1.0
     min_qty: float = 0.0
     max_qty: float = 0.0
     fx_rate: float = 1.0
     tick: float = 0.0
 
+    @property
+    def per_point(self) -> float:
+        """The point value used: the one given, else 1."""
+        return self.point_value if math.isfinite(self.point_value) else 1.0
+
+
+#: The Size note of a row whose instrument has no point value.
+POINT_VALUE_ASSUMED = "point value not given: 1 assumed"
+#: Why sizes and open risk are blank when no equity is known.
+NO_EQUITY = "no equity: add an Equity column, a recipe equity or --equity"
 
 @dataclass(frozen=True)
 class TradeSettings:
@@ -190,40 +268,62 @@ def instruments_from_frame(frame: pd.DataFrame) -> dict[str, Instrument]:
     Parameters
     ----------
     frame : pandas.DataFrame
-        Columns ``Instrument`` and any of ``Point value``, ``Lot step``,
-        ``Min qty``, ``Max qty``, ``FX rate``, ``Tick`` (or ``Tick size``)
-        (headers compared ignoring case, spaces and underscores); blank cells
-        take the :class:`Instrument` defaults.
+        An instrument column (Instrument, Symbol, Market, Ticker) and any
+        contract details, under their usual trade words (see
+        :func:`contract_role`): point value (multiplier, contract size, big
+        point value), tick size, tick value, lot step (lot size), min and max
+        quantity, FX rate. Blank cells take the :class:`Instrument` defaults; a
+        tick value gives the point value (tick value / tick size).
 
     Returns
     -------
     dict
         :class:`Instrument` by name.
 
+    Raises
+    ------
+    ValueError
+        No instrument column; a tick value without a tick size; a tick value
+        and a point value that disagree; a detail that is not a number.
+
     Examples
     --------
-    >>> t = pd.DataFrame({"Instrument": ["ORRIN"], "Point value": [10], "Lot step": [1]})
+    >>> t = pd.DataFrame({"Symbol": ["ORRIN"], "Multiplier": [10], "Lot step": [1]})
     >>> instruments_from_frame(t)["ORRIN"].point_value
     10.0
     """
-    roles = {"instrument": ("instrument",), "point_value": ("point value",),
-             "lot_step": ("lot step",), "min_qty": ("min qty", "minimum"),
-             "max_qty": ("max qty", "maximum"), "fx_rate": ("fx rate", "fx"),
-             "tick": ("tick", "tick size")}
-    cols = _find_columns(frame, roles, {})
-    if cols["instrument"] is None:
-        raise ValueError("instrument table has no Instrument column")
+    cols: dict[str, Any] = {}
+    for c in frame.columns:
+        role = contract_role(c)
+        if role is not None:
+            cols.setdefault(role, c)
+    if "instrument" not in cols:
+        words = "/".join(w.capitalize() for w in LOG_COLUMNS["instrument"])
+        raise ValueError(f"instrument table has no instrument column ({words})")
     out: dict[str, Instrument] = {}
     for _, row in frame.iterrows():
         name = row[cols["instrument"]]
         if cells.is_blank(name) or (not isinstance(name, str) and pd.isna(name)):
             continue
-        values = {}
-        for role in ("point_value", "lot_step", "min_qty", "max_qty", "fx_rate", "tick"):
-            if cols[role] is not None:
+        values: dict[str, float] = {}
+        for role in CONTRACT_DETAILS:
+            if role in cols:
                 x = _numbers([row[cols[role]]], f"{name} {cols[role]}")[0]
                 if math.isfinite(x):
                     values[role] = float(x)
+        tick_value = values.pop("tick_value", math.nan)
+        if math.isfinite(tick_value):
+            tick = values.get("tick", 0.0)
+            if not tick > 0:
+                raise ValueError(f"{name}: a tick value ({tick_value:g}) needs a tick size "
+                                 "above 0 to give the point value; add a Tick size column")
+            per_point = tick_value / tick
+            given = values.get("point_value", math.nan)
+            if math.isfinite(given) and not math.isclose(given, per_point, rel_tol=1e-9):
+                raise ValueError(
+                    f"{name}: point value {given:g} disagrees with tick value / tick size "
+                    f"= {tick_value:g} / {tick:g} = {per_point:g}; correct one of them")
+            values["point_value"] = per_point
         out[str(name).strip()] = Instrument(**values)
     return out
 
@@ -498,10 +598,19 @@ def _review_row(
     row.update({"Stop": stop, "Target": target,
                 "Target R": risk.r_multiple(entry, stop, target, side)})
 
-    size = risk.size_with_reason(equity, settings.risk, entry, stop, inst.point_value,
-                                 inst.lot_step, inst.min_qty, inst.max_qty, inst.fx_rate)
-    row["Size"] = float(size.quantity[0])
-    row["Size note"] = "" if not math.isfinite(vol) else str(size.note[0])
+    size_notes = []
+    if not math.isfinite(inst.point_value):
+        size_notes.append(POINT_VALUE_ASSUMED)
+    if not math.isfinite(equity):
+        row["Size"] = math.nan
+        size_notes.insert(0, NO_EQUITY)
+    else:
+        size = risk.size_with_reason(equity, settings.risk, entry, stop, inst.per_point,
+                                     inst.lot_step, inst.min_qty, inst.max_qty, inst.fx_rate)
+        row["Size"] = float(size.quantity[0])
+        if math.isfinite(vol) and str(size.note[0]):
+            size_notes.insert(0, str(size.note[0]))
+    row["Size note"] = "; ".join(size_notes)
 
     trail = None
     if settings.trail_multiple > 0:
@@ -533,7 +642,10 @@ def _review_row(
         qty = quantity if math.isfinite(quantity) else row["Size"]
         guard = stop if trail is None else sign * max(sign * stop, sign * float(trail[-1]))
         at_risk = max(0.0, sign * (float(bars.close[-1]) - guard))
-        row["Open risk"] = qty * at_risk * inst.point_value * inst.fx_rate
+        # blank, never 0, when neither the log's quantity nor a size (equity) is known
+        row["Open risk"] = qty * at_risk * inst.per_point * inst.fx_rate
+        if not math.isfinite(qty):
+            notes.append(f"open risk blank: no quantity in the log and no size ({NO_EQUITY})")
     if has_exit and not math.isfinite(exit_day):
         notes.append("no exit date: R from the exit price only")
     elif has_exit and exit_index is None:
@@ -600,10 +712,13 @@ def summarise(
     equity = settings.equity
     if not math.isfinite(equity) and trades is not None:
         equity = _latest_equity(trades, settings)
+    open_risk = done["Open risk"].to_numpy(dtype=float)
     figures = risk.summarise_outcomes(
-        done["Result"].tolist(), done["R"].to_numpy(dtype=float),
-        done["Open risk"].to_numpy(dtype=float), equity,
+        done["Result"].tolist(), done["R"].to_numpy(dtype=float), open_risk, equity,
     )
+    is_open = (done["Result"].astype(str) == "open").to_numpy()
+    if not np.isfinite(open_risk[is_open]).all():  # a total missing some trades is no total
+        figures["open_risk"] = figures["open_risk_share"] = math.nan
     return pd.Series({SUMMARY_LABELS[k]: v for k, v in figures.items()}, name="Value",
                      dtype=object)
 

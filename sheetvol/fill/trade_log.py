@@ -16,7 +16,7 @@ import math
 import re
 from collections import Counter
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -34,9 +34,12 @@ from sheetvol.fill.notes import NOTES_SHEET
 from sheetvol.fill.recipe import TradeRecipe, check_measure, default_header, split_basis
 from sheetvol.fill.review import (
     LOG_COLUMNS,
+    NO_EQUITY,
+    POINT_VALUE_ASSUMED,
     SUMMARY_LABELS,
     Instrument,
     TradeSettings,
+    contract_role,
     instruments_from_frame,
     review_log,
     summarise,
@@ -51,6 +54,7 @@ __all__ = [
     "REVIEW_SHEET",
     "TRADE_CAUTIONS",
     "TRADE_CAUTION_LINE",
+    "Contracts",
     "TradeLog",
     "TradeLogError",
     "TradeReport",
@@ -60,6 +64,7 @@ __all__ = [
     "plan_trade_review",
     "scaled_format",
     "settings_from",
+    "stated_equity",
 ]
 
 REVIEW_SHEET = "Trade review"
@@ -139,6 +144,8 @@ class TradeReport:
     reviewed: pd.DataFrame | None = None
     warnings: list[str] = field(default_factory=list)  # printed by lines(), on the sheets
     instrument: str = ""  # every trade's instrument when the log has no instrument column
+    # what the review assumed (defaults, columns not used): the fill's report.assumptions
+    assumptions: list[str] = field(default_factory=list)
 
     def lines(self) -> list[str]:
         """Lines for the terminal summary."""
@@ -154,10 +161,13 @@ class TradeReport:
         if self.summary is not None:
             s = self.summary
             share = _fmt(100 * s[SUMMARY_LABELS['open_risk_share']], '.2f')
+            money = _fmt(s[SUMMARY_LABELS['open_risk']], ',.2f')
+            risk_text = (f"{share}% of equity" if share != "n/a" else
+                         f"n/a ({NO_EQUITY})" if money == "n/a" else
+                         f"{money} (share n/a: {NO_EQUITY})")
             out.append(f"    total R {_fmt(s[SUMMARY_LABELS['total_r']], '.2f')}, expectancy "
                        f"{_fmt(s[SUMMARY_LABELS['expectancy']], '.2f')} R, open risk "
-                       + (f"{share}% of equity" if share != "n/a" else
-                          "share n/a (no equity: add an Equity column or --equity)"))
+                       + risk_text)
         if self.written:
             again = f" ({self.replaced} replaced from an earlier fill)" if self.replaced else ""
             out.append(f"    columns written{again}: "
@@ -288,9 +298,26 @@ def _only_price_sheet(pkg: Package, names: Sequence[str]) -> str:
     return found[0] if len(found) == 1 else ""
 
 
+@dataclass(frozen=True)
+class Contracts:
+    """Contract details found in the workbook: the sheet, each instrument's details, and the
+    headers on that sheet the review does not use."""
+
+    sheet: str = ""
+    instruments: Mapping[str, Instrument] = field(default_factory=dict)
+    unused: tuple[str, ...] = ()
+    header_row: int = 0
+
+
 def find_instruments(pkg: Package, recipe: TradeRecipe, skip: Sequence[str] = (),
-                     where: str = "") -> tuple[str, dict[str, Instrument]]:
-    """Instrument details from ``recipe.instruments`` or a sheet headed Instrument + Point value.
+                     where: str = "") -> Contracts:
+    """Contract details from ``recipe.instruments`` or the first sheet that has them.
+
+    A contract sheet has a header row with an instrument column (the words of
+    :data:`sheetvol.fill.review.LOG_COLUMNS`, as in the log) and at least one
+    contract detail under its usual trade words (see
+    :func:`sheetvol.fill.review.contract_role`). Its other headers are reported
+    as not used.
 
     Parameters
     ----------
@@ -305,39 +332,113 @@ def find_instruments(pkg: Package, recipe: TradeRecipe, skip: Sequence[str] = ()
 
     Returns
     -------
-    tuple
-        The sheet name ("" when none) and :class:`Instrument` by name.
+    Contracts
+        Empty (``sheet`` "") when no sheet has contract details.
 
     Examples
     --------
     >>> find_instruments(Package.open("desk.xlsx"), TradeRecipe())  # doctest: +SKIP
-    ('Instruments', {'KESTREL': Instrument(...), ...})
+    Contracts(sheet='Instruments', instruments={'KESTREL': Instrument(...), ...}, ...)
     """
     skipped = {s.casefold() for s in skip}
     names = ([pkg.sheet(recipe.instruments).name] if recipe.instruments else
              [s.name for s in pkg.sheets
               if s.kind == "worksheet" and s.name.casefold() not in skipped])
-    detail_words = {"point value", "lot step", "min qty", "max qty", "fx rate", "tick",
-                    "tick size"}
     for name in names:
         grid = pkg.read_grid(name, max_rows=2000)
         for r in sorted(grid.rows)[:HEADER_SCAN_ROWS]:
-            texts = {c: normalize_header(v) for c, v in grid.rows[r].items()
-                     if isinstance(v, str)}
-            if "instrument" in texts.values() and detail_words & set(texts.values()):
-                cols = sorted(texts)
-                body = [[_plain(grid.rows.get(rr, {}).get(c)) for c in cols]
-                        for rr in range(r + 1, grid.max_row + 1)]
-                frame = pd.DataFrame(body, columns=[grid.rows[r][c] for c in cols])
-                try:
-                    return name, instruments_from_frame(frame)
-                except (ValueError, cells.CellValueError) as exc:
-                    raise TradeLogError(f'{where}, sheet "{name}": {exc}') from None
+            texts = {c: v for c, v in grid.rows[r].items() if isinstance(v, str) and v.strip()}
+            roles = {c: contract_role(v) for c, v in texts.items()}
+            if "instrument" not in roles.values() or not set(roles.values()) - {
+                    "instrument", None}:
+                continue
+            cols = sorted(texts)
+            body = [[_plain(grid.rows.get(rr, {}).get(c)) for c in cols]
+                    for rr in range(r + 1, grid.max_row + 1)]
+            frame = pd.DataFrame(body, columns=[texts[c] for c in cols])
+            seen: set[str | None] = set()
+            unused = []
+            for c in cols:  # the first column of a role is read, as instruments_from_frame does
+                if roles[c] is None or roles[c] in seen:
+                    unused.append(texts[c].strip())
+                seen.add(roles[c])
+            try:
+                return Contracts(name, instruments_from_frame(frame), tuple(unused), r)
+            except (ValueError, cells.CellValueError) as exc:
+                raise TradeLogError(f'{where}, sheet "{name}": {exc}') from None
         if recipe.instruments:
             raise TradeLogError(
-                f'{where}, sheet "{name}": no header row with Instrument and Point value / Lot '
-                "step / Min qty / Max qty / FX rate / Tick columns")
-    return "", {}
+                f'{where}, sheet "{name}": no header row with an instrument column '
+                f"({'/'.join(LOG_COLUMNS['instrument'])}) and a contract detail (point value, "
+                "multiplier, contract size, tick size, tick value, lot step, min/max qty, FX "
+                "rate)")
+    return Contracts()
+
+
+#: Sheet names where a workbook states settings such as the account equity (the template's).
+SETTINGS_SHEETS = ("settings",)
+
+
+def stated_equity(pkg: Package, skip: Sequence[str] = ()) -> tuple[float, str] | None:
+    """The account equity the workbook itself states, and where: a defined name or a
+    Settings sheet.
+
+    A workbook-level name spelled like an equity header of the log (``Equity``,
+    ``Account_equity``, ``AccountEquity``) pointing at one cell with a number
+    wins; else the first row of a sheet named Settings whose label reads as
+    equity with a number in the next cell to its right (the template's
+    layout).
+
+    Parameters
+    ----------
+    pkg : Package
+        The opened workbook.
+    skip : sequence of str
+        Sheets not to read (the log, the contract sheet).
+
+    Returns
+    -------
+    tuple or None
+        The equity and its cell (``"Settings!B1"``), or None.
+
+    Examples
+    --------
+    >>> stated_equity(Package.open("workbooks/template.xlsx"))
+    (100000.0, 'Settings!B1')
+    """
+    words = [normalize_header(w) for w in LOG_COLUMNS["equity"]]
+    for word in words:
+        for spelling in (word.replace(" ", "_"), word.replace(" ", ""),
+                         word.title().replace(" ", "")):
+            found = pkg.named_cell(spelling)
+            if found is None:
+                continue
+            sheet, row, col = found
+            try:
+                value = pkg.read_range(sheet, row, col, row, col)[0][0]
+            except (KeyError, ValueError):  # a name pointing at no worksheet: not an equity
+                continue
+            if isinstance(value, (int, float)) and not isinstance(value, bool) and value > 0:
+                return float(value), f"{_ref_sheet(sheet)}!{col_letter(col)}{row}"
+    skipped = {s.casefold() for s in skip}
+    for info in pkg.sheets:
+        if (info.kind != "worksheet" or info.name.casefold() not in SETTINGS_SHEETS
+                or info.name.casefold() in skipped):
+            continue
+        grid = pkg.read_grid(info.name, max_rows=HEADER_SCAN_ROWS)
+        for r in sorted(grid.rows):
+            row = grid.rows[r]
+            for c in sorted(row):
+                v, right = row[c], row.get(c + 1)
+                if (isinstance(v, str) and normalize_header(v) in words
+                        and isinstance(right, (int, float)) and not isinstance(right, bool)
+                        and right > 0):
+                    return float(right), f"{_ref_sheet(info.name)}!{col_letter(c + 1)}{r}"
+    return None
+
+
+def _ref_sheet(sheet: str) -> str:
+    return sheet if re.fullmatch(r"[A-Za-z_][A-Za-z0-9_.]*", sheet) else f"'{sheet}'"
 
 
 def instrument_key(name: object) -> str:
@@ -488,7 +589,7 @@ def plan_trade_review(
     prices: Mapping[str, pd.DataFrame],
     decimals: Mapping[str, int],
     *,
-    instruments: tuple[str, Mapping[str, Instrument]] = ("", {}),
+    instruments: Contracts | None = None,
     recorded: Mapping[str, str] | None = None,
     where: str = "",
 ) -> tuple[list, TradeReport]:
@@ -506,8 +607,8 @@ def plan_trade_review(
         Bars per instrument (Date, Open, High, Low, Close columns).
     decimals : mapping
         Price decimals per instrument (for the number formats).
-    instruments : tuple
-        Sheet name and details, from :func:`find_instruments`.
+    instruments : Contracts, optional
+        From :func:`find_instruments` (None: no contract sheet).
     recorded : mapping, optional
         Column letter -> header an earlier fill recorded for this sheet.
     where : str
@@ -522,12 +623,25 @@ def plan_trade_review(
     --------
     >>> edits, rep = plan_trade_review(pkg, log, TradeRecipe(), prices, {})  # doctest: +SKIP
     """
-    settings = settings_from(recipe, instruments[1])
+    contracts = instruments or Contracts()
     frame, grid = _read_log(pkg, log)
     if log.instrument and "Instrument" not in frame.columns:
         frame["Instrument"] = log.instrument
     report = TradeReport(sheet=log.sheet, header_row=log.header_row, trades=len(frame),
-                         instruments_sheet=instruments[0], instrument=log.instrument)
+                         instruments_sheet=contracts.sheet, instrument=log.instrument)
+    equity, equity_text = _equity(pkg, log, recipe, contracts, report)
+    settings = replace(settings_from(recipe, contracts.instruments), equity=equity)
+    report.assumptions.extend(
+        f'column "{h}" on sheet "{contracts.sheet}" not used' for h in contracts.unused)
+    traded = dict.fromkeys(str(n).strip() for n in frame.get("Instrument", pd.Series(
+        dtype=object)) if isinstance(n, str) and n.strip())
+    defaulted = [n for n in traded if not math.isfinite(settings.instrument(n).point_value)]
+    if defaulted:
+        where_pv = (f'not on the contract sheet "{contracts.sheet}"' if contracts.sheet
+                    else "no contract sheet")
+        report.assumptions.append(
+            f"{POINT_VALUE_ASSUMED} for {', '.join(defaulted)} ({where_pv}); sizes and open "
+            "risk of those trades use 1 per point, and their Size notes say so")
     if recipe.risk > LARGE_RISK:
         report.warnings.append(
             f"risk per trade is {_num(100 * recipe.risk)}% of equity, above "
@@ -600,7 +714,8 @@ def plan_trade_review(
         edits.append(NewColumn(sheet=log.sheet, col=col, header_row=log.header_row, header="",
                                first_row=first, values=np.full(1, np.nan),
                                number_format="General"))
-    report.settings = _settings_rows(recipe, settings, instruments[0], log.instrument)
+    report.settings = _settings_rows(recipe, settings, contracts.sheet, log.instrument,
+                                     equity_text)
     report.settings += [("Warning", w) for w in report.warnings]
     edits.append(NewSheet(name=REVIEW_SHEET, rows=_review_rows(report), widths=[40, 14]))
     return edits, report
@@ -708,8 +823,35 @@ def _step_decimals(step: float) -> int:
     return min(6, max(0, -math.floor(math.log10(step) + 1e-9)))
 
 
+def _equity(pkg: Package, log: TradeLog, recipe: TradeRecipe, contracts: Contracts,
+            report: TradeReport) -> tuple[float, str]:
+    """The equity for rows without their own, and how the Settings row describes it.
+
+    The recipe (or ``--equity``) wins; else the figure the workbook states
+    (:func:`stated_equity`); else none. A stated figure that is not used is said
+    in the assumptions, so one workbook does not silently give two answers.
+    """
+    stated = stated_equity(pkg, skip=[log.sheet, contracts.sheet])
+    has_column = "equity" in log.roles
+    own = (f"the log's Equity column on rows that have one ({col_letter(log.roles['equity'])})"
+           "; " if has_column else "")
+    if math.isfinite(recipe.equity):
+        if stated is not None and not math.isclose(stated[0], recipe.equity, rel_tol=1e-12):
+            report.assumptions.append(
+                f"equity {recipe.equity:,.2f} from the recipe or --equity is used, not the "
+                f"{stated[0]:,.2f} the workbook states in {stated[1]}")
+        return recipe.equity, f"{own}{recipe.equity:,.2f} (recipe or --equity)"
+    if stated is not None:
+        return stated[0], f"{own}{stated[0]:,.2f} from {stated[1]}"
+    if has_column:
+        return math.nan, (f"{own[:-2]}, the latest trade's for the open-risk share; rows "
+                          f"without one: {NO_EQUITY}")
+    return math.nan, f"none ({NO_EQUITY}): sizes and open risk are blank"
+
+
 def _settings_rows(recipe: TradeRecipe, settings: TradeSettings,
-                   instruments_sheet: str, instrument: str = "") -> list[tuple[str, str]]:
+                   instruments_sheet: str, instrument: str = "",
+                   equity: str = "") -> list[tuple[str, str]]:
     func = check_measure(recipe)
     opts = ", ".join(f"{k}={v}" for k, v in recipe.options.items())
     ticks = {k: v.tick for k, v in settings.instruments.items() if v.tick > 0}
@@ -718,10 +860,9 @@ def _settings_rows(recipe: TradeRecipe, settings: TradeSettings,
               "the rounded stop" + ("" if len(ticks) == len(settings.instruments) else
                                     "; instruments without a tick are not rounded")
               if ticks else "not rounded (no Tick column in the contract details)")
-    equity = ("the log's Equity column (the latest trade's for the open-risk share)"
-              if not math.isfinite(recipe.equity) else f"{recipe.equity:,.2f}")
     details = (f'sheet "{instruments_sheet}"' if instruments_sheet else
-               "none found: point value 1, lot step 1, no size limits, FX rate 1")
+               "none found: point value 1 (assumed; see the Size notes), lot step 1, no size "
+               "limits, FX rate 1")
     return [
         ("Volatility measure", f"{func.name}({opts})" if opts else func.name),
         ("Stop multiple", _num(recipe.stop_multiple)),

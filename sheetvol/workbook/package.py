@@ -404,6 +404,30 @@ class Package:
             out[c] = Column(numbers=numbers, other=other[c], first_row=first_row)
         return out
 
+    def named_cell(self, name: str) -> tuple[str, int, int] | None:
+        """The single cell a workbook-level defined name points at: (sheet, row, col).
+
+        Parameters
+        ----------
+        name : str
+            The defined name, compared ignoring case.
+
+        Returns
+        -------
+        tuple or None
+            None when no workbook-level name matches or it is not one cell.
+        """
+        with self._zip() as zf:
+            wb = self._xml(zf, self.workbook_part)
+        for el in wb.iter():
+            if (local(el.tag) == "definedName" and el.get("localSheetId") is None
+                    and el.get("name", "").casefold() == name.casefold()):
+                m = re.fullmatch(r"'?((?:[^']|'')+?)'?!\$?([A-Z]{1,3})\$?(\d+)",
+                                 (el.text or "").strip())
+                if m:
+                    return m[1].replace("''", "'"), int(m[3]), col_index(m[2].encode())
+        return None
+
     def read_range(
         self, sheet: str, top: int, left: int, bottom: int, right: int
     ) -> list[list[object]]:
