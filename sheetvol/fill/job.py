@@ -13,6 +13,7 @@ is only ever read; the output is written atomically by the writer.
 from __future__ import annotations
 
 import csv
+import dataclasses
 import datetime as dt
 import io
 import math
@@ -60,8 +61,15 @@ from sheetvol.fill.price_table import (
     price_decimals,
     suspect_separator,
 )
-from sheetvol.fill.recipe import ColumnSpec, RecipeError, TradeRecipe, default_specs
+from sheetvol.fill.recipe import (
+    ColumnSpec,
+    RecipeError,
+    TradeRecipe,
+    default_header,
+    default_specs,
+)
 from sheetvol.fill.review import LOG_COLUMNS
+from sheetvol.fill.spacing import TRADING_DAYS, bars_per_year
 from sheetvol.fill.table import ComputeError, compute_columns, needed_roles
 from sheetvol.fill.trade_log import (
     REVIEW_SHEET,
@@ -724,9 +732,10 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport,
             continue
         specs = _select_specs(options, match, _where(src, sheet), report)
         typed_cols = [fc.col for fc in typed if fc.sheet == sheet]
-        cols, targets = _plan_sheet(pkg, src, options, sr, specs, max_col, typed_cols,
-                                    recorded.get(sheet.casefold(), {}), report.warnings,
-                                    progress, share)
+        cols, targets, specs = _plan_sheet(pkg, src, options, sr, specs, max_col, typed_cols,
+                                           recorded.get(sheet.casefold(), {}),
+                                           report.warnings, progress, share,
+                                           report.assumptions)
         edits.extend(cols)
         taken[sheet] = {e.col for e in cols}
         specs_by_sheet.append((sr, specs, targets))
@@ -761,8 +770,14 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
                 specs: list[ColumnSpec], max_col: int, typed_cols: list[int],
                 recorded: Mapping[str, str], warnings: list[str],
                 progress: _Progress | None = None, share: float = 0.0,
-                ) -> tuple[list[NewColumn], list[int]]:
-    """Read one price sheet, compute its columns and say where each one goes."""
+                assumptions: list[str] | None = None,
+                ) -> tuple[list[NewColumn], list[int], list[ColumnSpec]]:
+    """Read one price sheet, compute its columns and say where each one goes.
+
+    Returns the edits, each spec's column and the specs as computed (bars per year
+    filled in from the dates where the recipe did not state them).
+    """
+    assumptions = assumptions if assumptions is not None else []
     progress = progress or _Progress()
     sheet, match = sr.sheet, sr.match
     where = _where(src, sheet)
@@ -773,17 +788,28 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
         if t.header_row == match.row and t.left <= match.columns["close"] <= t.right:
             max_col = max(max_col, t.right)
     max_col = max([max_col, *own, *typed_cols])
-    headers = {s.header for s in specs}
-    reused = {h: c for c, h in own.items() if h in headers}
-    free = sorted(c for c in own if own[c] not in headers)
-    n_new = max(0, len(specs) - len(reused) - len(free))
 
     roles = sorted(match.columns, key=match.columns.__getitem__)
     letters = {role: col_letter(match.columns[role]) for role in roles}
     price_cols = [match.columns[r] for r in roles]
     start = max_col + 1
-    read = pkg.read_columns(sheet, price_cols + list(range(start, start + n_new)),
+    # as many columns right of the sheet as there are specs, read in the same pass as the
+    # prices: the headers (and so the reuse of earlier columns) are known after the dates
+    read = pkg.read_columns(sheet, price_cols + list(range(start, start + len(specs))),
                             first_row=match.row + 1)
+    table = build_price_table(
+        {role: read[match.columns[role]] for role in roles},
+        header_row=match.row, letters=letters, date1904=pkg.date1904,
+        decimal_comma=options.decimal_comma, dayfirst=options.dayfirst, where=where,
+    )
+    sr.table = table
+    specs = _annualised(specs, table.dates, where, match, assumptions, warnings,
+                        default_set=options.specs is None)
+
+    headers = {s.header for s in specs}
+    reused = {h: c for c, h in own.items() if h in headers}
+    free = sorted(c for c in own if own[c] not in headers)
+    n_new = max(0, len(specs) - len(reused) - len(free))
     while busy := [c for c in range(start, start + n_new) if _has_cells(read[c])]:
         # cells far below the header in the columns we meant to use: move right of them
         start = max(busy) + 1
@@ -793,13 +819,13 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
     targets = [reused[s.header] if s.header in reused else (free or new_cols).pop(0)
                for s in specs]
     sr.replaced = sum(1 for c in targets if c in own)
-
-    table = build_price_table(
-        {role: read[match.columns[role]] for role in roles},
-        header_row=match.row, letters=letters, date1904=pkg.date1904,
-        decimal_comma=options.decimal_comma, dayfirst=options.dayfirst, where=where,
-    )
-    sr.table = table
+    for role, chosen in options.columns.items():  # a column the user named must hold prices
+        if role in table.prices and not np.isfinite(table.prices[role]).any():
+            letter = letters.get(role, chosen)
+            raise FillError(
+                f"{where}: the {role.capitalize()} column chosen with --{role}-col {chosen} "
+                f"(column {letter}) has no numbers in rows {match.row + 1} to "
+                f"{int(table.rows.max())}; choose the column that holds the {role} prices")
     warnings.extend(f"{where}: {w}" for w in table.warnings)
     progress.advance(progress.READ * share)
     if not len(table):
@@ -830,7 +856,50 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
         columns.append(NewColumn(sheet=sheet, col=col, header_row=match.row, header="",
                                  first_row=first_row, values=np.full(1, np.nan),
                                  number_format="General"))
-    return columns, targets
+    return columns, targets, specs
+
+
+def _annualised(specs: list[ColumnSpec], dates: np.ndarray, where: str, match: HeaderMatch,
+                assumptions: list[str], warnings: list[str], default_set: bool
+                ) -> list[ColumnSpec]:
+    """Specs with ``per_year`` from the bar dates where the recipe did not state it.
+
+    The figure used is stated in the assumptions (and in the header when it is not
+    252). Irregular spacing is refused, naming the date column and the way out; the
+    default column set, which the user did not ask for, leaves those columns out
+    with the same words as a warning.
+    """
+    wanting = [s for s in specs if "per_year" in s.options and "per_year" not in s.given]
+    if not wanting:
+        return specs
+    spacing = bars_per_year(dates)
+    names = ", ".join(s.header for s in wanting)
+    per_year = spacing.per_year
+    date_col = match.columns.get("date")
+    if spacing.kind == "too few dates":  # nothing to annualise wrongly: say the convention
+        per_year = float(TRADING_DAYS)
+        assumptions.append(f"{where}: {per_year:g} bars/yr for {names} ({spacing.detail}; "
+                           "trading days assumed)")
+    elif not per_year:
+        place = f"the dates in column {col_letter(date_col)}" if date_col else "the dates"
+        message = (f"{where}: cannot tell the bars per year to annualise {names}: {place} "
+                   f"are irregular ({spacing.detail}); state it in a recipe, e.g. options = "
+                   "{ period = 20, per_year = 252 }, or fix the dates")
+        if not default_set:
+            raise FillError(message)
+        warnings.append(f"{message}; left out")
+        return [s for s in specs if s not in wanting]
+    else:
+        assumptions.append(f"{where}: {spacing.describe()} for {names}, from the dates")
+    out = []
+    for s in specs:
+        if s in wanting:
+            opts = {**s.options, "per_year": per_year}
+            header = s.header if s.header_given else default_header(s.function, opts, s.inputs)
+            s = dataclasses.replace(s, options=opts, header=header,
+                                    given=s.given | {"per_year"})
+        out.append(s)
+    return out
 
 
 def _instrument_column(match: HeaderMatch) -> int | None:

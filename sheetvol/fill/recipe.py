@@ -70,6 +70,8 @@ __all__ = [
 ]
 
 ROLES = ("open", "high", "low", "close", "volume")
+#: How an unstated ``per_year`` is described: the fill takes it from the bar dates.
+PER_YEAR_FROM_DATES = "from the dates"
 _KEYS = {"function", "options", "header", "inputs", "id"}
 
 
@@ -91,14 +93,21 @@ class ColumnSpec:
     inputs: Mapping[str, str]
     header: str
     id: str = ""
+    # options the recipe stated (the others took the registry default), and whether it
+    # gave the header: the fill derives bars per year from the dates unless stated
+    given: frozenset[str] = frozenset()
+    header_given: bool = False
 
     @property
     def func(self) -> registry.Function:
         return registry.get(self.function)
 
     def describe_options(self) -> str:
-        """``period=14, average=simple`` in registry order."""
-        return ", ".join(f"{k}={_plain(v)}" for k, v in self.options.items())
+        """``period=14, average=simple`` in registry order (``per_year=from the dates``
+        when not stated: the fill derives it)."""
+        return ", ".join(
+            f"{k}={PER_YEAR_FROM_DATES if k == 'per_year' and k not in self.given else _plain(v)}"
+            for k, v in self.options.items())
 
 
 def _plain(value: Any) -> str:
@@ -209,6 +218,8 @@ def make_spec(
         inputs=mapping,
         header=str(text),
         id=str(id),
+        given=frozenset(options),
+        header_given=bool(header),
     )
 
 
@@ -402,7 +413,7 @@ DEFAULT_RECIPE: tuple[dict[str, Any], ...] = (
     {"function": "SV_BAND", "options": {"line": "upper", "period": 20, "width": 2}},
     {"function": "SV_BAND", "options": {"line": "lower", "period": 20, "width": 2}},
     {"function": "SV_PCTB", "options": {"period": 20, "width": 2}},
-    {"function": "SV_CLOSEVOL", "options": {"period": 20, "per_year": 252}},
+    {"function": "SV_CLOSEVOL", "options": {"period": 20}},  # per_year: from the dates
 )
 """The fill's default columns (documented in ``sheetvol fill --help``)."""
 
