@@ -42,8 +42,8 @@ INSTRUMENTS = ("KESTREL", "BRAMBLE", "ORRIN", "TALLOW")
 # Output column of review_log -> header the fill writes with the default settings.
 HEADERS = {
     "Volatility": "Entry-bar ATR 14 (Wilder)", "Bar date": "Entry-bar date",
-    "Stop": "Stop 2×vol", "Target": "Target 3×vol", "Target R": "Target in R",
-    "Size": "Size at 1% risk", "Size note": "Size note", "Trail": "Trail 3×vol",
+    "Stop": "Stop 2x vol", "Target": "Target 3x vol", "Target R": "Target in R",
+    "Size": "Size at 1% risk", "Size note": "Size note", "Trail": "Trail 3x vol",
     "Result": "Reviewed outcome", "Exit price": "Reviewed exit",
     "Exit date": "Reviewed exit date", "R": "R multiple", "Bars": "Bars held",
     "Adverse": "Worst move", "Favourable": "Best move", "Adverse R": "Worst move in R",
@@ -102,7 +102,7 @@ def test_demo_fill_fills_every_price_sheet_and_the_log(demo_filled, demo_direct)
     wb = load_workbook(report.output)
     for name in INSTRUMENTS:
         cols = columns_by_header(wb[name])
-        assert "ATR 14 (Wilder)" in cols and "%b 20×2" in cols
+        assert "ATR 14 (Wilder)" in cols and "%b 20x2" in cols
         assert sum(v is not None for v in cols["ATR 14 (Wilder)"]) == 523 - 13
     book, direct = demo_direct
     got = columns_by_header(wb["Trades"])
@@ -133,7 +133,7 @@ def test_demo_number_formats(demo_filled):
     assert fmt["Entry-bar date"] == fmt["Reviewed exit date"] == "yyyy-mm-dd"
     assert fmt["R multiple"] == fmt["Target in R"] == "0.00"
     # KESTREL (about 1.1) is quoted to 5 decimals, the others (90 and up) to 2
-    assert fmt["Stop 2×vol"] == "[<10]#,##0.00000;[>=10]#,##0.00"
+    assert fmt["Stop 2x vol"] == "[<10]#,##0.00000;[>=10]#,##0.00"
     assert fmt["Bars held"] == "0"
 
 
@@ -212,7 +212,8 @@ def test_result_column_and_review_sheet_counts(demo_filled, demo_direct):
     summary, counts = review_sheet_blocks(wb[REVIEW_SHEET])
     assert counts == {w: Counter(outcome)[w] for w in WORDS.values()}
     results = Counter(direct["Result"])
-    assert summary["Trades"] == (20, "0")
+    assert summary["Trades reviewed (log rows with an outcome)"] == (20, "0")
+    assert summary["Trades in the log"] == (20, "0")
     assert sum(counts.values()) == 20
     # shares are fractions: stop share x trades = stop count; a % format shows them
     for key, label in (("stop", "Stop hit (share)"), ("target", "Target hit (share)"),
@@ -226,7 +227,7 @@ def test_result_column_and_review_sheet_counts(demo_filled, demo_direct):
     assert summary[label] == (pytest.approx(sum(finished) / len(finished)), "0.00")
     assert "Average R" not in summary  # the same figure once, not twice
     assert summary["Open risk (account currency)"][1] == "#,##0.00"
-    assert summary["Open risk (share of equity)"][1] == "0.0%"
+    assert summary["Open risk (share of equity)"][1] == "0.00%"
 
 
 def test_notes_and_review_sheet_record_settings_and_cautions(demo_filled):
@@ -235,7 +236,7 @@ def test_notes_and_review_sheet_record_settings_and_cautions(demo_filled):
     notes = [r for r in wb[NOTES_SHEET].iter_rows(values_only=True)]
     text = " ".join(str(v) for r in notes for v in r if v is not None)
     assert "Stop multiple" in text and "Risk per trade" in text and "1% of equity" in text
-    assert any(r[0] == "Trades" and r[2] == "Stop 2×vol" and r[3] == "trade review"
+    assert any(r[0] == "Trades" and r[2] == "Stop 2x vol" and r[3] == "trade review"
                for r in notes)
     review = " ".join(str(r[0]) for r in wb[REVIEW_SHEET].iter_rows(values_only=True) if r[0])
     assert "gap" in review and "margin rules" in review and "Not advice" in review
@@ -267,7 +268,7 @@ def test_turtle_sizing_example_through_the_fill(tmp_path):
     report = fill_file(src, FillOptions(trades=TradeRecipe(stop_multiple=1)))
     got = columns_by_header(load_workbook(report.output)["Log"])
     assert got["Entry-bar ATR 14 (Wilder)"][0] == pytest.approx(0.0141, rel=1e-9)
-    assert got["Stop 1×vol"][0] == pytest.approx(1.0 - 0.0141, rel=1e-9)
+    assert got["Stop 1x vol"][0] == pytest.approx(1.0 - 0.0141, rel=1e-9)
     assert got["Size at 1% risk"][0] == 16
     assert report.trades is not None and report.trades.instruments_sheet == "Contracts"
 
@@ -307,7 +308,7 @@ def test_rerun_replaces_and_new_settings_take_the_same_columns(tmp_path, demo_fi
         output=tmp_path / "tighter.xlsx", trades=TradeRecipe(stop_multiple=1.5)))
     ws = load_workbook(tighter.output)["Trades"]
     heads = [c.value for c in ws[1]]
-    assert heads[10] == "Stop 1.5×vol" and "Stop 2×vol" not in heads
+    assert heads[10] == "Stop 1.5x vol" and "Stop 2x vol" not in heads
     assert len(heads) == len(before)
 
 
@@ -352,7 +353,7 @@ def test_one_long_price_sheet_with_an_instrument_column(tmp_path):
                                  "Side": ["long", "short", "long"],
                                  "Equity": [50_000.0, 50_000.0, 10.0]})
     direct = review_log(trades_frame, frames, TradeSettings())
-    assert got["Stop 2×vol"][:2] == direct["Stop"].tolist()[:2]
+    assert got["Stop 2x vol"][:2] == direct["Stop"].tolist()[:2]
     assert got["Size at 1% risk"][:3] == direct["Size"].tolist()
     # the notes are text beside the numbers: no entry price logged, a size of zero
     assert got["Review note"][:3] == direct["Note"].tolist()
@@ -401,7 +402,7 @@ def test_cli_recipe_flags_summary_and_caution(tmp_path, capsys):
     assert "outcomes:" in out and "20 trades" in out
     assert "stops do not guarantee exit prices" in out
     heads = [c.value for c in load_workbook(tmp_path / "demo-filled.xlsx")["Trades"][1]]
-    assert {"Stop 1.5×vol", "Target 4×vol", "Size at 0.5% risk"} <= set(heads)
+    assert {"Stop 1.5x vol", "Target 4x vol", "Size at 0.5% risk"} <= set(heads)
     assert main(["fill", str(src), "--risk", "2"]) == 2
     assert "--risk 2: risk is a share of equity: 0.01 = 1%" in capsys.readouterr().err
     assert main(["fill", str(src), "--risk", "0.3"]) == 2
@@ -459,8 +460,8 @@ def test_levels_on_the_tick_recorded_and_placeable(demo_filled):
     wb = load_workbook(report.output)
     got = columns_by_header(wb["Trades"])
     ticks = {r[0]: r[8] for r in wb["Instruments"].iter_rows(min_row=2, values_only=True)}
-    for name, stop, target in zip(got["Instrument"][:20], got["Stop 2×vol"][:20],
-                                  got["Target 3×vol"][:20], strict=True):
+    for name, stop, target in zip(got["Instrument"][:20], got["Stop 2x vol"][:20],
+                                  got["Target 3x vol"][:20], strict=True):
         tick = Decimal(str(ticks[name]))
         for level in (stop, target):
             assert Decimal(repr(level)) % tick == 0, (name, level, tick)
@@ -541,7 +542,7 @@ def test_log_without_instrument_column_uses_the_only_price_sheet(tmp_path):
                for line in report.summary())
     got = columns_by_header(load_workbook(report.output)["Trades"])
     # Hand-worked: stop 10 - 2 x 2 = 6; size 10,000 x 1% / 4 = 25.
-    assert got["Stop 2×vol"][0] == 6.0 and got["Size at 1% risk"][0] == 25
+    assert got["Stop 2x vol"][0] == 6.0 and got["Size at 1% risk"][0] == 25
     notes = " ".join(str(v) for r in load_workbook(report.output)[NOTES_SHEET].iter_rows(
         values_only=True) for v in r if v)
     assert 'the log has no instrument column: every trade is on "Prices"' in notes

@@ -23,9 +23,9 @@ def test_default_set_is_the_documented_one():
     assert got == [
         ("SV_DEVIATION", "Std dev 14 (simple, close)"),
         ("SV_ATR", "ATR 14 (Wilder)"),
-        ("SV_BAND", "Upper band 20×2"),
-        ("SV_BAND", "Lower band 20×2"),
-        ("SV_PCTB", "%b 20×2"),
+        ("SV_BAND", "Upper band 20x2"),
+        ("SV_BAND", "Lower band 20x2"),
+        ("SV_PCTB", "%b 20x2"),
         ("SV_CLOSEVOL", "Close vol 20 (ann.)"),
     ]
     assert len(DEFAULT_RECIPE) == 6

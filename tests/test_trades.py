@@ -106,7 +106,7 @@ def test_hand_worked_log():
 
     s = summarise(out, _hand_log(), HAND_SETTINGS)
     # Finished R: 1.5, -1, -1.25 -> total -0.75, average -0.25, 1 win of 3, 2 losses in a row.
-    assert s["Trades"] == 4 and s["Finished trades"] == 3
+    assert s["Trades reviewed (log rows with an outcome)"] == 4 and s["Finished trades"] == 3
     assert s["Total R"] == pytest.approx(-0.75)
     assert s["Expectancy (average R per finished trade)"] == pytest.approx(-0.25)
     assert "Average R" not in s.index  # one row for the average R, not two
@@ -344,7 +344,7 @@ def test_demo_reviews_end_to_end(demo):
     assert set(out["Result"]) <= set(RESULTS)
     assert out[["Volatility", "Stop", "Target", "Size"]].notna().all().all()
     summary = summarise(out, demo["Trades"], settings)
-    assert summary["Trades"] == 20
+    assert summary["Trades reviewed (log rows with an outcome)"] == 20
 
 
 def test_committed_demo_matches_the_generator(tmp_path):

@@ -113,7 +113,7 @@ def raw_workbook(path: Path) -> None:
     }
     ws = wb.create_sheet("Prices")
     ws.append(["Date", "Open", "High", "Low", "Close", "Volume", None,
-               "ATR 14", "Upper band 20/2", "Lower band 20/2", "Volatility 20 (ann.)"])
+               "ATR 14", "Upper band 20x2", "Lower band 20x2", "Volatility 20 (ann.)"])
     for c in ws[1]:
         c.font = bold
     for i, d in enumerate(days):

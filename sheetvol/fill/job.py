@@ -619,9 +619,22 @@ def _own_columns(match: HeaderMatch, recorded: Mapping[str, str],
     """
     own = still_headed(recorded, match.headers)
     ours = {s.header for s in specs}
-    own.update({col: text for col, text in match.headers.items() if text in ours})
+    # "×" was the multiplication sign of earlier fills' headers; now plain "x"
+    own.update({col: text for col, text in match.headers.items()
+                if text in ours or _plain_times(text) in ours})
     used = set(match.columns.values())
     return {c: h for c, h in own.items() if c not in used}
+
+
+def _plain_times(header: str) -> str:
+    """An earlier fill's header in today's spelling: ``20×2`` -> ``20x2``.
+
+    Examples
+    --------
+    >>> _plain_times("Upper band 20×2"), _plain_times("Lower ATR band 20, 2×ATR 10")
+    ('Upper band 20x2', 'Lower ATR band 20, 2x ATR 10')
+    """
+    return re.sub(r"(\d)×(?=\d)", r"\1x", header).replace("×ATR", "x ATR")
 
 
 def _recorded(pkg: Package) -> dict[str, dict[str, str]]:
@@ -745,9 +758,13 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport,
             assert sr.table is not None
             bars[instrument_key(sr.sheet)] = _bars_frame(sr.table)
             decimals[instrument_key(sr.sheet)] = sr.table.decimals
+        chosen_names = {name.casefold() for name, _, _ in chosen}
+        not_chosen = [s.name for s in pkg.sheets if options.sheets and s.kind == "worksheet"
+                      and s.name.casefold() not in chosen_names | OWN_SHEETS | exclude]
         trade_edits, report.trades = plan_trade_review(
             pkg, log, options.trades or TradeRecipe(), bars, decimals, instruments=instruments,
-            recorded=recorded.get(log.sheet.casefold(), {}), where=src.name)
+            recorded=recorded.get(log.sheet.casefold(), {}), where=src.name,
+            not_chosen=not_chosen)
         edits.extend(trade_edits)
         taken.setdefault(log.sheet, set()).update(
             e.col for e in trade_edits if isinstance(e, NewColumn))

@@ -247,7 +247,7 @@ def default_header(function: str, options: Mapping[str, Any], inputs: Mapping[st
     --------
     >>> default_header("SV_BAND", {"line": "upper", "period": 20, "width": 2.0,
     ...                 "average": "simple", "divisor": "population"}, {"prices": "close"})
-    'Upper band 20×2'
+    'Upper band 20x2'
     """
     o = dict(options)
     src = inputs.get("prices", inputs.get("close", "close"))
@@ -270,14 +270,14 @@ def default_header(function: str, options: Mapping[str, Any], inputs: Mapping[st
     elif function == "SV_TRUERANGE":
         head = "True range"
     elif function == "SV_BAND":
-        head = f"{str(o['line']).capitalize()} band {period}×{_w(o['width'])}"
+        head = f"{str(o['line']).capitalize()} band {period}x{_w(o['width'])}"
     elif function == "SV_PCTB":
-        head = f"%b {period}×{_w(o['width'])}"
+        head = f"%b {period}x{_w(o['width'])}"
     elif function == "SV_BANDWIDTH":
-        head = f"Bandwidth {period}×{_w(o['width'])}"
+        head = f"Bandwidth {period}x{_w(o['width'])}"
     elif function == "SV_ATRBAND":
         head = (f"{str(o['line']).capitalize()} ATR band {period}, "
-                f"{_w(o['width'])}×ATR {o['atr_period']}")
+                f"{_w(o['width'])}x ATR {o['atr_period']}")
     elif function == "SV_ENVELOPE":
         head = f"{str(o['line']).capitalize()} envelope {period} ±{_w(o['percent'])}%"
     elif function == "SV_AVERAGE":
@@ -424,7 +424,7 @@ def default_specs() -> list[ColumnSpec]:
     Returns
     -------
     list of ColumnSpec
-        Deviation 14, ATR 14, upper and lower bands 20×2, %b 20×2, close vol 20.
+        Deviation 14, ATR 14, upper and lower bands 20x2, %b 20x2, close vol 20.
 
     Examples
     --------

@@ -48,6 +48,7 @@ __all__ = [
     "OUTPUT_COLUMNS",
     "POINT_VALUE_ASSUMED",
     "SUMMARY_LABELS",
+    "TRADES_REVIEWED",
     "Instrument",
     "TradeSettings",
     "contract_role",
@@ -655,8 +656,10 @@ def _review_row(
 
 
 # -- summary ------------------------------------------------------------------------------------
+#: What the review's trade count counts, said beside the figure on the sheet and terminal.
+TRADES_REVIEWED = "log rows with an outcome"
 SUMMARY_LABELS = {
-    "trades": "Trades",
+    "trades": f"Trades reviewed ({TRADES_REVIEWED})",
     "stop": "Stop hit (share)",
     "target": "Target hit (share)",
     "trail": "Trailing stop hit (share)",

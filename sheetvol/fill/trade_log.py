@@ -37,6 +37,7 @@ from sheetvol.fill.review import (
     NO_EQUITY,
     POINT_VALUE_ASSUMED,
     SUMMARY_LABELS,
+    TRADES_REVIEWED,
     Instrument,
     TradeSettings,
     contract_role,
@@ -49,6 +50,7 @@ from sheetvol.workbook import CellError, NewColumn, NewSheet, Package, Styled
 
 __all__ = [
     "LARGE_RISK",
+    "NOT_CHOSEN_NOTE",
     "OUTCOME_WORDS",
     "OWN_HEADER",
     "REVIEW_SHEET",
@@ -68,6 +70,8 @@ __all__ = [
 ]
 
 REVIEW_SHEET = "Trade review"
+#: The Review note of a trade whose price sheet was left out with --sheet.
+NOT_CHOSEN_NOTE = "not reviewed: its price sheet was not chosen (--sheet)"
 TRADE_CAUTIONS = (
     "Not advice: these figures describe what past prices did to the logged trades.",
     "A stop does not guarantee the exit price: markets gap through stops and orders slip, "
@@ -85,8 +89,9 @@ _CANONICAL = {"date": "Date", "instrument": "Instrument", "side": "Side", "entry
 _REQUIRED = ("date", "instrument", "side")
 # Headers this module writes (any parameters): recognised on a re-run without the notes.
 OWN_HEADER = re.compile(
-    r"^(Entry-bar .+|Stop \S+×vol|Target \S+×vol|Target in R|Size at \S+ risk"
-    r"|Trail \S+×vol|Reviewed exit|Reviewed exit date|R multiple|Bars held|Worst move"
+    r"^(Entry-bar .+|Stop \S+(?:×| ?x )vol|Target \S+(?:×| ?x )vol|Target in R"
+    r"|Size at \S+ risk|Trail \S+(?:×| ?x )vol|Reviewed exit|Reviewed exit date|R multiple"
+    r"|Bars held|Worst move"
     r"|Best move|Worst move in R|Best move in R|Open risk|Reviewed outcome|Size note"
     r"|Review note)$"
 )
@@ -105,7 +110,8 @@ _TEXT_KEYS = ("Size note", "Result", "Note")
 # Summary figures by SUMMARY_LABELS key -> number format on the review sheet
 _SUMMARY_FORMATS = {"trades": "0", "finished": "0", "losing_streak": "0",
                     "total_r": "0.00", "expectancy": "0.00",
-                    "open_risk": "#,##0.00"}
+                    "open_risk": "#,##0.00",
+                    "open_risk_share": "0.00%"}  # as the terminal prints it
 _SHARE_FORMAT = "0.0%"
 #: Risk per trade above this share of equity is accepted but warned about (common
 #: practice, no source: desks rarely risk more than a few percent on one trade).
@@ -146,10 +152,15 @@ class TradeReport:
     instrument: str = ""  # every trade's instrument when the log has no instrument column
     # what the review assumed (defaults, columns not used): the fill's report.assumptions
     assumptions: list[str] = field(default_factory=list)
+    # trades whose price sheet exists but was not chosen (--sheet): not reviewed
+    not_chosen: int = 0
 
     def lines(self) -> list[str]:
         """Lines for the terminal summary."""
-        out = [f'  trade log "{self.sheet}", header row {self.header_row}: {self.trades} trades'
+        reviewed = (_fmt(self.summary[SUMMARY_LABELS["trades"]], ".0f")
+                    if self.summary is not None else "0")
+        out = [f'  trade log "{self.sheet}", header row {self.header_row}: {self.trades} '
+               f"trades in the log, {reviewed} reviewed ({TRADES_REVIEWED})"
                + (f'; contract details from "{self.instruments_sheet}"'
                   if self.instruments_sheet else "; contract details: defaults (1 per point)")]
         if self.instrument:
@@ -165,7 +176,8 @@ class TradeReport:
             risk_text = (f"{share}% of equity" if share != "n/a" else
                          f"n/a ({NO_EQUITY})" if money == "n/a" else
                          f"{money} (share n/a: {NO_EQUITY})")
-            out.append(f"    total R {_fmt(s[SUMMARY_LABELS['total_r']], '.2f')}, expectancy "
+            out.append(f"    {'partial totals: ' if self.not_chosen else ''}"
+                       f"total R {_fmt(s[SUMMARY_LABELS['total_r']], '.2f')}, expectancy "
                        f"{_fmt(s[SUMMARY_LABELS['expectancy']], '.2f')} R, open risk "
                        + risk_text)
         if self.written:
@@ -499,12 +511,12 @@ def _headers(recipe: TradeRecipe) -> dict[str, str]:
     heads = {
         "Volatility": f"Entry-bar {label}",
         "Bar date": "Entry-bar date",
-        "Stop": f"Stop {_num(recipe.stop_multiple)}×vol",
-        "Target": f"Target {_num(recipe.target_multiple)}×vol",
+        "Stop": f"Stop {_num(recipe.stop_multiple)}x vol",
+        "Target": f"Target {_num(recipe.target_multiple)}x vol",
         "Target R": "Target in R",
         "Size": f"Size at {_num(100 * recipe.risk)}% risk",
         "Size note": "Size note",
-        "Trail": f"Trail {_num(recipe.trail_multiple)}×vol",
+        "Trail": f"Trail {_num(recipe.trail_multiple)}x vol",
         "Result": "Reviewed outcome",
         "Exit price": "Reviewed exit",
         "Exit date": "Reviewed exit date",
@@ -592,6 +604,7 @@ def plan_trade_review(
     instruments: Contracts | None = None,
     recorded: Mapping[str, str] | None = None,
     where: str = "",
+    not_chosen: Sequence[str] = (),
 ) -> tuple[list, TradeReport]:
     """Review the log and return the edits: log columns and the review sheet.
 
@@ -613,6 +626,9 @@ def plan_trade_review(
         Column letter -> header an earlier fill recorded for this sheet.
     where : str
         File name for messages.
+    not_chosen : sequence of str
+        Price sheets left out of the fill (``--sheet``): their trades are not
+        reviewed, said once, and the totals are labelled partial.
 
     Returns
     -------
@@ -651,11 +667,24 @@ def plan_trade_review(
         reviewed = review_log(frame, prices, settings)
     except ValueError as exc:  # settings were checked; this is the log itself
         raise TradeLogError(f'{where}, sheet "{log.sheet}": {exc}') from None
+    left_out = {instrument_key(n): n for n in not_chosen}
+    names_left = []
+    for row, name, note in zip(reviewed.index, frame.get("Instrument", pd.Series(
+            [""] * len(frame), index=frame.index)), reviewed["Note"], strict=True):
+        if note and note.startswith("no prices") and instrument_key(name) in left_out:
+            reviewed.loc[row, "Note"] = NOT_CHOSEN_NOTE
+            names_left.append(left_out[instrument_key(name)])
+    report.not_chosen = len(names_left)
+    if names_left:
+        report.warnings.append(
+            f"{len(names_left)} trades on sheets not chosen with --sheet "
+            f"({', '.join(dict.fromkeys(names_left))}) were not reviewed; the review's "
+            "totals are partial")
     report.reviewed = reviewed
     report.counts = Counter(reviewed["Result"].tolist())
     report.summary = summarise(reviewed, frame, settings)
     for row, note in zip(reviewed.index, reviewed["Note"], strict=True):
-        if note and "no prices" in note:
+        if note and note.startswith("no prices"):
             report.problems.append(f'{where}, sheet "{log.sheet}" row {row}: {note}')
 
     heads = _headers(recipe)
@@ -676,7 +705,10 @@ def plan_trade_review(
     names = [instrument_key(n) for n in frame.get("Instrument", pd.Series(dtype=object))]
     price_places = [decimals.get(n, 2) for n in names]
     size_places = [_step_decimals(settings.instrument(n).lot_step) for n in names]
-    formats = {"Bar date": "yyyy-mm-dd", "Exit date": "yyyy-mm-dd", "Target R": "0.00",
+    log_date = _date_format(pkg, log, "date", first_row=log.header_row + 1)
+    formats = {"Bar date": log_date,
+               "Exit date": _date_format(pkg, log, "exit_date", log.header_row + 1, log_date),
+               "Target R": "0.00",
                "R": "0.00", "Adverse R": "0.00", "Favourable R": "0.00", "Bars": "0",
                "Open risk": "#,##0.00"}
     first, last = log.header_row + 1, max([log.header_row + 1, *frame.index])
@@ -719,6 +751,22 @@ def plan_trade_review(
     report.settings += [("Warning", w) for w in report.warnings]
     edits.append(NewSheet(name=REVIEW_SHEET, rows=_review_rows(report), widths=[40, 14]))
     return edits, report
+
+
+def _date_format(pkg: Package, log: TradeLog, role: str, first_row: int,
+                 fallback: str = "yyyy-mm-dd") -> str:
+    """The number format of the log's first dated cell in a role's column (its own date
+    format), else ``fallback``."""
+    col = log.roles.get(role)
+    if col is None:
+        return fallback
+    grid_rows = pkg.read_range(log.sheet, first_row, col, first_row + 20, col)
+    for offset, (value,) in enumerate(grid_rows):
+        if isinstance(value, (int, float)) and not isinstance(value, bool):
+            code = pkg.number_format(log.sheet, first_row + offset, col)
+            bare = re.sub(r'"[^"]*"|\[[^\]]*\]', "", code).lower()
+            return code if re.search(r"[dy]", bare) else fallback
+    return fallback
 
 
 def _texts(column: pd.Series, key: str) -> list[str | None]:
@@ -833,8 +881,8 @@ def _equity(pkg: Package, log: TradeLog, recipe: TradeRecipe, contracts: Contrac
     """
     stated = stated_equity(pkg, skip=[log.sheet, contracts.sheet])
     has_column = "equity" in log.roles
-    own = (f"the log's Equity column on rows that have one ({col_letter(log.roles['equity'])})"
-           "; " if has_column else "")
+    own = (f"the log's Equity column ({col_letter(log.roles['equity'])}) where filled; "
+           if has_column else "")
     if math.isfinite(recipe.equity):
         if stated is not None and not math.isclose(stated[0], recipe.equity, rel_tol=1e-12):
             report.assumptions.append(
@@ -843,9 +891,8 @@ def _equity(pkg: Package, log: TradeLog, recipe: TradeRecipe, contracts: Contrac
         return recipe.equity, f"{own}{recipe.equity:,.2f} (recipe or --equity)"
     if stated is not None:
         return stated[0], f"{own}{stated[0]:,.2f} from {stated[1]}"
-    if has_column:
-        return math.nan, (f"{own[:-2]}, the latest trade's for the open-risk share; rows "
-                          f"without one: {NO_EQUITY}")
+    if has_column:  # rows without an Equity cell say so in their Size note
+        return math.nan, f"{own[:-2]}; the latest trade's for the open-risk share"
     return math.nan, f"none ({NO_EQUITY}): sizes and open risk are blank"
 
 
@@ -855,11 +902,16 @@ def _settings_rows(recipe: TradeRecipe, settings: TradeSettings,
     func = check_measure(recipe)
     opts = ", ".join(f"{k}={v}" for k, v in recipe.options.items())
     ticks = {k: v.tick for k, v in settings.instruments.items() if v.tick > 0}
-    levels = ("rounded to each instrument's tick (Tick column of the contract details): "
-              "stop and trailing stop away from entry, target toward entry; the size uses "
-              "the rounded stop" + ("" if len(ticks) == len(settings.instruments) else
-                                    "; instruments without a tick are not rounded")
-              if ticks else "not rounded (no Tick column in the contract details)")
+    untick = sorted(k for k, v in settings.instruments.items() if not v.tick > 0)
+    if ticks:
+        levels = [("Levels", "rounded to each instrument's tick (contract details)"),
+                  ("  stops, trailing stops", "away from entry: never tighter"),
+                  ("  targets", "toward entry"),
+                  ("  size", "from the distance to the rounded stop")]
+        if untick:
+            levels.append(("  not rounded", ", ".join(untick) + " (no tick given)"))
+    else:
+        levels = [("Levels", "not rounded (no tick size in the contract details)")]
     details = (f'sheet "{instruments_sheet}"' if instruments_sheet else
                "none found: point value 1 (assumed; see the Size notes), lot step 1, no size "
                "limits, FX rate 1")
@@ -872,7 +924,7 @@ def _settings_rows(recipe: TradeRecipe, settings: TradeSettings,
         ("Risk per trade", f"{_num(100 * recipe.risk)}% of equity"),
         ("Equity", equity),
         ("Contract details", details),
-        ("Levels", levels),
+        *levels,
         *([("Instrument", f'the log has no instrument column: every trade is on "{instrument}"'
             ", the workbook's only price sheet")] if instrument else []),
         ("Defaults", "ATR 14, stop 2, target 3, trail 3, risk 1%: common practice, no source"),
@@ -885,7 +937,10 @@ def _review_rows(report: TradeReport) -> list[list[object]]:
     s = report.summary
     assert s is not None
     rows: list[list[object]] = [[f'Trade review of sheet "{report.sheet}" (not advice)'], []]
-    rows.append(["Summary", "Value"])
+    title = "Summary" + (f" (partial: {report.not_chosen} trades on sheets not chosen with "
+                         "--sheet were not reviewed)" if report.not_chosen else "")
+    rows.append([title, "Value"])
+    rows.append(["Trades in the log", Styled(report.trades, "0")])
     for key, label in SUMMARY_LABELS.items():
         value = _cell_number(s[label])
         fmt = _SUMMARY_FORMATS.get(key, _SHARE_FORMAT)
