@@ -49,10 +49,9 @@ HEADERS = {
     "Adverse": "Worst move", "Favourable": "Best move", "Adverse R": "Worst move in R",
     "Favourable R": "Best move in R", "Open risk": "Open risk", "Note": "Review note",
 }
-# review_log's Result -> the words the fill writes in the log (spelled out here, not imported)
-WORDS = {"stop": "stop hit", "target": "target hit", "trail": "trailing stop hit",
-         "closed": "closed at the logged exit", "open": "still open",
-         "ambiguous": "ambiguous: stop and target on one bar", "": "not reviewed (see note)"}
+# review_log's Result -> the words the fill writes in the log, SV_OUTCOME's (spelled out here)
+WORDS = {"stop": "stop", "target": "target", "trail": "trail", "closed": "closed",
+         "open": "open", "ambiguous": "ambiguous", "": "not reviewed"}
 ENTRY_HEADERS = [HEADERS[k] for k in ("Volatility", "Bar date", "Stop", "Target", "Target R",
                                       "Size")]
 

@@ -151,7 +151,7 @@ def test_no_equity_gives_blank_risk_figures_with_the_reason(tmp_path):
     report = fill_file(src)
     wb = load_workbook(report.output)
     got = columns_by_header(wb["Trades"])
-    assert got["Reviewed outcome"] == ["still open", "still open"]
+    assert got["Reviewed outcome"] == ["open", "open"]
     assert got["Size at 1% risk"] == [None, None]
     assert got["Open risk"] == [None, None]
     assert got["Size note"] == [NO_EQUITY, NO_EQUITY]

@@ -490,7 +490,9 @@ def review_log(
           instrument tick, the stop is rounded away from entry and the target
           toward it (:func:`sheetvol.core.risk.to_tick`);
         * ``Size`` (from the rounded stop), down to the lot step, and ``Size note``;
-        * ``Trail``: the trailing stop in force at the end of the review;
+        * ``Trail``: the trailing stop in force at the end of the review; for an
+          open trade the level set at the last close, to place now (as
+          SV_TRAIL gives it);
         * ``Result``, ``Exit price``, ``Exit date``, ``R``, ``Bars``,
           ``Adverse``/``Favourable`` (price) and in R: see
           :func:`sheetvol.core.risk.review_trade` (for an open trade ``R`` is

@@ -51,6 +51,7 @@ from sheetvol.workbook import CellError, NewColumn, NewSheet, Package, Styled
 __all__ = [
     "LARGE_RISK",
     "NOT_CHOSEN_NOTE",
+    "NOT_REVIEWED",
     "OUTCOME_WORDS",
     "OWN_HEADER",
     "REVIEW_SHEET",
@@ -95,15 +96,18 @@ OWN_HEADER = re.compile(
     r"|Best move|Worst move in R|Best move in R|Open risk|Reviewed outcome|Size note"
     r"|Review note)$"
 )
-# review_log's Result -> the words written in the log and counted on the review sheet
+# review_log's Result -> what it means. The log gets the result word itself, the one
+# SV_OUTCOME returns (one vocabulary for the fill, the typed forms and a lookup);
+# "" is written as NOT_REVIEWED. The review sheet counts the words and says what they mean.
+NOT_REVIEWED = "not reviewed"
 OUTCOME_WORDS = {
-    "stop": "stop hit",
-    "target": "target hit",
-    "trail": "trailing stop hit",
-    "closed": "closed at the logged exit",
-    "open": "still open",
-    "ambiguous": "ambiguous: stop and target on one bar",
-    "": "not reviewed (see note)",
+    "stop": "the stop was hit first",
+    "target": "the target was hit first",
+    "trail": "the trailing stop was hit first",
+    "closed": "closed at the logged exit, before any level",
+    "open": "still open at the last bar",
+    "ambiguous": "stop and target on one bar: which came first is unknown",
+    "": "not reviewed: the Review note says why",
 }
 # review_log columns written as text; the others are numbers
 _TEXT_KEYS = ("Size note", "Result", "Note")
@@ -544,10 +548,11 @@ _MEANING = {
     "Size": "equity x risk / (stop distance x point value x FX rate), down to the lot step "
             "(the distance to the rounded stop)",
     "Size note": "why the size is zero, below the minimum or capped (blank when fine)",
-    "Trail": "trailing stop in force at the end of the review (rounded away from the price "
-             "to the tick)",
-    "Result": "which came first: stop, target, trailing stop, logged exit; or still open, "
-              "or ambiguous (stop and target on one bar)",
+    "Trail": "trailing stop: on the exit bar for a closed trade; for an open one the level "
+             "set at the last close, to place now (as SV_TRAIL); rounded away from the price",
+    "Result": "which came first: stop, target, trail (trailing stop), closed (at the logged "
+              "exit); or open, ambiguous (stop and target on one bar), not reviewed: the "
+              "words SV_OUTCOME returns",
     "Exit price": "exit price found by the review (stop, target, trail or logged exit)",
     "Exit date": "date of that exit",
     "R": "result in R (open trades: marked at the last close)",
@@ -749,7 +754,7 @@ def plan_trade_review(
     report.settings = _settings_rows(recipe, settings, contracts.sheet, log.instrument,
                                      equity_text)
     report.settings += [("Warning", w) for w in report.warnings]
-    edits.append(NewSheet(name=REVIEW_SHEET, rows=_review_rows(report), widths=[40, 14]))
+    edits.append(NewSheet(name=REVIEW_SHEET, rows=_review_rows(report), widths=[40, 14, 50]))
     return edits, report
 
 
@@ -772,7 +777,7 @@ def _date_format(pkg: Package, log: TradeLog, role: str, first_row: int,
 def _texts(column: pd.Series, key: str) -> list[str | None]:
     """A text column of the review as written: outcome words, blanks for empty notes."""
     if key == "Result":
-        return [OUTCOME_WORDS.get(str(v), str(v)) for v in column]
+        return [str(v) if str(v) else NOT_REVIEWED for v in column]
     return [None if v is None or (isinstance(v, float) and math.isnan(v)) or not str(v)
             else str(v) for v in column]
 
@@ -945,9 +950,9 @@ def _review_rows(report: TradeReport) -> list[list[object]]:
         value = _cell_number(s[label])
         fmt = _SUMMARY_FORMATS.get(key, _SHARE_FORMAT)
         rows.append([label, value if value is None else Styled(value, fmt)])
-    rows += [[], ["Outcome", "Trades"]]
+    rows += [[], ["Outcome", "Trades", "Meaning"]]
     for key, words in OUTCOME_WORDS.items():
-        rows.append([words, report.counts.get(key, 0)])
+        rows.append([key or NOT_REVIEWED, report.counts.get(key, 0), words])
     rows += [[], ["Settings"]]
     rows += [list(r) for r in report.settings]
     rows += [[], [f'Each trade\'s outcome, R, size and notes are on sheet "{report.sheet}", '
