@@ -19,7 +19,7 @@ from sheetvol.fill.job import USER_ERRORS, FillOptions, fill_file, output_path
 from sheetvol.fill.recipe import (
     TRADE_KEYS,
     RecipeError,
-    TradeRecipe,
+    TradeSettings,
     check_trade_number,
     default_specs,
     read_recipe,
@@ -313,7 +313,7 @@ def _run_fill(args: argparse.Namespace, parser: argparse.ArgumentParser) -> int:
     if args.header_row is not None and args.header_row < 1:
         parser.error("--header-row must be 1 or more")
     specs = None
-    trades = TradeRecipe()
+    trades = TradeSettings()
     if args.recipe is not None:
         try:
             recipe = read_recipe(args.recipe)

@@ -32,7 +32,7 @@ from sheetvol.fill import review as trades_module
 from sheetvol.fill import trade_log as trade_fill
 from sheetvol.fill.job import FillOptions, fill_file
 from sheetvol.fill.notes import NOTES_SHEET
-from sheetvol.fill.recipe import RecipeError, TradeRecipe, parse_trades, read_recipe
+from sheetvol.fill.recipe import RecipeError, parse_trades, read_recipe
 from sheetvol.fill.review import TradeSettings, instruments_from_frame, review_log
 from sheetvol.fill.trade_log import REVIEW_SHEET, TradeLogError, scaled_format
 
@@ -264,7 +264,7 @@ def test_turtle_sizing_example_through_the_fill(tmp_path):
     10,000 / (0.0141 x 42,000) = 16.88 -> 16 contracts (truncated, not rounded)."""
     src = tmp_path / "turtle.xlsx"
     _turtle_book(src)
-    report = fill_file(src, FillOptions(trades=TradeRecipe(stop_multiple=1)))
+    report = fill_file(src, FillOptions(trades=TradeSettings(stop_multiple=1)))
     got = columns_by_header(load_workbook(report.output)["Log"])
     assert got["Entry-bar ATR 14 (Wilder)"][0] == pytest.approx(0.0141, rel=1e-9)
     assert got["Stop 1x vol"][0] == pytest.approx(1.0 - 0.0141, rel=1e-9)
@@ -304,7 +304,7 @@ def test_rerun_replaces_and_new_settings_take_the_same_columns(tmp_path, demo_fi
     after = columns_by_header(load_workbook(again.output)["Trades"])
     assert list(after) == list(before) and after == before
     tighter = fill_file(report.output, FillOptions(
-        output=tmp_path / "tighter.xlsx", trades=TradeRecipe(stop_multiple=1.5)))
+        output=tmp_path / "tighter.xlsx", trades=TradeSettings(stop_multiple=1.5)))
     ws = load_workbook(tighter.output)["Trades"]
     heads = [c.value for c in ws[1]]
     assert heads[10] == "Stop 1.5x vol" and "Stop 2x vol" not in heads
@@ -318,7 +318,7 @@ def test_no_trades_and_trades_sheet_options(tmp_path):
     assert report.trades is None
     assert REVIEW_SHEET not in load_workbook(report.output).sheetnames
     with pytest.raises(TradeLogError, match='sheet "About": no header row with the trade-log'):
-        fill_file(src, FillOptions(trades=TradeRecipe(sheet="About")))
+        fill_file(src, FillOptions(trades=TradeSettings(sheet="About")))
 
 
 def test_one_long_price_sheet_with_an_instrument_column(tmp_path):
@@ -478,7 +478,7 @@ def test_large_risk_is_accepted_with_a_warning(tmp_path, capsys):
         parse_trades({"risk": 0.3})
     src = tmp_path / "demo.xlsx"
     shutil.copy(DEMO, src)
-    report = fill_file(src, FillOptions(trades=TradeRecipe(risk=0.06)))
+    report = fill_file(src, FillOptions(trades=TradeSettings(risk=0.06)))
     assert report.trades is not None
     assert report.trades.warnings == [
         "risk per trade is 6% of equity, above 5%: risk is a share of equity (0.01 = 1%); "
@@ -486,7 +486,7 @@ def test_large_risk_is_accepted_with_a_warning(tmp_path, capsys):
     assert any(line == f"    warning: {report.trades.warnings[0]}" for line in report.summary())
     rows = list(load_workbook(report.output)[REVIEW_SHEET].iter_rows(values_only=True))
     assert ("Warning", report.trades.warnings[0]) in [r[:2] for r in rows]
-    quiet = fill_file(src, FillOptions(output=tmp_path / "q.xlsx", trades=TradeRecipe(risk=0.05)))
+    quiet = fill_file(src, FillOptions(output=tmp_path / "q.xlsx", trades=TradeSettings(risk=0.05)))
     assert quiet.trades is not None and quiet.trades.warnings == []
 
 
@@ -551,7 +551,7 @@ def test_log_without_instrument_column_uses_the_only_price_sheet(tmp_path):
     _one_instrument_book(two, ("ALDER", "BIRCH"))
     assert fill_file(two, FillOptions(output=tmp_path / "t.xlsx")).trades is None
     with pytest.raises(TradeLogError) as err:
-        fill_file(two, FillOptions(trades=TradeRecipe(sheet="Trades")))
+        fill_file(two, FillOptions(trades=TradeSettings(sheet="Trades")))
     text = str(err.value)
     assert "found date (A), side (B), entry (C), equity (D)" in text
     assert "missing instrument (instrument/symbol/market)" in text

@@ -131,14 +131,19 @@ def test_a_spec_computes_like_its_reference():
     np.testing.assert_allclose(got[4:], ref[4:], rtol=1e-12)
 
 
-def test_trade_recipe_defaults_are_the_review_defaults():
-    # Two dataclasses carry the trade defaults (importing one from the other would be
-    # circular); both take them from sheetvol.core.risk, and this keeps it that way.
-    from sheetvol.fill.recipe import TradeRecipe
-    from sheetvol.fill.review import TradeSettings
+def test_one_trade_settings_class_for_the_recipe_and_the_review():
+    # The [trades] table, the flags and the review share one class, whose defaults come
+    # from sheetvol.core.risk (stated once there).
+    from sheetvol.core import risk
+    from sheetvol.fill import recipe as recipe_module
+    from sheetvol.fill import review as review_module
 
-    recipe, settings = TradeRecipe(), TradeSettings()
-    for name in ("measure", "stop_multiple", "target_multiple", "trail_multiple", "risk"):
-        assert getattr(recipe, name) == getattr(settings, name), name
-    assert dict(recipe.options) == dict(settings.options)
-    assert math.isnan(recipe.equity) and math.isnan(settings.equity)
+    assert recipe_module.TradeSettings is review_module.TradeSettings
+    parsed = recipe_module.parse_trades({"instruments": "Contracts", "risk": 0.02})
+    assert isinstance(parsed, review_module.TradeSettings)
+    assert parsed.contract_sheet == "Contracts" and parsed.risk == 0.02
+    plain = review_module.TradeSettings()
+    assert (plain.measure, plain.stop_multiple, plain.target_multiple, plain.trail_multiple,
+            plain.risk) == (risk.MEASURE, risk.STOP_MULTIPLE, risk.TARGET_MULTIPLE,
+                            risk.TRAIL_MULTIPLE, risk.RISK_SHARE)
+    assert dict(plain.options) == {"period": risk.PERIOD} and math.isnan(plain.equity)

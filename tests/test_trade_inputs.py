@@ -17,7 +17,7 @@ from openpyxl.workbook.defined_name import DefinedName
 
 from sheetvol.fill.job import FillOptions, fill_file
 from sheetvol.fill.notes import NOTES_SHEET
-from sheetvol.fill.recipe import TradeRecipe
+from sheetvol.fill.recipe import TradeSettings
 from sheetvol.fill.review import contract_role
 from sheetvol.fill.trade_log import REVIEW_SHEET
 
@@ -178,7 +178,7 @@ def test_equity_stated_on_the_settings_sheet_is_used(tmp_path):
     assert "100,000.00" in settings["Equity"] and "Settings!B1" in settings["Equity"]
     # --equity given too, and different: used, and the notes say why the figure differs
     other = fill_file(src, FillOptions(output=tmp_path / "o.xlsx",
-                                       trades=TradeRecipe(equity=50_000)))
+                                       trades=TradeSettings(equity=50_000)))
     assert columns_by_header(load_workbook(other.output)["Trades"])["Size at 1% risk"][0] == 125
     differs = [a for a in other.assumptions if "Settings!B1" in a]
     assert differs and "50,000" in differs[0] and "100,000" in differs[0]

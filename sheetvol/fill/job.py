@@ -64,7 +64,7 @@ from sheetvol.fill.price_table import (
 from sheetvol.fill.recipe import (
     ColumnSpec,
     RecipeError,
-    TradeRecipe,
+    TradeSettings,
     default_header,
     default_specs,
 )
@@ -149,7 +149,7 @@ class FillOptions:
     formulas: str = "values"
     chart: bool = False
     progress: bool = False
-    trades: TradeRecipe | None = None
+    trades: TradeSettings | None = None
     review_trades: bool = True
 
 
@@ -698,7 +698,7 @@ def _select_specs(options: FillOptions, match: HeaderMatch, where: str,
 def _find_log(pkg: Package, src: Path, options: FillOptions
               ) -> tuple[TradeLog | None, Contracts]:
     """The trade log and instrument details, when the fill reviews trades."""
-    recipe = options.trades or TradeRecipe()
+    recipe = options.trades or TradeSettings()
     if not (options.review_trades and recipe.enabled):
         return None, Contracts()
     own = [s.name for s in pkg.sheets if s.name.casefold() in OWN_SHEETS]
@@ -762,7 +762,7 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport,
         not_chosen = [s.name for s in pkg.sheets if options.sheets and s.kind == "worksheet"
                       and s.name.casefold() not in chosen_names | OWN_SHEETS | exclude]
         trade_edits, report.trades = plan_trade_review(
-            pkg, log, options.trades or TradeRecipe(), bars, decimals, instruments=instruments,
+            pkg, log, options.trades or TradeSettings(), bars, decimals, instruments=instruments,
             recorded=recorded.get(log.sheet.casefold(), {}), where=src.name,
             not_chosen=not_chosen)
         edits.extend(trade_edits)

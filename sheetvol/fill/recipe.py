@@ -31,20 +31,13 @@ from __future__ import annotations
 import math
 import sys
 from collections.abc import Iterable, Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-from sheetvol.core.risk import (
-    MEASURE,
-    PERIOD,
-    RISK_SHARE,
-    STOP_MULTIPLE,
-    TARGET_MULTIPLE,
-    TRAIL_MULTIPLE,
-)
+from sheetvol.fill.trade_settings import TradeSettings
 from sheetvol.functions import registry
 
 if sys.version_info >= (3, 11):
@@ -58,7 +51,7 @@ __all__ = [
     "ColumnSpec",
     "Recipe",
     "RecipeError",
-    "TradeRecipe",
+    "TradeSettings",
     "default_header",
     "default_specs",
     "load_recipe",
@@ -435,30 +428,6 @@ def default_specs() -> list[ColumnSpec]:
 
 
 # -- the trade-log part of a recipe ---------------------------------------------------------
-@dataclass(frozen=True)
-class TradeRecipe:
-    """How the fill reviews a trade log (the ``[trades]`` table of a recipe).
-
-    The defaults (ATR 14, stop 2, target 3, trail 3 volatility units, 1 % risk)
-    are common practice, no source. ``sheet`` and ``instruments`` name the log
-    and the instrument-details sheet (empty: found by their headers);
-    ``columns`` maps a log role (``date``, ``instrument``, ``side``, ``entry``,
-    ``exit``, ``exit_date``, ``quantity``, ``equity``) to the log's own header.
-    """
-
-    enabled: bool = True
-    sheet: str = ""
-    instruments: str = ""
-    measure: str = MEASURE
-    options: Mapping[str, Any] = field(default_factory=lambda: {"period": PERIOD})
-    stop_multiple: float = STOP_MULTIPLE
-    target_multiple: float = TARGET_MULTIPLE
-    trail_multiple: float = TRAIL_MULTIPLE
-    risk: float = RISK_SHARE
-    equity: float = math.nan
-    columns: Mapping[str, str] = field(default_factory=dict)
-
-
 #: Keys of ``[trades]`` and what each accepts (for messages and ``--help``).
 TRADE_KEYS = {
     "enabled": "true or false",
@@ -521,8 +490,8 @@ and at most 0.25; got 2
     return number
 
 
-def parse_trades(table: Any, *, source: str = "recipe") -> TradeRecipe:
-    """Check a ``[trades]`` table and turn it into a :class:`TradeRecipe`.
+def parse_trades(table: Any, *, source: str = "recipe") -> TradeSettings:
+    """Check a ``[trades]`` table and turn it into a :class:`TradeSettings`.
 
     Parameters
     ----------
@@ -533,7 +502,7 @@ def parse_trades(table: Any, *, source: str = "recipe") -> TradeRecipe:
 
     Returns
     -------
-    TradeRecipe
+    TradeSettings
 
     Raises
     ------
@@ -579,17 +548,19 @@ equity, columns)
                               f"{', '.join(_LOG_ROLES)})")
         if not isinstance(header, str) or not header.strip():
             raise RecipeError(f"{where} columns.{role}: a header text; got {header!r}")
-    recipe = TradeRecipe(**values)
+    if "instruments" in values:  # the key's name in the table; the sheet of contract details
+        values["contract_sheet"] = values.pop("instruments")
+    recipe = TradeSettings(**values)
     check_measure(recipe, where)
     return recipe
 
 
-def check_measure(recipe: TradeRecipe, where: str = "[trades]") -> registry.Function:
+def check_measure(recipe: TradeSettings, where: str = "[trades]") -> registry.Function:
     """The registry function of ``recipe.measure``, with its options validated.
 
     Parameters
     ----------
-    recipe : TradeRecipe
+    recipe : TradeSettings
         The settings to check.
     where : str
         Prefix of the message.
@@ -600,7 +571,7 @@ def check_measure(recipe: TradeRecipe, where: str = "[trades]") -> registry.Func
 
     Examples
     --------
-    >>> check_measure(TradeRecipe(measure="deviation", options={"period": 20})).name
+    >>> check_measure(TradeSettings(measure="deviation", options={"period": 20})).name
     'SV_DEVIATION'
     """
     name = {"atr": "SV_ATR", "deviation": "SV_DEVIATION"}.get(recipe.measure.lower(),
@@ -684,7 +655,7 @@ class Recipe:
     """A whole recipe file: columns (None: the default set) and the trade-log settings."""
 
     columns: list[ColumnSpec] | None
-    trades: TradeRecipe | None
+    trades: TradeSettings | None
 
 
 def read_recipe(path: str | Path) -> Recipe:

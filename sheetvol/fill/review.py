@@ -19,7 +19,7 @@ from __future__ import annotations
 import math
 import re
 from collections.abc import Iterable, Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
@@ -28,17 +28,10 @@ import pandas as pd
 from sheetvol.core import risk
 from sheetvol.core._types import FloatArray
 from sheetvol.core.prices import price_basis
-from sheetvol.core.risk import (  # the review defaults, stated once
-    MEASURE,
-    PERIOD,
-    RISK_SHARE,
-    STOP_MULTIPLE,
-    TARGET_MULTIPLE,
-    TRAIL_MULTIPLE,
-)
 from sheetvol.fill.locate import normalize_header
 from sheetvol.fill.recipe import split_basis
 from sheetvol.fill.table import find_roles
+from sheetvol.fill.trade_settings import Instrument, TradeSettings, instrument_key
 from sheetvol.functions import cells, registry
 
 __all__ = [
@@ -143,97 +136,10 @@ OUTPUT_COLUMNS = (
 _MEASURE_WORDS = {"atr": "SV_ATR", "deviation": "SV_DEVIATION"}
 
 
-@dataclass(frozen=True)
-class Instrument:
-    """Contract details of one instrument, for sizing and open risk.
-
-    ``point_value`` is money per 1.0 price move per unit in the instrument's
-    currency (NaN: not given; 1 is used and every row of the instrument says
-    so, see :data:`POINT_VALUE_ASSUMED`); ``fx_rate`` is account currency per
-    unit of instrument currency; ``min_qty``/``max_qty`` of 0 mean no limit;
-    ``tick`` is the price increment levels are rounded to (0: not rounded; see
-    :func:`sheetvol.core.risk.to_tick`).
-    """
-
-    point_value: float = math.nan
-    lot_step: float = 1.0
-    min_qty: float = 0.0
-    max_qty: float = 0.0
-    fx_rate: float = 1.0
-    tick: float = 0.0
-
-    @property
-    def per_point(self) -> float:
-        """The point value used: the one given, else 1."""
-        return self.point_value if math.isfinite(self.point_value) else 1.0
-
-
 #: The Size note of a row whose instrument has no point value.
 POINT_VALUE_ASSUMED = "point value not given: 1 assumed"
 #: Why sizes and open risk are blank when no equity is known.
 NO_EQUITY = "no equity: add an Equity column, a recipe equity or --equity"
-
-@dataclass(frozen=True)
-class TradeSettings:
-    """How a trade log is reviewed.
-
-    Parameters
-    ----------
-    measure : str
-        Volatility measure: ``"atr"``, ``"deviation"`` or the name of any
-        registry column function whose result is in price units (for example
-        ``"SV_ATR"`` or ``"SV_DEVIATION"``). Its price columns are taken from the
-        bars (``prices`` means the close).
-    options : mapping
-        Options of that function (``{"period": 20, "average": "exponential"}``),
-        validated by the registry. For a measure of one price column,
-        ``basis`` picks the bar's price it is computed on (one of SV_PRICE's
-        ``basis`` words, e.g. ``"typical"``; default the close).
-    stop_multiple, target_multiple : float
-        Volatility units from entry to stop and to target. The defaults, 2 and 3,
-        are common practice (no source).
-    trail_multiple : float
-        Volatility units between the best price since entry and the trailing
-        stop; 0 turns the trailing stop off. The default 3, looser than the
-        stop, lets the trail take over after a move of about one unit the
-        trade's way (common practice, no source).
-    risk : float
-        Share of equity risked per trade (0.01 = 1 %).
-    equity : float
-        Equity used when the log has no equity column or a blank cell, and for
-        the open-risk share (NaN: the equity of the latest trade in the log).
-    instruments : mapping
-        :class:`Instrument` details by instrument name; others use ``default``.
-    default : Instrument
-        Details for instruments not in ``instruments``.
-    columns : mapping
-        Header for a role of :data:`LOG_COLUMNS` when the log uses another name.
-    """
-
-    measure: str = MEASURE
-    options: Mapping[str, Any] = field(default_factory=lambda: {"period": PERIOD})
-    stop_multiple: float = STOP_MULTIPLE
-    target_multiple: float = TARGET_MULTIPLE
-    trail_multiple: float = TRAIL_MULTIPLE
-    risk: float = RISK_SHARE
-    equity: float = math.nan
-    instruments: Mapping[str, Instrument] = field(default_factory=dict)
-    default: Instrument = Instrument()
-    columns: Mapping[str, str] = field(default_factory=dict)
-
-    def instrument(self, name: str) -> Instrument:
-        """Details of one instrument (matched ignoring case and surrounding spaces)."""
-        key = _key(name)
-        for k, v in self.instruments.items():
-            if _key(k) == key:
-                return v
-        return self.default
-
-
-def _key(text: Any) -> str:
-    """An instrument name as compared: case and surrounding spaces ignored."""
-    return " ".join(str(text).split()).lower()
-
 
 def _find_columns(frame: pd.DataFrame, roles: Mapping[str, Iterable[str]],
                   overrides: Mapping[str, str]) -> dict[str, Any]:
@@ -452,8 +358,8 @@ def missing_roles_message(cols: Mapping[str, Any], absent: Iterable[str],
 def _lookup(prices: Mapping[str, pd.DataFrame], name: str) -> pd.DataFrame | None:
     if name in prices:
         return prices[name]
-    key = _key(name)
-    return next((v for k, v in prices.items() if _key(k) == key), None)
+    key = instrument_key(name)
+    return next((v for k, v in prices.items() if instrument_key(k) == key), None)
 
 
 # -- the review --------------------------------------------------------------------------------

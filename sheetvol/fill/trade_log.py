@@ -31,20 +31,19 @@ from sheetvol.fill.locate import (
     still_headed,
 )
 from sheetvol.fill.notes import NOTES_SHEET
-from sheetvol.fill.recipe import TradeRecipe, check_measure, default_header, split_basis
+from sheetvol.fill.recipe import check_measure, default_header, split_basis
 from sheetvol.fill.review import (
     LOG_COLUMNS,
     NO_EQUITY,
     POINT_VALUE_ASSUMED,
     SUMMARY_LABELS,
     TRADES_REVIEWED,
-    Instrument,
-    TradeSettings,
     contract_role,
     instruments_from_frame,
     review_log,
     summarise,
 )
+from sheetvol.fill.trade_settings import Instrument, TradeSettings, instrument_key
 from sheetvol.functions import cells
 from sheetvol.workbook import CellError, NewColumn, NewSheet, Package, Styled
 
@@ -66,7 +65,6 @@ __all__ = [
     "instrument_key",
     "plan_trade_review",
     "scaled_format",
-    "settings_from",
     "stated_equity",
 ]
 
@@ -218,7 +216,7 @@ def _log_roles(row: Mapping[int, object], overrides: Mapping[str, str]) -> dict[
     return roles
 
 
-def find_trade_log(pkg: Package, recipe: TradeRecipe, skip: Sequence[str] = (),
+def find_trade_log(pkg: Package, recipe: TradeSettings, skip: Sequence[str] = (),
                    where: str = "") -> TradeLog | None:
     """The trade-log sheet: ``recipe.sheet``, else the first sheet whose header has the roles.
 
@@ -232,7 +230,7 @@ def find_trade_log(pkg: Package, recipe: TradeRecipe, skip: Sequence[str] = (),
     ----------
     pkg : Package
         The opened workbook.
-    recipe : TradeRecipe
+    recipe : TradeSettings
         ``sheet`` (optional) and ``columns`` (header overrides).
     skip : sequence of str
         Sheet names not to consider (sheetvol's own sheets), compared casefolded.
@@ -252,7 +250,7 @@ def find_trade_log(pkg: Package, recipe: TradeRecipe, skip: Sequence[str] = (),
 
     Examples
     --------
-    >>> find_trade_log(Package.open("desk.xlsx"), TradeRecipe())  # doctest: +SKIP
+    >>> find_trade_log(Package.open("desk.xlsx"), TradeSettings())  # doctest: +SKIP
     TradeLog(sheet='Trades', header_row=1, ...)
     """
     skipped = {s.casefold() for s in skip}
@@ -325,9 +323,9 @@ class Contracts:
     header_row: int = 0
 
 
-def find_instruments(pkg: Package, recipe: TradeRecipe, skip: Sequence[str] = (),
+def find_instruments(pkg: Package, recipe: TradeSettings, skip: Sequence[str] = (),
                      where: str = "") -> Contracts:
-    """Contract details from ``recipe.instruments`` or the first sheet that has them.
+    """Contract details from ``recipe.contract_sheet`` or the first sheet that has them.
 
     A contract sheet has a header row with an instrument column (the words of
     :data:`sheetvol.fill.review.LOG_COLUMNS`, as in the log) and at least one
@@ -339,7 +337,7 @@ def find_instruments(pkg: Package, recipe: TradeRecipe, skip: Sequence[str] = ()
     ----------
     pkg : Package
         The opened workbook.
-    recipe : TradeRecipe
+    recipe : TradeSettings
         ``instruments`` (optional sheet name).
     skip : sequence of str
         Sheets not to consider.
@@ -353,11 +351,11 @@ def find_instruments(pkg: Package, recipe: TradeRecipe, skip: Sequence[str] = ()
 
     Examples
     --------
-    >>> find_instruments(Package.open("desk.xlsx"), TradeRecipe())  # doctest: +SKIP
+    >>> find_instruments(Package.open("desk.xlsx"), TradeSettings())  # doctest: +SKIP
     Contracts(sheet='Instruments', instruments={'KESTREL': Instrument(...), ...}, ...)
     """
     skipped = {s.casefold() for s in skip}
-    names = ([pkg.sheet(recipe.instruments).name] if recipe.instruments else
+    names = ([pkg.sheet(recipe.contract_sheet).name] if recipe.contract_sheet else
              [s.name for s in pkg.sheets
               if s.kind == "worksheet" and s.name.casefold() not in skipped])
     for name in names:
@@ -382,7 +380,7 @@ def find_instruments(pkg: Package, recipe: TradeRecipe, skip: Sequence[str] = ()
                 return Contracts(name, instruments_from_frame(frame), tuple(unused), r)
             except (ValueError, cells.CellValueError) as exc:
                 raise TradeLogError(f'{where}, sheet "{name}": {exc}') from None
-        if recipe.instruments:
+        if recipe.contract_sheet:
             raise TradeLogError(
                 f'{where}, sheet "{name}": no header row with an instrument column '
                 f"({'/'.join(LOG_COLUMNS['instrument'])}) and a contract detail (point value, "
@@ -457,54 +455,16 @@ def _ref_sheet(sheet: str) -> str:
     return sheet if re.fullmatch(r"[A-Za-z_][A-Za-z0-9_.]*", sheet) else f"'{sheet}'"
 
 
-def instrument_key(name: object) -> str:
-    """An instrument or sheet name as compared: case and surrounding spaces ignored.
-
-    Examples
-    --------
-    >>> instrument_key(" Kestrel ")
-    'kestrel'
-    """
-    return " ".join(str(name).split()).lower()
-
-
 def _plain(value: object) -> object:
     return None if isinstance(value, CellError) else value
 
 
 # -- settings ---------------------------------------------------------------------------------
-def settings_from(recipe: TradeRecipe, instruments: Mapping[str, Instrument]) -> TradeSettings:
-    """The :class:`TradeSettings` of a recipe plus the instrument details found.
-
-    Parameters
-    ----------
-    recipe : TradeRecipe
-        Measure, multiples, risk share and equity.
-    instruments : mapping
-        Contract details by instrument name.
-
-    Returns
-    -------
-    TradeSettings
-
-    Examples
-    --------
-    >>> settings_from(TradeRecipe(risk=0.02), {}).risk
-    0.02
-    """
-    return TradeSettings(
-        measure=recipe.measure, options=dict(recipe.options),
-        stop_multiple=recipe.stop_multiple, target_multiple=recipe.target_multiple,
-        trail_multiple=recipe.trail_multiple, risk=recipe.risk, equity=recipe.equity,
-        instruments=dict(instruments),
-    )
-
-
 def _num(x: float) -> str:
     return f"{x:g}"
 
 
-def _headers(recipe: TradeRecipe) -> dict[str, str]:
+def _headers(recipe: TradeSettings) -> dict[str, str]:
     """Output column of :func:`review_log` -> header written, in the order written."""
     func = check_measure(recipe)
     basis, options = split_basis(func, recipe.options)
@@ -602,7 +562,7 @@ def _own_columns(log: TradeLog, grid: Any, recorded: Mapping[str, str]) -> dict[
 def plan_trade_review(
     pkg: Package,
     log: TradeLog,
-    recipe: TradeRecipe,
+    recipe: TradeSettings,
     prices: Mapping[str, pd.DataFrame],
     decimals: Mapping[str, int],
     *,
@@ -619,7 +579,7 @@ def plan_trade_review(
         The opened workbook (for the log's cells and its date system).
     log : TradeLog
         From :func:`find_trade_log`.
-    recipe : TradeRecipe
+    recipe : TradeSettings
         The settings.
     prices : mapping
         Bars per instrument (Date, Open, High, Low, Close columns).
@@ -642,7 +602,7 @@ def plan_trade_review(
 
     Examples
     --------
-    >>> edits, rep = plan_trade_review(pkg, log, TradeRecipe(), prices, {})  # doctest: +SKIP
+    >>> edits, rep = plan_trade_review(pkg, log, TradeSettings(), prices, {})  # doctest: +SKIP
     """
     contracts = instruments or Contracts()
     frame, grid = _read_log(pkg, log)
@@ -651,7 +611,9 @@ def plan_trade_review(
     report = TradeReport(sheet=log.sheet, header_row=log.header_row, trades=len(frame),
                          instruments_sheet=contracts.sheet, instrument=log.instrument)
     equity, equity_text = _equity(pkg, log, recipe, contracts, report)
-    settings = replace(settings_from(recipe, contracts.instruments), equity=equity)
+    # one settings object: the recipe's, with the contract details found and the equity
+    settings = replace(recipe, instruments={**recipe.instruments, **contracts.instruments},
+                       equity=equity)
     report.assumptions.extend(
         f'column "{h}" on sheet "{contracts.sheet}" not used' for h in contracts.unused)
     traded = dict.fromkeys(str(n).strip() for n in frame.get("Instrument", pd.Series(
@@ -876,7 +838,7 @@ def _step_decimals(step: float) -> int:
     return min(6, max(0, -math.floor(math.log10(step) + 1e-9)))
 
 
-def _equity(pkg: Package, log: TradeLog, recipe: TradeRecipe, contracts: Contracts,
+def _equity(pkg: Package, log: TradeLog, recipe: TradeSettings, contracts: Contracts,
             report: TradeReport) -> tuple[float, str]:
     """The equity for rows without their own, and how the Settings row describes it.
 
@@ -901,7 +863,7 @@ def _equity(pkg: Package, log: TradeLog, recipe: TradeRecipe, contracts: Contrac
     return math.nan, f"none ({NO_EQUITY}): sizes and open risk are blank"
 
 
-def _settings_rows(recipe: TradeRecipe, settings: TradeSettings,
+def _settings_rows(recipe: TradeSettings, settings: TradeSettings,
                    instruments_sheet: str, instrument: str = "",
                    equity: str = "") -> list[tuple[str, str]]:
     func = check_measure(recipe)
