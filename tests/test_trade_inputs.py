@@ -17,9 +17,9 @@ from openpyxl.workbook.defined_name import DefinedName
 
 from sheetvol.fill.job import FillOptions, fill_file
 from sheetvol.fill.notes import NOTES_SHEET
-from sheetvol.fill.recipe import TradeSettings
 from sheetvol.fill.review import contract_role
 from sheetvol.fill.trade_log import REVIEW_SHEET
+from sheetvol.fill.trade_settings import TradeSettings
 
 NO_EQUITY = "no equity: add an Equity column, a recipe equity or --equity"
 
@@ -196,3 +196,30 @@ def test_equity_from_a_defined_name(tmp_path):
     wb.save(src)
     report = fill_file(src)
     assert columns_by_header(load_workbook(report.output)["Trades"])["Size at 1% risk"][0] == 50
+
+
+def test_a_log_header_named_in_the_recipe_is_used(tmp_path):
+    """[trades] columns = { side = "B/S" }: the log is found and reviewed with that column."""
+    src = tmp_path / "desk.xlsx"
+    _book(src, contracts=[["Instrument", "Point value"], ["BIRCH", 1]],
+          log_head=["Date", "Instrument", "B/S", "Entry", "Equity"],
+          log_rows=[[dt.datetime(2025, 1, 20), "BIRCH", "long", 100.0, 10_000]])
+    report = fill_file(src, FillOptions(trades=TradeSettings(columns={"side": "B/S"})))
+    got = columns_by_header(load_workbook(report.output)["Trades"])
+    assert got["Stop 2x vol"][0] == 96.0 and got["Size at 1% risk"][0] == 25
+
+
+def test_a_1904_date_system_log_keeps_its_dates(tmp_path):
+    """A workbook in the 1904 date system: the entry bar and the review's dates read back
+    as the same calendar dates (openpyxl converts both ways)."""
+    from openpyxl.utils.datetime import CALENDAR_MAC_1904
+
+    src = tmp_path / "mac.xlsx"
+    _book(src, contracts=[["Instrument", "Point value"], ["BIRCH", 1]])
+    wb = load_workbook(src)
+    wb.epoch = CALENDAR_MAC_1904
+    wb.save(src)
+    report = fill_file(src)
+    got = columns_by_header(load_workbook(report.output)["Trades"])
+    assert got["Entry-bar date"][0] == dt.datetime(2025, 1, 20)
+    assert got["Size at 1% risk"][0] == 25

@@ -928,10 +928,9 @@ def _instrument_column(match: HeaderMatch) -> int | None:
 
 
 def _bars_frame(table: PriceTable) -> pd.DataFrame:
-    """A price table as the trade review reads bars: Date and the price columns."""
-    data: dict[str, object] = {
-        "Date": [pd.Timestamp(cells.serial_to_datetime(d)) if math.isfinite(d) else pd.NaT
-                 for d in table.dates.tolist()]}
+    """A price table as the trade review reads bars: Date (day numbers, 1900-system serials)
+    and the price columns."""
+    data: dict[str, object] = {"Date": table.dates}  # day numbers: the review reads them as is
     for role in ("open", "high", "low", "close"):
         if role in table.prices:
             data[role.capitalize()] = table.prices[role]

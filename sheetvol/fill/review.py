@@ -43,10 +43,14 @@ __all__ = [
     "SUMMARY_LABELS",
     "TRADES_REVIEWED",
     "Instrument",
+    "LogArrays",
     "TradeSettings",
     "contract_role",
     "instruments_from_frame",
+    "latest_equity",
+    "log_arrays",
     "missing_roles_message",
+    "review_arrays",
     "review_log",
     "single_instrument",
     "summarise",
@@ -153,7 +157,10 @@ def _find_columns(frame: pd.DataFrame, roles: Mapping[str, Iterable[str]],
 
 
 def _days(values: Iterable[Any]) -> FloatArray:
-    """Day numbers of date cells; blanks (including NaT) give NaN."""
+    """Day numbers of date cells; blanks (including NaT) give NaN. A float array is taken
+    to be day numbers already (the fill hands its bars over that way)."""
+    if isinstance(values, np.ndarray) and values.dtype.kind == "f":
+        return values.astype(np.float64, copy=False)
     return cells.to_day_numbers(
         None if pd.isna(v) else pd.Timestamp(v) if isinstance(v, np.datetime64) else v
         for v in values
@@ -420,7 +427,66 @@ def review_log(
     (np.float64(2.0), np.float64(6.0), np.float64(16.0), np.float64(25.0), 'open')
     """
     settings = settings or TradeSettings()
-    measure = _volatility_function(settings)
+    out = review_arrays(log_arrays(trades, prices, settings), prices, settings)
+    for c in ("Bar date", "Exit date"):
+        out[c] = [_as_timestamp(d) for d in out[c].to_numpy(dtype=float)]
+    return out
+
+
+@dataclass(frozen=True)
+class LogArrays:
+    """A trade log read once: one entry per trade, dates as day numbers (1900-system
+    serials, NaN when blank), prices and amounts as floats (NaN when blank).
+
+    The fill builds it straight from the sheet's cells
+    (:func:`sheetvol.fill.trade_log.read_log`); :func:`log_arrays` builds it from a
+    DataFrame.
+    """
+
+    index: Any  # a label per trade (the sheet row in the fill)
+    names: np.ndarray  # instrument of each trade (object)
+    sides: np.ndarray  # side as written (object)
+    entry_days: FloatArray
+    entries: FloatArray
+    exits: FloatArray
+    exit_days: FloatArray
+    quantities: FloatArray
+    equities: FloatArray
+
+
+def log_arrays(trades: pd.DataFrame, prices: Mapping[str, Any],
+               settings: TradeSettings | None = None) -> LogArrays:
+    """The columns of a trade log, found by header once, as :class:`LogArrays`.
+
+    Parameters
+    ----------
+    trades : pandas.DataFrame
+        One row per trade, headed as :data:`LOG_COLUMNS` says (or
+        ``settings.columns``).
+    prices : mapping
+        Bars per instrument (only their names are used: a log without an
+        instrument column is on the only instrument).
+    settings : TradeSettings, optional
+        For ``columns``.
+
+    Returns
+    -------
+    LogArrays
+
+    Raises
+    ------
+    ValueError
+        A required column is missing; the message lists what was found.
+
+    Examples
+    --------
+    >>> log = pd.DataFrame({"Date": [pd.Timestamp("2025-01-09")], "Symbol": ["KESTREL"],
+    ...                     "Side": ["long"], "Entry": [10.0]})
+    >>> a = log_arrays(log, {"KESTREL": None})
+    >>> a.entry_days.tolist(), a.entries.tolist(), a.exits.tolist()
+    ([45666.0], [10.0], [nan])
+    """
+    settings = settings or TradeSettings()
     cols = _find_columns(trades, LOG_COLUMNS, settings.columns)
     n = len(trades)
     only = single_instrument(cols, prices)
@@ -433,29 +499,80 @@ def review_log(
             return np.full(n, np.nan)
         return _numbers(trades[cols[role]].to_numpy(), str(cols[role]))
 
-    entry_days = _days(trades[cols["date"]].to_numpy())
-    exit_days = (_days(trades[cols["exit_date"]].to_numpy()) if cols["exit_date"] is not None
-                 else np.full(n, np.nan))
-    entries, exits = log_numbers("entry"), log_numbers("exit")
-    quantities, equities = log_numbers("quantity"), log_numbers("equity")
-    equities = np.where(np.isfinite(equities), equities, settings.equity)
-    names = (trades[cols["instrument"]].to_numpy() if cols["instrument"] is not None
-             else np.full(n, only, dtype=object))
-    sides = trades[cols["side"]].to_numpy()
+    return LogArrays(
+        index=trades.index,
+        names=(trades[cols["instrument"]].to_numpy() if cols["instrument"] is not None
+               else np.full(n, only, dtype=object)),
+        sides=trades[cols["side"]].to_numpy(),
+        entry_days=_days(trades[cols["date"]].to_numpy()),
+        entries=log_numbers("entry"), exits=log_numbers("exit"),
+        exit_days=(_days(trades[cols["exit_date"]].to_numpy())
+                   if cols["exit_date"] is not None else np.full(n, np.nan)),
+        quantities=log_numbers("quantity"), equities=log_numbers("equity"),
+    )
 
+
+def review_arrays(log: LogArrays, prices: Mapping[str, pd.DataFrame],
+                  settings: TradeSettings | None = None) -> pd.DataFrame:
+    """:func:`review_log` on a log already read: the same columns, with ``Bar date`` and
+    ``Exit date`` as day numbers (1900-system serials).
+
+    Parameters
+    ----------
+    log : LogArrays
+        The trades.
+    prices : mapping
+        Bars per instrument (see :func:`review_log`); a float ``Date`` column is
+        taken as day numbers.
+    settings : TradeSettings, optional
+        Measure, multiples, risk share, equity and contract details.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Indexed by ``log.index``.
+
+    Examples
+    --------
+    >>> bars = pd.DataFrame({"Date": 45663.0 + np.arange(5), "High": [11.0] * 5,
+    ...                      "Low": [9.0] * 5, "Close": [10.0] * 5})
+    >>> log = log_arrays(pd.DataFrame({"Date": [45666.0], "Instrument": ["K"],
+    ...                                "Side": ["long"]}), {"K": bars})
+    >>> review_arrays(log, {"K": bars}, TradeSettings(options={"period": 3}))["Bar date"][0]
+    np.float64(45666.0)
+    """
+    settings = settings or TradeSettings()
+    measure = _volatility_function(settings)
+    equities = np.where(np.isfinite(log.equities), log.equities, settings.equity)
     out: dict[str, list[Any]] = {c: [] for c in OUTPUT_COLUMNS}
     cache: dict[str, _Bars | str] = {}
-    for t in range(n):
+    for t in range(len(log.sides)):
         row = _review_row(
-            names[t], sides[t], entry_days[t], entries[t], exits[t], exit_days[t],
-            quantities[t], equities[t], prices, measure, settings, cache,
+            log.names[t], log.sides[t], log.entry_days[t], log.entries[t], log.exits[t],
+            log.exit_days[t], log.quantities[t], equities[t], prices, measure, settings, cache,
         )
         for c in OUTPUT_COLUMNS:
-            out[c].append(row.get(c, np.nan if c not in ("Bar date", "Exit date") else pd.NaT))
-    frame = pd.DataFrame(out, index=trades.index)
+            out[c].append(row.get(c, np.nan))
+    frame = pd.DataFrame(out, index=log.index)
     for c in ("Result", "Size note", "Note"):
         frame[c] = frame[c].fillna("").astype(str)
     return frame
+
+
+def latest_equity(log: LogArrays) -> float:
+    """Equity on the log's latest trade (by entry date) that states one (NaN: none).
+
+    Examples
+    --------
+    >>> a = LogArrays(None, np.array(["K", "K"]), np.array(["long", "long"]),
+    ...               np.array([2.0, 1.0]), *[np.full(2, np.nan)] * 4, np.array([9.0, 5.0]))
+    >>> latest_equity(a)
+    9.0
+    """
+    ok = np.flatnonzero(np.isfinite(log.entry_days) & np.isfinite(log.equities))
+    if not len(ok):
+        return math.nan
+    return float(log.equities[ok[np.argmax(log.entry_days[ok])]])
 
 
 def _review_row(
@@ -491,7 +608,7 @@ def _review_row(
     if i is None:
         return {"Note": "no bar on or before the entry date"}
     notes = []
-    row: dict[str, Any] = {"Bar date": _as_timestamp(bars.days[i])}
+    row: dict[str, Any] = {"Bar date": float(bars.days[i])}
     if not math.isfinite(entry):
         entry = float(bars.close[i])
         notes.append("entry price taken from the entry bar's close")
@@ -538,8 +655,8 @@ def _review_row(
         "Trail": review.trail,
         "Result": review.result,
         "Exit price": review.exit_price,
-        "Exit date": (_as_timestamp(bars.days[review.exit_index])
-                      if review.exit_index is not None else pd.NaT),
+        "Exit date": (float(bars.days[review.exit_index])
+                      if review.exit_index is not None else np.nan),
         "R": review.r,
         "Bars": review.bars if review.bars is not None else np.nan,
         "Adverse": review.adverse,
@@ -639,9 +756,8 @@ def _latest_equity(trades: pd.DataFrame, settings: TradeSettings) -> float:
     cols = _find_columns(trades, LOG_COLUMNS, settings.columns)
     if cols["equity"] is None or cols["date"] is None:
         return math.nan
-    days = _days(trades[cols["date"]].to_numpy())
-    equity = _numbers(trades[cols["equity"]].to_numpy(), str(cols["equity"]))
-    ok = np.flatnonzero(np.isfinite(days) & np.isfinite(equity))
-    if not len(ok):
-        return math.nan
-    return float(equity[ok[np.argmax(days[ok])]])
+    n = len(trades)
+    return latest_equity(LogArrays(
+        trades.index, np.full(n, None), np.full(n, None), _days(trades[cols["date"]].to_numpy()),
+        *[np.full(n, np.nan)] * 4, _numbers(trades[cols["equity"]].to_numpy(),
+                                            str(cols["equity"]))))

@@ -11,6 +11,7 @@ percentages), the outcome counts, the settings and the cautions.
 
 from __future__ import annotations
 
+import datetime as dt
 import itertools
 import math
 import re
@@ -38,9 +39,11 @@ from sheetvol.fill.review import (
     POINT_VALUE_ASSUMED,
     SUMMARY_LABELS,
     TRADES_REVIEWED,
+    LogArrays,
     contract_role,
     instruments_from_frame,
-    review_log,
+    latest_equity,
+    review_arrays,
     summarise,
 )
 from sheetvol.fill.trade_settings import Instrument, TradeSettings, instrument_key
@@ -64,11 +67,14 @@ __all__ = [
     "find_trade_log",
     "instrument_key",
     "plan_trade_review",
+    "read_log",
     "scaled_format",
     "stated_equity",
 ]
 
 REVIEW_SHEET = "Trade review"
+# Day 0 of the 1904 date system as a 1900-system serial (1462).
+_DATE_1904_OFFSET = cells.datetime_to_serial(dt.datetime(1904, 1, 1))
 #: The Review note of a trade whose price sheet was left out with --sheet.
 NOT_CHOSEN_NOTE = "not reviewed: its price sheet was not chosen (--sheet)"
 TRADE_CAUTIONS = (
@@ -81,10 +87,9 @@ TRADE_CAUTIONS = (
 TRADE_CAUTION_LINE = ("Not advice; stops do not guarantee exit prices (gaps, slippage); check "
                       "sizes against your broker's margin rules and local regulation. "
                       f'More on the notes sheet "{NOTES_SHEET}".')
-# Canonical log headers: the frame handed to review_log uses these names.
-_CANONICAL = {"date": "Date", "instrument": "Instrument", "side": "Side", "entry": "Entry",
-              "exit": "Exit", "exit_date": "Exit date", "quantity": "Quantity",
-              "equity": "Equity"}
+# The log's roles, in the order of the log's columns.
+_CANONICAL = ("date", "instrument", "side", "entry", "exit", "exit_date", "quantity",
+              "equity")
 _REQUIRED = ("date", "instrument", "side")
 # Headers this module writes (any parameters): recognised on a re-run without the notes.
 OWN_HEADER = re.compile(
@@ -527,25 +532,65 @@ _MEANING = {
 
 
 # -- reading the log ----------------------------------------------------------------------
-def _read_log(pkg: Package, log: TradeLog) -> tuple[pd.DataFrame, Any]:
-    """The log's role columns as a frame indexed by sheet row, and the sheet's cells."""
+def read_log(pkg: Package, log: TradeLog) -> tuple[LogArrays, Any]:
+    """The log read once, straight from its cells: :class:`LogArrays` indexed by sheet row
+    (dates as day numbers, amounts as floats), and the sheet's cells.
+
+    Rows where every role column is blank are left out. Columns are those
+    :func:`find_trade_log` located; number cells named in messages by their header.
+
+    Parameters
+    ----------
+    pkg : Package
+        The opened workbook.
+    log : TradeLog
+        From :func:`find_trade_log`.
+
+    Returns
+    -------
+    tuple
+        The arrays and the sheet's grid.
+
+    Examples
+    --------
+    >>> arrays, grid = read_log(pkg, find_trade_log(pkg, TradeSettings()))  # doctest: +SKIP
+    """
     grid = pkg.read_grid(log.sheet)
-    rows = []
-    index = []
+    offset = _DATE_1904_OFFSET if pkg.date1904 else 0.0
+    rows: list[int] = []
+    values: dict[str, list[object]] = {role: [] for role in _CANONICAL}
     for r in range(log.header_row + 1, grid.max_row + 1):
         cells_r = grid.rows.get(r, {})
-        values = {role: _plain(cells_r.get(col)) for role, col in log.roles.items()}
-        if all(v is None or (isinstance(v, str) and not v.strip()) for v in values.values()):
+        got = {role: _plain(cells_r.get(col)) for role, col in log.roles.items()}
+        if all(v is None or (isinstance(v, str) and not v.strip()) for v in got.values()):
             continue
-        for role in ("date", "exit_date"):
-            v = values.get(role)
-            if isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v):
-                values[role] = pd.Timestamp(cells.serial_to_datetime(
-                    float(v), date1904=pkg.date1904))
-        rows.append({_CANONICAL[k]: v for k, v in values.items()})
-        index.append(r)
-    frame = pd.DataFrame(rows, index=index, columns=[_CANONICAL[k] for k in log.roles])
-    return frame, grid
+        rows.append(r)
+        for role in _CANONICAL:
+            values[role].append(got.get(role))
+    n = len(rows)
+
+    def days(role: str) -> np.ndarray:
+        out = np.full(n, np.nan)
+        for k, v in enumerate(values[role]):
+            if isinstance(v, (int, float)) and not isinstance(v, bool):
+                out[k] = float(v) + offset if math.isfinite(v) else math.nan
+            elif v is not None:
+                out[k] = cells.to_day_numbers([v], date1904=pkg.date1904)[0]
+        return out
+
+    def numbers(role: str) -> np.ndarray:
+        if role not in log.roles:
+            return np.full(n, np.nan)
+        return cells.to_series(values[role], name=log.headers.get(log.roles[role], role))
+
+    names = (np.full(n, log.instrument, dtype=object) if "instrument" not in log.roles
+             else np.array(values["instrument"], dtype=object))
+    arrays = LogArrays(
+        index=pd.Index(rows), names=names, sides=np.array(values["side"], dtype=object),
+        entry_days=days("date"), entries=numbers("entry"), exits=numbers("exit"),
+        exit_days=days("exit_date"), quantities=numbers("quantity"),
+        equities=numbers("equity"))
+    return arrays, grid
 
 
 def _own_columns(log: TradeLog, grid: Any, recorded: Mapping[str, str]) -> dict[int, str]:
@@ -605,10 +650,8 @@ def plan_trade_review(
     >>> edits, rep = plan_trade_review(pkg, log, TradeSettings(), prices, {})  # doctest: +SKIP
     """
     contracts = instruments or Contracts()
-    frame, grid = _read_log(pkg, log)
-    if log.instrument and "Instrument" not in frame.columns:
-        frame["Instrument"] = log.instrument
-    report = TradeReport(sheet=log.sheet, header_row=log.header_row, trades=len(frame),
+    arrays, grid = read_log(pkg, log)
+    report = TradeReport(sheet=log.sheet, header_row=log.header_row, trades=len(arrays.index),
                          instruments_sheet=contracts.sheet, instrument=log.instrument)
     equity, equity_text = _equity(pkg, log, recipe, contracts, report)
     # one settings object: the recipe's, with the contract details found and the equity
@@ -616,8 +659,8 @@ def plan_trade_review(
                        equity=equity)
     report.assumptions.extend(
         f'column "{h}" on sheet "{contracts.sheet}" not used' for h in contracts.unused)
-    traded = dict.fromkeys(str(n).strip() for n in frame.get("Instrument", pd.Series(
-        dtype=object)) if isinstance(n, str) and n.strip())
+    traded = dict.fromkeys(str(n).strip() for n in arrays.names
+                           if isinstance(n, str) and n.strip())
     defaulted = [n for n in traded if not math.isfinite(settings.instrument(n).point_value)]
     if defaulted:
         where_pv = (f'not on the contract sheet "{contracts.sheet}"' if contracts.sheet
@@ -631,13 +674,12 @@ def plan_trade_review(
             f"{_num(100 * LARGE_RISK)}%: risk is a share of equity (0.01 = 1%); check the "
             "setting")
     try:
-        reviewed = review_log(frame, prices, settings)
+        reviewed = review_arrays(arrays, prices, settings)
     except ValueError as exc:  # settings were checked; this is the log itself
         raise TradeLogError(f'{where}, sheet "{log.sheet}": {exc}') from None
     left_out = {instrument_key(n): n for n in not_chosen}
     names_left = []
-    for row, name, note in zip(reviewed.index, frame.get("Instrument", pd.Series(
-            [""] * len(frame), index=frame.index)), reviewed["Note"], strict=True):
+    for row, name, note in zip(reviewed.index, arrays.names, reviewed["Note"], strict=True):
         if note and note.startswith("no prices") and instrument_key(name) in left_out:
             reviewed.loc[row, "Note"] = NOT_CHOSEN_NOTE
             names_left.append(left_out[instrument_key(name)])
@@ -649,7 +691,8 @@ def plan_trade_review(
             "totals are partial")
     report.reviewed = reviewed
     report.counts = Counter(reviewed["Result"].tolist())
-    report.summary = summarise(reviewed, frame, settings)
+    report.summary = summarise(reviewed, settings=settings if math.isfinite(settings.equity)
+                               else replace(settings, equity=latest_equity(arrays)))
     for row, note in zip(reviewed.index, reviewed["Note"], strict=True):
         if note and note.startswith("no prices"):
             report.problems.append(f'{where}, sheet "{log.sheet}" row {row}: {note}')
@@ -669,7 +712,7 @@ def plan_trade_review(
             start += 1
     report.replaced = len(own) - len(free)
 
-    names = [instrument_key(n) for n in frame.get("Instrument", pd.Series(dtype=object))]
+    names = [instrument_key(n) for n in arrays.names]
     price_places = [decimals.get(n, 2) for n in names]
     size_places = [_step_decimals(settings.instrument(n).lot_step) for n in names]
     log_date = _date_format(pkg, log, "date", first_row=log.header_row + 1)
@@ -678,14 +721,15 @@ def plan_trade_review(
                "Target R": "0.00",
                "R": "0.00", "Adverse R": "0.00", "Favourable R": "0.00", "Bars": "0",
                "Open risk": "#,##0.00"}
-    first, last = log.header_row + 1, max([log.header_row + 1, *frame.index])
+    first, last = log.header_row + 1, max([log.header_row + 1, *arrays.index])
+    at = np.asarray(arrays.index, dtype=int) - first
     edits: list = []
     for key, header in heads.items():
         col = targets[key]
         if key in _TEXT_KEYS:
             texts = _texts(reviewed[key], key)
             values = np.full(last - first + 1, None, dtype=object)
-            values[np.asarray(frame.index, dtype=int) - first] = texts
+            values[at] = texts
             edits.append(NewColumn(sheet=log.sheet, col=col, header_row=log.header_row,
                                    header=header, first_row=first, values=values,
                                    number_format="General", width=_text_width(header, texts),
@@ -694,12 +738,10 @@ def plan_trade_review(
             continue
         values = np.full(last - first + 1, np.nan)
         column = reviewed[key]
-        if key in ("Bar date", "Exit date"):
-            nums = [math.nan if pd.isna(v) else cells.datetime_to_serial(
-                pd.Timestamp(v).to_pydatetime(), date1904=pkg.date1904) for v in column]
-        else:
-            nums = pd.to_numeric(column, errors="coerce").to_numpy(dtype=float)
-        values[np.asarray(frame.index, dtype=int) - first] = nums
+        nums = pd.to_numeric(column, errors="coerce").to_numpy(dtype=float)
+        if key in ("Bar date", "Exit date"):  # day numbers -> the workbook's date system
+            nums = nums - (_DATE_1904_OFFSET if pkg.date1904 else 0.0)
+        values[at] = nums
         fmt = formats.get(key) or scaled_format(
             np.asarray(nums, dtype=float), size_places if key == "Size" else price_places)
         edits.append(NewColumn(sheet=log.sheet, col=col, header_row=log.header_row,
