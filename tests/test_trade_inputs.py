@@ -223,3 +223,21 @@ def test_a_1904_date_system_log_keeps_its_dates(tmp_path):
     got = columns_by_header(load_workbook(report.output)["Trades"])
     assert got["Entry-bar date"][0] == dt.datetime(2025, 1, 20)
     assert got["Size at 1% risk"][0] == 25
+
+
+def test_settings_the_workbook_states_but_the_review_does_not_use_are_said(tmp_path):
+    src = tmp_path / "desk.xlsx"
+    _book(src, contracts=[["Instrument", "Point value"], ["BIRCH", 1]],
+          log_head=["Date", "Instrument", "Side", "Entry"],
+          log_rows=[[dt.datetime(2025, 1, 20), "BIRCH", "long", 100.0]],
+          settings=[["Account equity", 100_000], ["Risk per trade", 0.02],
+                    ["Stop distance (ATR multiples)", 2], ["Trailing stop (ATR multiples)", 4]])
+    report = fill_file(src)
+    said = " | ".join(report.assumptions)
+    assert "Settings!B2 states risk 0.02, the review uses 0.01: give --risk 0.02" in said
+    assert "Settings!B4 states trail multiple 4, the review uses 3" in said
+    assert "Settings!B3" not in said  # the stop agrees: nothing to say
+    # given the same figures, nothing is said
+    same = fill_file(src, FillOptions(output=tmp_path / "same.xlsx", trades=TradeSettings(
+        risk=0.02, trail_multiple=4)))
+    assert not [a for a in same.assumptions if "Settings!" in a]

@@ -70,6 +70,7 @@ __all__ = [
     "read_log",
     "scaled_format",
     "stated_equity",
+    "stated_settings",
 ]
 
 REVIEW_SHEET = "Trade review"
@@ -439,7 +440,51 @@ def stated_equity(pkg: Package, skip: Sequence[str] = ()) -> tuple[float, str] |
                 continue
             if isinstance(value, (int, float)) and not isinstance(value, bool) and value > 0:
                 return float(value), f"{_ref_sheet(sheet)}!{col_letter(col)}{row}"
+    return stated_settings(pkg, skip).get("equity")
+
+
+def _settings_key(label: str) -> str | None:
+    """The review setting a Settings-sheet label names (None: not one)."""
+    text = normalize_header(label)
+    if text in {normalize_header(w) for w in LOG_COLUMNS["equity"]}:
+        return "equity"
+    words = set(text.split())
+    if "risk" in words:
+        return "risk"
+    for key, word in (("trail_multiple", "trail"), ("trail_multiple", "trailing"),
+                      ("stop_multiple", "stop"), ("target_multiple", "target")):
+        if word in words:
+            return key
+    return None
+
+
+def stated_settings(pkg: Package, skip: Sequence[str] = ()) -> dict[str, tuple[float, str]]:
+    """Figures a Settings sheet states for the review: equity, risk, stop, target, trail.
+
+    A label in one cell (``Account equity``, ``Risk per trade``, ``Stop distance
+    (ATR multiples)``, ``Target distance``, ``Trailing stop``) with a number in the
+    cell to its right; the first of each counts.
+
+    Parameters
+    ----------
+    pkg : Package
+        The opened workbook.
+    skip : sequence of str
+        Sheets not to read.
+
+    Returns
+    -------
+    dict
+        Setting (``equity``, ``risk``, ``stop_multiple``, ``target_multiple``,
+        ``trail_multiple``) -> (value, cell).
+
+    Examples
+    --------
+    >>> stated_settings(Package.open("workbooks/template.xlsx"))["risk"]
+    (0.01, 'Settings!B2')
+    """
     skipped = {s.casefold() for s in skip}
+    found: dict[str, tuple[float, str]] = {}
     for info in pkg.sheets:
         if (info.kind != "worksheet" or info.name.casefold() not in SETTINGS_SHEETS
                 or info.name.casefold() in skipped):
@@ -449,11 +494,12 @@ def stated_equity(pkg: Package, skip: Sequence[str] = ()) -> tuple[float, str] |
             row = grid.rows[r]
             for c in sorted(row):
                 v, right = row[c], row.get(c + 1)
-                if (isinstance(v, str) and normalize_header(v) in words
-                        and isinstance(right, (int, float)) and not isinstance(right, bool)
-                        and right > 0):
-                    return float(right), f"{_ref_sheet(info.name)}!{col_letter(c + 1)}{r}"
-    return None
+                key = _settings_key(v) if isinstance(v, str) else None
+                if (key and key not in found and isinstance(right, (int, float))
+                        and not isinstance(right, bool) and right >= 0):
+                    found[key] = (float(right),
+                                  f"{_ref_sheet(info.name)}!{col_letter(c + 1)}{r}")
+    return found
 
 
 def _ref_sheet(sheet: str) -> str:
@@ -659,6 +705,7 @@ def plan_trade_review(
                        equity=equity)
     report.assumptions.extend(
         f'column "{h}" on sheet "{contracts.sheet}" not used' for h in contracts.unused)
+    report.assumptions.extend(_settings_differ(pkg, log, recipe, contracts))
     traded = dict.fromkeys(str(n).strip() for n in arrays.names
                            if isinstance(n, str) and n.strip())
     defaulted = [n for n in traded if not math.isfinite(settings.instrument(n).point_value)]
@@ -903,6 +950,26 @@ def _equity(pkg: Package, log: TradeLog, recipe: TradeSettings, contracts: Contr
     if has_column:  # rows without an Equity cell say so in their Size note
         return math.nan, f"{own[:-2]}; the latest trade's for the open-risk share"
     return math.nan, f"none ({NO_EQUITY}): sizes and open risk are blank"
+
+
+_FLAGS = {"risk": "--risk", "stop_multiple": "--stop-multiple",
+          "target_multiple": "--target-multiple", "trail_multiple": "--trail-multiple"}
+
+
+def _settings_differ(pkg: Package, log: TradeLog, recipe: TradeSettings,
+                     contracts: Contracts) -> list[str]:
+    """Settings the workbook states that the review does not use (one workbook, one answer:
+    the difference is said, with the way to agree)."""
+    stated = stated_settings(pkg, skip=[log.sheet, contracts.sheet])
+    out = []
+    for key, flag in _FLAGS.items():
+        if key in stated and not math.isclose(stated[key][0], getattr(recipe, key),
+                                              rel_tol=1e-12):
+            value, ref = stated[key]
+            out.append(f"{ref} states {key.replace('_', ' ')} {value:g}, the review uses "
+                       f"{getattr(recipe, key):g}: give {flag} {value:g} (or [trades] {key}) "
+                       "to agree")
+    return out
 
 
 def _settings_rows(recipe: TradeSettings, settings: TradeSettings,
