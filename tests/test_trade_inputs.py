@@ -241,3 +241,34 @@ def test_settings_the_workbook_states_but_the_review_does_not_use_are_said(tmp_p
     same = fill_file(src, FillOptions(output=tmp_path / "same.xlsx", trades=TradeSettings(
         risk=0.02, trail_multiple=4)))
     assert not [a for a in same.assumptions if "Settings!" in a]
+
+
+def test_the_fill_guide_recipe_runs_as_written_on_the_demo(tmp_path):
+    """docs/fill.md's recipe, copied as written, on workbooks/demo-desk.xlsx."""
+    import re
+    import shutil
+
+    from sheetvol.cli import main
+
+    root = Path(__file__).resolve().parent.parent
+    text = (root / "docs" / "fill.md").read_text(encoding="utf-8")
+    (recipe,) = re.findall(r"```toml\n(.*?)```", text, re.S)
+    (tmp_path / "desk.toml").write_text(recipe, encoding="utf-8")
+    shutil.copy(root / "workbooks" / "demo-desk.xlsx", tmp_path / "desk.xlsx")
+    out = tmp_path / "out.xlsx"
+    assert main(["fill", str(tmp_path / "desk.xlsx"), "--recipe", str(tmp_path / "desk.toml"),
+                 "-o", str(out), "--quiet"]) == 0
+    heads = [c.value for c in load_workbook(out)["Trades"][1]]
+    assert "Stop 1.5x vol" in heads and "Size at 0.5% risk" in heads
+
+
+def test_a_recipe_header_the_log_lacks_is_named_with_the_way_out(tmp_path):
+    src = tmp_path / "desk.xlsx"
+    _book(src)  # the log's side column is headed "Side"
+    with pytest.raises(ValueError) as err:
+        fill_file(src, FillOptions(trades=TradeSettings(sheet="Trades",
+                                                        columns={"side": "B/S"})))
+    text = str(err.value)
+    assert '[trades] columns names "B/S" for side, which is not a header of this row' in text
+    assert 'the usual header "Side" is in column C: remove side from [trades] columns' in text
+    assert 'e.g. columns = { side = "B/S" }' not in text  # not the line that caused it

@@ -293,11 +293,29 @@ def find_trade_log(pkg: Package, recipe: TradeSettings, skip: Sequence[str] = ()
             where_row = f"best header row {row}" if row else f"first {HEADER_SCAN_ROWS} rows"
             extra = (" (a log without one is used when the workbook has exactly one price "
                      "sheet)" if "instrument" not in roles else "")
+            named = _named_but_absent(recipe.columns, roles, grid.rows.get(row, {}))
+            way_out = (named or "name the log's own header for a missing role with [trades] "
+                       'columns, e.g. columns = { side = "<its header>" }')
             raise TradeLogError(
                 f'{where}, sheet "{name}": no header row with the trade-log columns; '
-                f"{where_row}: found {found}; missing {missing}{extra}; name a column with "
-                '[trades] columns, e.g. columns = { side = "B/S" }')
+                f"{where_row}: found {found}; missing {missing}{extra}; {way_out}")
     return None
+
+
+def _named_but_absent(overrides: Mapping[str, str], roles: Mapping[str, int],
+                      row: Mapping[int, object]) -> str:
+    """The way out when [trades] columns names a header the log does not have."""
+    usual = _log_roles(row, {})
+    parts = []
+    for role, header in overrides.items():
+        if role in roles:
+            continue
+        have = usual.get(role)
+        also = (f' (the usual header "{row[have]}" is in column {col_letter(have)}: remove '
+                f"{role} from [trades] columns to use it)" if have is not None else "")
+        parts.append(f'[trades] columns names "{header}" for {role}, which is not a header '
+                     f"of this row{also}")
+    return "; ".join(parts)
 
 
 def _only_price_sheet(pkg: Package, names: Sequence[str]) -> str:
