@@ -564,8 +564,9 @@ def latest_equity(log: LogArrays) -> float:
 
     Examples
     --------
+    >>> none = np.full(2, np.nan)
     >>> a = LogArrays(None, np.array(["K", "K"]), np.array(["long", "long"]),
-    ...               np.array([2.0, 1.0]), *[np.full(2, np.nan)] * 4, np.array([9.0, 5.0]))
+    ...               np.array([2.0, 1.0]), none, none, none, none, np.array([9.0, 5.0]))
     >>> latest_equity(a)
     9.0
     """
@@ -756,8 +757,9 @@ def _latest_equity(trades: pd.DataFrame, settings: TradeSettings) -> float:
     cols = _find_columns(trades, LOG_COLUMNS, settings.columns)
     if cols["equity"] is None or cols["date"] is None:
         return math.nan
-    n = len(trades)
+    blank = np.full(len(trades), np.nan)
     return latest_equity(LogArrays(
-        trades.index, np.full(n, None), np.full(n, None), _days(trades[cols["date"]].to_numpy()),
-        *[np.full(n, np.nan)] * 4, _numbers(trades[cols["equity"]].to_numpy(),
-                                            str(cols["equity"]))))
+        index=trades.index, names=blank, sides=blank,
+        entry_days=_days(trades[cols["date"]].to_numpy()), entries=blank, exits=blank,
+        exit_days=blank, quantities=blank,
+        equities=_numbers(trades[cols["equity"]].to_numpy(), str(cols["equity"]))))

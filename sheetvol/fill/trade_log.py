@@ -215,9 +215,9 @@ def _log_roles(row: Mapping[int, object], overrides: Mapping[str, str]) -> dict[
     for role, names in LOG_COLUMNS.items():
         wanted = [overrides[role]] if role in overrides else names
         for name in wanted:
-            col = by_text.get(normalize_header(name))
-            if col is not None:
-                roles[role] = col
+            found = by_text.get(normalize_header(name))
+            if found is not None:
+                roles[role] = found
                 break
     return roles
 
@@ -928,7 +928,8 @@ def _round_between(low: float, high: float) -> float:
     return cut if low < cut <= high else high
 
 
-def _width(header: str, values: Sequence[float], fmt: str, places: Sequence[int]) -> float:
+def _width(header: str, values: Sequence[float] | np.ndarray, fmt: str,
+           places: Sequence[int]) -> float:
     """A column width that fits the header and the widest value as shown."""
     shown = [len(f"{v:,.{d}f}") for v, d in zip(values, places, strict=True)
              if isinstance(v, float) and math.isfinite(v)]
