@@ -1,47 +1,177 @@
-"""Per-call cost of the add-in's worksheet functions on big ranges.
+"""Cost of a worksheet function call through xlwings' classic call path, end to end.
 
-Run ``python -m benches.addin`` (``--rows`` to change the size). The
-inputs are built the way xlwings hands a range to a function declared with
-``ndim=2``: a list of one-element rows of floats (with a few blanks as None),
-dates as datetimes. Only the Python time inside the generated function is
-measured: argument conversion, the kernel and building the returned rows.
-xlwings' own COM transfer is not included (there is no spreadsheet program
-here). Budget: a whole-column call on 100,000 rows under 50 ms.
+Run ``python -m benches.addin`` (``--rows`` to change the size). There is no
+spreadsheet program here: xlwings' own open-source UDF module
+(``xlwings.udfs.call_udf``, with its argument and result conversion) runs
+with the Windows COM layer replaced by fakes that hand over what that layer
+hands over (:func:`classic_call_path`): a range as a tuple of row tuples,
+None for blank cells, floats, pywin32 datetimes. Three parts are timed
+separately, then the whole ``call_udf``:
+
+* read: xlwings turning each argument into what the function receives;
+* compute: the generated function (sheetvol's cleaning in numpy, the cut of
+  trailing blank rows, the kernel, building the result rows);
+* write: xlwings turning the result into what goes back to COM.
+
+Not included, because it happens outside Python: Excel's side and pywin32's
+marshalling of the values between Excel and Python.
+
+Budget: a whole-column-form call on 100,000 rows under 50 ms, median, read +
+compute + write; verdicts are printed for an exact 100,000-row range and for
+whole-column references (``C:C``: 1,048,576 cells, 100,000 of them prices).
+Target for the per-cell forms (``_LAST``, ``_ON``) on 300 bars: under 30
+microseconds a call; a numpy call timed in the same run shows how loaded the
+machine is.
 """
 
 from __future__ import annotations
 
 import argparse
+import asyncio
+import contextlib
 import datetime as dt
+import importlib
 import statistics
 import sys
 import time
-from collections.abc import Callable
+import types
+from collections.abc import Callable, Iterator
 from typing import Any
 
 import numpy as np
 
 BUDGET_MS = 50.0
+SHEET_ROWS = 1_048_576  # rows of a worksheet: what a whole-column reference holds
+MISSING = -2147352572  # DISP_E_PARAMNOTFOUND: what VBA passes for an omitted Optional
+VT_ERROR = 10  # VARENUM value of an error variant
+CLASSIC_MODULE = "sheetvol_classic_udfs"
+
+
+class ComRange:
+    """A range argument as pywin32 hands it over: ``value`` is what ``Range.Value`` gives."""
+
+    def __init__(self, value: Any) -> None:
+        self.value = value
+
+
+class ComVariant:
+    """Shaped like pywin32's ``win32com.client.VARIANT``: a type code and a value."""
+
+    def __init__(self, vt: int, value: Any) -> None:
+        self.varianttype = vt
+        self.value = value
+
+
+class _RangeImpl:
+    """xlwings' Windows Range implementation, reduced to what reading a UDF argument uses."""
+
+    max_cells_per_read = None
+
+    def __init__(self, xl: Any = None) -> None:
+        self.xl = xl
+        app = types.SimpleNamespace(engine=None, pid=0)
+        self.sheet = types.SimpleNamespace(book=types.SimpleNamespace(app=app))
+
+    @property
+    def raw_value(self) -> Any:
+        return None if self.xl is None else self.xl.value
+
+
+@contextlib.contextmanager
+def classic_call_path() -> Iterator[types.SimpleNamespace]:
+    """xlwings' classic UDF module importable and callable here, COM replaced by fakes.
+
+    Yields a namespace with ``call(name, *args)`` (the function run by
+    ``xlwings.udfs.call_udf``, omitted trailing arguments passed as VBA's
+    "missing" marker), ``udfs`` (xlwings' module) and ``module`` (the
+    registered sheetvol functions). Everything it puts into ``sys.modules``
+    is taken out again on exit.
+    """
+    import xlwings
+
+    from sheetvol import addin
+
+    names = ("pythoncom", "pywintypes", "win32com", "win32com.client", "xlwings._xlwindows",
+             "xlwings.com_server", "xlwings.udfs", CLASSIC_MODULE)
+    saved = {n: sys.modules.get(n) for n in names}
+    saved_attr = getattr(xlwings, "_xlwindows", None)
+    saved_engine = xlwings.engines.engines_by_name.get("excel")
+    stubs = {n: types.ModuleType(n) for n in names[:6]}
+    stubs["pythoncom"].CoInitialize = lambda: None  # type: ignore[attr-defined]
+    stubs["pythoncom"].VT_ERROR = VT_ERROR  # type: ignore[attr-defined]
+    stubs["win32com.client"].Dispatch = lambda *a, **k: None  # type: ignore[attr-defined]
+    stubs["win32com.client"].VARIANT = ComVariant  # type: ignore[attr-defined]
+    stubs["win32com"].client = stubs["win32com.client"]  # type: ignore[attr-defined]
+    win = stubs["xlwings._xlwindows"]
+    win.Range = _RangeImpl  # type: ignore[attr-defined]
+    win.is_range_instance = lambda a: isinstance(a, ComRange)  # type: ignore[attr-defined]
+    win.BOOK_CALLER = None  # type: ignore[attr-defined]
+    loop = asyncio.new_event_loop()
+    stubs["xlwings.com_server"].loop = loop  # type: ignore[attr-defined]
+    try:
+        sys.modules.update(stubs)
+        sys.modules.pop("xlwings.udfs", None)
+        xlwings._xlwindows = win  # type: ignore[attr-defined]
+        # The desktop engine's entry (its cleaning and writing are not used by raw conversion).
+        xlwings.engines.engines_by_name["excel"] = types.SimpleNamespace(name="excel",
+                                                                         type="desktop")
+        udfs = importlib.import_module("xlwings.udfs")
+        module = types.ModuleType(CLASSIC_MODULE)
+        module.__file__ = addin.__file__
+        module.__dict__.update(addin.make_udfs((udfs.xlfunc, udfs.xlarg, udfs.xlret),
+                                               runtime="classic"))
+        sys.modules[CLASSIC_MODULE] = module
+
+        def call(name: str, *args: Any) -> Any:
+            n = len(module.__dict__[name].__xlfunc__["args"])
+            return udfs.call_udf(CLASSIC_MODULE, name, (*args, *[MISSING] * (n - len(args))))
+
+        yield types.SimpleNamespace(call=call, udfs=udfs, module=module)
+    finally:
+        loop.close()
+        for n, mod in saved.items():
+            if mod is None:
+                sys.modules.pop(n, None)
+            else:
+                sys.modules[n] = mod
+        if saved_attr is None:
+            with contextlib.suppress(AttributeError):
+                del xlwings._xlwindows  # type: ignore[attr-defined]
+        else:
+            xlwings._xlwindows = saved_attr  # type: ignore[attr-defined]
+        if saved_engine is None:
+            xlwings.engines.engines_by_name.pop("excel", None)
+        else:
+            xlwings.engines.engines_by_name["excel"] = saved_engine
 
 
 def _inputs(rows: int, seed: int = 7) -> dict[str, Any]:
+    """Invented prices as COM hands them over: whole columns and exact ranges."""
     rng = np.random.default_rng(seed)
     close = 100 * np.exp(np.cumsum(rng.normal(0, 0.01, rows)))
     high = close * (1 + np.abs(rng.normal(0, 0.004, rows)))
     low = close * (1 - np.abs(rng.normal(0, 0.004, rows)))
 
-    def cells(a: np.ndarray) -> list[list[Any]]:
-        out: list[list[Any]] = [[x] for x in a.tolist()]
-        for i in range(0, rows, 997):  # a few blank cells, as real exports have
-            out[i] = [None]
-        return out
+    blank = None  # a name, so that every row below is its own tuple, as COM makes them
 
-    start = dt.datetime(1990, 1, 1)
-    return {
-        "high": cells(high), "low": cells(low), "close": cells(close),
-        "dates": [[start + dt.timedelta(days=i)] for i in range(rows)],
-        "last_date": start + dt.timedelta(days=rows - 10),
-    }
+    def cells(a: np.ndarray, name: str) -> tuple[tuple[Any], ...]:
+        out: list[tuple[Any]] = [(name,)]  # the header in row 1
+        out += [(x,) for x in a.tolist()]
+        for i in range(1, rows, 997):  # a few blank cells, as real exports have
+            out[i] = (blank,)
+        return tuple(out)
+
+    start = dt.datetime(1990, 1, 1, tzinfo=dt.timezone.utc)
+    tail = tuple((blank,) for _ in range(max(0, SHEET_ROWS - rows - 1)))
+    out: dict[str, Any] = {}
+    for name, a in (("high", high), ("low", low), ("close", close)):
+        col = cells(a, name)
+        out[name] = ComRange(col)
+        out[name + ":whole"] = ComRange(col + tail)
+    out["dates"] = ComRange((("date",), *((start + dt.timedelta(days=i),)
+                                          for i in range(rows))))
+    out["last_date"] = start + dt.timedelta(days=rows - 10)
+    return out
 
 
 def _time(call: Callable[[], Any], repeat: int) -> tuple[float, float]:
@@ -53,42 +183,64 @@ def _time(call: Callable[[], Any], repeat: int) -> tuple[float, float]:
     return min(samples), statistics.median(samples)
 
 
-def run(rows: int = 100_000, repeat: int = 7) -> dict[str, tuple[float, float]]:
-    """Time the add-in functions; return {label: (best ms, median ms)}.
+def _parts(path: types.SimpleNamespace, name: str, args: tuple[Any, ...],
+           repeat: int) -> dict[str, tuple[float, float]]:
+    """Median and best of read, compute and write, and of the whole call_udf."""
+    from xlwings import conversion
+
+    udf = path.module.__dict__[name]
+    info = udf.__xlfunc__
+    n = len(info["args"])
+    padded = (*args, *[MISSING] * (n - len(args)))
+    win = sys.modules["xlwings._xlwindows"]
+    from xlwings import Range
+
+    def read() -> list[Any]:  # as call_udf does it
+        out = []
+        for a, arg_info in zip(padded, info["args"], strict=True):
+            if isinstance(a, int) and a == MISSING:
+                out.append(arg_info.get("optional"))
+            elif win.is_range_instance(a):
+                out.append(conversion.read(Range(impl=win.Range(xl=a)), None,
+                                           arg_info["options"]))
+            else:
+                out.append(conversion.read(None, a, arg_info["options"]))
+        return out
+
+    given = read()
+    result = udf(*given)
+    return {
+        "read": _time(read, repeat),
+        "compute": _time(lambda: udf(*given), repeat),
+        "write": _time(lambda: conversion.write(result, None, info["ret"]["options"]), repeat),
+        "whole call_udf": _time(lambda: path.call(name, *args), repeat),
+    }
+
+
+def run(rows: int = 100_000, repeat: int = 7) -> dict[str, dict[str, tuple[float, float]]]:
+    """Time the calls; return {label: {part: (best ms, median ms)}}.
 
     Examples
     --------
     >>> results = run(rows=2_000, repeat=1)
-    >>> sorted(results)[0]
-    'SV_ATR whole column (3 columns)'
+    >>> sorted(results["SV_DEVIATION whole column C:C"])
+    ['compute', 'read', 'whole call_udf', 'write']
     """
-    from sheetvol import addin
-    from sheetvol.functions import convert as _convert
-
     d = _inputs(rows)
-    u = addin.UDFS
-    hlc = (d["high"], d["low"], d["close"])
-    cases: dict[str, Callable[[], Any]] = {
-        "SV_DEVIATION whole column (1 column)": lambda: u["SV_DEVIATION"](d["close"], 14),
-        "SV_AVERAGE exponential whole column": lambda: u["SV_AVERAGE"](
-            d["close"], 20, "exponential"),
-        "SV_ATR whole column (3 columns)": lambda: u["SV_ATR"](*hlc, 14),
-        "SV_BAND whole column (1 column)": lambda: u["SV_BAND"](d["close"], "upper", 20, 2),
-        # _LAST: window functions read the last bars only, recursive ones whole columns.
-        "SV_DEVIATION_LAST (window: last 14 bars)": lambda: u["SV_DEVIATION_LAST"](
-            d["close"], 14),
-        "SV_ATR_LAST simple (window: last 15 bars)": lambda: u["SV_ATR_LAST"](
-            *hlc, 14, "simple"),
-        "SV_ATR_LAST Wilder (recursive: whole columns)": lambda: u["SV_ATR_LAST"](*hlc, 14),
-        # _ON, a trade-log row: the dates are always read whole.
-        "SV_DEVIATION_ON (window)": lambda: u["SV_DEVIATION_ON"](
-            d["last_date"], d["dates"], d["close"], 14),
-        "SV_ATR_ON Wilder (recursive)": lambda: u["SV_ATR_ON"](
-            d["last_date"], d["dates"], *hlc, 14),
-        "dates column alone (datetimes to day numbers)": lambda: _convert.day_numbers(
-            d["dates"], func="SV_X_ON", param="dates"),
+    hlc = (d["high:whole"], d["low:whole"], d["close:whole"])
+    cases: dict[str, tuple[str, tuple[Any, ...]]] = {
+        "SV_DEVIATION whole column C:C": ("SV_DEVIATION", (d["close:whole"], 14.0)),
+        "SV_BAND whole column C:C": ("SV_BAND", (d["close:whole"], "upper", 20.0, 2.0)),
+        "SV_AVERAGE exponential, C:C": ("SV_AVERAGE", (d["close:whole"], 20.0, "exponential")),
+        "SV_ATR whole columns (3)": ("SV_ATR", (*hlc, 14.0)),
+        "SV_DEVIATION exact range": ("SV_DEVIATION", (d["close"], 14.0)),
+        "SV_DEVIATION_LAST (window)": ("SV_DEVIATION_LAST", (d["close"], 14.0)),
+        "SV_ATR_LAST Wilder (whole)": ("SV_ATR_LAST", (d["high"], d["low"], d["close"], 14.0)),
+        "SV_DEVIATION_ON (window)": ("SV_DEVIATION_ON", (d["last_date"], d["dates"],
+                                                         d["close"], 14.0)),
     }
-    return {label: _time(call, repeat) for label, call in cases.items()}
+    with classic_call_path() as path:
+        return {label: _parts(path, name, args, repeat) for label, (name, args) in cases.items()}
 
 
 def fill_down(rows: int = 2_000) -> dict[str, float]:
@@ -101,7 +253,7 @@ def fill_down(rows: int = 2_000) -> dict[str, float]:
     """
     from sheetvol import addin
 
-    close = _inputs(rows)["close"]
+    close = [[v[0]] for v in _inputs(rows)["close"].value[1:]]
     calls: dict[str, Callable[[list[list[Any]]], Any]] = {
         "SV_VOLRANK_LAST (window)": lambda c: addin.UDFS["SV_VOLRANK_LAST"](c, 252),
         "SV_AVERAGE_LAST exponential": lambda c: addin.UDFS["SV_AVERAGE_LAST"](
@@ -118,8 +270,41 @@ def fill_down(rows: int = 2_000) -> dict[str, float]:
     return out
 
 
+def per_cell(bars: int = 300, repeat: int = 5, number: int = 200) -> dict[str, float]:
+    """Microseconds per call of the per-cell forms on ``bars`` bars (best of ``repeat``)."""
+    import timeit
+
+    from sheetvol.functions.calling import call_worksheet
+
+    d = _inputs(bars)
+    close = [[v[0]] for v in d["close"].value[1:]]
+    high = [[v[0]] for v in d["high"].value[1:]]
+    low = [[v[0]] for v in d["low"].value[1:]]
+    dates = [[v[0]] for v in d["dates"].value[1:]]
+    on = dates[-10][0]
+    cases = {
+        "SV_DEVIATION_LAST": lambda: call_worksheet("SV_DEVIATION_LAST", [close, 14]),
+        "SV_ATR_LAST Wilder": lambda: call_worksheet("SV_ATR_LAST", [high, low, close, 14]),
+        "SV_AVERAGE_LAST exponential": lambda: call_worksheet(
+            "SV_AVERAGE_LAST", [close, 20, "exponential"]),
+        "SV_DEVIATION_ON": lambda: call_worksheet("SV_DEVIATION_ON", [on, dates, close, 14]),
+        "SV_ATR_ON Wilder": lambda: call_worksheet("SV_ATR_ON", [on, dates, high, low, close,
+                                                                 14]),
+    }
+    ref = np.asarray([v[0] for v in close[-14:]], dtype=np.float64)
+    cases[REFERENCE] = lambda: ref.std()  # how slow the machine is right now
+    return {k: min(timeit.repeat(f, number=number, repeat=repeat)) / number * 1e6
+            for k, f in cases.items()}
+
+
+REFERENCE = "reference: numpy std of 14 floats"
+
+
+PER_CELL_BUDGET_US = 30.0
+
+
 def main(argv: list[str] | None = None) -> int:
-    """Print the per-call cost; exit 1 when a whole-column call is over budget."""
+    """Print the parts and the verdicts; exit 1 when a whole-column call is over budget."""
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--rows", type=int, default=100_000)
     parser.add_argument("--repeat", type=int, default=7)
@@ -127,16 +312,33 @@ def main(argv: list[str] | None = None) -> int:
                         help="rows of the filled-down _LAST column to time (0 to skip)")
     ns = parser.parse_args(argv)
     results = run(ns.rows, ns.repeat)
-    print(f"add-in per-call Python time, {ns.rows:,} rows, best / median of {ns.repeat}; "
-          f"ratio = median / the {BUDGET_MS:.0f} ms budget of a whole-column call:")
+    print(f"xlwings classic call path, {ns.rows:,} rows of prices, median (best) of "
+          f"{ns.repeat}, ms:")
     width = max(map(len, results))
+    print(f"  {'call':<{width}}  {'read':>15} {'compute':>15} {'write':>15} {'sum':>8}"
+          f" {'call_udf':>9}")
     over = False
-    for label, (best, median) in results.items():
-        ratio = median / BUDGET_MS
-        flag = ""
-        if "whole column" in label and ratio > 1 and ns.rows <= 100_000:
-            flag, over = "  OVER budget", True
-        print(f"  {label:<{width}}  {best:7.2f} ms / {median:7.2f} ms  x{ratio:5.2f}{flag}")
+    for label, parts in results.items():
+        total = sum(parts[p][1] for p in ("read", "compute", "write"))
+        cells = " ".join(f"{parts[p][1]:7.2f} ({parts[p][0]:5.2f})"
+                         for p in ("read", "compute", "write"))
+        print(f"  {label:<{width}}  {cells} {total:8.2f} {parts['whole call_udf'][1]:9.2f}")
+    for label in ("SV_DEVIATION exact range", "SV_DEVIATION whole column C:C",
+                  "SV_ATR whole columns (3)"):
+        parts = results[label]
+        total = sum(parts[p][1] for p in ("read", "compute", "write"))
+        met = total <= BUDGET_MS
+        over = over or (not met and ns.rows <= 100_000)  # the budget is for 100,000 rows
+        print(f"verdict: {label}, read + compute + write {total:.1f} ms, budget "
+              f"{BUDGET_MS:.0f} ms: {'met' if met else 'NOT met'} (x{total / BUDGET_MS:.2f})")
+    cost = per_cell()
+    print("per-cell forms on 300 bars, microseconds per call (best of 5 x 200):")
+    for label, us in cost.items():
+        print(f"  {label:<30} {us:8.1f}")
+    worst = max(v for k, v in cost.items() if k != REFERENCE)
+    print(f"verdict: per-cell fixed cost, worst {worst:.0f} us, target "
+          f"{PER_CELL_BUDGET_US:.0f} us: {'met' if worst <= PER_CELL_BUDGET_US else 'NOT met'}"
+          f" (x{worst / PER_CELL_BUDGET_US:.2f})")
     if ns.fill_down:
         print(f"a column of {ns.fill_down:,} filled-down _LAST cells (each over rows 1..r):")
         for label, seconds in fill_down(ns.fill_down).items():

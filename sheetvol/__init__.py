@@ -25,17 +25,12 @@ from sheetvol.core.estimators import (
     rogers_satchell,
     yang_zhang,
 )
+from sheetvol.core.levels import stop_price, target_price, trailing_stop
 from sheetvol.core.prices import price_basis
 from sheetvol.core.ranges import atr_percent, average_true_range, true_range
 from sheetvol.core.regime import deviation_to_atr, percentile_rank
-from sheetvol.core.risk import (
-    position_size,
-    review_trade,
-    size_with_reason,
-    stop_price,
-    target_price,
-    trailing_stop,
-)
+from sheetvol.core.review import review_trade
+from sheetvol.core.sizing import position_size, size_with_reason
 
 
 def __getattr__(name: str) -> object:

@@ -8,18 +8,24 @@ press *Import Functions*; see ``docs/addin.md``. Every name a user can type
 
 What each generated function does:
 
-* takes the arguments the way xlwings passes them (ranges as lists of rows,
-  blank and error cells as None, text numbers, datetimes or serial numbers),
+* takes the arguments the way xlwings passes them: on the classic Windows
+  path the COM layer's own values, untouched (``convert="raw"``: tuples of
+  rows, None for blanks, error cells as ints, pywin32 datetimes), cleaned by
+  sheetvol in numpy; in the in-Excel runtime (xlwings Lite) the library's
+  cleaned lists of rows;
 * calls :func:`sheetvol.functions.calling.call_worksheet`, the same code the headless
-  evaluator uses,
-* returns a column as rows with None for warm-up and gap rows (a true blank;
-  NaN would show as empty *text*), or one value,
+  evaluator uses;
+* returns a column as rows, or one value. Rows without a value (warm-up,
+  gaps) hold the "no value" marker of :func:`blanks_policy`: by default the #N/A
+  error value, which line charts skip and ``ISNA`` tests; ``"empty"`` gives
+  empty text instead. A spreadsheet function cannot return a true blank on
+  either path (xlwings writes None as empty text);
 * never raises: any problem comes back as a short message starting with the
   function name, which the cell shows.
 
 On a machine without xlwings (or on Linux and macOS, where xlwings' own
 decorators do nothing), the module still imports; the functions are then
-plain Python functions with the same behaviour.
+plain Python functions with the same behaviour, and None marks "no value".
 """
 
 from __future__ import annotations
@@ -28,6 +34,7 @@ import contextlib
 import gc
 import inspect
 import os
+import sys
 from collections.abc import Callable, Iterator
 from typing import Any
 
@@ -70,7 +77,82 @@ except ImportError:  # pragma: no cover - exercised only without the extra
 CATEGORY = "sheetvol"
 HELP_LIMIT = 255  # xlwings/Excel cut function and argument help at 255 characters
 # Pre-dynamic-array Excel cannot spill; xlwings' legacy resizing (expand="table") helps there.
+# Read when this module is imported, i.e. at every start of the UDF server.
 LEGACY_ARRAYS = os.environ.get("SHEETVOL_LEGACY_ARRAYS", "") == "1"
+
+# What a cell without a value (warm-up, gap, no bar yet) shows:
+#   "na"    the #N/A error value: "no value here"; line charts leave the point out,
+#           ISNA() is TRUE, and formulas over it give #N/A unless wrapped in IFNA();
+#   "empty" empty text: looks blank, but ISTEXT() is TRUE and a line chart plots 0.
+BLANKS_CHOICES = ("na", "empty")
+BLANKS_DEFAULT = "na"
+BLANKS_VARIABLE = "SHEETVOL_BLANKS"
+
+# Which xlwings path calls the functions: the classic Windows add-in (COM), the in-Excel
+# runtime (xlwings Lite, Python compiled to WebAssembly), or plain Python.
+RUNTIMES = ("classic", "lite", "python")
+
+
+def _detect_runtime() -> str:
+    if sys.platform == "emscripten":  # Pyodide: the only place xlwings Lite runs
+        return "lite"
+    if "xlwings.com_server" in sys.modules:
+        # xlwings' UDF server (Windows) imports this module from its COM server, for
+        # Import Functions and for every call; plain Python on Windows is "python".
+        return "classic"
+    return "python"
+
+
+RUNTIME = _detect_runtime()
+
+
+def blanks_policy() -> str:
+    """The "no value" policy in force: ``SHEETVOL_BLANKS`` if set, else ``"na"``.
+
+    Raises
+    ------
+    ValueError
+        For a value of ``SHEETVOL_BLANKS`` outside :data:`BLANKS_CHOICES`.
+
+    Examples
+    --------
+    >>> blanks_policy() in BLANKS_CHOICES
+    True
+    """
+    policy = os.environ.get(BLANKS_VARIABLE, "").strip().lower() or BLANKS_DEFAULT
+    if policy not in BLANKS_CHOICES:
+        raise ValueError(
+            f"{BLANKS_VARIABLE}={policy!r} is not one of {', '.join(BLANKS_CHOICES)}"
+        )
+    return policy
+
+
+def no_value_marker(runtime: str, policy: str) -> Any:
+    """What a result cell without a value holds when handed to xlwings on ``runtime``.
+
+    * classic, ``"na"``: pywin32's typed variant for the #N/A error (VT_ERROR,
+      0x800A07FA), which pywin32 passes to Excel as an error value; xlwings'
+      ``raw`` converter leaves it untouched.
+    * lite, ``"na"``: the text ``"#N/A"``, which the runtime's writer turns
+      into the error value.
+    * ``"empty"``: empty text (classic) or None, which xlwings writes as empty text (lite).
+    * plain Python: None.
+
+    Examples
+    --------
+    >>> no_value_marker("lite", "na"), no_value_marker("python", "na")
+    ('#N/A', None)
+    """
+    if runtime == "python":
+        return None
+    if runtime == "lite":
+        return "#N/A" if policy == "na" else None
+    if policy == "empty":
+        return ""
+    import pythoncom  # part of pywin32, which xlwings needs on Windows
+    from win32com.client import VARIANT
+
+    return VARIANT(pythoncom.VT_ERROR, _convert.COM_NA)
 
 # Words of the VBA language. xlwings writes a VBA wrapper whose argument names are the
 # Python names, and a keyword there breaks Import Functions for the whole module
@@ -161,12 +243,12 @@ def _bulk_allocation() -> Iterator[None]:
             gc.enable()
 
 
-def _to_excel(result: Any) -> Any:
+def _to_excel(result: Any, blank: Any) -> Any:
     if isinstance(result, np.ndarray):
-        if result.ndim == 2:
-            return _convert.to_cells(result.reshape(-1), horizontal=result.shape[0] == 1)
-        return _convert.to_cells(result)
-    return _convert.to_cell(result)
+        horizontal = result.ndim == 2 and result.shape[0] == 1
+        return _convert.to_cells(result.reshape(-1), horizontal=horizontal, blank=blank)
+    cell = _convert.to_cell(result)
+    return blank if cell is None else cell
 
 
 def _parameters(names: list[str], params: tuple[Param, ...]) -> list[inspect.Parameter]:
@@ -191,6 +273,7 @@ def make_udf(
     variant: Variant,
     *,
     decorators: tuple[Callable[..., Any], Callable[..., Any], Callable[..., Any]] | None = None,
+    runtime: str | None = None,
 ) -> Callable[..., Any]:
     """Build the worksheet function ``name`` and apply the xlwings decorators to it.
 
@@ -205,6 +288,10 @@ def make_udf(
     decorators : tuple, optional
         ``(func, arg, ret)`` decorators; xlwings' own by default. Tests pass
         xlwings' Windows implementations to check what registration sees.
+    runtime : {"classic", "lite", "python"}, optional
+        The xlwings path the function is built for (:data:`RUNTIME`, detected
+        at import, by default): it decides how arguments are converted and
+        which "no value" marker is returned.
 
     Returns
     -------
@@ -221,6 +308,9 @@ def make_udf(
     96.0
     """
     deco_func, deco_arg, deco_ret = decorators or (_FUNC, _ARG, _RET)
+    runtime = runtime or RUNTIME
+    if runtime not in RUNTIMES:
+        raise ValueError(f"runtime must be one of {', '.join(RUNTIMES)}, got {runtime!r}")
     params = variant_params(func, variant)
     names = [addin_arg_name(p.name) for p in params]
     signature = inspect.Signature(_parameters(names, params))
@@ -233,8 +323,9 @@ def make_udf(
             except TypeError as exc:  # only Python callers can get the count wrong
                 return _message(f"{name}: takes at most {len(names)} arguments ({exc})")
             bound.apply_defaults()
+            blank = no_value_marker(runtime, blanks_policy())
             with _bulk_allocation():
-                return _to_excel(call_worksheet(name, list(bound.arguments.values())))
+                return _to_excel(call_worksheet(name, list(bound.arguments.values())), blank)
         except ArgumentError as exc:
             return _message(str(exc))
         except Exception as exc:  # never a traceback in a cell
@@ -248,14 +339,22 @@ def make_udf(
     arg_opts: dict[str, dict[str, Any]] = {}
     for n, p in zip(names, params, strict=True):
         opts: dict[str, Any] = {"doc": argument_help(p)}
-        if p.is_column:
+        if runtime == "classic":
+            # The COM layer's values as they come (tuples of rows): xlwings' cell-by-cell
+            # cleaning cost more than the whole computation; sheetvol cleans in numpy.
+            opts["convert"] = "raw"
+        elif p.is_column:
             opts["ndim"] = 2  # keep a one-column range a column (xlwings flattens 1-D ranges)
         arg_opts[n] = opts
     ret_opts: dict[str, Any] = {"expand": "table"} if spills and LEGACY_ARRAYS else {}
+    if runtime == "classic":
+        # Rows go to COM as built (floats, text, the #N/A variant): xlwings' default writer
+        # would turn every value over again and None into empty text.
+        ret_opts["convert"] = "raw"
     func_opts = {"category": CATEGORY, "call_in_wizard": False, "volatile": False}
     udf.__sheetvol__ = {  # type: ignore[attr-defined]
         "function": func.name, "variant": variant, "func": func_opts, "args": arg_opts,
-        "ret": ret_opts, "spills": spills,
+        "ret": ret_opts, "spills": spills, "runtime": runtime,
     }
     for n in reversed(names):
         udf = deco_arg(n, **arg_opts[n])(udf)
@@ -266,10 +365,11 @@ def make_udf(
 
 def make_udfs(
     decorators: tuple[Callable[..., Any], Callable[..., Any], Callable[..., Any]] | None = None,
+    runtime: str | None = None,
 ) -> dict[str, Callable[..., Any]]:
     """Build every worksheet function of the registry, keyed by worksheet name."""
     return {
-        name: make_udf(name, func, variant, decorators=decorators)
+        name: make_udf(name, func, variant, decorators=decorators, runtime=runtime)
         for name, func, variant in worksheet_names()
     }
 
@@ -277,4 +377,5 @@ def make_udfs(
 UDFS = make_udfs()
 # xlwings' Import Functions looks for decorated functions among the module's globals.
 globals().update(UDFS)
-__all__ = ["UDFS", "XLWINGS", "addin_arg_name", "make_udf", "make_udfs", *UDFS]
+__all__ = ["BLANKS_CHOICES", "RUNTIME", "UDFS", "XLWINGS", "addin_arg_name", "blanks_policy",
+           "make_udf", "make_udfs", "no_value_marker", *UDFS]

@@ -42,12 +42,13 @@ FILL_DESCRIPTION = """\
 Add volatility columns to price exports (.xlsx, .xlsm or .csv) and write a copy.
 
 Every sheet that looks like bars is filled (--sheet picks some). Its
-Date/Open/High/Low/Close(/Volume) columns are found by their headers (any
-case, usual spellings such as "Close*", "Close/Last", "Last Price", "<CLOSE>";
-the header row may be below a title; a separate Time column of an intraday
-export is joined to the date). Rows are computed in date order (newest-first
-exports too) and each result is written on its bar's row; warm-up rows stay
-blank. Everything else in the workbook is kept as it was.
+Date/Open/High/Low/Close(/Volume) columns are found by their headers (plain
+trade words such as Close, Last, Settle, in any case, with brackets, asterisks,
+units or "price" around them; the header row may be below a title; a
+separate Time column of an intraday export is joined to the date). Rows are
+computed in date order (newest-first exports too) and each result is written
+on its bar's row; warm-up rows stay blank. Everything else in the workbook is
+kept as it was.
 A notes sheet ("sheetvol notes") records the input file and its SHA-256, the
 columns read and each column's function and parameters. Sheetvol formulas typed
 into cells (=SV_...) are evaluated too, each after the sheetvol cells it reads;
@@ -385,8 +386,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     Examples
     --------
     >>> main(["functions", "SV_ATR"])  # doctest: +ELLIPSIS
-    SV_ATR(high, low, close, [period], [smoothing])
-    ...
+    SV_ATR(high, low, close, [period], ...)
+      Average true range: ...
     0
     """
     parser = build_parser()

@@ -179,3 +179,20 @@ def test_registry_function_calls_the_kernel():
 
 def test_docstring_examples():
     assert doctest.testmod(averages).failed == 0
+
+
+def test_choice_lists_by_family():
+    # Window averages first (simple, linear), then the recursive ones (exponential, Wilder);
+    # the registry and the ATR smoothing use the same order.
+    from sheetvol.core import averages, ranges
+    from sheetvol.functions import registry
+    assert averages.KINDS == ("simple", "linear", "exponential", "wilder")
+    assert averages.KINDS == averages.WINDOW_KINDS + averages.RECURSIVE_KINDS
+    assert ranges.SMOOTHING == ("simple", "exponential", "wilder")
+    assert registry.get("SV_AVERAGE").param("kind").choices is averages.KINDS
+    assert registry.get("SV_DEVIATION").param("average").choices is averages.KINDS
+    assert registry.get("SV_ATR").param("smoothing").choices is ranges.SMOOTHING
+    # Defaults unchanged.
+    assert registry.get("SV_AVERAGE").param("kind").default == "simple"
+    assert registry.get("SV_ATR").param("smoothing").default == "wilder"
+    assert registry.get("SV_PRICE").param("basis").default == "typical"

@@ -208,3 +208,107 @@ def test_ragged_rows_with_empty_ones_read_as_blanks():
     # Not what a spreadsheet passes, but a Python caller might: an empty row is a blank.
     got = _convert.column([[1.0], [], [2.0]], func="SV_X", param="prices").values
     np.testing.assert_array_equal(got, [1.0, math.nan, 2.0])
+
+
+# -- ranges taller than their data, COM error cells, COM dates ----------------------------
+def _naive_height(cells_: list[object]) -> int:
+    # Reference: walk up from the bottom to the first cell that is not None or "".
+    for i in range(len(cells_) - 1, -1, -1):
+        if cells_[i] is not None and cells_[i] != "":
+            return i + 1
+    return 0
+
+
+def test_whole_column_is_cut_below_its_last_value():
+    # A whole-column reference (C:C) holds 1,048,576 cells: 1 header, 100 prices, blanks.
+    col = (("Close",),) + tuple((100.0 + i,) for i in range(100)) + ((None,),) * (1_048_576 - 101)
+    assert _convert.data_height(col) == 101
+    # Blank cells inside the data are kept (they are gaps); only the tail goes.
+    assert _convert.data_height([[1.0], [None], [2.0], [""], [None]]) == 3
+    assert _convert.data_height([1.0, None, None]) == 1  # a flat list
+    assert _convert.data_height([[1.0, None, 2.0, None]]) == 3  # a row
+    # A nested result's NaN rows are "no value" (#N/A on the sheet), not blank cells.
+    assert _convert.data_height(np.array([[1.0], [np.nan]])) == 2
+    assert _convert.data_height(np.array([1.0, None, ""], dtype=object)) == 1
+    assert _convert.data_height(((None,),) * 5) == 0
+    assert _convert.data_height(7.0) == 1 and _convert.data_height(None) == 0
+    # Blocks: a row counts as blank only when all its cells are.
+    assert _convert.data_height(((1.0, 2.0), (None, 3.0), (None, None))) == 2
+
+
+@settings(max_examples=200, deadline=None)
+@given(st.lists(st.sampled_from([None, None, None, "", 1.5, "x"]), max_size=400),
+       st.integers(0, 3000))
+def test_data_height_agrees_with_walking_up_from_the_bottom(cells_, tail):
+    cells_ = cells_ + [None] * tail
+    expected = _naive_height(cells_)
+    assert _convert.data_height(cells_) == expected
+    assert _convert.data_height(tuple((c,) for c in cells_)) == expected
+    assert _convert.data_height([[c] for c in cells_]) == expected
+    assert _convert.head(tuple((c,) for c in cells_), expected) == tuple(
+        (c,) for c in cells_[:expected])
+
+
+def test_com_error_cells_are_gaps_and_whole_numbers_stay_numbers():
+    # pywin32 hands an error cell over as an int: #N/A is 0x800A07FA = -2146826246 and
+    # #DIV/0! -2146826281 (xlwings._xlwindows.cell_errors lists the same numbers).
+    na, div0 = -2146826246, -2146826281
+    got = _convert.column(((1.5,), (na,), (div0,), (2.0,)), func="SV_X", param="prices")
+    np.testing.assert_array_equal(got.values, [1.5, np.nan, np.nan, 2.0])
+    # Among text numbers (the cell-by-cell path) too.
+    got = _convert.column(((1.5,), (na,), ("2.5",)), func="SV_X", param="prices")
+    np.testing.assert_array_equal(got.values, [1.5, np.nan, 2.5])
+    # A whole number typed by a Python caller is a price, not an error.
+    np.testing.assert_array_equal(
+        _convert.column([100, 101], func="SV_X", param="prices").values, [100.0, 101.0])
+    days = _convert.day_numbers(((45658.0,), (na,)), func="SV_X_ON", param="dates")
+    np.testing.assert_array_equal(days, [45658.0, np.nan])
+
+
+class _ComTime(dt.datetime):
+    """Shaped like pywin32's datetime: a datetime subclass carrying a UTC time zone."""
+
+
+def test_com_datetimes_read_as_their_wall_clock_date():
+    # 2025-01-02 is serial 45659 (module docstring); the UTC zone must not shift it.
+    utc = dt.timezone.utc
+    col = ((_ComTime(2025, 1, 2, tzinfo=utc),), (None,), (_ComTime(2025, 1, 3, 12, tzinfo=utc),))
+    days = _convert.day_numbers(col, func="SV_X_ON", param="dates")
+    np.testing.assert_array_equal(days, [45659.0, np.nan, 45660.5])
+    assert _convert.day_number(_ComTime(2025, 1, 2, tzinfo=utc), func="SV_X_ON",
+                               param="date") == 45659.0
+
+
+def test_an_empty_one_cell_range_is_a_missing_argument():
+    for v in (None, [[None]], ((None,),), [None], "", [[""]]):
+        assert _convert.is_empty_cell(v), v
+    for v in ([[1.0]], [[None], [None]], np.array([np.nan]), 0.0):
+        assert not _convert.is_empty_cell(v), v
+
+
+def test_a_header_above_plain_numbers_reads_like_cell_by_cell():
+    # The vectorised path below a header must give what reading each cell gives: the
+    # header blank, error cells blank, text numbers in the header block read as numbers.
+    cells_ = [("Close",), ("note",), (1.5,), (None,), (-2146826246,), (2.0,)]
+    got = _convert.column(tuple(cells_), func="SV_X", param="prices").values
+    np.testing.assert_array_equal(got, [np.nan, np.nan, 1.5, np.nan, np.nan, 2.0])
+    got = _convert.column((("1.25",), (2.0,)), func="SV_X", param="prices").values
+    np.testing.assert_array_equal(got, [1.25, 2.0])
+    with pytest.raises(ArgumentError, match=r"prices item 1 is 'Close', not a number"):
+        _convert.column((("Close",), (None,)), func="SV_X", param="prices")
+    days = _convert.day_numbers((("Date",), ("2025-01-02",), (dt.datetime(2025, 1, 3),)),
+                                func="SV_X_ON", param="dates")
+    np.testing.assert_array_equal(days, [np.nan, 45659.0, 45660.0])  # serials: module doc
+    days = _convert.day_numbers((("Date",), (45659.0,)), func="SV_X_ON", param="dates")
+    np.testing.assert_array_equal(days, [np.nan, 45659.0])
+
+
+def test_currency_cells_from_com_are_numbers():
+    # pywin32 returns a cell formatted as currency (VT_CY) as decimal.Decimal.
+    from decimal import Decimal
+
+    got = _convert.column(((Decimal("101.25"),), (None,), (102.5,)), func="SV_X",
+                          param="prices").values
+    np.testing.assert_array_equal(got, [101.25, np.nan, 102.5])
+    got = _convert.column(((Decimal("101.25"),), ("102.5",)), func="SV_X", param="prices")
+    np.testing.assert_array_equal(got.values, [101.25, 102.5])

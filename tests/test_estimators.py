@@ -175,26 +175,27 @@ def test_constant_prices_give_exactly_zero():
         assert len(values) >= 40 and (values == 0.0).all()
 
 
-def test_non_positive_prices_are_skipped_like_gaps():
-    # Documented policy: a bar with a price <= 0 is NaN and the window runs over the rest.
+def test_non_positive_prices_are_refused_naming_the_bar():
+    # Issue 8: skipping such a bar made the next close-to-close return span two bars with
+    # nothing said. Logarithms need prices above 0: refuse, naming the column and the bar.
     o, h, lo, c = random_ohlc(80, seed=5)
     bad = 40
     for value in (0.0, -1.0):
         lo2 = lo.copy()
         lo2[bad] = value
-        keep = np.arange(80) != bad
         for kernel in (garman_klass, rogers_satchell, yang_zhang):
-            got = kernel(o, h, lo2, c, 10)
-            want = kernel(o[keep], h[keep], lo[keep], c[keep], 10)
-            assert np.isnan(got[bad])
-            np.testing.assert_array_equal(got[keep], want)
-        got = parkinson(h, lo2, 10)
-        np.testing.assert_array_equal(got[keep], parkinson(h[keep], lo[keep], 10))
+            with pytest.raises(ValueError, match=f"low is {value:g} on bar 41: .* above 0"):
+                kernel(o, h, lo2, c, 10)
+        with pytest.raises(ValueError, match=r"low is .* on bar 41"):
+            parkinson(h, lo2, 10)
         c2 = c.copy()
         c2[bad] = value
-        got = close_to_close(c2, 10)
-        assert np.isnan(got[bad])
-        np.testing.assert_array_equal(got[keep], close_to_close(c[keep], 10))
+        with pytest.raises(ValueError, match=r"close is .* on bar 41"):
+            close_to_close(c2, 10)
+    # A blank (NaN) is still a gap, not an error.
+    c3 = c.copy()
+    c3[bad] = np.nan
+    assert np.isnan(close_to_close(c3, 10)[bad])
 
 
 def test_a_close_outside_the_bar_that_makes_the_mean_negative_gives_nan():

@@ -385,7 +385,9 @@ def test_typed_formula_on_another_sheet_with_a_stored_prefix(tmp_path):
     assert values["B2"].value == pytest.approx(ref, rel=1e-9)
     notes = [r for r in load_workbook(report.output)[NOTES_SHEET].iter_rows(values_only=True)
              if r[0] == "'Dash board'!B3"]
-    assert notes and notes[0][2].startswith("not evaluated")
+    # One policy for a bad argument: the cell shows the add-in's message; the notes list it.
+    assert notes and notes[0][2].startswith("bad argument: SV_ATR_LAST: period must be")
+    assert values["B3"].value == notes[0][2].removeprefix("bad argument: ")
 
 
 def test_chart_option_draws_close_with_bands_and_dispersion_with_atr(tmp_path):

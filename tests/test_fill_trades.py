@@ -26,7 +26,6 @@ import talib
 from openpyxl import Workbook, load_workbook
 
 from sheetvol.cli import main
-from sheetvol.core import risk as risk_module
 from sheetvol.fill import recipe as recipe_module
 from sheetvol.fill import review as trades_module
 from sheetvol.fill import trade_log as trade_fill
@@ -321,6 +320,22 @@ def test_no_trades_and_trades_sheet_options(tmp_path):
         fill_file(src, FillOptions(trades=TradeSettings(sheet="About")))
 
 
+def test_a_log_header_named_in_the_recipe_but_absent_is_named_as_such(tmp_path):
+    # The demo's log is headed Side in C; a recipe naming "B/S" must say that "B/S" is not
+    # there (and show the row's headers), not that side is missing nor suggest "B/S".
+    src = tmp_path / "desk.xlsx"
+    shutil.copy(DEMO, src)
+    with pytest.raises(TradeLogError) as err:
+        fill_file(src, FillOptions(trades=TradeSettings(sheet="Trades", columns={"side": "B/S"})))
+    text = str(err.value)
+    assert '[trades] columns: side = "B/S": no column headed "B/S" in row 1' in text
+    assert "C 'Side'" in text
+    assert "missing side" not in text and 'e.g. columns = { side = "B/S" }' not in text
+    # Without a sheet named the same recipe is refused too, not silently unreviewed.
+    with pytest.raises(TradeLogError, match='side = "B/S": no column headed "B/S"'):
+        fill_file(src, FillOptions(trades=TradeSettings(columns={"side": "B/S"})))
+
+
 def test_one_long_price_sheet_with_an_instrument_column(tmp_path):
     rng = np.random.default_rng(5)
     days = pd.bdate_range("2025-01-06", periods=40)
@@ -446,7 +461,7 @@ def test_scaled_format_by_hand():
     assert scaled_format(np.array([1.0, 1.5, 2.0]), [5, 2, 5]) == "#,##0.00000"
 
 
-@pytest.mark.parametrize("module", [recipe_module, trade_fill, trades_module, risk_module],
+@pytest.mark.parametrize("module", [recipe_module, trade_fill, trades_module],
                          ids=lambda m: m.__name__)
 def test_docstring_examples_run(module):
     assert doctest.testmod(module, optionflags=doctest.NORMALIZE_WHITESPACE).failed == 0
@@ -510,7 +525,7 @@ def test_price_basis_option_through_the_fill(tmp_path, demo_direct):
     typical = ((upto["High"] + upto["Low"] + upto["Close"]) / 3).tolist()
     assert got[header][0] == pytest.approx(statistics.pstdev(typical), rel=1e-9)
     for table, words in (({"measure": "deviation", "options": {"basis": "middle"}},
-                          "basis must be one of close, open, high, low, median, typical"),
+                          "basis must be one of open, high, low, close, median, typical"),
                          ({"options": {"basis": "typical"}}, "SV_ATR reads high, low, close")):
         with pytest.raises(RecipeError, match=words):
             parse_trades(table, source="desk.toml")

@@ -81,9 +81,9 @@ FORMS = {
                                            dispersion(P["close"], 14)[-1]),
 }
 ERRORS = {
-    "=IF(B1>0,SV_ATR_LAST(Prices!C2:C9,Prices!D2:D9,Prices!E2:E9),0)":
-        "cannot evaluate IF(...): only sheetvol functions, cells, ranges and numbers are "
-        "supported headless",
+    "=SQRT(SV_ATR_LAST(Prices!C2:C9,Prices!D2:D9,Prices!E2:E9))":
+        "cannot evaluate SQRT(...): SQRT is not evaluated headless (only sheetvol functions "
+        "and DATE, ROUND",
     "=SV_AVERAGE(Closes, 5)": "cannot evaluate Closes: defined names are not supported",
     "=SV_AVERAGE(Quotes[Close], 5)": "cannot evaluate Quotes[Close]: table references",
     "=SV_NOPE(Prices!E2:E9)": "cannot evaluate SV_NOPE(...): no sheetvol function named SV_NOPE",
@@ -405,3 +405,170 @@ def test_template_shows_numbers_in_libreoffice(template, libreoffice):
               for c in row if isinstance(c.value, str) and c.value.startswith("#")]
     assert errors == []
     assert isinstance(wb["Trades"]["D2"].value, float)
+
+
+# -- ordinary worksheet functions around sheetvol calls (issue 9) ---------------------------
+# Inputs of the reference sheet: A1 2.5, A2 "abc", A3 blank, A4 -7.25, A5 a date, A6 "12",
+# A7 0, A8 1234.5678.
+REF_INPUTS = {1: 2.5, 2: "abc", 4: -7.25, 5: dt.datetime(2025, 3, 14), 6: "12", 7: 0,
+              8: 1234.5678}
+# Every formula here is recalculated by LibreOffice, the reference engine, and the values
+# compared (test_worksheet_functions_agree_with_libreoffice). Logical cells are left out of
+# ranges and of &: LibreOffice stores TRUE as the number 1 there, unlike the add-in's host;
+# and two-digit years (DATE(25,1,1)), which LibreOffice reads by its own year window.
+REFERENCE_FORMULAS = [
+    "=ROUND(A1,0)", "=ROUND(-2.5,0)", "=ROUND(2.675,2)", "=ROUND(A8,-2)", "=ROUND(A4,1)",
+    "=ROUNDUP(1.21,1)", "=ROUNDUP(-1.21,1)", "=ROUNDUP(A8,-1)", "=ROUNDDOWN(-1.29,1)",
+    "=ROUNDDOWN(A8,2.7)", "=ROUND(A3,2)", "=ROUND(A6,0)",
+    "=DATE(2025,3,14)", "=DATE(2025,14,-3)", "=DATE(2024,2,30)",
+    "=DATE(2025,0,0)", "=A5-DATE(2025,1,1)",
+    "=MIN(A1:A8,7)", "=MAX(A1:A8)", "=MIN(A1:A3)", "=MAX(A2:A3)", "=MIN(A6,3)", "=MAX(-1,A3)",
+    "=ABS(A4)", "=ABS(-0)", "=ABS(A6)",
+    '=IF(A1>2,"big","small")', '=IF(A4>2,"big","small")', "=IF(A3,1,2)", "=IF(A1<0,1)",
+    "=IF(A7,1,2)", '=IF(A2="ABC",ROUND(A1,0),0)', "=IF(A1>0,,5)",
+    '=IFERROR(1/0,"none")', "=IFERROR(A1/A7,-1)", "=IFERROR(A2+1,0)", "=IFERROR(A1*2,0)",
+    "=IFERROR(ROUND(A2,1),A4)",
+    "=AND(A1>1,A4<0)", "=AND(A1>1,A4>0)", "=OR(A1<0,A4<0)", "=OR(A7,A3=0)", "=AND(A1:A8)",
+    "=OR(A7:A8)",
+    '=A1&" x "&A4', '="ATR "&ROUND(A8,1)&" pts"', "=A3&A6", "=0.1+0.2&\"\"", "=A5&\"\"",
+    '="a"<"B"', '=A2="ABC"', "=A3=0", '=A3=""', "=A1<>2.5", "=A4<=A1", "=A1>=A8", '=1<"1"',
+    "=A6>5", "=A1=2.5", "=-A1+A4*2%",
+    "=A2+1", "=A1/A7", "=ROUND(A2,1)", "=MIN(A1,A2)",
+]
+
+
+def _reference_book(path: Path) -> Path:
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.title = "Ref"
+    for row, value in REF_INPUTS.items():
+        ws.cell(row=row, column=1, value=value)
+    for row, formula in enumerate(REFERENCE_FORMULAS, start=1):
+        ws.cell(row=row, column=3, value=formula)
+    wb.save(path)
+    return path
+
+
+def _ours(formula: str, resolver) -> object:
+    try:
+        return evaluate(formula, resolver, current_sheet="Ref")
+    except FormulaError as exc:
+        return exc
+
+
+@pytest.mark.slow
+def test_worksheet_functions_agree_with_libreoffice(tmp_path, libreoffice):
+    # Source of every expected value: LibreOffice recalculating the same formulas on the
+    # same inputs (it computes formulas that carry no stored result when it opens a file).
+    book = _reference_book(tmp_path / "reference.xlsx")
+    theirs = openpyxl.load_workbook(libreoffice(book), data_only=True)["Ref"]
+    resolver = openpyxl_resolver(openpyxl.load_workbook(book, data_only=True))
+    wrong = []
+    for row, formula in enumerate(REFERENCE_FORMULAS, start=1):
+        expected = theirs.cell(row=row, column=3).value
+        got = _ours(formula, resolver)
+        if isinstance(expected, str) and expected.startswith("#"):
+            # An error value in LibreOffice: ours is not written (the formula stays).
+            ok = isinstance(got, FormulaError) and expected in str(got)
+        elif isinstance(expected, bool) or isinstance(got, bool):
+            ok = got is expected or (not isinstance(got, bool) and got == expected)
+        elif isinstance(expected, (int, float)):
+            ok = isinstance(got, float) and got == pytest.approx(expected, rel=1e-15, abs=0)
+        else:
+            ok = got == expected
+        if not ok:
+            wrong.append(f"{formula}: LibreOffice {expected!r}, ours {got!r}")
+    assert wrong == []
+
+
+def test_worksheet_functions_around_sheetvol_calls(book):
+    resolver = openpyxl_resolver(openpyxl.load_workbook(book, data_only=True))
+    atr = float(ATR14[-1])
+    # Hand rule for the expected values: ROUND rounds halves away from zero on the decimal
+    # text of the number (Python's decimal ROUND_HALF_UP on repr), as spreadsheets do.
+    from decimal import ROUND_HALF_UP, Decimal
+    rounded = float(Decimal(repr(atr)).quantize(Decimal("0.01"), rounding=ROUND_HALF_UP))
+    cases = {
+        f"=ROUND(SV_ATR_LAST({HLC},14),2)": rounded,
+        f'=IF(SV_ATR_LAST({HLC},14)>0,"wide","narrow")': "wide",
+        f"=MAX(SV_ATR_LAST({HLC},14),1000)": 1000.0,
+        f"=MIN(SV_ATR_LAST({HLC},14),1000)": atr,
+        f"=ABS(-SV_ATR_LAST({HLC},14))": atr,
+        f'="ATR "&ROUND(SV_ATR_LAST({HLC},14),2)': f"ATR {rounded:g}",
+        f"=AND(SV_ATR_LAST({HLC},14)>0,SV_ATR_LAST({HLC},14)<1000)": True,
+        # DATE(2025,3,7) is bar 60 (FIRST is 2025-01-06).
+        "=SV_DEVIATION_ON(DATE(2025,3,7),Prices!A2:A121,Prices!E2:E121,14)":
+            float(dispersion(P["close"], 14)[60]),
+        "=IFERROR(ROUND(SV_AVERAGE_LAST(Prices!E2:E121,1),2),-1)": -1.0,
+        # IF computes only the branch it takes: the bad call on the other one is not met.
+        "=IF(FALSE,SV_AVERAGE_LAST(Prices!E2:E121,1),5)": 5.0,
+    }
+    for formula, expected in cases.items():
+        got = evaluate(formula, resolver, current_sheet="Log")
+        assert got == (pytest.approx(expected, rel=1e-12) if isinstance(expected, float)
+                       else expected), formula
+    rounded_column = evaluate(f"=ROUND(SV_ATR({HLC},14),3)", resolver, current_sheet="Log")
+    expected_column = [float(Decimal(repr(v)).quantize(Decimal("0.001"), rounding=ROUND_HALF_UP))
+                       if v == v else math.nan for v in ATR14.tolist()]
+    np.testing.assert_array_equal(rounded_column, expected_column)
+
+
+def test_a_bad_argument_gives_the_add_in_message(book):
+    # One policy: the message text the live add-in shows for the same call.
+    from sheetvol import addin
+    from sheetvol.functions.evaluator import ArgumentMessage
+    from sheetvol.functions.registry import get
+
+    udf = addin.make_udf("SV_AVERAGE_LAST", get("SV_AVERAGE"), "last")
+    shown = udf(P["close"].reshape(-1, 1).tolist(), 1)
+    assert shown.startswith("SV_AVERAGE_LAST: period must be a whole number from 2")
+    resolver = openpyxl_resolver(openpyxl.load_workbook(book, data_only=True))
+    for formula in ("=SV_AVERAGE_LAST(Prices!E2:E121,1)",
+                    "=ROUND(SV_AVERAGE_LAST(Prices!E2:E121,1),2)"):
+        with pytest.raises(ArgumentMessage) as err:
+            evaluate(formula, resolver, current_sheet="Log")
+        assert err.value.text == shown
+    # The add-in's text is a value, not an error: IFERROR passes it on unchanged.
+    with pytest.raises(ArgumentMessage) as err:
+        evaluate("=IFERROR(SV_AVERAGE_LAST(Prices!E2:E121,1),0)", resolver, current_sheet="Log")
+    assert err.value.text == shown
+
+
+def test_fill_writes_values_messages_and_lists_what_stays_a_formula(tmp_path):
+    from sheetvol.fill.job import FillOptions, fill_file
+    from sheetvol.fill.notes import NOTES_SHEET
+
+    src = build(tmp_path / "typed.xlsx")
+    wb = openpyxl.load_workbook(src)
+    del wb["Log"]  # its whole-column forms spill over one another; a plain log instead
+    log = wb.create_sheet("Log")
+    log["E2"] = f"=ROUND(SV_ATR_LAST({HLC},14),2)"
+    log["E3"] = "=SV_AVERAGE_LAST(Prices!E2:E121,1)"
+    log["E4"] = f"=SQRT(SV_ATR_LAST({HLC},14))"
+    log["E5"] = "=SV_SIZE(100000,1,100,95)"
+    wb.save(src)
+    out = fill_file(src, FillOptions(output=tmp_path / "out.xlsx", sheets=("Prices",))).output
+    values = openpyxl.load_workbook(out)
+    got = values["Log"]
+    from decimal import ROUND_HALF_UP, Decimal
+    assert got["E2"].value == float(Decimal(repr(float(ATR14[-1]))).quantize(
+        Decimal("0.01"), rounding=ROUND_HALF_UP))
+    assert got["E3"].value.startswith("SV_AVERAGE_LAST: period must be a whole number from 2")
+    assert got["E4"].value == f"=SQRT(SV_ATR_LAST({HLC},14))"  # stays a formula
+    assert got["E5"].value.startswith("SV_SIZE: risk must be a number above 0")
+    notes = [[c for c in row if c is not None]
+             for row in values[NOTES_SHEET].iter_rows(values_only=True)]
+    cells = {"Log!E2", "Log!E3", "Log!E4", "Log!E5"}
+    listed = {row[0]: row for row in notes if row and row[0] in cells}
+    assert set(listed) == cells
+    assert "SQRT is not evaluated headless" in " ".join(map(str, listed["Log!E4"]))
+    assert "period must be a whole number from 2" in " ".join(map(str, listed["Log!E3"]))
+
+
+def test_date_in_a_1904_workbook():
+    # The 1904 system counts from 1904-01-01, 1,462 days after the 1900 system's day 0
+    # (1899-12-30): DATE(2025,3,14) is 45730 in one (LibreOffice above) and 44268 in the other.
+    def cells(sheet, top, left, bottom, right):
+        return [[None]]
+
+    assert evaluate("=DATE(2025,3,14)", cells, date1904=True) == 45730.0 - 1462

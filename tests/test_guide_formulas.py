@@ -26,7 +26,8 @@ GUIDE = ROOT / "docs" / "trade-log.md"
 # guide row label -> the fill's header for the same figure (default settings)
 SAME = {"volatility on entry": "Entry-bar ATR 14 (Wilder)", "stop": "Stop 2x vol",
         "target": "Target 3x vol", "size": "Size at 1% risk", "target in R": "Target in R",
-        "trailing stop now": "Trail 3x vol", "outcome": "Reviewed outcome"}
+        "trailing stop now": "Trail 3x vol", "outcome": "Reviewed outcome",
+        "trail at the exit (the fill's Trail)": "Trail 3x vol"}
 
 
 def guide_formulas() -> dict[str, str]:

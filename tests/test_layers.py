@@ -33,7 +33,7 @@ ALLOWED_THIRD_PARTY = {
     1: {"numpy", "pandas", "openpyxl"},
     2: {"numpy", "defusedxml"},
     3: {"numpy", "pandas", "defusedxml", "tqdm", "tomli", "xlsxwriter", "openpyxl"},
-    4: {"numpy", "pandas", "xlwings"},
+    4: {"numpy", "pandas", "xlwings", "pythoncom", "win32com"},  # pywin32: xlwings on Windows
 }
 STDLIB = set(sys.stdlib_module_names)
 
@@ -117,7 +117,8 @@ def test_import_sheetvol_and_the_core_load_no_heavy_library():
         "import sys\n"
         "import sheetvol, sheetvol.core.averages, sheetvol.core.bands, sheetvol.core.dispersion\n"
         "import sheetvol.core.estimators, sheetvol.core.prices, sheetvol.core.ranges\n"
-        "import sheetvol.core.regime, sheetvol.core.risk, sheetvol.core._windows\n"
+        "import sheetvol.core.regime, sheetvol.core._windows\n"
+        "import sheetvol.core.levels, sheetvol.core.sizing, sheetvol.core.review\n"
         "heavy = [m for m in ('pandas', 'openpyxl', 'xlwings', 'defusedxml') if m in sys.modules]\n"
         "print(','.join(heavy))\n"
     )

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import re
+
 import pytest
 from openpyxl import Workbook
 from openpyxl.utils import column_index_from_string, get_column_letter
@@ -52,6 +54,54 @@ def test_usual_spellings(text, role):
 )
 def test_our_headers_and_other_words_are_not_prices(text):
     assert role_of(text) is None
+
+
+# Decorations a header may carry, each applied to plain trade words: the rule is general,
+# not a list of one program's spellings (hand-made cases).
+@pytest.mark.parametrize(
+    ("text", "role"),
+    [
+        ("[Close]", "close"), ("{High}", "high"), ("**Low**", "low"), ("<<Open>>", "open"),
+        ("CLOSE_PRICE", "close"), ("close-price", "close"), ("Close / Last", "close"),
+        ("Last/Close", "close"), ("Px-High", "high"), ("PXLOW", "low"), ("Session High", "high"),
+        ("Daily Low", "low"), ("Closing Price ($)", "close"), ("Open Price*", "open"),
+        ("DATE_YYYYMMDD", "date"), ("Date (dd/mm/yyyy)", "date"), ("yyyy-mm-dd", "date"),
+        ("UTC Time", "time"), ("Bar Time", "time"), ("TickVol", "volume"),
+        ("Tick Volume", "volume"), ("Settlement Price", "close"), ("Adj. Close", "close"),
+        ("'Volume'", "volume"), ("Hi.", "high"),
+    ],
+)
+def test_headers_are_matched_by_a_general_normalisation(text, role):
+    hit = role_of(text)
+    assert hit is not None and hit[0] == role, text
+
+
+@pytest.mark.parametrize("text", ["Open interest", "High-Low", "Close vs open", "Price change",
+                                  "Day", "Time to close", "Last trade"])
+def test_words_around_a_role_word_that_change_its_meaning(text):
+    hit = role_of(text)
+    # "Day" alone is a date (its own word); the others are no price column.
+    assert (hit is not None and hit[0] == "date") if text == "Day" else hit is None, text
+
+
+def test_the_word_lists_are_plain_trade_words():
+    # Help and docs show plain words only: letters and spaces, no program's field codes.
+    from sheetvol.fill.locate import SYNONYMS
+    words = [w for names in SYNONYMS.values() for w in names]
+    assert all(re.fullmatch(r"[a-z]+( [a-z]+)*", w) for w in words), words
+    for odd in ("dtyyyymmdd", "tickvol", "px last", "px open", "close last", "gmt time"):
+        assert odd not in words
+
+
+def test_help_and_docs_show_plain_header_words():
+    from pathlib import Path
+
+    from sheetvol import cli
+    root = Path(__file__).resolve().parents[1]
+    texts = [cli.FILL_DESCRIPTION, (root / "docs" / "fill.md").read_text(encoding="utf-8"),
+             (root / "README.md").read_text(encoding="utf-8")]
+    for spelling in ("<CLOSE>", "Close/Last", "Close*", "PX_LAST", "DTYYYYMMDD", "TICKVOL"):
+        assert not any(spelling.lower() in t.lower() for t in texts), spelling
 
 
 def test_normalize_strips_units_and_decorations():

@@ -63,7 +63,7 @@ def test_blank_only_matters_in_columns_the_basis_uses(bars):
 
 
 def test_bad_basis_and_lengths():
-    with pytest.raises(ValueError, match=r'basis must be one of "close", .*got \'mid\''):
+    with pytest.raises(ValueError, match=r'basis must be one of "open", .*got \'mid\''):
         price_basis([1.0], [2.0], [0.5], [1.5], "mid")
     with pytest.raises(ValueError, match="different lengths"):
         price_basis([1.0], [2.0, 3.0], [0.5], [1.5])
@@ -74,6 +74,24 @@ def test_registry_default_is_typical(bars):
     assert func.param("basis").default == "typical"
     assert set(func.param("basis").choices) == set(BASES)
     np.testing.assert_array_equal(func(*bars), price_basis(*bars, "typical"))
+
+
+def test_choices_in_bar_order_then_derived_then_the_bar_average():
+    # Listed as a bar reads (open, high, low, close), then the derived prices, then the
+    # bar average; one list, which the registry uses as it is.
+    assert BASES == ("open", "high", "low", "close", "median", "typical", "weighted", "average")
+    assert registry.get("SV_PRICE").param("basis").choices is BASES
+    assert list(prices.DERIVED_FORMULAS) == list(prices.DERIVED_PRICES)
+    assert registry.get("SV_PRICE").param("basis").help.endswith("average (O+H+L+C)/4")
+
+
+def test_bar_average(bars):
+    # Hand-worked: O 9, H 12, L 8, C 10.5 -> (9 + 12 + 8 + 10.5) / 4 = 9.875.
+    assert price_basis([9.0], [12.0], [8.0], [10.5], "average")[0] == 9.875
+    # Reference: TA-Lib's AVGPRICE, the same (O+H+L+C)/4.
+    o, h, lo, c = bars
+    np.testing.assert_allclose(price_basis(o, h, lo, c, "average"), talib.AVGPRICE(o, h, lo, c),
+                               rtol=1e-15)
 
 
 def test_docstring_examples():

@@ -112,10 +112,18 @@ def test_atr_percent_times_100_equals_talib_natr():
     np.testing.assert_allclose(ours, ref, rtol=1e-13)
 
 
-def test_atr_percent_is_nan_where_close_is_zero():
+def test_atr_percent_refuses_a_close_of_zero_or_below_naming_the_bar():
+    # Issue 8: a share of a close at or below 0 went negative or blank without a word.
     h, lo, c = [1.0, 1.0, 1.0], [-1.0, -1.0, -1.0], [0.5, 0.5, 0.0]
-    out = atr_percent(h, lo, c, 2)
-    assert out[1] == pytest.approx(2.0 / 0.5) and math.isnan(out[2])
+    with pytest.raises(ValueError, match="close is 0 on bar 3: ATR as a share of the close"):
+        atr_percent(h, lo, c, 2)
+    with pytest.raises(ValueError, match=r"close is -0\.5 on bar 2"):
+        atr_percent(h, lo, [0.5, -0.5, 0.5], 2)
+    # Hand-worked: true ranges 2, 2 (high 1, low -1) -> ATR(2) 2 over a close of 0.5.
+    assert atr_percent(h, lo, [0.5, 0.5, 0.5], 2)[1] == pytest.approx(2.0 / 0.5)
+    # ATR itself keeps working on negative prices (spreads): the range is a distance.
+    atr = average_true_range([-1.0, -1.0], [-3.0, -3.0], [-2.0, -2.0], 2)
+    assert math.isnan(atr[0]) and atr[1] == 2.0
 
 
 def test_simple_atr_equals_pandas_rolling_mean():

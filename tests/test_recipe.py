@@ -133,8 +133,8 @@ def test_a_spec_computes_like_its_reference():
 
 def test_one_trade_settings_class_for_the_recipe_and_the_review():
     # The [trades] table, the flags and the review share one class, whose defaults come
-    # from sheetvol.core.risk (stated once there).
-    from sheetvol.core import risk
+    # from the core (sheetvol.core.levels, sizing and review: stated once there).
+    from sheetvol.core import levels, review, sizing
     from sheetvol.fill import recipe as recipe_module
     from sheetvol.fill import review as review_module
 
@@ -144,6 +144,6 @@ def test_one_trade_settings_class_for_the_recipe_and_the_review():
     assert parsed.contract_sheet == "Contracts" and parsed.risk == 0.02
     plain = review_module.TradeSettings()
     assert (plain.measure, plain.stop_multiple, plain.target_multiple, plain.trail_multiple,
-            plain.risk) == (risk.MEASURE, risk.STOP_MULTIPLE, risk.TARGET_MULTIPLE,
-                            risk.TRAIL_MULTIPLE, risk.RISK_SHARE)
-    assert dict(plain.options) == {"period": risk.PERIOD} and math.isnan(plain.equity)
+            plain.risk) == (review.MEASURE, levels.STOP_MULTIPLE, levels.TARGET_MULTIPLE,
+                            levels.TRAIL_MULTIPLE, sizing.RISK_SHARE)
+    assert dict(plain.options) == {"period": review.PERIOD} and math.isnan(plain.equity)

@@ -269,6 +269,6 @@ def test_a_recipe_header_the_log_lacks_is_named_with_the_way_out(tmp_path):
         fill_file(src, FillOptions(trades=TradeSettings(sheet="Trades",
                                                         columns={"side": "B/S"})))
     text = str(err.value)
-    assert '[trades] columns names "B/S" for side, which is not a header of this row' in text
-    assert 'the usual header "Side" is in column C: remove side from [trades] columns' in text
+    assert '[trades] columns: side = "B/S": no column headed "B/S" in row 1' in text
+    assert "remove it from [trades] columns so the usual names are looked for" in text
     assert 'e.g. columns = { side = "B/S" }' not in text  # not the line that caused it

@@ -18,7 +18,7 @@ import openpyxl
 import pandas as pd
 import pytest
 
-from sheetvol.core.risk import RESULTS
+from sheetvol.core.review import RESULTS
 from sheetvol.fill.review import (
     OUTPUT_COLUMNS,
     Instrument,
@@ -214,7 +214,7 @@ def test_price_basis_of_the_measure_matches_python_statistics():
     out = review_log(log, {"ALDER": bars}, TradeSettings(
         measure="SV_DEVIATION", options={"period": 5, "basis": "Median"}))
     assert out["Volatility"].iloc[0] == pytest.approx(statistics.pstdev(median), rel=1e-12)
-    with pytest.raises(ValueError, match="basis must be one of close, open"):
+    with pytest.raises(ValueError, match="basis must be one of open, high, low, close"):
         review_log(log, {"ALDER": bars}, TradeSettings(
             measure="deviation", options={"basis": "middle"}))
     with pytest.raises(ValueError, match="SV_ATR reads high, low, close"):

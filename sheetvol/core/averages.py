@@ -1,4 +1,4 @@
-"""Moving averages: simple, exponential, Wilder smoothing and linearly weighted.
+"""Moving averages: simple and linear (window), exponential and Wilder smoothing (recursive).
 
 Seeding of the recursive kinds (exponential, Wilder):
 
@@ -22,7 +22,12 @@ from sheetvol.core._gaps import as_series, skip_gaps
 from sheetvol.core._types import FloatArray
 from sheetvol.core._windows import check_choice, check_period, window_linear, window_mean
 
-KINDS = ("simple", "exponential", "wilder", "linear")
+WINDOW_KINDS = ("simple", "linear")
+"""Averages over a window of the last N bars."""
+RECURSIVE_KINDS = ("exponential", "wilder")
+"""Averages that carry on from their previous value (see :func:`smoothing_factor`)."""
+KINDS = WINDOW_KINDS + RECURSIVE_KINDS
+"""Every moving average, by family, in the order help and docs list them."""
 SEEDS = ("average", "first")
 
 
@@ -46,7 +51,7 @@ def smoothing_factor(kind: str, period: int) -> float:
     >>> smoothing_factor("exponential", 19)
     0.1
     """
-    check_choice(kind, "kind", ("exponential", "wilder"))
+    check_choice(kind, "kind", RECURSIVE_KINDS)
     period = check_period(period)
     return 2.0 / (period + 1.0) if kind == "exponential" else 1.0 / period
 
@@ -221,7 +226,7 @@ def moving_average(
         average continues over the other bars.
     period : int, default 14
         N, bars in the window (at least 1).
-    kind : {"simple", "exponential", "wilder", "linear"}, default "simple"
+    kind : {"simple", "linear", "exponential", "wilder"}, default "simple"
         ``"simple"``: mean of the last N; ``"exponential"``: alpha = 2/(N+1);
         ``"wilder"``: Wilder smoothing, alpha = 1/N; ``"linear"``: linearly
         weighted, newest weight N down to 1 for the oldest.
@@ -250,7 +255,9 @@ def moving_average(
 
 __all__ = [
     "KINDS",
+    "RECURSIVE_KINDS",
     "SEEDS",
+    "WINDOW_KINDS",
     "average_of",
     "linear_recurrence",
     "moving_average",

@@ -26,6 +26,7 @@ from __future__ import annotations
 import numpy as np
 import numpy.typing as npt
 
+from sheetvol.core import bounds
 from sheetvol.core._gaps import as_series, skip_gaps
 from sheetvol.core._types import FloatArray
 from sheetvol.core._windows import check_choice, check_period, window_mean_var
@@ -71,8 +72,8 @@ def deviation_bands(
     period : int, default 20
         Bars in the window.
     width : float, default 2.0
-        Band half-width in deviations.
-    average : {"simple", "exponential", "wilder", "linear"}, default "simple"
+        Band half-width in deviations, above 0 and up to 100.
+    average : {"simple", "linear", "exponential", "wilder"}, default "simple"
         Moving average for the middle line; the deviation is measured about it.
     divisor : {"population", "sample"}, default "population"
         Divide the squared deviations by N or N-1.
@@ -94,6 +95,7 @@ def deviation_bands(
     period = check_period(period, minimum=2)
     check_choice(average, "average", KINDS)
     check_choice(divisor, "divisor", DIVISORS)
+    bounds.check("width", width, bounds.WIDTH)
     return _deviation_bands(prices, period, float(width), average, divisor)
 
 
@@ -154,8 +156,9 @@ def bandwidth(
     Returns
     -------
     FloatArray
-        ``(upper - lower) / middle``; NaN during the warm-up, on gaps and where
-        the middle line is 0.
+        ``(upper - lower) / middle``; NaN during the warm-up and on gaps. A
+        price of 0 or below is refused (naming the bar): the middle line would
+        reach 0 or turn negative and the fraction flip sign.
 
     Examples
     --------
@@ -164,6 +167,7 @@ def bandwidth(
     >>> bool(abs(w[2] - 3 * math.sqrt(2 / 3) / 2) < 1e-12)
     True
     """
+    bounds.check_positive_prices("bandwidth (a share of the middle line)", prices=prices)
     middle, upper, lower = deviation_bands(prices, period, width, average, divisor)
     with np.errstate(divide="ignore", invalid="ignore"):
         return np.where(middle != 0, (upper - lower) / middle, np.nan)
@@ -196,7 +200,7 @@ def atr_bands(
     period : int, default 20
         Bars in the exponential middle line.
     width : float, default 2.0
-        Band half-width in ATRs.
+        Band half-width in ATRs, above 0 and up to 100.
     atr_period : int, default 10
         Bars in the Wilder ATR.
 
@@ -217,6 +221,8 @@ def atr_bands(
     """
     period = check_period(period)
     atr_period = check_period(atr_period, "atr_period")
+    bounds.check_high_low(high, low, close)
+    bounds.check("width", width, bounds.WIDTH)
     return _atr_bands(high, low, close, period, float(width), atr_period)
 
 
@@ -242,14 +248,17 @@ def envelope(
     period : int, default 20
         Bars in the moving average.
     percent : float, default 2.5
-        Half-width in percent of the average (2.5 means 2.5 %).
-    average : {"simple", "exponential", "wilder", "linear"}, default "simple"
+        Half-width in percent of the average (2.5 means 2.5 %), above 0 and up
+        to 100.
+    average : {"simple", "linear", "exponential", "wilder"}, default "simple"
         Moving average for the middle line.
 
     Returns
     -------
     middle, upper, lower : FloatArray
         The three lines in price units; NaN until a full window and on gaps.
+        A price of 0 or below is refused (naming the bar): a percentage of a
+        negative average would put the upper band below the lower one.
 
     Examples
     --------
@@ -258,4 +267,6 @@ def envelope(
     ([nan, 102.5], [nan, 97.5])
     """
     check_choice(average, "average", KINDS)
+    bounds.check_positive_prices("an envelope (a percentage of the average)", prices=prices)
+    bounds.check("percent", percent, bounds.PERCENT)
     return _envelope(prices, check_period(period), float(percent), average)

@@ -81,7 +81,7 @@ def dispersion(
         windows continue over the other bars.
     period : int, default 14
         N, bars in the window (at least 2).
-    average : {"simple", "exponential", "wilder", "linear"}, default "simple"
+    average : {"simple", "linear", "exponential", "wilder"}, default "simple"
         The moving average whose current value the deviations are measured from.
     divisor : {"population", "sample"}, default "population"
         Divide the sum of squares by N or by N - 1.

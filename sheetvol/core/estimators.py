@@ -29,11 +29,13 @@ Conventions (``n`` = ``period``)
 Log ratios are computed as ``log1p((a - b) / b)`` so that a 0.01 move on a
 price near 1e7 keeps its digits.
 
-Prices that cannot be logged: a bar whose price inputs include a value <= 0
-is treated like a gap (NaN on that row, the window continues over the other
-bars), as is a bar with a non-finite input (see :mod:`sheetvol.core._gaps`).
-Returns that need a previous close (close-to-close, Yang-Zhang's overnight part)
-then run from the last usable close, so the first return after a gap spans it.
+Prices that cannot be logged: a price of 0 or below is refused with a message
+naming the column and the bar (skipping it would make the next return span two
+bars without a word), and so are a high below its low and ``per_year`` of 0 or
+below. A bar with a blank (non-finite) input is a gap (NaN on that row, the
+window continues over the other bars; see :mod:`sheetvol.core._gaps`). Returns
+that need a previous close (close-to-close, Yang-Zhang's overnight part) then
+run from the last usable close, so the first return after a gap spans it.
 The range-based means are never negative for consistent bars (low <= open,
 close <= high); a window whose mean comes out negative because some bar has its
 open or close outside its high-low range gives NaN.
@@ -46,6 +48,7 @@ import math
 import numpy as np
 import numpy.typing as npt
 
+from sheetvol.core import bounds
 from sheetvol.core._gaps import as_series, skip_gaps
 from sheetvol.core._types import FloatArray
 from sheetvol.core._windows import check_period, window_mean_var, window_sum
@@ -55,14 +58,17 @@ __all__ = ["close_to_close", "garman_klass", "parkinson", "rogers_satchell", "ya
 _LN2 = math.log(2.0)
 
 
-def _positive(*prices: npt.ArrayLike) -> list[FloatArray]:
-    """Copies of the price columns with values <= 0 turned into gaps (NaN)."""
-    out = []
-    for p in prices:
-        a = as_series(p)
-        # min() is NaN when a NaN is present, so only clean positive columns skip the copy.
-        out.append(a if len(a) and a.min() > 0 else np.where(a > 0, a, np.nan))
-    return out
+def _positive(per_year: float, **prices: npt.ArrayLike) -> list[FloatArray]:
+    """The price columns as arrays, after the checks every estimator shares: bars per
+    year above 0, prices above 0 (they are logged) and no high below its low."""
+    bounds.check("per_year", per_year, bounds.BARS_PER_YEAR)
+    out = {name: as_series(p, name) for name, p in prices.items()}
+    bounds.check_positive_prices("a volatility estimator (it takes logarithms of prices)",
+                                 **out)
+    if "high" in out and "low" in out:
+        bounds.check_high_low(out["high"], out["low"], *(v for k, v in out.items()
+                                                         if k not in ("high", "low")))
+    return list(out.values())
 
 
 def _logratio(a: FloatArray, b: FloatArray) -> FloatArray:
@@ -114,13 +120,13 @@ def close_to_close(
     period : int, default 20
         Log returns in the window (the window spans ``period + 1`` closes).
     per_year : float, default 252
-        Bars per year.
+        Bars per year, above 0.
 
     Returns
     -------
     FloatArray
-        Annualised volatility as a fraction; NaN on the first ``period`` rows,
-        on gap rows and on rows with a close <= 0.
+        Annualised volatility as a fraction; NaN on the first ``period`` rows
+        and on gap rows.
 
     Examples
     --------
@@ -134,7 +140,7 @@ def close_to_close(
     True
     """
     period = check_period(period, minimum=2)
-    (c,) = _positive(close)
+    (c,) = _positive(per_year, close=close)
     return _close_to_close(c, period, float(per_year))
 
 
@@ -159,13 +165,13 @@ def parkinson(
     period : int, default 20
         Bars in the window.
     per_year : float, default 252
-        Bars per year.
+        Bars per year, above 0.
 
     Returns
     -------
     FloatArray
         ``sqrt( mean(ln(H/L)^2) / (4 ln 2) * per_year )``; NaN on the first
-        ``period - 1`` rows, on gap rows and on rows with a price <= 0.
+        ``period - 1`` rows and on gap rows. A price of 0 or below is refused.
 
     Examples
     --------
@@ -177,7 +183,7 @@ def parkinson(
     True
     """
     period = check_period(period)
-    h, lo = _positive(high, low)
+    h, lo = _positive(per_year, high=high, low=low)
     return _parkinson(h, lo, period, float(per_year))
 
 
@@ -212,14 +218,14 @@ def garman_klass(
     period : int, default 20
         Bars in the window.
     per_year : float, default 252
-        Bars per year.
+        Bars per year, above 0.
 
     Returns
     -------
     FloatArray
         ``sqrt( mean(0.5 ln(H/L)^2 - (2 ln 2 - 1) ln(C/O)^2) * per_year )``;
-        NaN on the first ``period - 1`` rows, on gap rows and on rows with a
-        price <= 0.
+        NaN on the first ``period - 1`` rows and on gap rows. A price of 0 or
+        below is refused.
 
     Examples
     --------
@@ -233,7 +239,7 @@ def garman_klass(
     True
     """
     period = check_period(period)
-    o, h, lo, c = _positive(open, high, low, close)
+    o, h, lo, c = _positive(per_year, open=open, high=high, low=low, close=close)
     return _garman_klass(o, h, lo, c, period, float(per_year))
 
 
@@ -279,13 +285,14 @@ def rogers_satchell(
     period : int, default 20
         Bars in the window.
     per_year : float, default 252
-        Bars per year.
+        Bars per year, above 0.
 
     Returns
     -------
     FloatArray
         ``sqrt( mean(ln(H/C) ln(H/O) + ln(L/C) ln(L/O)) * per_year )``; NaN on
-        the first ``period - 1`` rows, on gap rows and on rows with a price <= 0.
+        the first ``period - 1`` rows and on gap rows. A price of 0 or below is
+        refused.
 
     Examples
     --------
@@ -302,7 +309,7 @@ def rogers_satchell(
     True
     """
     period = check_period(period)
-    o, h, lo, c = _positive(open, high, low, close)
+    o, h, lo, c = _positive(per_year, open=open, high=high, low=low, close=close)
     return _rogers_satchell(o, h, lo, c, period, float(per_year))
 
 
@@ -344,14 +351,14 @@ def yang_zhang(
         Bars in the window (at least 2); the window also uses the close before
         its first bar.
     per_year : float, default 252
-        Bars per year.
+        Bars per year, above 0.
 
     Returns
     -------
     FloatArray
         ``sqrt( (V_O + k V_C + (1 - k) V_RS) * per_year )`` with the conventions
-        in the module notes; NaN on the first ``period`` rows, on gap rows and on
-        rows with a price <= 0.
+        in the module notes; NaN on the first ``period`` rows and on gap rows. A
+        price of 0 or below is refused.
 
     Examples
     --------
@@ -366,5 +373,5 @@ def yang_zhang(
     True
     """
     period = check_period(period, minimum=2)
-    o, h, lo, c = _positive(open, high, low, close)
+    o, h, lo, c = _positive(per_year, open=open, high=high, low=low, close=close)
     return _yang_zhang(o, h, lo, c, period, float(per_year))

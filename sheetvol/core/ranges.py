@@ -35,6 +35,7 @@ from __future__ import annotations
 import numpy as np
 import numpy.typing as npt
 
+from sheetvol.core import bounds
 from sheetvol.core._gaps import skip_gaps
 from sheetvol.core._types import FloatArray
 from sheetvol.core._windows import check_choice, check_period
@@ -49,7 +50,7 @@ __all__ = [
 ]
 
 FIRST_BAR = ("high-low", "blank")
-SMOOTHING = ("wilder", "simple", "exponential")
+SMOOTHING = ("simple", "exponential", "wilder")  # by family, as averages.KINDS
 
 
 def true_range_of(
@@ -129,6 +130,7 @@ def true_range(
     [nan, 3.5]
     """
     check_choice(first_bar, "first_bar", FIRST_BAR)
+    bounds.check_high_low(high, low, close)
     return _true_range(high, low, close, first_bar)
 
 
@@ -195,7 +197,7 @@ def average_true_range(
         Aligned price columns, oldest bar first.
     period : int, default 14
         Bars averaged.
-    smoothing : {"wilder", "simple", "exponential"}, default "wilder"
+    smoothing : {"simple", "exponential", "wilder"}, default "wilder"
         Wilder smoothing (alpha = 1/period), a simple rolling mean, or an
         exponential average (alpha = 2/(period+1)).
     seed : {"average", "first"}, default "average"
@@ -222,6 +224,7 @@ def average_true_range(
     check_choice(smoothing, "smoothing", SMOOTHING)
     check_choice(seed, "seed", SEEDS)
     check_choice(first_bar, "first_bar", FIRST_BAR)
+    bounds.check_high_low(high, low, close)
     return _average_true_range(high, low, close, check_period(period), smoothing, seed, first_bar)
 
 
@@ -246,8 +249,9 @@ def atr_percent(
     Returns
     -------
     FloatArray
-        ``ATR / close`` as a fraction (0.012 = 1.2 %); NaN during the warm-up,
-        on gap rows and where the close is 0.
+        ``ATR / close`` as a fraction (0.012 = 1.2 %); NaN during the warm-up
+        and on gap rows. A close of 0 or below is refused (naming the bar), as
+        is a high below its low.
 
     Examples
     --------
@@ -258,6 +262,8 @@ def atr_percent(
     check_choice(smoothing, "smoothing", SMOOTHING)
     check_choice(seed, "seed", SEEDS)
     check_choice(first_bar, "first_bar", FIRST_BAR)
+    bounds.check_high_low(high, low, close)
+    bounds.check_positive_prices("ATR as a share of the close", close=close)
     return _atr_percent(high, low, close, check_period(period), smoothing, seed, first_bar)
 
 

@@ -1051,6 +1051,13 @@ def _evaluate_formulas(pkg: Package, found: Sequence[FormulaCell],
                                           date1904=pkg.date1904)
             if isinstance(value, formulas.FormulaError):
                 raise value
+        except formulas.ArgumentMessage as exc:
+            # One policy for a bad argument: the cell shows the add-in's own message.
+            report.warnings.append(f"{ref}: {exc.text}")
+            edits.append(CellResult(fc.sheet, fc.row, fc.col, exc.text) if keep
+                         else ValueResult(fc.sheet, fc.row, fc.col, exc.text))
+            report.formulas.append(FormulaNote(ref, fc.formula, f"bad argument: {exc.text}"))
+            continue
         except (formulas.FormulaError, registry.ArgumentError, WorkbookError, ValueError) as exc:
             report.warnings.append(f"{ref}: formula left as it was: {exc}")
             report.formulas.append(FormulaNote(ref, fc.formula, f"not evaluated: {exc}"))

@@ -1,11 +1,13 @@
 """Finding the price columns of an export by their headers.
 
 Exports put their header row anywhere near the top (often under a title and
-a blank line) and spell the columns in many ways: ``Close``, ``Close*``,
-``Close/Last``, ``Last Price``, ``<CLOSE>``, ``Closing price (USD)``... A
-header is normalised (lower case, units in brackets and decorations removed)
-and compared whole with a table of synonyms per role, so that one of our own
-headers such as ``Close vol 20 (ann.)`` is never taken for the close.
+a blank line) and dress the same plain words in many ways: any case,
+brackets, asterisks and other punctuation, units in brackets, a price
+abbreviation before the word or "price" after it, a date-format pattern
+beside a date. A header is normalised (:func:`normalize_header`), stripped of
+such words around it, and compared whole with plain trade words per role
+(:data:`SYNONYMS`), so that one of our own headers such as
+``Close vol 20 (ann.)`` is never taken for the close.
 """
 
 from __future__ import annotations
@@ -23,6 +25,7 @@ __all__ = [
     "col_letter",
     "col_number",
     "find_header",
+    "list_headers",
     "normalize_header",
     "resolve_column",
     "role_of",
@@ -31,36 +34,41 @@ __all__ = [
 HEADER_SCAN_ROWS = 50
 """How many rows from the top are searched for the header row."""
 
-# role -> synonyms, best first; the index is the preference when two columns
+# role -> plain trade words, best first; the index is the preference when two columns
 # fit one role (e.g. "Close" beats "Adj Close", which beats "Price").
 SYNONYMS: dict[str, tuple[str, ...]] = {
     "date": (
-        "date", "date time", "datetime", "date/time", "timestamp", "day",
-        "trade date", "trading date", "trading day", "session", "period", "as of",
-        "pricing date", "value date", "dt", "dtyyyymmdd", "local time", "gmt time", "utc time",
+        "date", "date time", "datetime", "timestamp", "day", "trade date", "trading date",
+        "trading day", "session", "period", "as of", "pricing date", "value date", "dt",
     ),
     # A separate time of day (intraday exports with Date and Time columns); a lone
     # Time column holding full timestamps is taken as the date column.
-    "time": ("time", "time of day", "tm", "hour", "bar time"),
-    "open": ("open", "opening", "open price", "opening price", "o", "first", "px open", "px_open"),
-    "high": ("high", "high price", "day high", "daily high", "hi", "h", "max", "maximum",
-             "px high"),
-    "low": ("low", "low price", "day low", "daily low", "lo", "l", "min", "minimum", "px low"),
-    "close": (
-        "close", "closing", "close price", "closing price", "close/last", "last",
-        "last price", "c", "settle", "settlement", "settlement price", "px last",
-        "adj close", "adj. close", "adjusted close", "price",
-    ),
-    "volume": ("volume", "vol", "vol.", "v", "qty", "quantity", "shares", "contracts",
-               "tick volume", "tickvol"),
+    "time": ("time", "time of day", "tm", "hour"),
+    "open": ("open", "opening", "o", "first"),
+    "high": ("high", "hi", "h", "max", "maximum"),
+    "low": ("low", "lo", "l", "min", "minimum"),
+    "close": ("close", "closing", "last", "c", "settle", "settlement", "adj close",
+              "adjusted close", "price"),
+    "volume": ("volume", "vol", "v", "qty", "quantity", "shares", "contracts", "tick volume"),
 }
+
+# Words around a role word that leave its meaning alone: "Open price", "Px high",
+# "Session high", "Bar time", "UTC time". Before the word they may also be written
+# joined to it ("PxLow", "TickVol").
+WORDS_BEFORE = ("px", "price", "bar", "day", "daily", "session", "local", "gmt", "utc",
+                "exchange", "tick")
+WORDS_AFTER = ("price", "px")
+
+# A date-format pattern beside (or instead of) a date header: "Date (yyyy-mm-dd)", "DTYYYYMMDD".
+_DATE_PATTERN = re.compile(
+    r"(?:y{2}|y{4})[ ./-]?m{1,2}[ ./-]?d{1,2}|d{1,2}[ ./-]?m{1,2}[ ./-]?(?:y{2}|y{4})"
+    r"|m{1,2}[ ./-]?d{1,2}[ ./-]?(?:y{2}|y{4})"
+)
 
 _SYNONYM_INDEX: dict[str, tuple[str, int]] = {}
 for _role, _names in SYNONYMS.items():
     for _rank, _name in enumerate(_names):
         _SYNONYM_INDEX.setdefault(_name, (_role, _rank))
-
-
 class LocateError(ValueError):
     """The price columns cannot be found; the message lists what was found."""
 
@@ -87,13 +95,17 @@ in row 1: A 'Date'); give a header from that row or a column letter
         super().__init__(
             (f"{file}: " if file else "")
             + f'--{role}-col "{given}": no column headed "{given}"{on} (headers found in row '
-            f"{row}: {_list_headers(headers)}){also}; give a header from that row or a column "
+            f"{row}: {list_headers(headers)}){also}; give a header from that row or a column "
             "letter"
         )
 
 
 def normalize_header(text: object) -> str:
     """Lower-case a header and strip decorations, units and separators.
+
+    A header wrapped whole in brackets is unwrapped; other bracketed parts
+    (units such as ``(USD)``) are dropped; asterisks, quotes, currency signs
+    and separators (``_ - . / : |``) become spaces.
 
     Parameters
     ----------
@@ -108,19 +120,24 @@ def normalize_header(text: object) -> str:
     --------
     >>> normalize_header("  Close* (USD) ")
     'close'
-    >>> normalize_header("<DATE>")
-    'date'
+    >>> normalize_header("[Adj. close]")
+    'adj close'
     """
     s = str(text).strip().lower()
-    s = re.sub(r"\([^)]*\)|\[[^\]]*\]", " ", s)  # units: "(USD)", "[EUR]"
-    s = s.replace("_", " ")
-    s = re.sub(r"[<>*\"':]", "", s)
-    s = re.sub(r"\s+", " ", s).strip()
-    return s.rstrip(".") if s not in _SYNONYM_INDEX else s
+    while (m := re.fullmatch(r"[<\[{(]\s*(.*?)\s*[>\]})]", s)) is not None:
+        s = m[1]
+    s = re.sub(r"\([^)]*\)|\[[^\]]*\]|\{[^}]*\}", " ", s)  # units: "(USD)", "[EUR]"
+    s = re.sub(r"[<>*\"'`:_./\\|#~$€£-]", " ", s)
+    return re.sub(r"\s+", " ", s).strip()
 
 
 def role_of(text: object) -> tuple[str, int] | None:
     """The price role a header stands for and its preference rank, or None.
+
+    The normalised header must be one of the role's plain words
+    (:data:`SYNONYMS`), possibly with words around it that leave its meaning
+    alone (``Open price``, ``Session high``), or two words of one role
+    (``Close / Last``); a date-format pattern marks a date.
 
     Parameters
     ----------
@@ -130,19 +147,49 @@ def role_of(text: object) -> tuple[str, int] | None:
     Returns
     -------
     tuple of (str, int) or None
-        The role and its rank (0 is the most usual spelling).
+        The role and its rank (0 is the most usual word).
 
     Examples
     --------
     >>> role_of("Adj Close")
-    ('close', 12)
+    ('close', 6)
+    >>> role_of("PX_HIGH")
+    ('high', 0)
     >>> role_of("Close vol 20 (ann.)") is None
     True
     """
     if not isinstance(text, str) or not text.strip():
         return None
-    norm = normalize_header(text)
-    return _SYNONYM_INDEX.get(norm) or _SYNONYM_INDEX.get(norm.rstrip("."))
+    raw = text.strip().lower()
+    dated = _DATE_PATTERN.search(raw)
+    if dated:
+        raw = (raw[:dated.start()] + " " + raw[dated.end():])
+    norm = normalize_header(raw)
+    if dated and (not norm or norm in SYNONYMS["date"]):
+        return ("date", SYNONYMS["date"].index(norm) if norm else 0)
+    hit = _SYNONYM_INDEX.get(norm) or _SYNONYM_INDEX.get(_strip_words(norm))
+    if hit is not None:
+        return hit
+    # Two words of one role, as in "Close / Last".
+    hits = [_SYNONYM_INDEX.get(w) for w in norm.split()]
+    if len(hits) == 2 and all(hits) and hits[0][0] == hits[1][0]:  # type: ignore[index]
+        return min(hits)  # type: ignore[type-var]
+    return None
+
+
+def _strip_words(norm: str) -> str:
+    """``norm`` without the words around a role word that leave it alone."""
+    words = norm.split()
+    while len(words) > 1 and words[0] in WORDS_BEFORE:
+        words.pop(0)
+    while len(words) > 1 and words[-1] in WORDS_AFTER:
+        words.pop()
+    if len(words) == 1:  # a word joined to the role word: "pxlow", "tickvol"
+        for before in WORDS_BEFORE:
+            rest = words[0].removeprefix(before)
+            if rest != words[0] and len(rest) > 1 and rest in _SYNONYM_INDEX:
+                return rest
+    return " ".join(words)
 
 
 @dataclass
@@ -308,11 +355,11 @@ def find_header(
             seen = _text_cells(rows.get(header_row, {}))
             raise LocateError(
                 f"{prefix}row {header_row} has no Close column (headers there: "
-                f"{_list_headers(seen)}); name it with --close-col or pick another --header-row"
+                f"{list_headers(seen)}); name it with --close-col or pick another --header-row"
             )
         raise LocateError(
             f"{prefix}no Close column found in the first {HEADER_SCAN_ROWS} rows "
-            f"(headers found: {_list_headers(_first_text_row(rows))}); name it with "
+            f"(headers found: {list_headers(_first_text_row(rows))}); name it with "
             "--close-col (header text or column letter) and, if needed, --header-row"
         )
     row, _, found = best
@@ -394,7 +441,12 @@ def _first_text_row(rows: Mapping[int, Mapping[int, object]]) -> dict[int, str]:
     return best
 
 
-def _list_headers(cells: Mapping[int, str]) -> str:
+def list_headers(cells: Mapping[int, str]) -> str:
+    """Header cells for a message: ``A 'Date', B 'Close'`` (the first 20, then a count).
+
+    >>> list_headers({1: "Date", 3: "Side"})
+    "A 'Date', C 'Side'"
+    """
     if not cells:
         return "none"
     shown = [f"{col_letter(c)} {t!r}" for c, t in sorted(cells.items())[:20]]

@@ -10,7 +10,8 @@ Everything as of entry uses only bars dated on or before the entry date (the
 last such bar is the *entry bar*; the trade is assumed entered at its close),
 so no figure in an entry column can see a later price. The review and the
 trailing stop start on the bar after the entry bar. The arithmetic lives in
-:mod:`sheetvol.core.risk`; this module finds the columns, looks up the bars
+:mod:`sheetvol.core.levels`, :mod:`sheetvol.core.sizing` and :mod:`sheetvol.core.review`;
+this module finds the columns, looks up the bars
 and writes down, per row, what it could not compute and why.
 """
 
@@ -25,7 +26,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from sheetvol.core import risk
+from sheetvol.core import levels, sizing
+from sheetvol.core import review as trade_review
 from sheetvol.core._types import FloatArray
 from sheetvol.core.prices import price_basis
 from sheetvol.fill.locate import normalize_header
@@ -33,6 +35,7 @@ from sheetvol.fill.recipe import split_basis
 from sheetvol.fill.table import find_roles
 from sheetvol.fill.trade_settings import Instrument, TradeSettings, instrument_key
 from sheetvol.functions import cells, registry
+from sheetvol.functions.worksheet import REVIEW_FLAG_WORDS, size_words
 
 __all__ = [
     "CONTRACT_DETAILS",
@@ -401,14 +404,14 @@ def review_log(
         * ``Volatility`` as of the entry bar (``Bar date``: that bar's date);
         * ``Stop``, ``Target`` and ``Target R`` (the target in R); with an
           instrument tick, the stop is rounded away from entry and the target
-          toward it (:func:`sheetvol.core.risk.to_tick`);
+          toward it (:func:`sheetvol.core.levels.to_tick`);
         * ``Size`` (from the rounded stop), down to the lot step, and ``Size note``;
         * ``Trail``: the trailing stop in force at the end of the review; for an
           open trade the level set at the last close, to place now (as
           SV_TRAIL gives it);
         * ``Result``, ``Exit price``, ``Exit date``, ``R``, ``Bars``,
           ``Adverse``/``Favourable`` (price) and in R: see
-          :func:`sheetvol.core.risk.review_trade` (for an open trade ``R`` is
+          :func:`sheetvol.core.review.review_trade` (for an open trade ``R`` is
           the mark at the last close);
         * ``Open risk``: for an open trade, the money (account currency) lost
           if the stop in force were hit from the last close, at the log's
@@ -600,12 +603,12 @@ def _review_row(
     if isinstance(bars, str):
         return {"Note": bars}
     try:
-        sign = risk.side_sign(str(side))
+        sign = levels.side_sign(str(side))
     except ValueError as exc:
         return {"Note": str(exc)}
     if not math.isfinite(entry_day):
         return {"Note": "no entry date"}
-    i = risk.bar_on_or_before(bars.days, entry_day)
+    i = trade_review.bar_on_or_before(bars.days, entry_day)
     if i is None:
         return {"Note": "no bar on or before the entry date"}
     notes = []
@@ -620,10 +623,10 @@ def _review_row(
     inst = settings.instrument(label)
     # Levels on the instrument's tick: stops away from entry, targets toward it; the size
     # then risks the budget over the stop that can actually be placed.
-    stop = risk.stop_price(entry, vol, settings.stop_multiple, side, inst.tick)
-    target = risk.target_price(entry, vol, settings.target_multiple, side, inst.tick)
+    stop = levels.stop_price(entry, vol, settings.stop_multiple, side, inst.tick)
+    target = levels.target_price(entry, vol, settings.target_multiple, side, inst.tick)
     row.update({"Stop": stop, "Target": target,
-                "Target R": risk.r_multiple(entry, stop, target, side)})
+                "Target R": levels.r_multiple(entry, stop, target, side)})
 
     size_notes = []
     if not math.isfinite(inst.point_value):
@@ -632,26 +635,33 @@ def _review_row(
         row["Size"] = math.nan
         size_notes.insert(0, NO_EQUITY)
     else:
-        size = risk.size_with_reason(equity, settings.risk, entry, stop, inst.per_point,
-                                     inst.lot_step, inst.min_qty, inst.max_qty, inst.fx_rate)
-        row["Size"] = float(size.quantity[0])
-        if math.isfinite(vol) and str(size.note[0]):
-            size_notes.insert(0, str(size.note[0]))
+        try:
+            size = sizing.size_with_reason(equity, settings.risk, entry, stop, inst.per_point,
+                                           inst.lot_step, inst.min_qty, inst.max_qty,
+                                           inst.fx_rate)
+            row["Size"] = float(size.quantity[0])
+            words = size_words(size)[0]
+            if math.isfinite(vol) and words:
+                size_notes.insert(0, words)
+        except ValueError as exc:  # an input out of its range (a negative equity): this row
+            row["Size"] = math.nan
+            size_notes.insert(0, f"size not computed: {exc}")
     row["Size note"] = "; ".join(size_notes)
 
     trail = None
     if settings.trail_multiple > 0:
-        trail = risk.trailing_stop(bars.high, bars.low, bars.close, bars.vol, i, entry,
+        trail = levels.trailing_stop(bars.high, bars.low, bars.close, bars.vol, i, entry,
                                    str(side), settings.trail_multiple, inst.tick)
     has_exit = math.isfinite(exit_price)
-    exit_index = risk.bar_on_or_before(bars.days, exit_day) if has_exit else None
+    exit_index = trade_review.bar_on_or_before(bars.days, exit_day) if has_exit else None
     if has_exit and math.isfinite(exit_day) and exit_day < bars.days[i]:
         notes.append("exit date is before the entry bar")
     if not math.isfinite(stop):
         row["Note"] = "; ".join(notes)
         return row
-    review = risk.review_trade(bars.open, bars.high, bars.low, bars.close, i, entry, str(side),
-                               stop, target, trail, exit_index, exit_price if has_exit else None)
+    review = trade_review.review_trade(
+        bars.open, bars.high, bars.low, bars.close, i, entry, str(side), stop, target, trail,
+        exit_index, exit_price if has_exit else None)
     row.update({
         "Trail": review.trail,
         "Result": review.result,
@@ -665,6 +675,7 @@ def _review_row(
         "Adverse R": review.adverse_r,
         "Favourable R": review.favourable_r,
     })
+    notes.extend(REVIEW_FLAG_WORDS[flag] for flag in review.flags)
     if review.result == "open":
         qty = quantity if math.isfinite(quantity) else row["Size"]
         guard = stop if trail is None else sign * max(sign * stop, sign * float(trail[-1]))
@@ -723,7 +734,7 @@ def summarise(
     -------
     pandas.Series
         Values labelled as in :data:`SUMMARY_LABELS` (see
-        :func:`sheetvol.core.risk.summarise_outcomes`); shares are fractions.
+        :func:`sheetvol.core.review.summarise_outcomes`); shares are fractions.
         Rows without a result (a ``Note`` stopped them) are not counted.
 
     Examples
@@ -742,7 +753,7 @@ def summarise(
     if not math.isfinite(equity) and trades is not None:
         equity = _latest_equity(trades, settings)
     open_risk = done["Open risk"].to_numpy(dtype=float)
-    figures = risk.summarise_outcomes(
+    figures = trade_review.summarise_outcomes(
         done["Result"].tolist(), done["R"].to_numpy(dtype=float), open_risk, equity,
     )
     is_open = (done["Result"].astype(str) == "open").to_numpy()

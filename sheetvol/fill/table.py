@@ -148,8 +148,8 @@ def find_roles(names: Iterable[str], overrides: Mapping[str, str] | None = None)
 
     Examples
     --------
-    >>> find_roles(["DATE", "Open", "HIGH", "low", "Close/Last"])["close"]
-    'Close/Last'
+    >>> find_roles(["DATE", "Open", "HIGH", "low", "Last price"])["close"]
+    'Last price'
     """
     found: dict[str, tuple[int, str]] = {}
     for name in names:

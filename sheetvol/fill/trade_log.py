@@ -28,6 +28,7 @@ from sheetvol.fill.locate import (
     LocateError,
     col_letter,
     find_header,
+    list_headers,
     normalize_header,
     still_headed,
 )
@@ -267,6 +268,9 @@ def find_trade_log(pkg: Package, recipe: TradeSettings, skip: Sequence[str] = ()
                  if s.kind == "worksheet" and s.name.casefold() not in skipped]
     others = [s.name for s in pkg.sheets if s.kind == "worksheet"
               and s.name.casefold() not in skipped]
+    # The row most like a log header, over all sheets: where a header named in the
+    # recipe was looked for in vain.
+    closest: tuple[int, str, int, dict[str, int], dict[int, str]] | None = None
     for name in names:
         grid = pkg.read_grid(name, max_rows=HEADER_SCAN_ROWS)
         best: tuple[int, dict[str, int]] | None = None
@@ -276,16 +280,22 @@ def find_trade_log(pkg: Package, recipe: TradeSettings, skip: Sequence[str] = ()
             headers = {c: str(v) for c, v in grid.rows[r].items()
                        if isinstance(v, str) and v.strip()}
             if all(k in roles for k in _REQUIRED):
+                _check_named_columns(recipe, name, r, roles, headers, where=where)
                 return TradeLog(name, r, roles, headers)
             if best is None or len(roles) > len(best[1]):
                 best = (r, roles)
+            if closest is None or len(roles) > closest[0]:
+                closest = (len(roles), name, r, roles, headers)
             no_instrument = all(k in roles for k in _REQUIRED if k != "instrument")
             if no_instrument and (recipe.sheet or "entry" in roles):
                 if only is None:
                     only = _only_price_sheet(pkg, [n for n in others if n != name])
                 if only:
+                    _check_named_columns(recipe, name, r, roles, headers, where=where)
                     return TradeLog(name, r, roles, headers, instrument=only)
         if recipe.sheet:
+            if closest is not None:
+                _check_named_columns(recipe, *closest[1:], where=where)
             row, roles = best if best is not None else (0, {})
             found = ", ".join(f"{k} ({col_letter(c)})" for k, c in roles.items()) or "none"
             missing = ", ".join(f"{k} ({'/'.join(LOG_COLUMNS[k][:3])})" for k in _REQUIRED
@@ -293,29 +303,30 @@ def find_trade_log(pkg: Package, recipe: TradeSettings, skip: Sequence[str] = ()
             where_row = f"best header row {row}" if row else f"first {HEADER_SCAN_ROWS} rows"
             extra = (" (a log without one is used when the workbook has exactly one price "
                      "sheet)" if "instrument" not in roles else "")
-            named = _named_but_absent(recipe.columns, roles, grid.rows.get(row, {}))
-            way_out = (named or "name the log's own header for a missing role with [trades] "
-                       'columns, e.g. columns = { side = "<its header>" }')
+            way_out = ("name the log's own header for a missing role with [trades] columns, "
+                       'e.g. columns = { side = "<its header>" }')
             raise TradeLogError(
                 f'{where}, sheet "{name}": no header row with the trade-log columns; '
                 f"{where_row}: found {found}; missing {missing}{extra}; {way_out}")
+    if closest is not None:
+        _check_named_columns(recipe, *closest[1:], where=where)
     return None
 
 
-def _named_but_absent(overrides: Mapping[str, str], roles: Mapping[str, int],
-                      row: Mapping[int, object]) -> str:
-    """The way out when [trades] columns names a header the log does not have."""
-    usual = _log_roles(row, {})
-    parts = []
-    for role, header in overrides.items():
-        if role in roles:
-            continue
-        have = usual.get(role)
-        also = (f' (the usual header "{row[have]}" is in column {col_letter(have)}: remove '
-                f"{role} from [trades] columns to use it)" if have is not None else "")
-        parts.append(f'[trades] columns names "{header}" for {role}, which is not a header '
-                     f"of this row{also}")
-    return "; ".join(parts)
+def _check_named_columns(recipe: TradeSettings, sheet: str, row: int, roles: Mapping[str, int],
+                         headers: Mapping[int, str], *, where: str) -> None:
+    """Refuse headers named in ``[trades] columns`` that the closest header row lacks."""
+    absent = {role: given for role, given in recipe.columns.items() if role not in roles}
+    if not absent:
+        return
+    named = ", ".join(f'{role} = "{given}"' for role, given in absent.items())
+    heads = " or ".join(f'"{given}"' for given in absent.values())
+    usual = "; ".join(f"{role}: {'/'.join(LOG_COLUMNS[role][:3])}" for role in absent
+                      if role in LOG_COLUMNS)
+    raise TradeLogError(
+        f'{where}, sheet "{sheet}": [trades] columns: {named}: no column headed {heads} in row '
+        f"{row} (headers there: {list_headers(headers)}); give a header from that row, or "
+        f"remove it from [trades] columns so the usual names are looked for ({usual})")
 
 
 def _only_price_sheet(pkg: Package, names: Sequence[str]) -> str:

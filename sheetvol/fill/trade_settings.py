@@ -1,7 +1,8 @@
 """The trade-review settings: one class for the recipe's ``[trades]`` table, the
 command-line flags and the Python API, and the contract details of an instrument.
 
-The defaults are stated once, in :mod:`sheetvol.core.risk`.
+The defaults are stated once, in the core (:mod:`sheetvol.core.levels`,
+:mod:`sheetvol.core.sizing`, :mod:`sheetvol.core.review`).
 """
 
 from __future__ import annotations
@@ -11,14 +12,13 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
-from sheetvol.core.risk import (  # the review defaults, stated once
-    MEASURE,
-    PERIOD,
-    RISK_SHARE,
+from sheetvol.core.levels import (  # the review defaults, stated once
     STOP_MULTIPLE,
     TARGET_MULTIPLE,
     TRAIL_MULTIPLE,
 )
+from sheetvol.core.review import MEASURE, PERIOD
+from sheetvol.core.sizing import RISK_SHARE
 
 __all__ = ["Instrument", "TradeSettings", "instrument_key"]
 
@@ -32,7 +32,7 @@ class Instrument:
     so, see :data:`POINT_VALUE_ASSUMED`); ``fx_rate`` is account currency per
     unit of instrument currency; ``min_qty``/``max_qty`` of 0 mean no limit;
     ``tick`` is the price increment levels are rounded to (0: not rounded; see
-    :func:`sheetvol.core.risk.to_tick`).
+    :func:`sheetvol.core.levels.to_tick`).
     """
 
     point_value: float = math.nan

@@ -30,6 +30,7 @@ from typing import Any
 import numpy as np
 
 from sheetvol.core._types import FloatArray
+from sheetvol.core.bounds import BarError
 from sheetvol.functions import cells
 from sheetvol.functions import convert as _convert
 from sheetvol.functions.registry import (
@@ -206,7 +207,9 @@ def _call_series(
     raw: dict[str, Any] = {}
     for p, a in zip(func.params, args, strict=True):
         if p.is_column:
-            raw[p.name] = a
+            # An empty one-cell range arrives as nothing on some paths, so nothing is read
+            # as that one blank cell everywhere: a _LAST over a blank row is blank.
+            raw[p.name] = [[None]] if _convert.is_empty_cell(a) else a
         else:
             options[p.name] = _option(p, a, wname, date1904)
     # bind() validates options and notices missing columns; columns are converted below.
@@ -216,6 +219,7 @@ def _call_series(
     reader = _Reader(func, wname, raw, decimal_comma)
 
     if variant == "column":
+        reader.cut_blank_tail()
         columns, horizontal = reader.whole()
         _check_high_low(wname, columns)
         out = _compute(func, wname, columns, opts)
@@ -229,7 +233,7 @@ def _call_series(
             columns, _ = reader.whole()
             part = columns, np.arange(reader.height)
         _check_high_low(wname, *part)
-        return _convert.to_cell(_compute(func, wname, part[0], opts)[-1])
+        return _convert.to_cell(_compute(func, wname, part[0], opts, part[1])[-1])
     return _on(reader, opts, need, date_arg, dates_arg, date1904)
 
 
@@ -242,6 +246,21 @@ class _Reader:
         heights = {k: _convert.line_length(a, func=wname, param=k) for k, a in raw.items()}
         _same_height(wname, heights)
         self.height = next(iter(heights.values()), 0)
+
+    def cut_blank_tail(self) -> None:
+        """Drop the rows below the last value of every column (a whole column, ``C:C``).
+
+        One height for all columns, so that the bars stay aligned; a result is
+        then as tall as the data. The ``_LAST`` form does not cut: its value
+        belongs to the last row of the ranges as given.
+        """
+        height = max((_convert.data_height(a) for a in self.raw.values()), default=0)
+        if height == 0 and self.raw:
+            names = " and ".join(self.raw)
+            raise ArgumentError(f"{self.wname}: {names} hold no values (every cell is blank)")
+        if height < self.height:
+            self.raw = {k: _convert.head(a, height) for k, a in self.raw.items()}
+            self.height = height
 
     def whole(self) -> tuple[dict[str, FloatArray], bool]:
         columns: dict[str, FloatArray] = {}
@@ -330,6 +349,8 @@ def _check_high_low(wname: str, columns: Mapping[str, FloatArray],
 
 def _option(p: Param, value: Any, wname: str, date1904: bool) -> Any:
     v = _convert.single(value, func=wname, param=p.name)
+    if type(v) is int and v in _convert.COM_ERRORS:  # an error cell, as COM passes it
+        raise ArgumentError(f"{wname}: {p.name} is an error cell ({_convert.com_error_name(v)})")
     if p.kind == "date" and not cells.is_blank(v):
         return _convert.day_number(v, func=wname, param=p.name, date1904=date1904)
     return v
@@ -344,11 +365,15 @@ def _same_height(wname: str, heights: Mapping[str, int]) -> None:
         )
 
 
-def _compute(func: Function, wname: str, columns: dict[str, FloatArray], opts: dict) -> FloatArray:
+def _compute(func: Function, wname: str, columns: dict[str, FloatArray], opts: dict,
+             rows: np.ndarray | None = None) -> FloatArray:
     try:
         out = func.compute({**columns, **opts})
     except ArgumentError:
         raise
+    except BarError as exc:  # name the row of the user's ranges, not of the part read
+        where = f"row {int(rows[exc.bar]) + 1} of the ranges" if rows is not None else None
+        raise ArgumentError(f"{wname}: {exc.at(where) if where else exc}") from None
     except (ValueError, TypeError) as exc:
         raise ArgumentError(f"{wname}: {exc}") from None
     return np.asarray(out, dtype=np.float64)
@@ -403,7 +428,7 @@ def _on(
     usable = np.flatnonzero(_usable(columns.values()))
     if usable.size == 0:
         return None
-    out = _compute(func, wname, columns, opts)
+    out = _compute(func, wname, columns, opts, rows)
     return _convert.to_cell(out[usable[-1]])
 
 
@@ -425,7 +450,7 @@ def _call_scalar(
     horizontal = False
     for i, (p, a) in enumerate(zip(func.params, args, strict=True)):
         if p.is_column:
-            if a is None:
+            if _convert.is_empty_cell(a):
                 fixed[i] = None  # bind() reports the missing column
             elif p.kind == "dates":
                 fixed[i] = _convert.day_numbers(a, func=wname, param=p.name, date1904=date1904)

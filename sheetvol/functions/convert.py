@@ -14,7 +14,9 @@ the shape handling and a vectorised fast path for big ranges.
 from __future__ import annotations
 
 import datetime as dt
+import decimal
 import math
+import operator
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -28,8 +30,30 @@ from sheetvol.functions.registry import ArgumentError
 
 # Types that np.array(..., dtype=float64) turns into the right float without surprises
 # (None becomes NaN). bool is deliberately absent: TRUE must not become a price of 1.0.
-_PLAIN = frozenset({float, int, type(None), np.float64})
-_DATES = frozenset({dt.datetime, dt.date, pd.Timestamp, type(None)})
+# Decimal: pywin32 hands over a cell formatted as currency (VT_CY) as a decimal.Decimal.
+_PLAIN = frozenset({float, int, type(None), np.float64, decimal.Decimal})
+# Error cells as the Windows COM layer hands them over: pywin32 turns a VT_ERROR value
+# into an int, 0x800A0000 + the spreadsheet's error number (2000 #NULL!, 2007 #DIV/0!,
+# 2015 #VALUE!, 2023 #REF!, 2029 #NAME?, 2036 #NUM!, 2042 #N/A; newer ones such as
+# #SPILL! follow). Cell numbers come over as floats, so an int in this range is an error
+# cell, read as a gap like the blank that xlwings' own cleaning would have made of it.
+_COM_ERROR_BASE = -2146828288  # 0x800A0000 as a signed 32-bit number
+COM_ERRORS = range(_COM_ERROR_BASE + 2000, _COM_ERROR_BASE + 2100)
+COM_NA = _COM_ERROR_BASE + 2042  # #N/A
+_COM_ERROR_NAMES = {2000: "#NULL!", 2007: "#DIV/0!", 2015: "#VALUE!", 2023: "#REF!",
+                    2029: "#NAME?", 2036: "#NUM!", 2042: "#N/A"}
+
+
+def com_error_name(code: int) -> str:
+    """The spreadsheet's name of a COM error cell.
+
+    Examples
+    --------
+    >>> com_error_name(-2146826246)
+    '#N/A'
+    """
+    return _COM_ERROR_NAMES.get(code - _COM_ERROR_BASE, "an error value")
+_FIRST = operator.itemgetter(0)
 _SERIAL_SHIFT_1904 = 1462.0  # days from 1899-12-30 to 1904-01-01
 _EPOCH_US = int(np.datetime64(cells.EPOCH_1900, "us").astype(np.int64))
 _US_PER_DAY = 86_400_000_000.0
@@ -131,7 +155,7 @@ def line_values(value: Any, func: str, param: str) -> tuple[list[Any] | np.ndarr
         # Spreadsheet ranges are rectangular, so the first and last rows tell the width;
         # checking every row's width cost as much as converting the column.
         try:
-            return [r[0] for r in value], False
+            return list(map(_FIRST, value)), False
         except IndexError:
             pass  # ragged rows (not from a spreadsheet): judged row by row below
     widths = set(map(len, value))
@@ -190,6 +214,143 @@ def line_slice(value: Any, start: int, stop: int) -> Any:
     return value[start:stop]
 
 
+_BLANK_CELLS = (None, "")
+
+
+def data_height(value: Any) -> int:
+    """Cells of a column (or row) argument down to its last non-blank one.
+
+    The one rule for ranges taller than their data (a whole-column reference
+    such as ``C:C`` arrives as 1,048,576 cells): trailing blank cells (empty,
+    or empty text) carry no bar, so a result stops where the data stops.
+    Blocks are judged by whole rows. The common case, a last cell that is not
+    blank, costs nothing; otherwise the blank tail is counted once, slice by
+    slice, without a Python loop over the cells.
+
+    Parameters
+    ----------
+    value : Any
+        A column or row argument as :func:`column` takes it.
+
+    Returns
+    -------
+    int
+        Number of leading cells to keep (0 when every cell is blank).
+
+    Examples
+    --------
+    >>> data_height(((1.0,), (None,), (2.0,), (None,), (None,)))
+    3
+    >>> data_height([[1.0, 2.0, None]])
+    2
+    >>> data_height(np.array([1.0, np.nan]))  # a nested result keeps its rows
+    2
+    """
+    if isinstance(value, np.ndarray):
+        # A nested result: its NaN rows are values shown as "no value", not blank cells
+        # (the spreadsheet passes them back as #N/A), so only None and "" count.
+        flat = value.reshape(-1)
+        if flat.dtype != object:
+            return int(flat.size)
+        filled = np.flatnonzero([v is not None and v != "" for v in flat.tolist()])
+        return int(filled[-1]) + 1 if filled.size else 0
+    if not isinstance(value, (list, tuple)):
+        return 0 if value in _BLANK_CELLS else 1
+    if not value:
+        return 0
+    first = value[0]
+    if isinstance(first, (list, tuple)):
+        if len(value) == 1:  # one row: its cells
+            return _filled_length(first, _BLANK_CELLS)
+        last = value[-1]
+        width = len(last)
+        if last[0] not in _BLANK_CELLS:
+            return len(value)
+        if width == 1 and len(first) == 1:
+            # One column: its cells, taken out of their rows once, are counted faster (a
+            # blank is the None object itself) than rows compared with a blank row.
+            return _filled_length(list(map(_FIRST, value)), _BLANK_CELLS)
+        blank_rows = tuple(type(last)((b,) * width) for b in _BLANK_CELLS)
+        return _filled_length(value, blank_rows)
+    return _filled_length(value, _BLANK_CELLS)
+
+
+def _filled_length(seq: Sequence[Any], blanks: tuple[Any, ...]) -> int:
+    end = len(seq)
+    if end == 0 or seq[-1] not in blanks:
+        return end
+
+    def all_blank(start: int, stop: int) -> bool:
+        part = seq[start:stop]
+        left = len(part)
+        for b in blanks:  # mostly the first kind of blank alone settles it
+            left -= part.count(b)  # type: ignore[attr-defined]
+            if left == 0:
+                return True
+        return False
+
+    # Upwards in slices (growing to 65,536 cells) until one holds a value: the blank tail
+    # is counted once, then only the one slice holding the last value is halved.
+    size = 64
+    while True:
+        start = max(0, end - size)
+        if not all_blank(start, end):
+            break
+        if start == 0:
+            return 0
+        end, size = start, min(size * 2, 65_536)
+    while end - start > 64:  # halve: seq[end:] stays blank, seq[start:end] holds a value
+        mid = (start + end) // 2
+        if all_blank(mid, end):
+            end = mid
+        else:
+            start = mid
+    for i in range(end - 1, start - 1, -1):
+        if seq[i] not in blanks:
+            return i + 1
+    return start  # pragma: no cover - the slice held a non-blank cell
+
+
+def head(value: Any, height: int) -> Any:
+    """The first ``height`` cells of a column (or row) argument, in the same layout.
+
+    Examples
+    --------
+    >>> head(((1.0,), (2.0,), (None,)), 2)
+    ((1.0,), (2.0,))
+    >>> head([[1.0, 2.0, None]], 2)
+    [[1.0, 2.0]]
+    """
+    if isinstance(value, np.ndarray):
+        if value.ndim == 2 and value.shape[0] == 1:
+            return value[:, :height]
+        return value[:height]
+    if not isinstance(value, (list, tuple)):
+        return value
+    if len(value) == 1 and isinstance(value[0], (list, tuple)) and height:
+        return type(value)([value[0][:height]])
+    return value[:height]
+
+
+def is_empty_cell(value: Any) -> bool:
+    """True for an omitted argument and for a range of one empty cell.
+
+    The two cannot be told apart on every path (the in-Excel runtime passes
+    both as nothing), so sheetvol treats them alike everywhere: a missing
+    argument.
+
+    Examples
+    --------
+    >>> is_empty_cell(None), is_empty_cell([[None]]), is_empty_cell([[1.0]])
+    (True, True, False)
+    """
+    if isinstance(value, np.ndarray):
+        return False
+    while isinstance(value, (list, tuple)) and len(value) == 1:
+        value = value[0]
+    return value is None or (isinstance(value, str) and value == "")
+
+
 def column(
     value: Any, *, func: str, param: str, decimal_comma: bool = False, first_item: int = 0
 ) -> Column:
@@ -231,15 +392,42 @@ def column(
         return Column(flat.astype(np.float64, copy=False), horizontal)
     if isinstance(flat, np.ndarray):
         flat = flat.tolist()
-    kinds = set(map(type, flat))
-    if kinds <= _PLAIN:
-        return Column(np.array(flat, dtype=np.float64), horizontal)
+    # Text cells at the top (a header caught by a whole-column reference) are read one by
+    # one; the cells below them take the vectorised path when they are plain numbers.
+    top = 0
+    while top < len(flat) and type(flat[top]) is str:
+        top += 1
+    rest = flat[top:] if top else flat
+    kinds = set(map(type, rest))
+    if not kinds <= _PLAIN:
+        out, seen_number, header = _read_cells(flat, func, param, decimal_comma, first_item)
+    else:
+        out = np.array(rest, dtype=np.float64)
+        if int in kinds:
+            _blank_com_errors(rest, out)
+        if not top:
+            return Column(out, horizontal)
+        head, seen_number, header = _read_cells(flat[:top], func, param, decimal_comma,
+                                                first_item)
+        seen_number = seen_number or not np.isnan(out).all()
+        out = np.concatenate([head, out])
+    if header is not None and not seen_number:
+        raise ArgumentError(
+            f"{func}: {param} item {header + 1} is {_show(flat[header])}, not a number"
+        )
+    return Column(out, horizontal)
+
+
+def _read_cells(
+    flat: Sequence[Any], func: str, param: str, decimal_comma: bool, first_item: int
+) -> tuple[FloatArray, bool, int | None]:
+    """Cell by cell: the values, whether a number was seen, and the first header cell."""
     out = np.empty(len(flat), dtype=np.float64)
     seen_number = False
     header: int | None = None
     for i, v in enumerate(flat):
         if type(v) in _PLAIN:
-            out[i] = math.nan if v is None else float(v)
+            out[i] = math.nan if v is None or (type(v) is int and v in COM_ERRORS) else float(v)
             seen_number = seen_number or v is not None
             continue
         try:
@@ -253,11 +441,14 @@ def column(
                 f"{func}: {param} item {first_item + i + 1} is {_show(v)}, not a number"
             ) from None
         seen_number = seen_number or not math.isnan(out[i])
-    if header is not None and not seen_number:
-        raise ArgumentError(
-            f"{func}: {param} item {header + 1} is {_show(flat[header])}, not a number"
-        )
-    return Column(out, horizontal)
+    return out, seen_number, header
+
+
+def _blank_com_errors(flat: Sequence[Any], out: FloatArray) -> None:
+    # Only ints can be COM error cells; a column of floats never pays for this loop.
+    for i, v in enumerate(flat):
+        if type(v) is int and v in COM_ERRORS:
+            out[i] = math.nan
 
 
 def day_numbers(value: Any, *, func: str, param: str, date1904: bool = False) -> FloatArray:
@@ -280,28 +471,61 @@ def day_numbers(value: Any, *, func: str, param: str, date1904: bool = False) ->
             out = flat.astype(np.float64)
             return out + _SERIAL_SHIFT_1904 if date1904 else _fix_1900(out)
         flat = flat.tolist()
+    top = 0  # text cells at the top: a header, or dates typed as text
+    while top < len(flat) and type(flat[top]) is str:
+        top += 1
+    fast = _days_at_once(flat[top:] if top else flat, date1904)
+    if fast is None:
+        out, seen, header = _read_days(flat, func, param, date1904)
+    elif not top:
+        return fast
+    else:
+        head, seen, header = _read_days(flat[:top], func, param, date1904)
+        seen = seen or bool(np.isfinite(fast).any())
+        out = np.concatenate([head, fast])
+    if header is not None and not seen:
+        raise ArgumentError(f"{func}: {param} item {header + 1} is {_show(flat[header])}, "
+                            "not a date")
+    return out
+
+
+def _days_at_once(flat: Sequence[Any], date1904: bool) -> FloatArray | None:
+    """Day numbers of serials or date objects in one pass; None when cells are mixed."""
     kinds = set(map(type, flat))
     if kinds <= _PLAIN:
         out = np.array(flat, dtype=np.float64)
+        if int in kinds:
+            _blank_com_errors(flat, out)
         return out + _SERIAL_SHIFT_1904 if date1904 else _fix_1900(out)
-    if kinds <= _DATES:
-        try:
-            stamps = pd.DatetimeIndex(flat)
-        except (TypeError, ValueError):
-            stamps = None  # e.g. mixed time zones: fall back to one cell at a time
-        if stamps is not None:
-            if stamps.tz is not None:
-                stamps = stamps.tz_localize(None)
-            # Integer microseconds since the epoch, then one numpy division: cheaper than
-            # pandas' own timedelta arithmetic (NaT, from None, becomes NaN).
-            micros = stamps.as_unit("us").asi8
-            days = (micros - _EPOCH_US) / _US_PER_DAY
-            days[stamps.isna()] = math.nan
-            return days
+    if not all(k is type(None) or issubclass(k, (dt.date, pd.Timestamp)) for k in kinds):
+        return None
+    # Any date or datetime type, also pywin32's own datetime (a subclass carrying a UTC
+    # time zone): pandas reads them all; the wall-clock time is kept below.
+    try:
+        stamps = pd.DatetimeIndex(flat)
+    except (TypeError, ValueError):
+        return None  # e.g. mixed time zones: one cell at a time
+    if stamps.tz is not None:
+        stamps = stamps.tz_localize(None)
+    # Integer microseconds since the epoch, then one numpy division: cheaper than pandas'
+    # own timedelta arithmetic (NaT, from None, becomes NaN).
+    micros = stamps.as_unit("us").asi8
+    days = (micros - _EPOCH_US) / _US_PER_DAY
+    days[stamps.isna()] = math.nan
+    return days
+
+
+def _read_days(
+    flat: Sequence[Any], func: str, param: str, date1904: bool
+) -> tuple[FloatArray, bool, int | None]:
+    """Cell by cell: day numbers, whether a date was seen, and the first header cell."""
     out = np.empty(len(flat), dtype=np.float64)
     seen = False
     header: int | None = None
     for i, v in enumerate(flat):
+        if type(v) is int and v in COM_ERRORS:
+            out[i] = math.nan
+            continue
         try:
             when = cells.to_datetime(v, date1904=date1904)
         except cells.CellValueError:
@@ -312,10 +536,7 @@ def day_numbers(value: Any, *, func: str, param: str, date1904: bool = False) ->
             raise ArgumentError(f"{func}: {param} item {i + 1} is {_show(v)}, not a date") from None
         out[i] = math.nan if when is None else cells.datetime_to_serial(when)
         seen = seen or when is not None
-    if header is not None and not seen:
-        raise ArgumentError(f"{func}: {param} item {header + 1} is {_show(flat[header])}, "
-                            "not a date")
-    return out
+    return out, seen, header
 
 
 def day_number(value: Any, *, func: str, param: str, date1904: bool = False) -> float:
@@ -327,6 +548,8 @@ def day_number(value: Any, *, func: str, param: str, date1904: bool = False) -> 
     45659.0
     """
     v = single(value, func=func, param=param)
+    if type(v) is int and v in COM_ERRORS:
+        v = None  # an error cell holds no date
     try:
         when = cells.to_datetime(v, date1904=date1904)
     except cells.CellValueError:
@@ -351,31 +574,36 @@ def _show(v: Any) -> str:
     return text if len(text) <= 40 else text[:37] + "..."
 
 
-def to_cells(values: FloatArray | Sequence[float], *, horizontal: bool = False) -> list[list[Any]]:
-    """Turn a result column into rows for the spreadsheet: NaN becomes None (a true blank).
+def to_cells(
+    values: FloatArray | Sequence[float], *, horizontal: bool = False, blank: Any = None
+) -> list[list[Any]]:
+    """Turn a result column into rows for the spreadsheet, ``blank`` where there is no value.
 
-    xlwings shows NaN in a returned array as an empty *text*, which formulas
-    then see as text; None leaves the cell blank.
+    NaN and inf (warm-up rows, gaps) become ``blank``; the add-in passes the
+    marker its spreadsheet path shows as "no value" (see :mod:`sheetvol.addin`).
 
     Examples
     --------
     >>> to_cells(np.array([np.nan, 1.5]))
     [[None], [1.5]]
+    >>> to_cells(np.array([np.nan, 1.5]), horizontal=True, blank="#N/A")
+    [['#N/A', 1.5]]
     """
     raw = np.asarray(values)
     if raw.dtype == object:  # mixed text and numbers (e.g. trade outcomes)
         cells_ = [to_cell(v) for v in raw.reshape(-1).tolist()]
+        cells_ = [blank if v is None else v for v in cells_]
         return [cells_] if horizontal else [[v] for v in cells_]
     arr = raw.astype(np.float64).reshape(-1)
     bad = np.flatnonzero(~np.isfinite(arr)).tolist()
     if horizontal:
         row = arr.tolist()
         for i in bad:
-            row[i] = None
+            row[i] = blank
         return [row]
     rows = arr.reshape(-1, 1).tolist()
     for i in bad:
-        rows[i][0] = None
+        rows[i][0] = blank
     return rows
 
 

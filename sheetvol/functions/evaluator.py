@@ -19,15 +19,18 @@ what could not be evaluated.
 
 from __future__ import annotations
 
+import datetime as dt
 import re
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
+from decimal import ROUND_DOWN, ROUND_HALF_UP, ROUND_UP, Context, Decimal, InvalidOperation
 from typing import Any
 
 import numpy as np
 from openpyxl.formula.tokenizer import Token, Tokenizer, TokenizerError
 from openpyxl.utils.cell import column_index_from_string
 
+from sheetvol.functions import cells as _cells
 from sheetvol.functions import convert as _convert
 from sheetvol.functions.calling import Result, call_worksheet
 from sheetvol.functions.registry import ArgumentError, variant_of
@@ -45,8 +48,62 @@ _PREFIXES = ("_xludf.", "_xlfn.", "_xlws.")
 _SV_NAME = re.compile(r"SV_[A-Z0-9_]*$", re.IGNORECASE)
 
 
+MESSAGE_LIMIT = 255
+"""Longest message a cell shows (what the add-in returns for a bad argument)."""
+
+WORKSHEET_FUNCTIONS = ("DATE", "ROUND", "ROUNDUP", "ROUNDDOWN", "MIN", "MAX", "ABS", "IF",
+                       "IFERROR", "AND", "OR")
+"""Ordinary worksheet functions evaluated around sheetvol calls."""
+
+_COMPARISONS = ("=", "<>", "<", ">", "<=", ">=")
+
+
 class FormulaError(ValueError):
     """A formula that cannot be evaluated headless; the message says why."""
+
+
+class ArgumentMessage(FormulaError):
+    """A sheetvol call in the formula has a bad argument.
+
+    ``text`` is the message the live add-in shows in the cell (see
+    :func:`cell_message`); the fill writes it into the cell.
+    """
+
+    def __init__(self, message: str) -> None:
+        self.text = cell_message(message)
+        super().__init__(self.text)
+
+
+def cell_message(message: str) -> str:
+    """A sheetvol message as a cell shows it: the first line, at most 255 characters.
+
+    The add-in returns the same text for a bad argument (a test compares them).
+
+    Examples
+    --------
+    >>> cell_message("SV_ATR: period must be a whole number from 2 to 5000, got 1\\nmore")
+    'SV_ATR: period must be a whole number from 2 to 5000, got 1'
+    """
+    first = message.strip().splitlines()[0] if message.strip() else "error"
+    first = " ".join(first.split())
+    if len(first) <= MESSAGE_LIMIT:
+        return first
+    return first[: MESSAGE_LIMIT - 3].rsplit(" ", 1)[0] + "..."
+
+
+class _Message(str):
+    """The text a sheetvol call with a bad argument leaves in its cell."""
+
+
+@dataclass(frozen=True)
+class _Error:
+    """A worksheet error value (``#VALUE!``, ``#DIV/0!``, ``#NUM!``) met while evaluating.
+
+    ``cause`` is the sheetvol message that led to it, if one did.
+    """
+
+    code: str
+    cause: str | None = None
 
 
 # -- syntax tree -----------------------------------------------------------------
@@ -209,16 +266,32 @@ class _Parser:
         return t
 
     def expression(self) -> Node:
-        node = self.term()
-        while (t := self.peek()) is not None and t.type == Token.OP_IN and t.value in "+-":
+        # Lowest precedence first: comparisons, then &, then + -, then * /.
+        node = self.concatenation()
+        while (t := self.peek()) is not None and t.type == Token.OP_IN \
+                and t.value in _COMPARISONS:
             self.pos += 1
-            node = Binary(t.value, node, self.term())
+            node = Binary(t.value, node, self.concatenation())
         t = self.peek()
         if t is not None and t.type == Token.OP_IN:
             raise FormulaError(
                 f"cannot evaluate {self.text!r}: the operator {t.value!r} is not supported "
-                "headless (only + - * / and %)"
+                "headless (only + - * / %, & and comparisons)"
             )
+        return node
+
+    def concatenation(self) -> Node:
+        node = self.additive()
+        while (t := self.peek()) is not None and t.type == Token.OP_IN and t.value == "&":
+            self.pos += 1
+            node = Binary("&", node, self.additive())
+        return node
+
+    def additive(self) -> Node:
+        node = self.term()
+        while (t := self.peek()) is not None and t.type == Token.OP_IN and t.value in "+-":
+            self.pos += 1
+            node = Binary(t.value, node, self.term())
         return node
 
     def term(self) -> Node:
@@ -287,15 +360,16 @@ class _Parser:
         name = function_name(t.value)
         written = t.value[:-1] + "(...)"
         try:
-            variant_of(name)
+            if name not in WORKSHEET_FUNCTIONS:
+                variant_of(name)
         except KeyError:
             if _SV_NAME.match(name):
                 raise FormulaError(
                     f"cannot evaluate {written}: no sheetvol function named {name}"
                 ) from None
             raise FormulaError(
-                f"cannot evaluate {written}: only sheetvol functions, cells, ranges and "
-                "numbers are supported headless"
+                f"cannot evaluate {written}: {name} is not evaluated headless (only sheetvol "
+                f"functions and {', '.join(WORKSHEET_FUNCTIONS)})"
             ) from None
         args: list[Node] = []
         expect_arg = True
@@ -404,10 +478,13 @@ def evaluate(
 
     Raises
     ------
+    ArgumentMessage
+        A sheetvol call has a bad argument; ``text`` is the message the live
+        add-in shows in the cell (e.g. ``"SV_ATR: period must be ..."``).
     FormulaError
-        With a message saying what could not be evaluated or which argument
-        is wrong (the function's own message, e.g. ``"SV_ATR: period must be
-        ..."``).
+        With a message saying what could not be evaluated (a function other
+        than sheetvol's and :data:`WORKSHEET_FUNCTIONS`, a defined name, an
+        error value such as ``#DIV/0!`` as the result...).
 
     Examples
     --------
@@ -425,7 +502,104 @@ def evaluate(
         return value.reshape(-1) if value.ndim == 2 and 1 in value.shape else value
     if isinstance(value, _Block):
         return ev.block_result(value)
+    if isinstance(value, _Message):
+        raise ArgumentMessage(str(value))
+    if isinstance(value, _Error):
+        if value.cause is not None:
+            raise ArgumentMessage(value.cause)
+        shown = text if isinstance(text, str) else "the formula"
+        raise FormulaError(f"cannot evaluate {shown}: it gives {value.code}")
     return _convert.to_cell(value) if not isinstance(value, (str, bool)) else value
+
+
+_ARITY = {"DATE": (3, 3), "ROUND": (2, 2), "ROUNDUP": (2, 2), "ROUNDDOWN": (2, 2),
+          "MIN": (1, 255), "MAX": (1, 255), "ABS": (1, 1), "IF": (1, 3), "IFERROR": (2, 2),
+          "AND": (1, 255), "OR": (1, 255)}
+_DECIMAL = Context(prec=400)
+
+
+def _round(x: float, digits: float, mode: str) -> float:
+    """ROUND, ROUNDUP, ROUNDDOWN: halves away from zero, on the number as written.
+
+    The decimal text of the float (``2.675``, not its binary value 2.67499...)
+    is rounded, as spreadsheets do. ``digits`` is truncated to a whole number.
+
+    >>> _round(2.675, 2, ROUND_HALF_UP), _round(-1.29, 1, ROUND_DOWN), _round(1234.5, -2, ROUND_UP)
+    (2.68, -1.2, 1300.0)
+    """
+    if x != x or x in (np.inf, -np.inf):
+        return x
+    try:
+        q = Decimal(repr(float(x))).quantize(Decimal(1).scaleb(-int(digits)), rounding=mode,
+                                             context=_DECIMAL)
+    except InvalidOperation:
+        return float(x)
+    return float(q) + 0.0  # + 0.0 turns -0.0 into 0.0
+
+
+def _date_serial(year: int, month: int, day: int, *, date1904: bool) -> Any:
+    """DATE(year, month, day) as a serial number; months and days beyond their range roll over.
+
+    >>> _date_serial(2025, 3, 14, date1904=False), _date_serial(2025, 14, -3, date1904=False)
+    (45730.0, 46050.0)
+    """
+    if 0 <= year < 1900:
+        year += 1900  # spreadsheets read DATE(25,1,1) as 1925
+    year += (month - 1) // 12
+    month = (month - 1) % 12 + 1
+    if not 1 <= year <= 9999:
+        return _Error("#NUM!")
+    try:
+        when = dt.datetime(year, month, 1) + dt.timedelta(days=day - 1)
+    except OverflowError:
+        return _Error("#NUM!")
+    serial = _cells.datetime_to_serial(when, date1904=date1904)
+    if not date1904 and serial < 61:
+        serial -= 1  # the 1900 system counts a 29 February 1900 that never was
+    if serial < 0:
+        return _Error("#NUM!")
+    return float(serial)
+
+
+def _general(x: float) -> str:
+    """A number as text the way ``&`` shows it (General format, up to 15 digits).
+
+    >>> _general(2.0), _general(0.1 + 0.2), _general(1e20), _general(-0.00001234)
+    ('2', '0.3', '1E+20', '-1.234E-05')
+    """
+    if x != x or x in (np.inf, -np.inf):
+        return "#NUM!"
+    text = f"{x:.15g}"
+    if "e" in text:
+        mantissa, exponent = text.split("e")
+        text = f"{mantissa}E{int(exponent):+03d}"
+    return text
+
+
+def _comparable(value: Any, other: Any) -> tuple[int, Any]:
+    """(kind, key) for comparisons: numbers 0, text 1 (any case), TRUE/FALSE 2.
+
+    A blank compares as the other side's empty value: 0, "" or FALSE.
+    """
+    if value is None:
+        if isinstance(other, bool):
+            value = False
+        elif isinstance(other, str):
+            value = ""
+        else:
+            value = 0.0
+    if isinstance(value, bool):
+        return (2, value)
+    if isinstance(value, str):
+        return (1, value.lower())
+    return (0, float(value))
+
+
+def _cell_value(value: Any) -> Any:
+    """A cell's stored value, with a stored error (``#N/A``...) as an error value."""
+    if isinstance(value, str) and value in _cells.ERROR_TEXTS:
+        return _Error(value)
+    return value
 
 
 def _number_or_nan(value: Any) -> float:
@@ -458,23 +632,45 @@ class _Evaluator:
                                  node.top, node.left, node.bottom, node.right)
             return _Block(node, rows)
         if isinstance(node, Call):
+            if node.name in WORKSHEET_FUNCTIONS:
+                return self.worksheet_function(node)
             args = [self.argument(a) for a in node.args]
+            for a in args:
+                if isinstance(a, _Error):
+                    return a
             try:
                 return call_worksheet(node.name, args, date1904=self.date1904)
             except ArgumentError as exc:
-                raise FormulaError(str(exc)) from None
+                # The live add-in shows this text in the cell; the formula gets it as a value.
+                return _Message(cell_message(str(exc)))
         if isinstance(node, Unary):
             operand = self.number(node.operand)
+            if isinstance(operand, _Error):
+                return operand
             if node.op == "-":
                 return -operand
             if node.op == "%":
                 return operand / 100.0
             return operand
         if isinstance(node, Binary):
+            if node.op in _COMPARISONS:
+                return self.compare(node)
+            if node.op == "&":
+                left, right = self.text(node.left), self.text(node.right)
+                for side in (left, right):
+                    if isinstance(side, _Error):
+                        return side
+                return left + right
             left, right = self.number(node.left), self.number(node.right)
+            for side in (left, right):
+                if isinstance(side, _Error):
+                    return side
             if isinstance(left, np.ndarray) and isinstance(right, np.ndarray) \
                     and left.shape != right.shape:
                 raise FormulaError(f"cannot evaluate {node.op}: the two sides differ in size")
+            if node.op == "/" and not isinstance(right, np.ndarray) and right == 0 \
+                    and not isinstance(left, np.ndarray):
+                return _Error("#DIV/0!")
             with np.errstate(divide="ignore", invalid="ignore"):
                 if node.op == "+":
                     return left + right
@@ -510,14 +706,172 @@ class _Evaluator:
                 return np.array([_number_or_nan(v) for v in value.reshape(-1).tolist()],
                                 dtype=np.float64).reshape(value.shape)
             return value.astype(np.float64)
+        return self.scalar_number(value)
+
+    def scalar_number(self, value: Any) -> Any:
+        """One value as a spreadsheet's arithmetic reads it: a float or an :class:`_Error`."""
+        if isinstance(value, _Error):
+            return value
         if value is None:
-            return np.nan
+            return 0.0  # a blank cell counts as 0 in arithmetic
         if isinstance(value, bool):
             return 1.0 if value else 0.0
+        if isinstance(value, (dt.date, dt.datetime)):
+            return _cells.datetime_to_serial(value, date1904=self.date1904)
+        if isinstance(value, str):
+            if _cells.NUMBER_TEXT.match(value.strip()):
+                return float(value)
+            return _Error("#VALUE!", str(value) if isinstance(value, _Message) else None)
         try:
             return float(value)
         except (TypeError, ValueError):
             raise FormulaError(f"cannot evaluate arithmetic on {value!r}: not a number") from None
+
+    # -- ordinary worksheet functions and operators ------------------------------------
+    def single(self, node: Node) -> Any:
+        """A scalar operand: one cell's value, a literal or a call's one value."""
+        value = self.value(node)
+        if isinstance(value, _Block):
+            grid = value.rows
+            if len(grid) == 1 and len(grid[0]) == 1:
+                return _cell_value(grid[0][0])
+            raise FormulaError(
+                f"cannot evaluate {value.ref.text}: a range where one value belongs is not "
+                "supported headless"
+            )
+        if isinstance(value, np.ndarray):
+            raise FormulaError(
+                "cannot evaluate a column of results where one value belongs (use the _LAST "
+                "or _ON form of the sheetvol function)"
+            )
+        return value
+
+    def text(self, node: Node) -> Any:
+        """An operand of ``&``: text as a cell shows it, or an :class:`_Error`."""
+        value = self.single(node)
+        if isinstance(value, _Error):
+            return value
+        if value is None:
+            return ""
+        if isinstance(value, bool):
+            return "TRUE" if value else "FALSE"
+        if isinstance(value, (dt.date, dt.datetime)):
+            value = _cells.datetime_to_serial(value, date1904=self.date1904)
+        if isinstance(value, (int, float, np.number)):
+            return _general(float(value))
+        return str(value)
+
+    def compare(self, node: Binary) -> Any:
+        left, right = self.single(node.left), self.single(node.right)
+        for side in (left, right):
+            if isinstance(side, _Error):
+                return side
+        left, right = (_cells.datetime_to_serial(v, date1904=self.date1904)
+                       if isinstance(v, (dt.date, dt.datetime)) else v for v in (left, right))
+        a, b = _comparable(left, right), _comparable(right, left)
+        if a[0] != b[0]:
+            order = a[0] - b[0]  # numbers < text < TRUE/FALSE, as spreadsheets sort them
+        else:
+            order = (a[1] > b[1]) - (a[1] < b[1])
+        return {"=": order == 0, "<>": order != 0, "<": order < 0, ">": order > 0,
+                "<=": order <= 0, ">=": order >= 0}[node.op]
+
+    def logical(self, value: Any) -> Any:
+        """A condition as IF, AND and OR read it: a bool, None (no value) or an _Error."""
+        if isinstance(value, _Error) or value is None or isinstance(value, bool):
+            return value
+        if isinstance(value, str):
+            word = value.strip().upper()
+            if word in ("TRUE", "FALSE"):
+                return word == "TRUE"
+            return _Error("#VALUE!", str(value) if isinstance(value, _Message) else None)
+        number = self.scalar_number(value)
+        return number if isinstance(number, _Error) else number != 0
+
+    def worksheet_function(self, node: Call) -> Any:
+        name, args = node.name, node.args
+        low, high = _ARITY[name]
+        if not low <= len(args) <= high:
+            raise FormulaError(
+                f"cannot evaluate {node.text}: {name} takes "
+                + (f"{low}" if low == high else f"{low} to {high}") + " arguments"
+            )
+        if name == "IF":
+            condition = self.logical(self.single(args[0]))
+            if isinstance(condition, _Error):
+                return condition
+            if condition:
+                branch = args[1] if len(args) > 1 else Literal(None)
+                return 0.0 if branch == Literal(None) else self.value(branch)
+            if len(args) < 3:
+                return False
+            return 0.0 if args[2] == Literal(None) else self.value(args[2])
+        if name == "IFERROR":
+            first = self.value(args[0])
+            if isinstance(first, _Error):
+                return 0.0 if args[1] == Literal(None) else self.value(args[1])
+            return first
+        if name in ("MIN", "MAX", "AND", "OR"):
+            return self.aggregate(name, args)
+        if name == "DATE":
+            parts = [self.scalar_number(self.single(a)) for a in args]
+            for part in parts:
+                if isinstance(part, _Error):
+                    return part
+            return _date_serial(*(int(p) for p in parts), date1904=self.date1904)
+        # ABS and the three roundings work cell by cell on a column too.
+        x = self.number(args[0])
+        if isinstance(x, _Error):
+            return x
+        if name == "ABS":
+            return np.abs(x) if isinstance(x, np.ndarray) else abs(x)
+        digits = self.scalar_number(self.single(args[1]))
+        if isinstance(digits, _Error):
+            return digits
+        mode = {"ROUND": ROUND_HALF_UP, "ROUNDUP": ROUND_UP, "ROUNDDOWN": ROUND_DOWN}[name]
+        if isinstance(x, np.ndarray):
+            return np.array([_round(v, digits, mode) for v in x.reshape(-1).tolist()],
+                            dtype=np.float64).reshape(x.shape)
+        return _round(x, digits, mode)
+
+    def aggregate(self, name: str, args: Sequence[Node]) -> Any:
+        """MIN, MAX, AND, OR: ranges give their numbers (and TRUE/FALSE for AND/OR),
+        skipping text and blanks; values typed as arguments count as written."""
+        logical = name in ("AND", "OR")
+        seen: list[Any] = []
+        for arg in args:
+            value = self.value(arg)
+            if isinstance(value, _Block):
+                for row in value.rows:
+                    for v in map(_cell_value, row):
+                        if isinstance(v, _Error):
+                            return v
+                        if isinstance(v, bool):
+                            if logical:
+                                seen.append(v)
+                        elif isinstance(v, (int, float, np.number)):
+                            if v == v:
+                                seen.append(float(v) != 0 if logical else float(v))
+                        elif isinstance(v, (dt.date, dt.datetime)) and not logical:
+                            seen.append(self.scalar_number(v))
+                continue
+            if isinstance(value, np.ndarray):
+                finite = [float(v) for v in self.number(arg).reshape(-1) if v == v]
+                seen.extend(v != 0 for v in finite) if logical else seen.extend(finite)
+                continue
+            if arg == Literal(None):
+                value = 0.0 if not logical else False
+            one = self.logical(value) if logical else self.scalar_number(value)
+            if isinstance(one, _Error):
+                return one
+            seen.append(one)
+        if logical:
+            if not seen:
+                return _Error("#VALUE!")
+            return all(seen) if name == "AND" else any(seen)
+        if not seen:
+            return 0.0
+        return min(seen) if name == "MIN" else max(seen)
 
     def block_result(self, block: _Block) -> Result:
         grid = block.rows
@@ -611,6 +965,8 @@ def evaluate_cells(
             value = evaluate(trees[key], read, current_sheet=sheet, date1904=date1904)
         except (FormulaError, ArgumentError) as exc:
             results[key] = exc if isinstance(exc, FormulaError) else FormulaError(str(exc))
+            if isinstance(exc, ArgumentMessage):  # later formulas read the message it shows
+                overlay.setdefault((sheet.lower(), col), {})[row] = exc.text
             continue
         results[key] = value
         column = overlay.setdefault((sheet.lower(), col), {})

@@ -20,13 +20,19 @@ and not written by hand:
 from __future__ import annotations
 
 import importlib
-import math
 from collections.abc import Callable, Iterator, Mapping
 from dataclasses import dataclass
 from typing import Any, Literal
 
 import numpy as np
 
+from sheetvol.core import bounds
+from sheetvol.core.averages import KINDS, SEEDS
+from sheetvol.core.bounds import Bound
+from sheetvol.core.levels import SIDES, STOP_MULTIPLE, TARGET_MULTIPLE, TRAIL_MULTIPLE
+from sheetvol.core.prices import BASES, DERIVED_FORMULAS
+from sheetvol.core.ranges import FIRST_BAR, SMOOTHING
+from sheetvol.core.review import MEASURE, MEASURES, OUTCOME_FIELDS, PERIOD
 from sheetvol.functions import cells
 
 ParamKind = Literal["series", "dates", "date", "whole", "number", "choice", "text"]
@@ -76,21 +82,18 @@ class Param:
     def is_column(self) -> bool:
         return self.kind in ("series", "dates")
 
+    @property
+    def bound(self) -> Bound:
+        """The range of a number argument, in the core's terms (words and checks are there)."""
+        return Bound(self.low, self.high, low_open=not self.low_inclusive,
+                     whole=self.kind == "whole")
+
     def describe_range(self) -> str:
         """Plain-words description of the valid values, used in messages and docs."""
         if self.kind == "choice":
             return "one of " + ", ".join(f'"{c}"' for c in self.choices)
         if self.kind in ("whole", "number"):
-            noun = "a whole number" if self.kind == "whole" else "a number"
-            if self.low is not None and self.high is not None:
-                if not self.low_inclusive:
-                    return f"{noun} above {_fmt(self.low)}, up to {_fmt(self.high)}"
-                return f"{noun} from {_fmt(self.low)} to {_fmt(self.high)}"
-            if self.low is not None:
-                return f"{noun} {'of at least' if self.low_inclusive else 'above'} {_fmt(self.low)}"
-            if self.high is not None:
-                return f"{noun} up to {_fmt(self.high)}"
-            return noun
+            return self.bound.words()
         return {
             "series": "a column of numbers",
             "dates": "a column of dates",
@@ -99,8 +102,10 @@ class Param:
         }[self.kind]
 
 
-def _fmt(x: float) -> str:
-    return str(int(x)) if float(x).is_integer() else repr(float(x))
+def bounded(name: str, help: str, default: Any, bound: Bound) -> Param:
+    """A number argument whose range is stated in the core (:mod:`sheetvol.core.bounds`)."""
+    return Param(name, "number", help, default, bound.low, bound.high,
+                 low_inclusive=not bound.low_open)
 
 
 @dataclass(frozen=True)
@@ -198,14 +203,7 @@ class Function:
             return text
         if p.kind in ("whole", "number"):
             number = _as_number(value)
-            ok = number is not None and math.isfinite(number)
-            if ok and p.kind == "whole":
-                ok = float(number).is_integer()
-            if ok and p.low is not None:
-                ok = number >= p.low if p.low_inclusive else number > p.low
-            if ok and p.high is not None:
-                ok = number <= p.high
-            if not ok:
+            if number is None or not p.bound.holds(number):
                 raise ArgumentError(
                     f"{self.name}: {p.name} must be {p.describe_range()}, got {_show(value)}"
                 )
@@ -255,8 +253,7 @@ def _show(value: Any) -> str:
 
 
 # -- shared parameter definitions ---------------------------------------------
-AVERAGES = ("simple", "exponential", "wilder", "linear")
-BASES = ("close", "open", "high", "low", "median", "typical", "weighted")
+AVERAGES = KINDS
 LINES = ("upper", "middle", "lower")
 
 
@@ -279,13 +276,11 @@ _DIVISOR = Param(
     "population",
     choices=("population", "sample"),
 )
-_PER_YEAR = Param(
+_PER_YEAR = bounded(
     "per_year",
-    "number",
     "bars per year for annualising (252 trading days; 365 for 24/7 markets)",
     252,
-    1,
-    1_000_000,
+    bounds.BARS_PER_YEAR,
 )
 _OPEN = Param("open", "series", "opening prices, oldest bar first")
 _HIGH = Param("high", "series", "high prices, oldest bar first")
@@ -296,24 +291,30 @@ _SEED = Param(
     "choice",
     "start of exponential/Wilder averages: simple average of the first N bars, or the first bar",
     "average",
-    choices=("average", "first"),
+    choices=SEEDS,
 )
 _FIRST_BAR = Param(
     "first_bar",
     "choice",
     "the first bar has no previous close: use its high-low, or leave it blank",
     "high-low",
-    choices=("high-low", "blank"),
+    choices=FIRST_BAR,
 )
 _SMOOTHING = Param(
     "smoothing",
     "choice",
     "how true ranges are averaged",
     "wilder",
-    choices=("wilder", "simple", "exponential"),
+    choices=SMOOTHING,
 )
-_WIDTH = Param("width", "number", "band half-width in deviations", 2.0, 0, 100, low_inclusive=False)
-_SIDE = Param("side", "choice", "trade direction", "long", choices=("long", "short", "buy", "sell"))
+_WIDTH = bounded("width", "band half-width in deviations", 2.0, bounds.WIDTH)
+_SIDE = Param("side", "choice", "trade direction", "long", choices=tuple(SIDES))
+_TICK = "price increment; the {} is rounded {} to it (0 = no rounding)"
+_VOL = bounded("volatility", "volatility in price units (ATR or deviation)", REQUIRED,
+               bounds.VOLATILITY)
+_MEASURE = Param("measure", "choice",
+                 "volatility measure: ATR (Wilder) or standard deviation of the close",
+                 MEASURE, choices=MEASURES)
 
 _DATES = Param("dates", "dates", "dates of the bars, oldest first")
 _ENTRY_DATE = Param(
@@ -330,7 +331,7 @@ FUNCTIONS: tuple[Function, ...] = (
     Function(
         "SV_AVERAGE",
         "averages",
-        "Moving average of a price column: simple, exponential, Wilder or linearly weighted.",
+        "Moving average of a price column: simple, linearly weighted, exponential or Wilder.",
         (
             _prices(),
             _period(14),
@@ -344,13 +345,14 @@ FUNCTIONS: tuple[Function, ...] = (
     Function(
         "SV_PRICE",
         "averages",
-        "Price basis of each bar from open, high, low and close (median, typical, weighted close...).",
+        "Price basis of each bar: open, high, low, close, median, typical, weighted close or bar average.",
         (
             _OPEN,
             _HIGH,
             _LOW,
             _CLOSE,
-            Param("basis", "choice", "which price of the bar", "typical", choices=BASES),
+            Param("basis", "choice", "which price of the bar; " + ", ".join(
+                f"{k} {v}" for k, v in DERIVED_FORMULAS.items()), "typical", choices=BASES),
         ),
         f"{_K}.prices:price_basis",
         "one price per bar",
@@ -462,15 +464,8 @@ FUNCTIONS: tuple[Function, ...] = (
             _prices(),
             Param("line", "choice", "which line of the envelope", "upper", choices=LINES),
             _period(20),
-            Param(
-                "percent",
-                "number",
-                "envelope half-width in percent of the average",
-                2.5,
-                0,
-                100,
-                low_inclusive=False,
-            ),
+            bounded("percent", "envelope half-width in percent of the average", 2.5,
+                    bounds.PERCENT),
             _average(),
         ),
         f"{_K}.bands:envelope",
@@ -555,26 +550,13 @@ FUNCTIONS: tuple[Function, ...] = (
         "Stop level a multiple of volatility away from entry, below for long and above for short.",
         (
             Param("entry", "number", "entry price"),
-            Param("volatility", "number", "volatility in price units (ATR or deviation)", low=0),
-            Param(
-                "multiple",
-                "number",
-                "volatility units between entry and stop",
-                2.0,
-                0,
-                1000,
-                low_inclusive=False,
-            ),
+            _VOL,
+            bounded("multiple", "volatility units between entry and stop", STOP_MULTIPLE,
+                    bounds.MULTIPLE),
             _SIDE,
-            Param(
-                "tick",
-                "number",
-                "price increment; the stop is rounded away from entry to it (0 = no rounding)",
-                0.0,
-                0,
-            ),
+            bounded("tick", _TICK.format("stop", "away from entry"), 0.0, bounds.TICK),
         ),
-        f"{_K}.risk:stop_price",
+        f"{_K}.levels:stop_price",
         "stop price",
         shape="scalar",
         example='=SV_STOP(105.2, 1.8, 2, "long")',
@@ -585,26 +567,13 @@ FUNCTIONS: tuple[Function, ...] = (
         "Target level a multiple of volatility away from entry, above for long and below for short.",
         (
             Param("entry", "number", "entry price"),
-            Param("volatility", "number", "volatility in price units (ATR or deviation)", low=0),
-            Param(
-                "multiple",
-                "number",
-                "volatility units between entry and target",
-                3.0,
-                0,
-                1000,
-                low_inclusive=False,
-            ),
+            _VOL,
+            bounded("multiple", "volatility units between entry and target", TARGET_MULTIPLE,
+                    bounds.MULTIPLE),
             _SIDE,
-            Param(
-                "tick",
-                "number",
-                "price increment; the target is rounded toward entry to it (0 = no rounding)",
-                0.0,
-                0,
-            ),
+            bounded("tick", _TICK.format("target", "toward entry"), 0.0, bounds.TICK),
         ),
-        f"{_K}.risk:target_price",
+        f"{_K}.levels:target_price",
         "target price",
         shape="scalar",
     ),
@@ -613,40 +582,20 @@ FUNCTIONS: tuple[Function, ...] = (
         "trade",
         "Position size that risks a set share of equity between entry and stop, rounded down to the lot step.",
         (
-            Param(
-                "equity", "number", "account equity in account currency", low=0, low_inclusive=False
-            ),
-            Param(
-                "risk",
-                "number",
-                "share of equity to risk per trade, e.g. 0.01 for 1% (at most 0.25)",
-                low=0,
-                high=0.25,
-                low_inclusive=False,
-            ),
+            bounded("equity", "account equity in account currency", REQUIRED, bounds.EQUITY),
+            bounded("risk", "share of equity to risk per trade, e.g. 0.01 for 1% (at most 0.25)",
+                    REQUIRED, bounds.RISK),
             Param("entry", "number", "entry price"),
             Param("stop", "number", "stop price"),
-            Param(
-                "point_value",
-                "number",
-                "money per 1.0 price move per unit, in instrument currency",
-                1.0,
-                0,
-                low_inclusive=False,
-            ),
-            Param("lot_step", "number", "smallest tradable increment", 1.0, 0, low_inclusive=False),
-            Param("min_qty", "number", "smallest allowed size (0 = none)", 0.0, 0),
-            Param("max_qty", "number", "largest allowed size (0 = no limit)", 0.0, 0),
-            Param(
-                "fx_rate",
-                "number",
-                "account currency per unit of instrument currency",
-                1.0,
-                0,
-                low_inclusive=False,
-            ),
+            bounded("point_value", "money per 1.0 price move per unit, in instrument currency",
+                    1.0, bounds.POINT_VALUE),
+            bounded("lot_step", "smallest tradable increment", 1.0, bounds.LOT_STEP),
+            bounded("min_qty", "smallest allowed size (0 = none)", 0.0, bounds.QUANTITY),
+            bounded("max_qty", "largest allowed size (0 = no limit)", 0.0, bounds.QUANTITY),
+            bounded("fx_rate", "account currency per unit of instrument currency", 1.0,
+                    bounds.FX_RATE),
         ),
-        f"{_K}.risk:position_size",
+        "sheetvol.functions.worksheet:size_or_reason",
         "quantity (units or contracts)",
         shape="scalar",
         unit="quantity",
@@ -665,7 +614,7 @@ FUNCTIONS: tuple[Function, ...] = (
             ),
             _SIDE,
         ),
-        f"{_K}.risk:r_multiple",
+        f"{_K}.levels:r_multiple",
         "R multiple (blank when the stop equals the entry)",
         shape="scalar",
         unit="ratio",
@@ -684,30 +633,11 @@ FUNCTIONS: tuple[Function, ...] = (
             _ENTRY_DATE,
             _ENTRY_PRICE,
             _SIDE,
-            Param(
-                "multiple",
-                "number",
-                "volatility units between the best price since entry and the stop",
-                3.0,
-                0,
-                1000,
-                low_inclusive=False,
-            ),
-            _period(14, "bars in the volatility window"),
-            Param(
-                "measure",
-                "choice",
-                "volatility measure: ATR (Wilder) or standard deviation of the close",
-                "atr",
-                choices=("atr", "deviation"),
-            ),
-            Param(
-                "tick",
-                "number",
-                "price increment; the stop is rounded away from the price to it (0 = no rounding)",
-                0.0,
-                0,
-            ),
+            bounded("multiple", "volatility units between the best price since entry and the stop",
+                    TRAIL_MULTIPLE, bounds.MULTIPLE),
+            _period(PERIOD, "bars in the volatility window"),
+            _MEASURE,
+            bounded("tick", _TICK.format("stop", "away from the price"), 0.0, bounds.TICK),
         ),
         "sheetvol.functions.worksheet:current_trail",
         "trailing stop price in force for the next bar",
@@ -731,29 +661,18 @@ FUNCTIONS: tuple[Function, ...] = (
             _SIDE,
             Param("stop", "number", "initial stop price"),
             Param("target", "number", "target price"),
-            Param(
-                "field",
-                "choice",
-                "which figure to return",
-                "result",
-                choices=("result", "exit_price", "exit_date", "r", "bars", "adverse", "favourable"),
-            ),
+            Param("field", "choice", "which figure to return", OUTCOME_FIELDS[0],
+                  choices=OUTCOME_FIELDS),
             Param(
                 "trail_multiple",
                 "number",
                 "trailing stop in volatility units (0 = no trailing stop)",
-                0.0,
+                TRAIL_MULTIPLE,
                 0,
-                1000,
+                bounds.MULTIPLE.high,
             ),
-            _period(14, "bars in the volatility window of the trailing stop"),
-            Param(
-                "measure",
-                "choice",
-                "volatility measure of the trailing stop",
-                "atr",
-                choices=("atr", "deviation"),
-            ),
+            _period(PERIOD, "bars in the volatility window of the trailing stop"),
+            _MEASURE,
             Param(
                 "exit_date", "date", "exit date from the trade log (blank = no recorded exit)", ""
             ),
@@ -764,21 +683,16 @@ FUNCTIONS: tuple[Function, ...] = (
                 0.0,
                 0,
             ),
-            Param(
-                "tick",
-                "number",
-                "price increment; the trailing stop is rounded away from entry to it (0 = none)",
-                0.0,
-                0,
-            ),
+            bounded("tick", _TICK.format("trailing stop", "away from entry"), 0.0, bounds.TICK),
         ),
         "sheetvol.functions.worksheet:trade_outcome",
         'result: "stop", "target", "trail", "closed", "open" or "ambiguous"; exit_date: a date; '
-        "r, bars, adverse, favourable: numbers",
+        "r, bars, adverse, favourable: numbers; trail: the trailing stop in force at the end "
+        "of the review (at the exit)",
         shape="scalar",
         unit="number",
         select="field",
-        outputs=("result", "exit_price", "exit_date", "r", "bars", "adverse", "favourable"),
+        outputs=OUTCOME_FIELDS,
         example="=SV_OUTCOME(A2:A400, B2:B400, C2:C400, D2:D400, E2:E400, DATE(2025,3,14), "
         '105.2, "long", 101.6, 110.6, "r")',
         notes='A bar that reaches both stop and target is "ambiguous" unless it opens beyond '
