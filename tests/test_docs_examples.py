@@ -133,8 +133,9 @@ def kind(block: Block) -> str:
         return "output"
     if lines and all(re.fullmatch(r"SV_\w+\(.*\)", x.strip()) for x in lines):
         return "signature"  # how a function is called, in the generated reference
-    if lines == ["sheetvol"]:
-        return "requirement"  # a line of a requirements file
+    if lines and all(re.fullmatch(r"[A-Za-z0-9_.\-]+(==[\w.]+)?|https://\S+\.whl", x.strip())
+                     for x in lines):
+        return "requirement"  # lines of a requirements file
     if lines and all(x.strip().startswith(COMMAND_WORDS) for x in lines):
         return "shell"
     return "unknown"
@@ -286,7 +287,21 @@ def test_signatures_are_the_registry_s(block):
 
 @pytest.mark.parametrize("block", _of("requirement"), ids=lambda b: b.id)
 def test_requirement_lines_name_the_distribution(block):
-    assert block.text.strip() == PYPROJECT["project"]["name"]
+    # A requirements line names this project (or its wheel, by name and version) or a
+    # library pinned to the version the tests ran with.
+    import importlib.metadata
+
+    name = PYPROJECT["project"]["name"]
+    version = importlib.metadata.version(name)
+    for line in block.text.strip().splitlines():
+        line = line.strip()
+        if line.startswith("https://"):
+            assert line.endswith(f"/{name}-{version}-py3-none-any.whl"), line
+        elif "==" in line:
+            dist, pinned = line.split("==")
+            assert pinned == importlib.metadata.version(dist), line
+        else:
+            assert line == name, line
 
 
 # -- Python --------------------------------------------------------------------------------

@@ -532,7 +532,7 @@ FUNCTIONS: tuple[Function, ...] = (
         f"{_K}.regime:percentile_rank",
         "percentile rank as a fraction (format as %)",
         unit="percent",
-        example="=SV_VOLRANK(H2:H900, 252)",
+        example="=SV_VOLRANK(SV_DEVIATION(E2:E900, 20), 252)",
     ),
     Function(
         "SV_DEVATR",
