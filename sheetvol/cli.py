@@ -22,7 +22,7 @@ from sheetvol.fill.job import USER_ERRORS, FillOptions, fill_file, output_path
 from sheetvol.fill.recipe import (
     TRADE_KEYS,
     RecipeError,
-    TradeRecipe,
+    TradeSettings,
     check_trade_number,
     default_specs,
     read_recipe,
@@ -65,9 +65,10 @@ Exit date, Quantity, Equity) is reviewed against the bars of each instrument
 (a sheet named like the instrument, or one long sheet with an Instrument
 column). To the right of the log go: volatility on the entry bar, stop and
 target at a multiple of it, the size that risks a share of equity (rounded
-down to the lot step; point value, lot step, min/max quantity, FX rate and
-tick (levels are rounded to it) from a sheet headed Instrument + Point
-value), the trailing stop, the
+down to the lot step; point value (or multiplier, contract size, tick value),
+tick size (levels are rounded to it), lot step, min/max quantity and FX rate
+from a contract sheet keyed by instrument; a point value not given is 1 and
+said so on the row), the trailing stop, the
 reviewed exit, R, bars held and the largest moves against and for the
 trade, with the outcome, size note and review note in words (blank where
 nothing applies; a re-run replaces them). A "Trade review" sheet holds the
@@ -110,7 +111,7 @@ recipe file (TOML), for any registry function (see `sheetvol functions`):
 
   [trades]                        # the trade-log review (every key optional)
   sheet = "Trades"                # default: the sheet headed Date/Instrument/Side
-  instruments = "Instruments"     # default: the sheet headed Instrument/Point value
+  instruments = "Instruments"     # default: the first sheet of contract details
   measure = "atr"                 # or "deviation", or e.g. "SV_ATR"
   options = { period = 20 }
   stop_multiple = 2
@@ -236,7 +237,9 @@ def build_parser() -> argparse.ArgumentParser:
                        help="trailing stop K units from the best price since entry "
                             "(default 3; 0 = off)")
     trade.add_argument("--equity", type=float, metavar="AMOUNT",
-                       help="account equity where the log has no Equity column")
+                       help="account equity where the log has no Equity cell (default: "
+                            "the workbook's Equity name or Settings sheet; none: sizes "
+                            "blank)")
 
     read = fill.add_argument_group("reading")
     read.add_argument("--decimal-comma", action="store_true",
@@ -343,7 +346,7 @@ def _run_fill(args: argparse.Namespace, parser: argparse.ArgumentParser) -> int:
     if args.header_row is not None and args.header_row < 1:
         parser.error("--header-row must be 1 or more")
     specs = None
-    trades = TradeRecipe()
+    trades = TradeSettings()
     if args.recipe is not None:
         try:
             recipe = read_recipe(args.recipe)

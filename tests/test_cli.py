@@ -38,7 +38,7 @@ def test_fill_help_is_complete(capsys):
         assert flag in out, flag
     assert "examples:" in out and "sheetvol fill prices.xlsx" in out
     assert "[[column]]" in out and "{ period = 20" in out
-    assert DEV in out and "SV_CLOSEVOL period=20, per_year=252" in out
+    assert DEV in out and "SV_CLOSEVOL period=20, per_year=from the dates" in out
 
 
 def test_functions_lists_every_registry_function(capsys):

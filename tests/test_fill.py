@@ -59,12 +59,12 @@ def test_bands_and_percent_b_match_talib_bbands(filled):
     df, rows, report = filled
     close = df["Close"].to_numpy(float)
     upper, _middle, lower = talib.BBANDS(close, timeperiod=20, nbdevup=2, nbdevdn=2, matype=0)
-    np.testing.assert_allclose(_on_rows(report, "Upper band 20×2", df, rows), upper,
+    np.testing.assert_allclose(_on_rows(report, "Upper band 20x2", df, rows), upper,
                                rtol=1e-9, equal_nan=True)
-    np.testing.assert_allclose(_on_rows(report, "Lower band 20×2", df, rows), lower,
+    np.testing.assert_allclose(_on_rows(report, "Lower band 20x2", df, rows), lower,
                                rtol=1e-9, equal_nan=True)
     pctb = (close - lower) / (upper - lower)
-    np.testing.assert_allclose(_on_rows(report, "%b 20×2", df, rows), pctb, rtol=1e-8,
+    np.testing.assert_allclose(_on_rows(report, "%b 20x2", df, rows), pctb, rtol=1e-8,
                                atol=1e-10, equal_nan=True)
 
 
@@ -81,13 +81,13 @@ def test_formats_headers_and_notes(filled):
     wb = load_workbook(report.output)
     ws = wb["Prices"]
     headers = {c.value: c for c in ws[3] if c.value}
-    assert list(headers)[-6:] == [DEV, "ATR 14 (Wilder)", "Upper band 20×2",
-                                  "Lower band 20×2", "%b 20×2", "Close vol 20 (ann.)"]
+    assert list(headers)[-6:] == [DEV, "ATR 14 (Wilder)", "Upper band 20x2",
+                                  "Lower band 20x2", "%b 20x2", "Close vol 20 (ann.)"]
     last = rows[df["Date"].iloc[-1]]
     # price units as quoted (2 decimals here) with thousands separators; shares in percent
     assert ws.cell(last, headers[DEV].column).number_format == "#,##0.00"
-    assert ws.cell(last, headers["Upper band 20×2"].column).number_format == "#,##0.00"
-    assert ws.cell(last, headers["%b 20×2"].column).number_format == "0.000"
+    assert ws.cell(last, headers["Upper band 20x2"].column).number_format == "#,##0.00"
+    assert ws.cell(last, headers["%b 20x2"].column).number_format == "0.000"
     assert ws.cell(last, headers["Close vol 20 (ann.)"].column).number_format == "0.00%"
     lines = list(wb[NOTES_SHEET].iter_rows(values_only=True))
     notes = {r[0]: r[1] for r in lines if r[0]}
@@ -436,9 +436,9 @@ def test_price_columns_follow_the_quote_with_thousands_separators(tmp_path, star
     report = fill_file(src)
     ws = load_workbook(report.output)["Prices"]
     formats = {ws.cell(1, c).value: ws.cell(30, c).number_format for c in range(7, 13)}
-    for header in (DEV, "ATR 14 (Wilder)", "Upper band 20×2", "Lower band 20×2"):
+    for header in (DEV, "ATR 14 (Wilder)", "Upper band 20x2", "Lower band 20x2"):
         assert formats[header] == fmt
-    assert formats["%b 20×2"] == "0.000" and formats["Close vol 20 (ann.)"] == "0.00%"
+    assert formats["%b 20x2"] == "0.000" and formats["Close vol 20 (ann.)"] == "0.00%"
 
 
 def test_notes_keep_numbers_and_list_each_caution_once(tmp_path):

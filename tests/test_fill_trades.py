@@ -31,7 +31,7 @@ from sheetvol.fill import review as trades_module
 from sheetvol.fill import trade_log as trade_fill
 from sheetvol.fill.job import FillOptions, fill_file
 from sheetvol.fill.notes import NOTES_SHEET
-from sheetvol.fill.recipe import RecipeError, TradeRecipe, parse_trades, read_recipe
+from sheetvol.fill.recipe import RecipeError, parse_trades, read_recipe
 from sheetvol.fill.review import TradeSettings, instruments_from_frame, review_log
 from sheetvol.fill.trade_log import REVIEW_SHEET, TradeLogError, scaled_format
 
@@ -41,17 +41,16 @@ INSTRUMENTS = ("KESTREL", "BRAMBLE", "ORRIN", "TALLOW")
 # Output column of review_log -> header the fill writes with the default settings.
 HEADERS = {
     "Volatility": "Entry-bar ATR 14 (Wilder)", "Bar date": "Entry-bar date",
-    "Stop": "Stop 2×vol", "Target": "Target 3×vol", "Target R": "Target in R",
-    "Size": "Size at 1% risk", "Size note": "Size note", "Trail": "Trail 3×vol",
+    "Stop": "Stop 2x vol", "Target": "Target 3x vol", "Target R": "Target in R",
+    "Size": "Size at 1% risk", "Size note": "Size note", "Trail": "Trail 3x vol",
     "Result": "Reviewed outcome", "Exit price": "Reviewed exit",
     "Exit date": "Reviewed exit date", "R": "R multiple", "Bars": "Bars held",
     "Adverse": "Worst move", "Favourable": "Best move", "Adverse R": "Worst move in R",
     "Favourable R": "Best move in R", "Open risk": "Open risk", "Note": "Review note",
 }
-# review_log's Result -> the words the fill writes in the log (spelled out here, not imported)
-WORDS = {"stop": "stop hit", "target": "target hit", "trail": "trailing stop hit",
-         "closed": "closed at the logged exit", "open": "still open",
-         "ambiguous": "ambiguous: stop and target on one bar", "": "not reviewed (see note)"}
+# review_log's Result -> the words the fill writes in the log, SV_OUTCOME's (spelled out here)
+WORDS = {"stop": "stop", "target": "target", "trail": "trail", "closed": "closed",
+         "open": "open", "ambiguous": "ambiguous", "": "not reviewed"}
 ENTRY_HEADERS = [HEADERS[k] for k in ("Volatility", "Bar date", "Stop", "Target", "Target R",
                                       "Size")]
 
@@ -101,7 +100,7 @@ def test_demo_fill_fills_every_price_sheet_and_the_log(demo_filled, demo_direct)
     wb = load_workbook(report.output)
     for name in INSTRUMENTS:
         cols = columns_by_header(wb[name])
-        assert "ATR 14 (Wilder)" in cols and "%b 20×2" in cols
+        assert "ATR 14 (Wilder)" in cols and "%b 20x2" in cols
         assert sum(v is not None for v in cols["ATR 14 (Wilder)"]) == 523 - 13
     book, direct = demo_direct
     got = columns_by_header(wb["Trades"])
@@ -132,7 +131,7 @@ def test_demo_number_formats(demo_filled):
     assert fmt["Entry-bar date"] == fmt["Reviewed exit date"] == "yyyy-mm-dd"
     assert fmt["R multiple"] == fmt["Target in R"] == "0.00"
     # KESTREL (about 1.1) is quoted to 5 decimals, the others (90 and up) to 2
-    assert fmt["Stop 2×vol"] == "[<10]#,##0.00000;[>=10]#,##0.00"
+    assert fmt["Stop 2x vol"] == "[<10]#,##0.00000;[>=10]#,##0.00"
     assert fmt["Bars held"] == "0"
 
 
@@ -211,7 +210,8 @@ def test_result_column_and_review_sheet_counts(demo_filled, demo_direct):
     summary, counts = review_sheet_blocks(wb[REVIEW_SHEET])
     assert counts == {w: Counter(outcome)[w] for w in WORDS.values()}
     results = Counter(direct["Result"])
-    assert summary["Trades"] == (20, "0")
+    assert summary["Trades reviewed (log rows with an outcome)"] == (20, "0")
+    assert summary["Trades in the log"] == (20, "0")
     assert sum(counts.values()) == 20
     # shares are fractions: stop share x trades = stop count; a % format shows them
     for key, label in (("stop", "Stop hit (share)"), ("target", "Target hit (share)"),
@@ -225,7 +225,7 @@ def test_result_column_and_review_sheet_counts(demo_filled, demo_direct):
     assert summary[label] == (pytest.approx(sum(finished) / len(finished)), "0.00")
     assert "Average R" not in summary  # the same figure once, not twice
     assert summary["Open risk (account currency)"][1] == "#,##0.00"
-    assert summary["Open risk (share of equity)"][1] == "0.0%"
+    assert summary["Open risk (share of equity)"][1] == "0.00%"
 
 
 def test_notes_and_review_sheet_record_settings_and_cautions(demo_filled):
@@ -234,7 +234,7 @@ def test_notes_and_review_sheet_record_settings_and_cautions(demo_filled):
     notes = [r for r in wb[NOTES_SHEET].iter_rows(values_only=True)]
     text = " ".join(str(v) for r in notes for v in r if v is not None)
     assert "Stop multiple" in text and "Risk per trade" in text and "1% of equity" in text
-    assert any(r[0] == "Trades" and r[2] == "Stop 2×vol" and r[3] == "trade review"
+    assert any(r[0] == "Trades" and r[2] == "Stop 2x vol" and r[3] == "trade review"
                for r in notes)
     review = " ".join(str(r[0]) for r in wb[REVIEW_SHEET].iter_rows(values_only=True) if r[0])
     assert "gap" in review and "margin rules" in review and "Not advice" in review
@@ -263,10 +263,10 @@ def test_turtle_sizing_example_through_the_fill(tmp_path):
     10,000 / (0.0141 x 42,000) = 16.88 -> 16 contracts (truncated, not rounded)."""
     src = tmp_path / "turtle.xlsx"
     _turtle_book(src)
-    report = fill_file(src, FillOptions(trades=TradeRecipe(stop_multiple=1)))
+    report = fill_file(src, FillOptions(trades=TradeSettings(stop_multiple=1)))
     got = columns_by_header(load_workbook(report.output)["Log"])
     assert got["Entry-bar ATR 14 (Wilder)"][0] == pytest.approx(0.0141, rel=1e-9)
-    assert got["Stop 1×vol"][0] == pytest.approx(1.0 - 0.0141, rel=1e-9)
+    assert got["Stop 1x vol"][0] == pytest.approx(1.0 - 0.0141, rel=1e-9)
     assert got["Size at 1% risk"][0] == 16
     assert report.trades is not None and report.trades.instruments_sheet == "Contracts"
 
@@ -303,10 +303,10 @@ def test_rerun_replaces_and_new_settings_take_the_same_columns(tmp_path, demo_fi
     after = columns_by_header(load_workbook(again.output)["Trades"])
     assert list(after) == list(before) and after == before
     tighter = fill_file(report.output, FillOptions(
-        output=tmp_path / "tighter.xlsx", trades=TradeRecipe(stop_multiple=1.5)))
+        output=tmp_path / "tighter.xlsx", trades=TradeSettings(stop_multiple=1.5)))
     ws = load_workbook(tighter.output)["Trades"]
     heads = [c.value for c in ws[1]]
-    assert heads[10] == "Stop 1.5×vol" and "Stop 2×vol" not in heads
+    assert heads[10] == "Stop 1.5x vol" and "Stop 2x vol" not in heads
     assert len(heads) == len(before)
 
 
@@ -317,7 +317,7 @@ def test_no_trades_and_trades_sheet_options(tmp_path):
     assert report.trades is None
     assert REVIEW_SHEET not in load_workbook(report.output).sheetnames
     with pytest.raises(TradeLogError, match='sheet "About": no header row with the trade-log'):
-        fill_file(src, FillOptions(trades=TradeRecipe(sheet="About")))
+        fill_file(src, FillOptions(trades=TradeSettings(sheet="About")))
 
 
 def test_a_log_header_named_in_the_recipe_but_absent_is_named_as_such(tmp_path):
@@ -326,14 +326,14 @@ def test_a_log_header_named_in_the_recipe_but_absent_is_named_as_such(tmp_path):
     src = tmp_path / "desk.xlsx"
     shutil.copy(DEMO, src)
     with pytest.raises(TradeLogError) as err:
-        fill_file(src, FillOptions(trades=TradeRecipe(sheet="Trades", columns={"side": "B/S"})))
+        fill_file(src, FillOptions(trades=TradeSettings(sheet="Trades", columns={"side": "B/S"})))
     text = str(err.value)
     assert '[trades] columns: side = "B/S": no column headed "B/S" in row 1' in text
     assert "C 'Side'" in text
     assert "missing side" not in text and 'e.g. columns = { side = "B/S" }' not in text
     # Without a sheet named the same recipe is refused too, not silently unreviewed.
     with pytest.raises(TradeLogError, match='side = "B/S": no column headed "B/S"'):
-        fill_file(src, FillOptions(trades=TradeRecipe(columns={"side": "B/S"})))
+        fill_file(src, FillOptions(trades=TradeSettings(columns={"side": "B/S"})))
 
 
 def test_one_long_price_sheet_with_an_instrument_column(tmp_path):
@@ -367,15 +367,17 @@ def test_one_long_price_sheet_with_an_instrument_column(tmp_path):
                                  "Side": ["long", "short", "long"],
                                  "Equity": [50_000.0, 50_000.0, 10.0]})
     direct = review_log(trades_frame, frames, TradeSettings())
-    assert got["Stop 2×vol"][:2] == direct["Stop"].tolist()[:2]
+    assert got["Stop 2x vol"][:2] == direct["Stop"].tolist()[:2]
     assert got["Size at 1% risk"][:3] == direct["Size"].tolist()
     # the notes are text beside the numbers: no entry price logged, a size of zero
     assert got["Review note"][:3] == direct["Note"].tolist()
     assert "entry bar's close" in got["Review note"][0]
-    assert got["Size note"][:3] == [None, None, direct["Size note"][2]]
+    # no contract sheet: every size says its point value of 1 was assumed
+    assumed = "point value not given: 1 assumed"
+    assert got["Size note"][:3] == [assumed, assumed, direct["Size note"][2]]
     assert got["Size at 1% risk"][2] == 0
     assert got["Size note"][2].startswith("risk budget buys 0.0")  # units, not lots
-    assert got["Size note"][2].endswith("units, less than one lot of 1")
+    assert got["Size note"][2].endswith(f"units, less than one lot of 1; {assumed}")
 
 
 def test_recipe_trades_table_errors_name_the_key(tmp_path):
@@ -414,7 +416,7 @@ def test_cli_recipe_flags_summary_and_caution(tmp_path, capsys):
     assert "outcomes:" in out and "20 trades" in out
     assert "stops do not guarantee exit prices" in out
     heads = [c.value for c in load_workbook(tmp_path / "demo-filled.xlsx")["Trades"][1]]
-    assert {"Stop 1.5×vol", "Target 4×vol", "Size at 0.5% risk"} <= set(heads)
+    assert {"Stop 1.5x vol", "Target 4x vol", "Size at 0.5% risk"} <= set(heads)
     assert main(["fill", str(src), "--risk", "2"]) == 2
     assert "--risk 2: risk is a share of equity: 0.01 = 1%" in capsys.readouterr().err
     assert main(["fill", str(src), "--risk", "0.3"]) == 2
@@ -472,8 +474,8 @@ def test_levels_on_the_tick_recorded_and_placeable(demo_filled):
     wb = load_workbook(report.output)
     got = columns_by_header(wb["Trades"])
     ticks = {r[0]: r[8] for r in wb["Instruments"].iter_rows(min_row=2, values_only=True)}
-    for name, stop, target in zip(got["Instrument"][:20], got["Stop 2×vol"][:20],
-                                  got["Target 3×vol"][:20], strict=True):
+    for name, stop, target in zip(got["Instrument"][:20], got["Stop 2x vol"][:20],
+                                  got["Target 3x vol"][:20], strict=True):
         tick = Decimal(str(ticks[name]))
         for level in (stop, target):
             assert Decimal(repr(level)) % tick == 0, (name, level, tick)
@@ -491,7 +493,7 @@ def test_large_risk_is_accepted_with_a_warning(tmp_path, capsys):
         parse_trades({"risk": 0.3})
     src = tmp_path / "demo.xlsx"
     shutil.copy(DEMO, src)
-    report = fill_file(src, FillOptions(trades=TradeRecipe(risk=0.06)))
+    report = fill_file(src, FillOptions(trades=TradeSettings(risk=0.06)))
     assert report.trades is not None
     assert report.trades.warnings == [
         "risk per trade is 6% of equity, above 5%: risk is a share of equity (0.01 = 1%); "
@@ -499,7 +501,7 @@ def test_large_risk_is_accepted_with_a_warning(tmp_path, capsys):
     assert any(line == f"    warning: {report.trades.warnings[0]}" for line in report.summary())
     rows = list(load_workbook(report.output)[REVIEW_SHEET].iter_rows(values_only=True))
     assert ("Warning", report.trades.warnings[0]) in [r[:2] for r in rows]
-    quiet = fill_file(src, FillOptions(output=tmp_path / "q.xlsx", trades=TradeRecipe(risk=0.05)))
+    quiet = fill_file(src, FillOptions(output=tmp_path / "q.xlsx", trades=TradeSettings(risk=0.05)))
     assert quiet.trades is not None and quiet.trades.warnings == []
 
 
@@ -554,7 +556,7 @@ def test_log_without_instrument_column_uses_the_only_price_sheet(tmp_path):
                for line in report.summary())
     got = columns_by_header(load_workbook(report.output)["Trades"])
     # Hand-worked: stop 10 - 2 x 2 = 6; size 10,000 x 1% / 4 = 25.
-    assert got["Stop 2×vol"][0] == 6.0 and got["Size at 1% risk"][0] == 25
+    assert got["Stop 2x vol"][0] == 6.0 and got["Size at 1% risk"][0] == 25
     notes = " ".join(str(v) for r in load_workbook(report.output)[NOTES_SHEET].iter_rows(
         values_only=True) for v in r if v)
     assert 'the log has no instrument column: every trade is on "Prices"' in notes
@@ -564,7 +566,7 @@ def test_log_without_instrument_column_uses_the_only_price_sheet(tmp_path):
     _one_instrument_book(two, ("ALDER", "BIRCH"))
     assert fill_file(two, FillOptions(output=tmp_path / "t.xlsx")).trades is None
     with pytest.raises(TradeLogError) as err:
-        fill_file(two, FillOptions(trades=TradeRecipe(sheet="Trades")))
+        fill_file(two, FillOptions(trades=TradeSettings(sheet="Trades")))
     text = str(err.value)
     assert "found date (A), side (B), entry (C), equity (D)" in text
     assert "missing instrument (instrument/symbol/market)" in text

@@ -49,7 +49,7 @@ def test_usual_spellings(text, role):
 
 
 @pytest.mark.parametrize(
-    "text", ["Close vol 20 (ann.)", "Std dev 14 (simple, close)", "Upper band 20×2",
+    "text", ["Close vol 20 (ann.)", "Std dev 14 (simple, close)", "Upper band 20x2",
              "Closed", "Notes", "Change %", ""],
 )
 def test_our_headers_and_other_words_are_not_prices(text):

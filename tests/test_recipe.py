@@ -23,9 +23,9 @@ def test_default_set_is_the_documented_one():
     assert got == [
         ("SV_DEVIATION", "Std dev 14 (simple, close)"),
         ("SV_ATR", "ATR 14 (Wilder)"),
-        ("SV_BAND", "Upper band 20×2"),
-        ("SV_BAND", "Lower band 20×2"),
-        ("SV_PCTB", "%b 20×2"),
+        ("SV_BAND", "Upper band 20x2"),
+        ("SV_BAND", "Lower band 20x2"),
+        ("SV_PCTB", "%b 20x2"),
         ("SV_CLOSEVOL", "Close vol 20 (ann.)"),
     ]
     assert len(DEFAULT_RECIPE) == 6
@@ -131,15 +131,19 @@ def test_a_spec_computes_like_its_reference():
     np.testing.assert_allclose(got[4:], ref[4:], rtol=1e-12)
 
 
-def test_trade_recipe_defaults_are_the_review_defaults():
-    # Two dataclasses carry the trade defaults (importing one from the other would be
-    # circular); both take them from the core (sheetvol.core.levels,
-    # sizing and review), and this keeps it that way.
-    from sheetvol.fill.recipe import TradeRecipe
-    from sheetvol.fill.review import TradeSettings
+def test_one_trade_settings_class_for_the_recipe_and_the_review():
+    # The [trades] table, the flags and the review share one class, whose defaults come
+    # from the core (sheetvol.core.levels, sizing and review: stated once there).
+    from sheetvol.core import levels, review, sizing
+    from sheetvol.fill import recipe as recipe_module
+    from sheetvol.fill import review as review_module
 
-    recipe, settings = TradeRecipe(), TradeSettings()
-    for name in ("measure", "stop_multiple", "target_multiple", "trail_multiple", "risk"):
-        assert getattr(recipe, name) == getattr(settings, name), name
-    assert dict(recipe.options) == dict(settings.options)
-    assert math.isnan(recipe.equity) and math.isnan(settings.equity)
+    assert recipe_module.TradeSettings is review_module.TradeSettings
+    parsed = recipe_module.parse_trades({"instruments": "Contracts", "risk": 0.02})
+    assert isinstance(parsed, review_module.TradeSettings)
+    assert parsed.contract_sheet == "Contracts" and parsed.risk == 0.02
+    plain = review_module.TradeSettings()
+    assert (plain.measure, plain.stop_multiple, plain.target_multiple, plain.trail_multiple,
+            plain.risk) == (review.MEASURE, levels.STOP_MULTIPLE, levels.TARGET_MULTIPLE,
+                            levels.TRAIL_MULTIPLE, sizing.RISK_SHARE)
+    assert dict(plain.options) == {"period": review.PERIOD} and math.isnan(plain.equity)

@@ -353,13 +353,14 @@ def test_a_size_input_out_of_range_is_that_rows_size_note():
     # stop 10 - 4 = 6, 1% of 10,000 over a loss of 4 per unit = 25 units).
     import pandas as pd
 
-    from sheetvol.fill.review import TradeSettings, review_log
+    from sheetvol.fill.review import Instrument, TradeSettings, review_log
 
     days = pd.date_range("2025-01-06", periods=5)
     bars = pd.DataFrame({"High": [11.0] * 5, "Low": [9.0] * 5, "Close": [10.0] * 5}, index=days)
     log = pd.DataFrame({"Date": [days[3]] * 2, "Instrument": ["KESTREL"] * 2,
                         "Side": ["long"] * 2, "Entry": [10.0] * 2, "Equity": [-5.0, 10_000.0]})
-    got = review_log(log, {"KESTREL": bars}, TradeSettings(options={"period": 3}))
+    got = review_log(log, {"KESTREL": bars}, TradeSettings(
+        options={"period": 3}, instruments={"KESTREL": Instrument(point_value=1.0)}))
     assert math.isnan(got["Size"][0])
     assert got["Size note"][0] == "size not computed: equity must be a number above 0, got -5"
     assert got["Size"][1] == 25.0

@@ -106,7 +106,7 @@ def test_hand_worked_log():
 
     s = summarise(out, _hand_log(), HAND_SETTINGS)
     # Finished R: 1.5, -1, -1.25 -> total -0.75, average -0.25, 1 win of 3, 2 losses in a row.
-    assert s["Trades"] == 4 and s["Finished trades"] == 3
+    assert s["Trades reviewed (log rows with an outcome)"] == 4 and s["Finished trades"] == 3
     assert s["Total R"] == pytest.approx(-0.75)
     assert s["Expectancy (average R per finished trade)"] == pytest.approx(-0.25)
     assert "Average R" not in s.index  # one row for the average R, not two
@@ -278,10 +278,12 @@ def test_no_look_ahead_in_entry_figures():
 
 
 def test_instruments_table_and_size_note_in_the_log():
-    table = pd.DataFrame({"instrument": ["ALDER", None], "Lot step": [10, None],
-                          "Max qty": [20, None], "FX_rate": [" 1.0 ", None]})
+    table = pd.DataFrame({"instrument": ["ALDER", None], "Point value": [1, None],
+                          "Lot step": [10, None], "Max qty": [20, None],
+                          "FX_rate": [" 1.0 ", None]})
     inst = instruments_from_frame(table)
-    assert inst == {"ALDER": Instrument(lot_step=10.0, max_qty=20.0, fx_rate=1.0)}
+    assert inst == {"ALDER": Instrument(point_value=1.0, lot_step=10.0, max_qty=20.0,
+                                        fx_rate=1.0)}
     # The tick, under either header; blank is 0 (no rounding).
     ticks = instruments_from_frame(pd.DataFrame({"Instrument": ["A", "B", "C"],
                                                  "Tick size": [0.25, None, "0.01"]}))
@@ -295,7 +297,9 @@ def test_instruments_table_and_size_note_in_the_log():
     out = review_log(_hand_log().iloc[:1], _hand_prices(), TradeSettings(
         options={"period": 3}, instruments={"ALDER": Instrument(lot_step=1, max_qty=20)}))
     assert out["Size"].iloc[0] == 20.0
-    assert out["Size note"].iloc[0] == "size 25 capped at the maximum 20"
+    # no point value given: 1 is used, and the note says so
+    assert out["Size note"].iloc[0] == ("size 25 capped at the maximum 20; point value not "
+                                        "given: 1 assumed")
 
 
 # -- the demo desk ------------------------------------------------------------------------------
@@ -340,7 +344,7 @@ def test_demo_reviews_end_to_end(demo):
     assert set(out["Result"]) <= set(RESULTS)
     assert out[["Volatility", "Stop", "Target", "Size"]].notna().all().all()
     summary = summarise(out, demo["Trades"], settings)
-    assert summary["Trades"] == 20
+    assert summary["Trades reviewed (log rows with an outcome)"] == 20
 
 
 def test_committed_demo_matches_the_generator(tmp_path):

@@ -86,7 +86,8 @@ def raw_workbook(path: Path) -> None:
         "  (the _LAST form: the value on the last row of the ranges, e.g. $C$2:C30),",
         "  starting on the first row that has a value (earlier rows are the warm-up).",
         "Trades: a trade log; volatility on each trade's date (SV_ATR_ON), stop, target,",
-        "  size (from Settings) and the outcome read from the bars after entry.",
+        "  size (from Settings) and the outcome read from the bars after entry, with the",
+        "  trailing stop of Settings: the same words and figures as `sheetvol fill` writes.",
         "",
         "The results were computed and stored by sheetvol's headless evaluator, so the",
         "numbers show without the add-in. With the add-in installed (docs/addin.md) the",
@@ -113,7 +114,7 @@ def raw_workbook(path: Path) -> None:
     }
     ws = wb.create_sheet("Prices")
     ws.append(["Date", "Open", "High", "Low", "Close", "Volume", None,
-               "ATR 14", "Upper band 20/2", "Lower band 20/2", "Volatility 20 (ann.)"])
+               "ATR 14", "Upper band 20x2", "Lower band 20x2", "Volatility 20 (ann.)"])
     for c in ws[1]:
         c.font = bold
     for i, d in enumerate(days):
@@ -142,6 +143,7 @@ def raw_workbook(path: Path) -> None:
         ("Risk per trade", 0.01, "0.0%"),
         ("Stop distance (ATR multiples)", 2, "0.0"),
         ("Target distance (ATR multiples)", 3, "0.0"),
+        ("Trailing stop (ATR multiples)", 3, "0.0"),
     ], start=1):
         st.cell(row=r, column=1, value=label)
         st.cell(row=r, column=2, value=value).number_format = fmt
@@ -164,9 +166,11 @@ def raw_workbook(path: Path) -> None:
         tr.cell(row=r, column=5, value=f"=SV_STOP(C{r}, D{r}, Settings!$B$3, B{r})")
         tr.cell(row=r, column=6, value=f"=SV_TARGET(C{r}, D{r}, Settings!$B$4, B{r})")
         tr.cell(row=r, column=7, value=f"=SV_SIZE(Settings!$B$1, Settings!$B$2, C{r}, E{r})")
+        trail = 'Settings!$B$5, 14, "atr"'  # the trailing stop the fill's review uses too
         tr.cell(row=r, column=8, value=(
-            f'=SV_OUTCOME({bars_}, A{r}, C{r}, B{r}, E{r}, F{r}, "result")'))
-        tr.cell(row=r, column=9, value=f'=SV_OUTCOME({bars_}, A{r}, C{r}, B{r}, E{r}, F{r}, "r")')
+            f'=SV_OUTCOME({bars_}, A{r}, C{r}, B{r}, E{r}, F{r}, "result", {trail})'))
+        tr.cell(row=r, column=9, value=(
+            f'=SV_OUTCOME({bars_}, A{r}, C{r}, B{r}, E{r}, F{r}, "r", {trail})'))
         for c in (5, 6):
             tr.cell(row=r, column=c).number_format = "0.000"
         tr.cell(row=r, column=9).number_format = "0.00"

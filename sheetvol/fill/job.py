@@ -13,6 +13,7 @@ is only ever read; the output is written atomically by the writer.
 from __future__ import annotations
 
 import csv
+import dataclasses
 import datetime as dt
 import hashlib
 import io
@@ -60,12 +61,20 @@ from sheetvol.fill.price_table import (
     price_decimals,
     suspect_separator,
 )
-from sheetvol.fill.recipe import ColumnSpec, RecipeError, TradeRecipe, default_specs
+from sheetvol.fill.recipe import (
+    ColumnSpec,
+    RecipeError,
+    TradeSettings,
+    default_header,
+    default_specs,
+)
 from sheetvol.fill.review import LOG_COLUMNS
+from sheetvol.fill.spacing import TRADING_DAYS, bars_per_year
 from sheetvol.fill.table import ComputeError, compute_columns, needed_roles
 from sheetvol.fill.trade_log import (
     REVIEW_SHEET,
     TRADE_CAUTION_LINE,
+    Contracts,
     TradeLog,
     TradeLogError,
     TradeReport,
@@ -142,7 +151,7 @@ class FillOptions:
     formulas: str = "values"
     chart: bool = False
     progress: bool = False
-    trades: TradeRecipe | None = None
+    trades: TradeSettings | None = None
     review_trades: bool = True
 
 
@@ -691,6 +700,13 @@ def _choose_sheets(pkg: Package, src: Path, options: FillOptions,
             hit, why = locate(pkg.sheet(name).name)
             if why == NO_DATE and options.columns.get("close"):
                 why = None  # sheet and Close column both named: bars in row order (warned)
+            named = options.columns.get("close")
+            if why and named and why != NO_DATE:
+                # the user chose the Close column: say that this column is the problem
+                raise FillError(
+                    f"{_where(src, hit[0])}: the Close column chosen with --close-col {named} "
+                    f"has no numbers in the {QUALIFY_ROWS} rows below the header row "
+                    f"{hit[1].row}; choose the column that holds the close prices")
             if why:
                 raise FillError(
                     f"{_where(src, hit[0])}: not a price sheet ({why}; {PRICE_SHEET_RULE}); "
@@ -769,6 +785,17 @@ def _look_alikes(match: HeaderMatch, own: Mapping[int, str],
             if isinstance(t, str) and t in ours and c not in own and c not in used}
 
 
+def _plain_times(header: str) -> str:
+    """An earlier fill's header in today's spelling: ``20×2`` -> ``20x2``.
+
+    Examples
+    --------
+    >>> _plain_times("Upper band 20×2"), _plain_times("Lower ATR band 20, 2×ATR 10")
+    ('Upper band 20x2', 'Lower ATR band 20, 2x ATR 10')
+    """
+    return re.sub(r"(\d)×(?=\d)", r"\1x", header).replace("×ATR", "x ATR")
+
+
 def _recorded(pkg: Package) -> dict[str, dict[str, str]]:
     """An earlier fill's record of its columns (sheet name casefolded)."""
     names = {s.name.casefold(): s.name for s in pkg.sheets}
@@ -828,15 +855,15 @@ def _select_specs(options: FillOptions, match: HeaderMatch, where: str,
 
 
 def _find_log(pkg: Package, src: Path, options: FillOptions
-              ) -> tuple[TradeLog | None, tuple[str, dict]]:
+              ) -> tuple[TradeLog | None, Contracts]:
     """The trade log and instrument details, when the fill reviews trades."""
-    recipe = options.trades or TradeRecipe()
+    recipe = options.trades or TradeSettings()
     if not (options.review_trades and recipe.enabled):
-        return None, ("", {})
+        return None, Contracts()
     own = [s.name for s in pkg.sheets if s.name.casefold() in OWN_SHEETS]
     log = find_trade_log(pkg, recipe, skip=own, where=src.name)
     if log is None:
-        return None, ("", {})
+        return None, Contracts()
     return log, find_instruments(pkg, recipe, skip=[*own, log.sheet], where=src.name)
 
 
@@ -845,7 +872,7 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport,
     """Every edit of the fill, computed before anything is written."""
     progress = progress or _Progress()
     log, instruments = _find_log(pkg, src, options)
-    exclude = frozenset(n.casefold() for n in (log.sheet if log else "", instruments[0]) if n)
+    exclude = frozenset(n.casefold() for n in (log.sheet if log else "", instruments.sheet) if n)
     chosen = _choose_sheets(pkg, src, options, exclude, report.skipped)
     progress.sheets([name for name, _, _ in chosen])
     progress.stage(f"{src.name}: looking for typed sheetvol formulas")
@@ -877,9 +904,10 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport,
             continue
         specs = _select_specs(options, match, _where(src, sheet), report)
         typed_cols = [fc.col for fc in typed if fc.sheet == sheet]
-        cols, targets = _plan_sheet(pkg, src, options, sr, specs, max_col, typed_cols,
-                                    recorded.get(sheet.casefold(), {}), report.warnings,
-                                    progress, share)
+        cols, targets, specs = _plan_sheet(pkg, src, options, sr, specs, max_col, typed_cols,
+                                           recorded.get(sheet.casefold(), {}),
+                                           report.warnings, progress, share,
+                                           report.assumptions)
         edits.extend(cols)
         taken[sheet] = {e.col for e in cols}
         specs_by_sheet.append((sr, specs, targets))
@@ -889,13 +917,18 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport,
             assert sr.table is not None
             bars[instrument_key(sr.sheet)] = _bars_frame(sr.table)
             decimals[instrument_key(sr.sheet)] = sr.table.decimals
+        chosen_names = {name.casefold() for name, _, _ in chosen}
+        not_chosen = [s.name for s in pkg.sheets if options.sheets and s.kind == "worksheet"
+                      and s.name.casefold() not in chosen_names | OWN_SHEETS | exclude]
         trade_edits, report.trades = plan_trade_review(
-            pkg, log, options.trades or TradeRecipe(), bars, decimals, instruments=instruments,
-            recorded=recorded.get(log.sheet.casefold(), {}), where=src.name)
+            pkg, log, options.trades or TradeSettings(), bars, decimals, instruments=instruments,
+            recorded=recorded.get(log.sheet.casefold(), {}), where=src.name,
+            not_chosen=not_chosen)
         edits.extend(trade_edits)
         taken.setdefault(log.sheet, set()).update(
             e.col for e in trade_edits if isinstance(e, NewColumn))
         report.warnings.extend(report.trades.problems)
+        report.assumptions.extend(report.trades.assumptions)
     if typed:
         progress.stage(f"{src.name}: evaluating typed sheetvol formulas")
         edits.extend(_evaluate_formulas(pkg, typed, taken, report, keep=options.formulas == "keep"))
@@ -913,32 +946,49 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
                 specs: list[ColumnSpec], max_col: int, typed_cols: list[int],
                 recorded: Mapping[str, str], warnings: list[str],
                 progress: _Progress | None = None, share: float = 0.0,
-                ) -> tuple[list[NewColumn], list[int]]:
-    """Read one price sheet, compute its columns and say where each one goes."""
+                assumptions: list[str] | None = None,
+                ) -> tuple[list[NewColumn], list[int], list[ColumnSpec]]:
+    """Read one price sheet, compute its columns and say where each one goes.
+
+    Returns the edits, each spec's column and the specs as computed (bars per year
+    filled in from the dates where the recipe did not state them).
+    """
+    assumptions = assumptions if assumptions is not None else []
     progress = progress or _Progress()
     sheet, match = sr.sheet, sr.match
     where = _where(src, sheet)
     # Where each column goes: its own earlier place, else a freed earlier place, else new
     # columns right of everything used (top rows, a table, typed formulas, cells below).
-    own = _own_columns(match, recorded)
-    look_alikes = _look_alikes(match, own, specs)
+    # an earlier fill's headers in today's spelling ("20×2" was written before "20x2")
+    own = {c: _plain_times(h) for c, h in _own_columns(match, recorded).items()}
     table_of_bars = None
     for t in pkg.tables(sheet):
         if t.header_row == match.row and t.left <= match.columns["close"] <= t.right:
             max_col = max(max_col, t.right)
             table_of_bars = t
     max_col = max([max_col, *own, *typed_cols])
-    headers = {s.header for s in specs}
-    reused = {h: c for c, h in own.items() if h in headers}
-    free = sorted(c for c in own if own[c] not in headers)
-    n_new = max(0, len(specs) - len(reused) - len(free))
 
     roles = sorted(match.columns, key=match.columns.__getitem__)
     letters = {role: col_letter(match.columns[role]) for role in roles}
     price_cols = [match.columns[r] for r in roles]
     start = max_col + 1
-    read = pkg.read_columns(sheet, price_cols + list(range(start, start + n_new)),
+    # as many columns right of the sheet as there are specs, read in the same pass as the
+    # prices: the headers (and so the reuse of earlier columns) are known after the dates
+    read = pkg.read_columns(sheet, price_cols + list(range(start, start + len(specs))),
                             first_row=match.row + 1)
+    table = build_price_table(
+        {role: read[match.columns[role]] for role in roles},
+        header_row=match.row, letters=letters, date1904=pkg.date1904,
+        decimal_comma=options.decimal_comma, dayfirst=options.dayfirst, where=where,
+    )
+    sr.table = table
+    specs = _annualised(specs, table.dates, where, match, assumptions, warnings,
+                        default_set=options.specs is None)
+
+    headers = {s.header for s in specs}
+    reused = {h: c for c, h in own.items() if h in headers}
+    free = sorted(c for c in own if own[c] not in headers)
+    n_new = max(0, len(specs) - len(reused) - len(free))
     while busy := [c for c in range(start, start + n_new) if _has_cells(read[c])]:
         # cells far below the header in the columns we meant to use: move right of them
         start = max(busy) + 1
@@ -950,6 +1000,7 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
     targets = [reused[s.header] if s.header in reused else (free or new_cols).pop(0)
                for s in specs]
     sr.replaced = sum(1 for c in targets if c in own)
+    look_alikes = _look_alikes(match, own, specs)  # the headers as written, per_year in
     for col, text in sorted(look_alikes.items()):
         moved = next((col_letter(t) for s, t in zip(specs, targets, strict=True)
                       if s.header == text), "")
@@ -965,12 +1016,13 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
                         f"{'are' if len(hidden) > 1 else 'is'} hidden in the workbook; "
                         "unhide them to see the results")
 
-    table = build_price_table(
-        {role: read[match.columns[role]] for role in roles},
-        header_row=match.row, letters=letters, date1904=pkg.date1904,
-        decimal_comma=options.decimal_comma, dayfirst=options.dayfirst, where=where,
-    )
-    sr.table = table
+    for role, chosen in options.columns.items():  # a column the user named must hold prices
+        if role in table.prices and not np.isfinite(table.prices[role]).any():
+            letter = letters.get(role, chosen)
+            raise FillError(
+                f"{where}: the {role.capitalize()} column chosen with --{role}-col {chosen} "
+                f"(column {letter}) has no numbers in rows {match.row + 1} to "
+                f"{int(table.rows.max())}; choose the column that holds the {role} prices")
     warnings.extend(f"{where}: {w}" for w in table.warnings)
     progress.advance(progress.READ * share)
     if not len(table):
@@ -1001,7 +1053,50 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
         columns.append(NewColumn(sheet=sheet, col=col, header_row=match.row, header="",
                                  first_row=first_row, values=np.full(1, np.nan),
                                  number_format="General"))
-    return columns, targets
+    return columns, targets, specs
+
+
+def _annualised(specs: list[ColumnSpec], dates: np.ndarray, where: str, match: HeaderMatch,
+                assumptions: list[str], warnings: list[str], default_set: bool
+                ) -> list[ColumnSpec]:
+    """Specs with ``per_year`` from the bar dates where the recipe did not state it.
+
+    The figure used is stated in the assumptions (and in the header when it is not
+    252). Irregular spacing is refused, naming the date column and the way out; the
+    default column set, which the user did not ask for, leaves those columns out
+    with the same words as a warning.
+    """
+    wanting = [s for s in specs if "per_year" in s.options and "per_year" not in s.given]
+    if not wanting:
+        return specs
+    spacing = bars_per_year(dates)
+    names = ", ".join(s.header for s in wanting)
+    per_year = spacing.per_year
+    date_col = match.columns.get("date")
+    if spacing.kind == "too few dates":  # nothing to annualise wrongly: say the convention
+        per_year = float(TRADING_DAYS)
+        assumptions.append(f"{where}: {per_year:g} bars/yr for {names} ({spacing.detail}; "
+                           "trading days assumed)")
+    elif not per_year:
+        place = f"the dates in column {col_letter(date_col)}" if date_col else "the dates"
+        message = (f"{where}: cannot tell the bars per year to annualise {names}: {place} "
+                   f"are irregular ({spacing.detail}); state it in a recipe, e.g. options = "
+                   "{ period = 20, per_year = 252 }, or fix the dates")
+        if not default_set:
+            raise FillError(message)
+        warnings.append(f"{message}; left out")
+        return [s for s in specs if s not in wanting]
+    else:
+        assumptions.append(f"{where}: {spacing.describe()} for {names}, from the dates")
+    out = []
+    for s in specs:
+        if s in wanting:
+            opts = {**s.options, "per_year": per_year}
+            header = s.header if s.header_given else default_header(s.function, opts, s.inputs)
+            s = dataclasses.replace(s, options=opts, header=header,
+                                    given=s.given | {"per_year"})
+        out.append(s)
+    return out
 
 
 def _outside_table(where: str, table: Any, new_cols: Sequence[int],
@@ -1026,10 +1121,9 @@ def _instrument_column(match: HeaderMatch) -> int | None:
 
 
 def _bars_frame(table: PriceTable) -> pd.DataFrame:
-    """A price table as the trade review reads bars: Date and the price columns."""
-    data: dict[str, object] = {
-        "Date": [pd.Timestamp(cells.serial_to_datetime(d)) if math.isfinite(d) else pd.NaT
-                 for d in table.dates.tolist()]}
+    """A price table as the trade review reads bars: Date (day numbers, 1900-system serials)
+    and the price columns."""
+    data: dict[str, object] = {"Date": table.dates}  # day numbers: the review reads them as is
     for role in ("open", "high", "low", "close"):
         if role in table.prices:
             data[role.capitalize()] = table.prices[role]

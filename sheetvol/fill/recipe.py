@@ -31,15 +31,13 @@ from __future__ import annotations
 import math
 import sys
 from collections.abc import Iterable, Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-from sheetvol.core.levels import STOP_MULTIPLE, TARGET_MULTIPLE, TRAIL_MULTIPLE
-from sheetvol.core.review import MEASURE, PERIOD
-from sheetvol.core.sizing import RISK_SHARE
+from sheetvol.fill.trade_settings import TradeSettings
 from sheetvol.functions import registry
 
 if sys.version_info >= (3, 11):
@@ -53,7 +51,7 @@ __all__ = [
     "ColumnSpec",
     "Recipe",
     "RecipeError",
-    "TradeRecipe",
+    "TradeSettings",
     "default_header",
     "default_specs",
     "load_recipe",
@@ -65,6 +63,8 @@ __all__ = [
 ]
 
 ROLES = ("open", "high", "low", "close", "volume")
+#: How an unstated ``per_year`` is described: the fill takes it from the bar dates.
+PER_YEAR_FROM_DATES = "from the dates"
 _KEYS = {"function", "options", "header", "inputs", "id"}
 
 
@@ -86,14 +86,21 @@ class ColumnSpec:
     inputs: Mapping[str, str]
     header: str
     id: str = ""
+    # options the recipe stated (the others took the registry default), and whether it
+    # gave the header: the fill derives bars per year from the dates unless stated
+    given: frozenset[str] = frozenset()
+    header_given: bool = False
 
     @property
     def func(self) -> registry.Function:
         return registry.get(self.function)
 
     def describe_options(self) -> str:
-        """``period=14, average=simple`` in registry order."""
-        return ", ".join(f"{k}={_plain(v)}" for k, v in self.options.items())
+        """``period=14, average=simple`` in registry order (``per_year=from the dates``
+        when not stated: the fill derives it)."""
+        return ", ".join(
+            f"{k}={PER_YEAR_FROM_DATES if k == 'per_year' and k not in self.given else _plain(v)}"
+            for k, v in self.options.items())
 
 
 def _plain(value: Any) -> str:
@@ -204,6 +211,8 @@ def make_spec(
         inputs=mapping,
         header=str(text),
         id=str(id),
+        given=frozenset(options),
+        header_given=bool(header),
     )
 
 
@@ -231,7 +240,7 @@ def default_header(function: str, options: Mapping[str, Any], inputs: Mapping[st
     --------
     >>> default_header("SV_BAND", {"line": "upper", "period": 20, "width": 2.0,
     ...                 "average": "simple", "divisor": "population"}, {"prices": "close"})
-    'Upper band 20×2'
+    'Upper band 20x2'
     """
     o = dict(options)
     src = inputs.get("prices", inputs.get("close", "close"))
@@ -254,14 +263,14 @@ def default_header(function: str, options: Mapping[str, Any], inputs: Mapping[st
     elif function == "SV_TRUERANGE":
         head = "True range"
     elif function == "SV_BAND":
-        head = f"{str(o['line']).capitalize()} band {period}×{_w(o['width'])}"
+        head = f"{str(o['line']).capitalize()} band {period}x{_w(o['width'])}"
     elif function == "SV_PCTB":
-        head = f"%b {period}×{_w(o['width'])}"
+        head = f"%b {period}x{_w(o['width'])}"
     elif function == "SV_BANDWIDTH":
-        head = f"Bandwidth {period}×{_w(o['width'])}"
+        head = f"Bandwidth {period}x{_w(o['width'])}"
     elif function == "SV_ATRBAND":
         head = (f"{str(o['line']).capitalize()} ATR band {period}, "
-                f"{_w(o['width'])}×ATR {o['atr_period']}")
+                f"{_w(o['width'])}x ATR {o['atr_period']}")
     elif function == "SV_ENVELOPE":
         head = f"{str(o['line']).capitalize()} envelope {period} ±{_w(o['percent'])}%"
     elif function == "SV_AVERAGE":
@@ -397,7 +406,7 @@ DEFAULT_RECIPE: tuple[dict[str, Any], ...] = (
     {"function": "SV_BAND", "options": {"line": "upper", "period": 20, "width": 2}},
     {"function": "SV_BAND", "options": {"line": "lower", "period": 20, "width": 2}},
     {"function": "SV_PCTB", "options": {"period": 20, "width": 2}},
-    {"function": "SV_CLOSEVOL", "options": {"period": 20, "per_year": 252}},
+    {"function": "SV_CLOSEVOL", "options": {"period": 20}},  # per_year: from the dates
 )
 """The fill's default columns (documented in ``sheetvol fill --help``)."""
 
@@ -408,7 +417,7 @@ def default_specs() -> list[ColumnSpec]:
     Returns
     -------
     list of ColumnSpec
-        Deviation 14, ATR 14, upper and lower bands 20×2, %b 20×2, close vol 20.
+        Deviation 14, ATR 14, upper and lower bands 20x2, %b 20x2, close vol 20.
 
     Examples
     --------
@@ -419,30 +428,6 @@ def default_specs() -> list[ColumnSpec]:
 
 
 # -- the trade-log part of a recipe ---------------------------------------------------------
-@dataclass(frozen=True)
-class TradeRecipe:
-    """How the fill reviews a trade log (the ``[trades]`` table of a recipe).
-
-    The defaults (ATR 14, stop 2, target 3, trail 3 volatility units, 1 % risk)
-    are common practice, no source. ``sheet`` and ``instruments`` name the log
-    and the instrument-details sheet (empty: found by their headers);
-    ``columns`` maps a log role (``date``, ``instrument``, ``side``, ``entry``,
-    ``exit``, ``exit_date``, ``quantity``, ``equity``) to the log's own header.
-    """
-
-    enabled: bool = True
-    sheet: str = ""
-    instruments: str = ""
-    measure: str = MEASURE
-    options: Mapping[str, Any] = field(default_factory=lambda: {"period": PERIOD})
-    stop_multiple: float = STOP_MULTIPLE
-    target_multiple: float = TARGET_MULTIPLE
-    trail_multiple: float = TRAIL_MULTIPLE
-    risk: float = RISK_SHARE
-    equity: float = math.nan
-    columns: Mapping[str, str] = field(default_factory=dict)
-
-
 #: Keys of ``[trades]`` and what each accepts (for messages and ``--help``).
 TRADE_KEYS = {
     "enabled": "true or false",
@@ -505,8 +490,8 @@ and at most 0.25; got 2
     return number
 
 
-def parse_trades(table: Any, *, source: str = "recipe") -> TradeRecipe:
-    """Check a ``[trades]`` table and turn it into a :class:`TradeRecipe`.
+def parse_trades(table: Any, *, source: str = "recipe") -> TradeSettings:
+    """Check a ``[trades]`` table and turn it into a :class:`TradeSettings`.
 
     Parameters
     ----------
@@ -517,7 +502,7 @@ def parse_trades(table: Any, *, source: str = "recipe") -> TradeRecipe:
 
     Returns
     -------
-    TradeRecipe
+    TradeSettings
 
     Raises
     ------
@@ -563,17 +548,19 @@ equity, columns)
                               f"{', '.join(_LOG_ROLES)})")
         if not isinstance(header, str) or not header.strip():
             raise RecipeError(f"{where} columns.{role}: a header text; got {header!r}")
-    recipe = TradeRecipe(**values)
+    if "instruments" in values:  # the key's name in the table; the sheet of contract details
+        values["contract_sheet"] = values.pop("instruments")
+    recipe = TradeSettings(**values)
     check_measure(recipe, where)
     return recipe
 
 
-def check_measure(recipe: TradeRecipe, where: str = "[trades]") -> registry.Function:
+def check_measure(recipe: TradeSettings, where: str = "[trades]") -> registry.Function:
     """The registry function of ``recipe.measure``, with its options validated.
 
     Parameters
     ----------
-    recipe : TradeRecipe
+    recipe : TradeSettings
         The settings to check.
     where : str
         Prefix of the message.
@@ -584,7 +571,7 @@ def check_measure(recipe: TradeRecipe, where: str = "[trades]") -> registry.Func
 
     Examples
     --------
-    >>> check_measure(TradeRecipe(measure="deviation", options={"period": 20})).name
+    >>> check_measure(TradeSettings(measure="deviation", options={"period": 20})).name
     'SV_DEVIATION'
     """
     name = {"atr": "SV_ATR", "deviation": "SV_DEVIATION"}.get(recipe.measure.lower(),
@@ -668,7 +655,7 @@ class Recipe:
     """A whole recipe file: columns (None: the default set) and the trade-log settings."""
 
     columns: list[ColumnSpec] | None
-    trades: TradeRecipe | None
+    trades: TradeSettings | None
 
 
 def read_recipe(path: str | Path) -> Recipe:

@@ -18,8 +18,9 @@ and writes down, per row, what it could not compute and why.
 from __future__ import annotations
 
 import math
+import re
 from collections.abc import Iterable, Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
@@ -28,28 +29,31 @@ import pandas as pd
 from sheetvol.core import levels, sizing
 from sheetvol.core import review as trade_review
 from sheetvol.core._types import FloatArray
-from sheetvol.core.levels import (  # the review defaults, stated once
-    STOP_MULTIPLE,
-    TARGET_MULTIPLE,
-    TRAIL_MULTIPLE,
-)
 from sheetvol.core.prices import price_basis
-from sheetvol.core.review import MEASURE, PERIOD
-from sheetvol.core.sizing import RISK_SHARE
 from sheetvol.fill.locate import normalize_header
 from sheetvol.fill.recipe import split_basis
 from sheetvol.fill.table import find_roles
+from sheetvol.fill.trade_settings import Instrument, TradeSettings, instrument_key
 from sheetvol.functions import cells, registry
 from sheetvol.functions.worksheet import REVIEW_FLAG_WORDS, size_words
 
 __all__ = [
+    "CONTRACT_DETAILS",
     "LOG_COLUMNS",
+    "NO_EQUITY",
     "OUTPUT_COLUMNS",
+    "POINT_VALUE_ASSUMED",
     "SUMMARY_LABELS",
+    "TRADES_REVIEWED",
     "Instrument",
+    "LogArrays",
     "TradeSettings",
+    "contract_role",
     "instruments_from_frame",
+    "latest_equity",
+    "log_arrays",
     "missing_roles_message",
+    "review_arrays",
     "review_log",
     "single_instrument",
     "summarise",
@@ -68,6 +72,67 @@ LOG_COLUMNS: dict[str, tuple[str, ...]] = {
 }
 _REQUIRED_ROLES = ("date", "instrument", "side")
 
+#: Contract details a contract sheet can give (besides the instrument column), in the
+#: order they are described. The header words for each are matched by
+#: :func:`contract_role`.
+CONTRACT_DETAILS = ("point_value", "tick", "tick_value", "lot_step", "min_qty", "max_qty",
+                    "fx_rate")
+# Words read as one before the rules below apply (after normalize_header).
+_SAME_WORD = {"minimum": "min", "maximum": "max", "quantity": "qty", "quantities": "qty",
+              "lots": "lot", "increment": "step", "exchange": "fx", "conversion": "fx",
+              "multiplier": "point", "big": "", "per": "", "value": "value", "of": "",
+              "contract": "contract", "number": "qty", "units": "qty", "unit": "qty",
+              "size": "size", "amount": "qty", "volume": "qty", "trade": "qty",
+              "order": "qty", "position": "qty"}
+
+
+def contract_role(header: object) -> str | None:
+    """The contract detail a contract-sheet header names, by general rules (None: not one).
+
+    The header is normalised (case, brackets with units, punctuation); the words
+    "minimum", "quantity", "lots", "increment", "exchange", "conversion",
+    "multiplier" and the like are read as their short forms; then: a tick with
+    a value is the tick value, any other tick (or a price step) the tick size; a
+    min or max with a quantity, lot or size is that limit; an FX word is the FX
+    rate; a point (or multiplier) or a contract size/unit is the point value; a
+    lot or a quantity step is the lot step. The instrument column takes the
+    words of :data:`LOG_COLUMNS` (one list for the log, the long price sheet and
+    the contract sheet).
+
+    Parameters
+    ----------
+    header : object
+        A header cell's value.
+
+    Returns
+    -------
+    str or None
+        ``"instrument"``, one of :data:`CONTRACT_DETAILS`, or None.
+
+    Examples
+    --------
+    >>> contract_role("Contract size"), contract_role("Tick value ($)"), contract_role("Margin")
+    ('point_value', 'tick_value', None)
+    """
+    text = normalize_header(header)
+    if text in {normalize_header(w) for w in LOG_COLUMNS["instrument"]}:
+        return "instrument"
+    words = {_SAME_WORD.get(w, w) for w in re.split(r"[\s/\-.,$]+", text)} - {""}
+    if "tick" in words:
+        return "tick_value" if "value" in words else "tick"
+    if "price" in words and "step" in words:
+        return "tick"
+    for limit in ("min", "max"):
+        if limit in words and (words & {"qty", "lot", "size"} or words == {limit}):
+            return f"{limit}_qty"
+    if "fx" in words or words == {"rate"}:
+        return "fx_rate"
+    if "point" in words or ("contract" in words and words & {"size", "qty", "value"}):
+        return "point_value"
+    if "lot" in words or ("step" in words and words & {"qty", "size"}):
+        return "lot_step"
+    return None
+
 #: Columns :func:`review_log` returns, in order.
 OUTPUT_COLUMNS = (
     "Volatility", "Bar date", "Stop", "Target", "Target R", "Size", "Size note", "Trail",
@@ -78,85 +143,10 @@ OUTPUT_COLUMNS = (
 _MEASURE_WORDS = {"atr": "SV_ATR", "deviation": "SV_DEVIATION"}
 
 
-@dataclass(frozen=True)
-class Instrument:
-    """Contract details of one instrument, for sizing and open risk.
-
-    ``point_value`` is money per 1.0 price move per unit in the instrument's
-    currency; ``fx_rate`` is account currency per unit of instrument currency;
-    ``min_qty``/``max_qty`` of 0 mean no limit; ``tick`` is the price increment
-    levels are rounded to (0: not rounded; see :func:`sheetvol.core.levels.to_tick`).
-    """
-
-    point_value: float = 1.0
-    lot_step: float = 1.0
-    min_qty: float = 0.0
-    max_qty: float = 0.0
-    fx_rate: float = 1.0
-    tick: float = 0.0
-
-
-@dataclass(frozen=True)
-class TradeSettings:
-    """How a trade log is reviewed.
-
-    Parameters
-    ----------
-    measure : str
-        Volatility measure: ``"atr"``, ``"deviation"`` or the name of any
-        registry column function whose result is in price units (for example
-        ``"SV_ATR"`` or ``"SV_DEVIATION"``). Its price columns are taken from the
-        bars (``prices`` means the close).
-    options : mapping
-        Options of that function (``{"period": 20, "average": "exponential"}``),
-        validated by the registry. For a measure of one price column,
-        ``basis`` picks the bar's price it is computed on (one of SV_PRICE's
-        ``basis`` words, e.g. ``"typical"``; default the close).
-    stop_multiple, target_multiple : float
-        Volatility units from entry to stop and to target. The defaults, 2 and 3,
-        are common practice (no source).
-    trail_multiple : float
-        Volatility units between the best price since entry and the trailing
-        stop; 0 turns the trailing stop off. The default 3, looser than the
-        stop, lets the trail take over after a move of about one unit the
-        trade's way (common practice, no source).
-    risk : float
-        Share of equity risked per trade (0.01 = 1 %).
-    equity : float
-        Equity used when the log has no equity column or a blank cell, and for
-        the open-risk share (NaN: the equity of the latest trade in the log).
-    instruments : mapping
-        :class:`Instrument` details by instrument name; others use ``default``.
-    default : Instrument
-        Details for instruments not in ``instruments``.
-    columns : mapping
-        Header for a role of :data:`LOG_COLUMNS` when the log uses another name.
-    """
-
-    measure: str = MEASURE
-    options: Mapping[str, Any] = field(default_factory=lambda: {"period": PERIOD})
-    stop_multiple: float = STOP_MULTIPLE
-    target_multiple: float = TARGET_MULTIPLE
-    trail_multiple: float = TRAIL_MULTIPLE
-    risk: float = RISK_SHARE
-    equity: float = math.nan
-    instruments: Mapping[str, Instrument] = field(default_factory=dict)
-    default: Instrument = Instrument()
-    columns: Mapping[str, str] = field(default_factory=dict)
-
-    def instrument(self, name: str) -> Instrument:
-        """Details of one instrument (matched ignoring case and surrounding spaces)."""
-        key = _key(name)
-        for k, v in self.instruments.items():
-            if _key(k) == key:
-                return v
-        return self.default
-
-
-def _key(text: Any) -> str:
-    """An instrument name as compared: case and surrounding spaces ignored."""
-    return " ".join(str(text).split()).lower()
-
+#: The Size note of a row whose instrument has no point value.
+POINT_VALUE_ASSUMED = "point value not given: 1 assumed"
+#: Why sizes and open risk are blank when no equity is known.
+NO_EQUITY = "no equity: add an Equity column, a recipe equity or --equity"
 
 def _find_columns(frame: pd.DataFrame, roles: Mapping[str, Iterable[str]],
                   overrides: Mapping[str, str]) -> dict[str, Any]:
@@ -170,7 +160,10 @@ def _find_columns(frame: pd.DataFrame, roles: Mapping[str, Iterable[str]],
 
 
 def _days(values: Iterable[Any]) -> FloatArray:
-    """Day numbers of date cells; blanks (including NaT) give NaN."""
+    """Day numbers of date cells; blanks (including NaT) give NaN. A float array is taken
+    to be day numbers already (the fill hands its bars over that way)."""
+    if isinstance(values, np.ndarray) and values.dtype.kind == "f":
+        return values.astype(np.float64, copy=False)
     return cells.to_day_numbers(
         None if pd.isna(v) else pd.Timestamp(v) if isinstance(v, np.datetime64) else v
         for v in values
@@ -192,40 +185,62 @@ def instruments_from_frame(frame: pd.DataFrame) -> dict[str, Instrument]:
     Parameters
     ----------
     frame : pandas.DataFrame
-        Columns ``Instrument`` and any of ``Point value``, ``Lot step``,
-        ``Min qty``, ``Max qty``, ``FX rate``, ``Tick`` (or ``Tick size``)
-        (headers compared ignoring case, spaces and underscores); blank cells
-        take the :class:`Instrument` defaults.
+        An instrument column (Instrument, Symbol, Market, Ticker) and any
+        contract details, under their usual trade words (see
+        :func:`contract_role`): point value (multiplier, contract size, big
+        point value), tick size, tick value, lot step (lot size), min and max
+        quantity, FX rate. Blank cells take the :class:`Instrument` defaults; a
+        tick value gives the point value (tick value / tick size).
 
     Returns
     -------
     dict
         :class:`Instrument` by name.
 
+    Raises
+    ------
+    ValueError
+        No instrument column; a tick value without a tick size; a tick value
+        and a point value that disagree; a detail that is not a number.
+
     Examples
     --------
-    >>> t = pd.DataFrame({"Instrument": ["ORRIN"], "Point value": [10], "Lot step": [1]})
+    >>> t = pd.DataFrame({"Symbol": ["ORRIN"], "Multiplier": [10], "Lot step": [1]})
     >>> instruments_from_frame(t)["ORRIN"].point_value
     10.0
     """
-    roles = {"instrument": ("instrument",), "point_value": ("point value",),
-             "lot_step": ("lot step",), "min_qty": ("min qty", "minimum"),
-             "max_qty": ("max qty", "maximum"), "fx_rate": ("fx rate", "fx"),
-             "tick": ("tick", "tick size")}
-    cols = _find_columns(frame, roles, {})
-    if cols["instrument"] is None:
-        raise ValueError("instrument table has no Instrument column")
+    cols: dict[str, Any] = {}
+    for c in frame.columns:
+        role = contract_role(c)
+        if role is not None:
+            cols.setdefault(role, c)
+    if "instrument" not in cols:
+        words = "/".join(w.capitalize() for w in LOG_COLUMNS["instrument"])
+        raise ValueError(f"instrument table has no instrument column ({words})")
     out: dict[str, Instrument] = {}
     for _, row in frame.iterrows():
         name = row[cols["instrument"]]
         if cells.is_blank(name) or (not isinstance(name, str) and pd.isna(name)):
             continue
-        values = {}
-        for role in ("point_value", "lot_step", "min_qty", "max_qty", "fx_rate", "tick"):
-            if cols[role] is not None:
+        values: dict[str, float] = {}
+        for role in CONTRACT_DETAILS:
+            if role in cols:
                 x = _numbers([row[cols[role]]], f"{name} {cols[role]}")[0]
                 if math.isfinite(x):
                     values[role] = float(x)
+        tick_value = values.pop("tick_value", math.nan)
+        if math.isfinite(tick_value):
+            tick = values.get("tick", 0.0)
+            if not tick > 0:
+                raise ValueError(f"{name}: a tick value ({tick_value:g}) needs a tick size "
+                                 "above 0 to give the point value; add a Tick size column")
+            per_point = tick_value / tick
+            given = values.get("point_value", math.nan)
+            if math.isfinite(given) and not math.isclose(given, per_point, rel_tol=1e-9):
+                raise ValueError(
+                    f"{name}: point value {given:g} disagrees with tick value / tick size "
+                    f"= {tick_value:g} / {tick:g} = {per_point:g}; correct one of them")
+            values["point_value"] = per_point
         out[str(name).strip()] = Instrument(**values)
     return out
 
@@ -353,8 +368,8 @@ def missing_roles_message(cols: Mapping[str, Any], absent: Iterable[str],
 def _lookup(prices: Mapping[str, pd.DataFrame], name: str) -> pd.DataFrame | None:
     if name in prices:
         return prices[name]
-    key = _key(name)
-    return next((v for k, v in prices.items() if _key(k) == key), None)
+    key = instrument_key(name)
+    return next((v for k, v in prices.items() if instrument_key(k) == key), None)
 
 
 # -- the review --------------------------------------------------------------------------------
@@ -391,7 +406,9 @@ def review_log(
           instrument tick, the stop is rounded away from entry and the target
           toward it (:func:`sheetvol.core.levels.to_tick`);
         * ``Size`` (from the rounded stop), down to the lot step, and ``Size note``;
-        * ``Trail``: the trailing stop in force at the end of the review;
+        * ``Trail``: the trailing stop in force at the end of the review; for an
+          open trade the level set at the last close, to place now (as
+          SV_TRAIL gives it);
         * ``Result``, ``Exit price``, ``Exit date``, ``R``, ``Bars``,
           ``Adverse``/``Favourable`` (price) and in R: see
           :func:`sheetvol.core.review.review_trade` (for an open trade ``R`` is
@@ -413,7 +430,66 @@ def review_log(
     (np.float64(2.0), np.float64(6.0), np.float64(16.0), np.float64(25.0), 'open')
     """
     settings = settings or TradeSettings()
-    measure = _volatility_function(settings)
+    out = review_arrays(log_arrays(trades, prices, settings), prices, settings)
+    for c in ("Bar date", "Exit date"):
+        out[c] = [_as_timestamp(d) for d in out[c].to_numpy(dtype=float)]
+    return out
+
+
+@dataclass(frozen=True)
+class LogArrays:
+    """A trade log read once: one entry per trade, dates as day numbers (1900-system
+    serials, NaN when blank), prices and amounts as floats (NaN when blank).
+
+    The fill builds it straight from the sheet's cells
+    (:func:`sheetvol.fill.trade_log.read_log`); :func:`log_arrays` builds it from a
+    DataFrame.
+    """
+
+    index: Any  # a label per trade (the sheet row in the fill)
+    names: np.ndarray  # instrument of each trade (object)
+    sides: np.ndarray  # side as written (object)
+    entry_days: FloatArray
+    entries: FloatArray
+    exits: FloatArray
+    exit_days: FloatArray
+    quantities: FloatArray
+    equities: FloatArray
+
+
+def log_arrays(trades: pd.DataFrame, prices: Mapping[str, Any],
+               settings: TradeSettings | None = None) -> LogArrays:
+    """The columns of a trade log, found by header once, as :class:`LogArrays`.
+
+    Parameters
+    ----------
+    trades : pandas.DataFrame
+        One row per trade, headed as :data:`LOG_COLUMNS` says (or
+        ``settings.columns``).
+    prices : mapping
+        Bars per instrument (only their names are used: a log without an
+        instrument column is on the only instrument).
+    settings : TradeSettings, optional
+        For ``columns``.
+
+    Returns
+    -------
+    LogArrays
+
+    Raises
+    ------
+    ValueError
+        A required column is missing; the message lists what was found.
+
+    Examples
+    --------
+    >>> log = pd.DataFrame({"Date": [pd.Timestamp("2025-01-09")], "Symbol": ["KESTREL"],
+    ...                     "Side": ["long"], "Entry": [10.0]})
+    >>> a = log_arrays(log, {"KESTREL": None})
+    >>> a.entry_days.tolist(), a.entries.tolist(), a.exits.tolist()
+    ([45666.0], [10.0], [nan])
+    """
+    settings = settings or TradeSettings()
     cols = _find_columns(trades, LOG_COLUMNS, settings.columns)
     n = len(trades)
     only = single_instrument(cols, prices)
@@ -426,29 +502,81 @@ def review_log(
             return np.full(n, np.nan)
         return _numbers(trades[cols[role]].to_numpy(), str(cols[role]))
 
-    entry_days = _days(trades[cols["date"]].to_numpy())
-    exit_days = (_days(trades[cols["exit_date"]].to_numpy()) if cols["exit_date"] is not None
-                 else np.full(n, np.nan))
-    entries, exits = log_numbers("entry"), log_numbers("exit")
-    quantities, equities = log_numbers("quantity"), log_numbers("equity")
-    equities = np.where(np.isfinite(equities), equities, settings.equity)
-    names = (trades[cols["instrument"]].to_numpy() if cols["instrument"] is not None
-             else np.full(n, only, dtype=object))
-    sides = trades[cols["side"]].to_numpy()
+    return LogArrays(
+        index=trades.index,
+        names=(trades[cols["instrument"]].to_numpy() if cols["instrument"] is not None
+               else np.full(n, only, dtype=object)),
+        sides=trades[cols["side"]].to_numpy(),
+        entry_days=_days(trades[cols["date"]].to_numpy()),
+        entries=log_numbers("entry"), exits=log_numbers("exit"),
+        exit_days=(_days(trades[cols["exit_date"]].to_numpy())
+                   if cols["exit_date"] is not None else np.full(n, np.nan)),
+        quantities=log_numbers("quantity"), equities=log_numbers("equity"),
+    )
 
+
+def review_arrays(log: LogArrays, prices: Mapping[str, pd.DataFrame],
+                  settings: TradeSettings | None = None) -> pd.DataFrame:
+    """:func:`review_log` on a log already read: the same columns, with ``Bar date`` and
+    ``Exit date`` as day numbers (1900-system serials).
+
+    Parameters
+    ----------
+    log : LogArrays
+        The trades.
+    prices : mapping
+        Bars per instrument (see :func:`review_log`); a float ``Date`` column is
+        taken as day numbers.
+    settings : TradeSettings, optional
+        Measure, multiples, risk share, equity and contract details.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Indexed by ``log.index``.
+
+    Examples
+    --------
+    >>> bars = pd.DataFrame({"Date": 45663.0 + np.arange(5), "High": [11.0] * 5,
+    ...                      "Low": [9.0] * 5, "Close": [10.0] * 5})
+    >>> log = log_arrays(pd.DataFrame({"Date": [45666.0], "Instrument": ["K"],
+    ...                                "Side": ["long"]}), {"K": bars})
+    >>> review_arrays(log, {"K": bars}, TradeSettings(options={"period": 3}))["Bar date"][0]
+    np.float64(45666.0)
+    """
+    settings = settings or TradeSettings()
+    measure = _volatility_function(settings)
+    equities = np.where(np.isfinite(log.equities), log.equities, settings.equity)
     out: dict[str, list[Any]] = {c: [] for c in OUTPUT_COLUMNS}
     cache: dict[str, _Bars | str] = {}
-    for t in range(n):
+    for t in range(len(log.sides)):
         row = _review_row(
-            names[t], sides[t], entry_days[t], entries[t], exits[t], exit_days[t],
-            quantities[t], equities[t], prices, measure, settings, cache,
+            log.names[t], log.sides[t], log.entry_days[t], log.entries[t], log.exits[t],
+            log.exit_days[t], log.quantities[t], equities[t], prices, measure, settings, cache,
         )
         for c in OUTPUT_COLUMNS:
-            out[c].append(row.get(c, np.nan if c not in ("Bar date", "Exit date") else pd.NaT))
-    frame = pd.DataFrame(out, index=trades.index)
+            out[c].append(row.get(c, np.nan))
+    frame = pd.DataFrame(out, index=log.index)
     for c in ("Result", "Size note", "Note"):
         frame[c] = frame[c].fillna("").astype(str)
     return frame
+
+
+def latest_equity(log: LogArrays) -> float:
+    """Equity on the log's latest trade (by entry date) that states one (NaN: none).
+
+    Examples
+    --------
+    >>> none = np.full(2, np.nan)
+    >>> a = LogArrays(None, np.array(["K", "K"]), np.array(["long", "long"]),
+    ...               np.array([2.0, 1.0]), none, none, none, none, np.array([9.0, 5.0]))
+    >>> latest_equity(a)
+    9.0
+    """
+    ok = np.flatnonzero(np.isfinite(log.entry_days) & np.isfinite(log.equities))
+    if not len(ok):
+        return math.nan
+    return float(log.equities[ok[np.argmax(log.entry_days[ok])]])
 
 
 def _review_row(
@@ -484,7 +612,7 @@ def _review_row(
     if i is None:
         return {"Note": "no bar on or before the entry date"}
     notes = []
-    row: dict[str, Any] = {"Bar date": _as_timestamp(bars.days[i])}
+    row: dict[str, Any] = {"Bar date": float(bars.days[i])}
     if not math.isfinite(entry):
         entry = float(bars.close[i])
         notes.append("entry price taken from the entry bar's close")
@@ -500,13 +628,25 @@ def _review_row(
     row.update({"Stop": stop, "Target": target,
                 "Target R": levels.r_multiple(entry, stop, target, side)})
 
-    try:
-        size = sizing.size_with_reason(equity, settings.risk, entry, stop, inst.point_value,
-                                       inst.lot_step, inst.min_qty, inst.max_qty, inst.fx_rate)
-        row["Size"] = float(size.quantity[0])
-        row["Size note"] = "" if not math.isfinite(vol) else size_words(size)[0]
-    except ValueError as exc:  # an input out of its range (say a negative equity): this row
-        row["Size"], row["Size note"] = math.nan, f"size not computed: {exc}"
+    size_notes = []
+    if not math.isfinite(inst.point_value):
+        size_notes.append(POINT_VALUE_ASSUMED)
+    if not math.isfinite(equity):
+        row["Size"] = math.nan
+        size_notes.insert(0, NO_EQUITY)
+    else:
+        try:
+            size = sizing.size_with_reason(equity, settings.risk, entry, stop, inst.per_point,
+                                           inst.lot_step, inst.min_qty, inst.max_qty,
+                                           inst.fx_rate)
+            row["Size"] = float(size.quantity[0])
+            words = size_words(size)[0]
+            if math.isfinite(vol) and words:
+                size_notes.insert(0, words)
+        except ValueError as exc:  # an input out of its range (a negative equity): this row
+            row["Size"] = math.nan
+            size_notes.insert(0, f"size not computed: {exc}")
+    row["Size note"] = "; ".join(size_notes)
 
     trail = None
     if settings.trail_multiple > 0:
@@ -526,8 +666,8 @@ def _review_row(
         "Trail": review.trail,
         "Result": review.result,
         "Exit price": review.exit_price,
-        "Exit date": (_as_timestamp(bars.days[review.exit_index])
-                      if review.exit_index is not None else pd.NaT),
+        "Exit date": (float(bars.days[review.exit_index])
+                      if review.exit_index is not None else np.nan),
         "R": review.r,
         "Bars": review.bars if review.bars is not None else np.nan,
         "Adverse": review.adverse,
@@ -540,7 +680,10 @@ def _review_row(
         qty = quantity if math.isfinite(quantity) else row["Size"]
         guard = stop if trail is None else sign * max(sign * stop, sign * float(trail[-1]))
         at_risk = max(0.0, sign * (float(bars.close[-1]) - guard))
-        row["Open risk"] = qty * at_risk * inst.point_value * inst.fx_rate
+        # blank, never 0, when neither the log's quantity nor a size (equity) is known
+        row["Open risk"] = qty * at_risk * inst.per_point * inst.fx_rate
+        if not math.isfinite(qty):
+            notes.append(f"open risk blank: no quantity in the log and no size ({NO_EQUITY})")
     if has_exit and not math.isfinite(exit_day):
         notes.append("no exit date: R from the exit price only")
     elif has_exit and exit_index is None:
@@ -550,8 +693,10 @@ def _review_row(
 
 
 # -- summary ------------------------------------------------------------------------------------
+#: What the review's trade count counts, said beside the figure on the sheet and terminal.
+TRADES_REVIEWED = "log rows with an outcome"
 SUMMARY_LABELS = {
-    "trades": "Trades",
+    "trades": f"Trades reviewed ({TRADES_REVIEWED})",
     "stop": "Stop hit (share)",
     "target": "Target hit (share)",
     "trail": "Trailing stop hit (share)",
@@ -607,10 +752,13 @@ def summarise(
     equity = settings.equity
     if not math.isfinite(equity) and trades is not None:
         equity = _latest_equity(trades, settings)
+    open_risk = done["Open risk"].to_numpy(dtype=float)
     figures = trade_review.summarise_outcomes(
-        done["Result"].tolist(), done["R"].to_numpy(dtype=float),
-        done["Open risk"].to_numpy(dtype=float), equity,
+        done["Result"].tolist(), done["R"].to_numpy(dtype=float), open_risk, equity,
     )
+    is_open = (done["Result"].astype(str) == "open").to_numpy()
+    if not np.isfinite(open_risk[is_open]).all():  # a total missing some trades is no total
+        figures["open_risk"] = figures["open_risk_share"] = math.nan
     return pd.Series({SUMMARY_LABELS[k]: v for k, v in figures.items()}, name="Value",
                      dtype=object)
 
@@ -620,9 +768,9 @@ def _latest_equity(trades: pd.DataFrame, settings: TradeSettings) -> float:
     cols = _find_columns(trades, LOG_COLUMNS, settings.columns)
     if cols["equity"] is None or cols["date"] is None:
         return math.nan
-    days = _days(trades[cols["date"]].to_numpy())
-    equity = _numbers(trades[cols["equity"]].to_numpy(), str(cols["equity"]))
-    ok = np.flatnonzero(np.isfinite(days) & np.isfinite(equity))
-    if not len(ok):
-        return math.nan
-    return float(equity[ok[np.argmax(days[ok])]])
+    blank = np.full(len(trades), np.nan)
+    return latest_equity(LogArrays(
+        index=trades.index, names=blank, sides=blank,
+        entry_days=_days(trades[cols["date"]].to_numpy()), entries=blank, exits=blank,
+        exit_days=blank, quantities=blank,
+        equities=_numbers(trades[cols["equity"]].to_numpy(), str(cols["equity"]))))

@@ -41,6 +41,13 @@ from sheetvol.workbook._sheetxml import (
 )
 from sheetvol.workbook.errors import CellError, WorkbookError
 
+# Built-in number formats by id, as ECMA-376 Part 1 (18.8.30) lists them.
+_BUILTIN_CODES = {0: "General", 1: "0", 2: "0.00", 3: "#,##0", 4: "#,##0.00", 9: "0%",
+                  10: "0.00%", 11: "0.00E+00", 12: "# ?/?", 13: "# ??/??", 14: "mm-dd-yy",
+                  15: "d-mmm-yy", 16: "d-mmm", 17: "mmm-yy", 18: "h:mm AM/PM",
+                  19: "h:mm:ss AM/PM", 20: "h:mm", 21: "h:mm:ss", 22: "m/d/yy h:mm",
+                  45: "mm:ss", 46: "[h]:mm:ss", 47: "mmss.0", 48: "##0.0E+0", 49: "@"}
+
 NS_REL = "http://schemas.openxmlformats.org/officeDocument/2006/relationships"
 NS_PKG_REL = "http://schemas.openxmlformats.org/package/2006/relationships"
 MACRO_TYPES = ("macroEnabled", "vbaProject")
@@ -541,6 +548,73 @@ class Package:
                 numbers[rows_ - first_row] = vals
             out[c] = Column(numbers=numbers, other=other[c], first_row=first_row)
         return out
+
+    def named_cell(self, name: str) -> tuple[str, int, int] | None:
+        """The single cell a workbook-level defined name points at: (sheet, row, col).
+
+        Parameters
+        ----------
+        name : str
+            The defined name, compared ignoring case.
+
+        Returns
+        -------
+        tuple or None
+            None when no workbook-level name matches or it is not one cell.
+        """
+        with self._zip() as zf:
+            wb = self._xml(zf, self.workbook_part)
+        for el in wb.iter():
+            if (local(el.tag) == "definedName" and el.get("localSheetId") is None
+                    and el.get("name", "").casefold() == name.casefold()):
+                m = re.fullmatch(r"'?((?:[^']|'')+?)'?!\$?([A-Z]{1,3})\$?(\d+)",
+                                 (el.text or "").strip())
+                if m:
+                    return m[1].replace("''", "'"), int(m[3]), col_index(m[2].encode())
+        return None
+
+    def number_format(self, sheet: str, row: int, col: int) -> str:
+        """The number format code of one cell ("General" when it has none).
+
+        Built-in ids are given by the codes ECMA-376 Part 1 (18.8.30) lists for them
+        (14 is ``mm-dd-yy``). Meant for a few cells (a log's first date): the sheet
+        part is read whole.
+
+        Parameters
+        ----------
+        sheet : str
+            Sheet name.
+        row, col : int
+            The cell (1-based).
+
+        Returns
+        -------
+        str
+        """
+        info = self._worksheet(sheet)
+        ref = f"{col_letters(col)}{row}".encode()
+        with self._zip() as zf:
+            data = read_part(zf, info.part, self.path.name)
+            m = re.search(rb'<(?:[\w.-]+:)?c\s[^>]*?\br="' + ref + rb'"[^>]*>', data)
+            style = re.search(rb'\bs="(\d+)"', m[0]) if m else None
+            if style is None:
+                return "General"
+            part = next((t for t, k in self.rels(zf, self.workbook_part).values()
+                         if k == "styles"), None)
+            if part is None or part not in zf.namelist():
+                return "General"
+            root = self._xml(zf, part)
+        xfs = [el for block in root if local(block.tag) == "cellXfs" for el in block]
+        index = int(style[1])
+        if index >= len(xfs):
+            return "General"
+        fmt_id = int(xfs[index].get("numFmtId", "0"))
+        for block in root:
+            if local(block.tag) == "numFmts":
+                for el in block:
+                    if el.get("numFmtId") == str(fmt_id):
+                        return el.get("formatCode", "General")
+        return _BUILTIN_CODES.get(fmt_id, "General")
 
     def read_range(
         self, sheet: str, top: int, left: int, bottom: int, right: int
