@@ -29,7 +29,6 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
-import pandas as pd
 
 from sheetvol.fill.locate import (
     HEADER_SCAN_ROWS,
@@ -75,6 +74,7 @@ from sheetvol.fill.trade_log import (
     plan_trade_review,
 )
 from sheetvol.functions import cells, registry
+from sheetvol.functions._lazy import pandas as pd
 from sheetvol.workbook import (
     CellError,
     CellResult,

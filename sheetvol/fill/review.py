@@ -22,7 +22,6 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-import pandas as pd
 
 from sheetvol.core import risk
 from sheetvol.core._types import FloatArray
@@ -39,6 +38,7 @@ from sheetvol.fill.locate import normalize_header
 from sheetvol.fill.recipe import split_basis
 from sheetvol.fill.table import find_roles
 from sheetvol.functions import cells, registry
+from sheetvol.functions._lazy import pandas as pd
 
 __all__ = [
     "LOG_COLUMNS",

@@ -20,7 +20,6 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-import pandas as pd
 
 from sheetvol.fill.locate import (
     HEADER_SCAN_ROWS,
@@ -42,6 +41,7 @@ from sheetvol.fill.review import (
     summarise,
 )
 from sheetvol.functions import cells
+from sheetvol.functions._lazy import pandas as pd
 from sheetvol.workbook import CellError, NewColumn, NewSheet, Package, Styled
 
 __all__ = [
