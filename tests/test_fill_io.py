@@ -64,3 +64,71 @@ def test_text_dates_still_load_pandas_when_they_need_it(tmp_path):
     # day numbers of the 1900 date system count from 1899-12-30 (Python's datetime)
     first = (dt.date(2025, 1, 1) - dt.date(1899, 12, 30)).days
     assert report.sheets[0].table.dates[:2].tolist() == [first, first + 1]
+
+
+def formula_book(path: Path, rows: int = 40) -> Path:
+    """Prices with typed sheetvol formulas: one on the price sheet right of the data far
+    below the header, one on a second sheet, and a plain formula. Both sheetvol formulas
+    read a small table on the second sheet, so evaluating them reads that sheet only."""
+    wb = xlsxwriter.Workbook(str(path))
+    ws = wb.add_worksheet("Prices")
+    desk = wb.add_worksheet("Desk")
+    ws.write_row(0, 0, ["Date", "High", "Low", "Close"])
+    for i in range(rows):
+        ws.write_number(i + 1, 0, 45658 + i)
+        ws.write_row(i + 1, 1, [101.0 + i, 99.0 + i, 100.0 + i])
+        if i < 19:
+            desk.write_row(i + 1, 3, [51.0 + i, 49.0 + i, 50.0 + i])
+    ws.write_formula(rows - 2, 5, "=SV_ATR_LAST(Desk!D2:D20,Desk!E2:E20,Desk!F2:F20,14)",
+                     None, 0)
+    ws.write_formula(3, 6, "=B2*2", None, 202)
+    desk.write_formula(1, 1, "=SV_ATR_LAST(D2:D20,E2:E20,F2:F20,5)", None, 0)
+    wb.close()
+    return path
+
+
+def opened_parts(monkeypatch) -> list[str]:
+    """Names of the zip entries opened for reading from now on (a spy on zipfile that
+    only records; the real method does the work)."""
+    import zipfile
+
+    seen: list[str] = []
+    real = zipfile.ZipFile.open
+
+    def spy(self, name, mode="r", *args, **kwargs):
+        if mode == "r":
+            seen.append(name if isinstance(name, str) else name.filename)
+        return real(self, name, mode, *args, **kwargs)
+
+    monkeypatch.setattr(zipfile.ZipFile, "open", spy)
+    return seen
+
+
+def test_reading_columns_notes_the_typed_formulas(tmp_path, monkeypatch):
+    from sheetvol.workbook import Package
+
+    src = formula_book(tmp_path / "f.xlsx")
+    pkg = Package.open(src)
+    pkg.read_columns("Prices", [2, 3, 4], first_row=2)
+    seen = opened_parts(monkeypatch)
+    got = [(f.sheet, f.row, f.col, f.formula) for f in pkg.formula_cells()]
+    # the cells written above, in sheet order then row order; B2*2 is no sheetvol formula
+    assert got == [("Prices", 39, 6, "SV_ATR_LAST(Desk!D2:D20,Desk!E2:E20,Desk!F2:F20,14)"),
+                   ("Desk", 2, 2, "SV_ATR_LAST(D2:D20,E2:E20,F2:F20,5)")]
+    assert "xl/worksheets/sheet1.xml" not in seen  # noted by the reading pass
+    assert "xl/worksheets/sheet2.xml" in seen  # never read whole before: scanned now
+    assert pkg.formula_cells(["Desk"]) == pkg.formula_cells()[1:]
+
+
+def test_a_fill_opens_the_price_sheet_four_times_not_five(tmp_path, monkeypatch):
+    # the header rows (looking for a trade log, then for prices: the first chunk only),
+    # one reading pass (prices and typed formulas), the writer
+    from sheetvol.fill.job import FillOptions, fill_file
+
+    src = formula_book(tmp_path / "f.xlsx")
+    seen = opened_parts(monkeypatch)
+    report = fill_file(src, FillOptions(output=tmp_path / "out.xlsx"))
+    assert seen.count("xl/worksheets/sheet1.xml") == 4
+    assert report.formulas_ok == 2
+    # new columns go right of everything used near the top (the formula in G4)
+    assert report.written[0].letter == "H"

@@ -694,9 +694,7 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport,
     exclude = frozenset(n.casefold() for n in (log.sheet if log else "", instruments[0]) if n)
     chosen = _choose_sheets(pkg, src, options, exclude)
     progress.sheets([name for name, _, _ in chosen])
-    progress.stage(f"{src.name}: looking for typed sheetvol formulas")
-    typed = pkg.formula_cells() if options.formulas != "skip" else []
-    progress.advance(progress.SCAN)
+    scan = options.formulas != "skip"
     recorded = _recorded(pkg)
     edits: list = []
     taken: dict[str, set[int]] = {}
@@ -722,8 +720,7 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport,
             report.warnings.append(f"{_where(src, sheet)}: {sr.long_sheet}")
             continue
         specs = _select_specs(options, match, _where(src, sheet), report)
-        typed_cols = [fc.col for fc in typed if fc.sheet == sheet]
-        cols, targets = _plan_sheet(pkg, src, options, sr, specs, max_col, typed_cols,
+        cols, targets = _plan_sheet(pkg, src, options, sr, specs, max_col, scan,
                                     recorded.get(sheet.casefold(), {}), report.warnings,
                                     progress, share)
         edits.extend(cols)
@@ -742,6 +739,10 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport,
         taken.setdefault(log.sheet, set()).update(
             e.col for e in trade_edits if isinstance(e, NewColumn))
         report.warnings.extend(report.trades.problems)
+    # the price sheets' formulas were noted while they were read: only the others are read now
+    progress.stage(f"{src.name}: looking for typed sheetvol formulas")
+    typed = pkg.formula_cells() if scan else []
+    progress.advance(progress.SCAN)
     if typed:
         progress.stage(f"{src.name}: evaluating typed sheetvol formulas")
         edits.extend(_evaluate_formulas(pkg, typed, taken, report, keep=options.formulas == "keep"))
@@ -756,11 +757,15 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport,
 
 
 def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
-                specs: list[ColumnSpec], max_col: int, typed_cols: list[int],
+                specs: list[ColumnSpec], max_col: int, typed: bool,
                 recorded: Mapping[str, str], warnings: list[str],
                 progress: _Progress | None = None, share: float = 0.0,
                 ) -> tuple[list[NewColumn], list[int]]:
-    """Read one price sheet, compute its columns and say where each one goes."""
+    """Read one price sheet, compute its columns and say where each one goes.
+
+    ``typed``: typed sheetvol formulas count as used cells (they are evaluated, and
+    their cells kept); the reading pass notes them.
+    """
     progress = progress or _Progress()
     sheet, match = sr.sheet, sr.match
     where = _where(src, sheet)
@@ -770,7 +775,7 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
     for t in pkg.tables(sheet):
         if t.header_row == match.row and t.left <= match.columns["close"] <= t.right:
             max_col = max(max_col, t.right)
-    max_col = max([max_col, *own, *typed_cols])
+    max_col = max([max_col, *own])
     headers = {s.header for s in specs}
     reused = {h: c for c, h in own.items() if h in headers}
     free = sorted(c for c in own if own[c] not in headers)
@@ -782,6 +787,12 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
     start = max_col + 1
     read = pkg.read_columns(sheet, price_cols + list(range(start, start + n_new)),
                             first_row=match.row + 1)
+    # typed formulas (noted by that pass) right of the data: new columns go right of them
+    typed_cols = [fc.col for fc in pkg.formula_cells([sheet])] if typed else []
+    if typed_cols and max(typed_cols) >= start:
+        start = max(typed_cols) + 1
+        read = pkg.read_columns(sheet, list(range(start, start + n_new)),
+                                first_row=match.row + 1) | {c: read[c] for c in price_cols}
     while busy := [c for c in range(start, start + n_new) if _has_cells(read[c])]:
         # cells far below the header in the columns we meant to use: move right of them
         start = max(busy) + 1

@@ -274,32 +274,37 @@ class CellReader:
 _ATTRS = re.compile(rb"""([\w:.\-]+)\s*=\s*(["'])(.*?)\2""", re.S)
 
 
-def iter_cells(
-    stream: SheetStream,
-    max_row: int | None = None,
-    skip_chunk: Callable[[bytes], bool] | None = None,
-) -> Iterator[tuple[int, int, bytes, bytes | None]]:
-    """Yield (row, col, attrs, inner) for each cell, with implied positions filled in.
+class RowCursor:
+    """Walks the body chunks of one sheet in order, keeping the row number across them.
 
-    ``skip_chunk(chunk)`` True passes over a whole chunk of rows unparsed (when its last
-    row states its number, so later implied row numbers stay right).
+    Rows and cells that omit ``r`` take the position after the previous one, so the
+    row number carries from chunk to chunk; :meth:`skip` passes over a chunk without
+    parsing it when its last row states its number.
     """
-    pat = stream.pat
-    row_re, cell_re = pat.row, pat.cell
-    r = 0
-    for chunk in stream.body():
-        if skip_chunk is not None and skip_chunk(chunk):
-            last = _last_row_start(chunk, pat.row_start)
-            m = ATTR_R_ROW.search(chunk, last, chunk.find(b">", last))
-            if m:
-                r = int(m[1])
-                if max_row is not None and r > max_row:
-                    return
-                continue
+
+    def __init__(self, pat: Patterns) -> None:
+        self.pat = pat
+        self.r = 0
+        self.done = False  # a row beyond ``max_row`` was reached
+
+    def skip(self, chunk: bytes) -> bool:
+        """Pass over ``chunk`` unparsed; False (nothing done) when its last row has no ``r``."""
+        last = _last_row_start(chunk, self.pat.row_start)
+        m = ATTR_R_ROW.search(chunk, last, chunk.find(b">", last))
+        if m:
+            self.r = int(m[1])
+        return m is not None
+
+    def cells(self, chunk: bytes, max_row: int | None = None
+              ) -> Iterator[tuple[int, int, bytes, bytes | None]]:
+        """(row, col, attrs, inner) of each cell of ``chunk``, up to row ``max_row``."""
+        row_re, cell_re = self.pat.row, self.pat.cell
+        r = self.r
         for rm in row_re.finditer(chunk):
             mr = ATTR_R_ROW.search(rm[1])
-            r = int(mr[1]) if mr else r + 1
+            r = self.r = int(mr[1]) if mr else r + 1
             if max_row is not None and r > max_row:
+                self.done = True
                 return
             inner = rm[3]
             if not inner:
@@ -310,6 +315,27 @@ def iter_cells(
                 mc = ATTR_R_CELL.search(attrs)
                 c = col_index(mc[1]) if mc else c + 1
                 yield r, c, attrs, cm[3]
+
+
+def iter_cells(
+    stream: SheetStream,
+    max_row: int | None = None,
+    skip_chunk: Callable[[bytes], bool] | None = None,
+) -> Iterator[tuple[int, int, bytes, bytes | None]]:
+    """Yield (row, col, attrs, inner) for each cell, with implied positions filled in.
+
+    ``skip_chunk(chunk)`` True passes over a whole chunk of rows unparsed (when its last
+    row states its number, so later implied row numbers stay right).
+    """
+    cursor = RowCursor(stream.pat)
+    for chunk in stream.body():
+        if skip_chunk is not None and skip_chunk(chunk) and cursor.skip(chunk):
+            if max_row is not None and cursor.r > max_row:
+                return
+            continue
+        yield from cursor.cells(chunk, max_row)
+        if cursor.done:
+            return
 
 
 _REF_TOKEN = re.compile(

@@ -24,6 +24,7 @@ from sheetvol.workbook._sheetxml import (
     ATTR_R_ROW,
     CellReader,
     Patterns,
+    RowCursor,
     SheetStream,
     col_index,
     col_letters,
@@ -124,6 +125,8 @@ class Package:
     workbook_part: str = "xl/workbook.xml"
     _shared: list[str] | None = field(default=None, repr=False)
     _shared_loaded: bool = field(default=False, repr=False)
+    # typed sheetvol formulas by sheet part, noted by any pass that read the whole sheet
+    _formulas: dict[str, list[FormulaCell]] = field(default_factory=dict, repr=False)
 
     @classmethod
     def open(cls, path: str | Path, *, max_total: int | None = None,
@@ -365,7 +368,10 @@ class Package:
                               + p + rb"c>)", re.S)
             r_first = b"<" + pat.prefix + b'c r="'
             c_any = b"<" + pat.prefix + b"c"
+            # the typed-formula scan rides along, so the sheet is inflated once for both
+            scan = FormulaScan(info.name, pat)
             for chunk in stream.body():
+                scan.feed(chunk)
                 # every "<c" starting a cell with r first? (rich text runs such as <color>
                 # also count, and merely send the chunk down the general path)
                 if chunk.count(r_first) == chunk.count(c_any):
@@ -395,6 +401,7 @@ class Package:
                     else:
                         other[c][r] = value
                     last = max(last, r)
+        self._formulas[info.part] = scan.found
         n = max(last - first_row + 1, 0)
         out = {}
         for c in cols:
@@ -431,48 +438,37 @@ class Package:
                     out[r - top][c - left] = reader.value(attrs, inner)
         return out
 
-    def formula_cells(self) -> list[FormulaCell]:
+    def formula_cells(self, sheets: list[str] | None = None) -> list[FormulaCell]:
         """Every worksheet cell whose formula text mentions a sheetvol function (``SV_``).
+
+        A sheet already read whole by :meth:`read_columns` is not read again: that pass
+        noted its formulas.
+
+        Parameters
+        ----------
+        sheets : list of str, optional
+            Only these sheets (default: every worksheet).
 
         Returns
         -------
         list of FormulaCell
             In sheet order, then row and column order.
         """
+        wanted = None if sheets is None else {self.sheet(s).part for s in sheets}
         out: list[FormulaCell] = []
         with self._zip() as zf:
             for info in self.sheets:
-                if info.kind != "worksheet" or info.part not in zf.namelist():
+                if info.kind != "worksheet" or (wanted is not None and info.part not in wanted):
                     continue
-                stream = self._stream(zf, info)
-                reader = CellReader(stream.pat, None)
-                masters: dict[str, tuple[int, int, str]] = {}
-                f_tag = b"<" + stream.pat.prefix + b"f"
-
-                def skip(chunk: bytes, f_tag: bytes = f_tag,
-                         masters: dict[str, tuple[int, int, str]] = masters) -> bool:
-                    # no formula at all, or no sheetvol name and no shared formula to follow
-                    return f_tag not in chunk or (not masters and not _SV.search(chunk))
-
-                for r, c, _attrs, inner in iter_cells(stream, skip_chunk=skip):
-                    if not inner or (b"<f" not in inner and b":f" not in inner):
+                if info.part not in self._formulas:
+                    if info.part not in zf.namelist():
                         continue
-                    got = reader.formula(inner)
-                    if got is None:
-                        continue
-                    _raw, text, fattrs = got
-                    kind = fattrs.get("t", "normal")
-                    if kind == "shared" and "si" in fattrs:
-                        if text and _SV.search(text.encode()):
-                            masters[fattrs["si"]] = (r, c, text)
-                        elif fattrs["si"] in masters:
-                            mr_, mc_, mtext = masters[fattrs["si"]]
-                            text = shift_formula(mtext, r - mr_, c - mc_)
-                    if not text or not _SV.search(text.encode()):
-                        continue
-                    array_ref = fattrs.get("ref") if kind == "array" else None
-                    out.append(FormulaCell(sheet=info.name, row=r, col=c,
-                                           formula=text.lstrip("="), array_ref=array_ref))
+                    stream = self._stream(zf, info)
+                    scan = FormulaScan(info.name, stream.pat)
+                    for chunk in stream.body():
+                        scan.feed(chunk)
+                    self._formulas[info.part] = scan.found
+                out.extend(self._formulas[info.part])
         return out
 
     def tables(self, sheet: str) -> list[TableInfo]:
@@ -507,6 +503,49 @@ class Package:
                                      display_name=root.get("displayName", ""),
                                      top=top, left=left, bottom=bottom, right=right))
         return out
+
+
+class FormulaScan:
+    """Finds the cells of one sheet whose formula mentions a sheetvol function.
+
+    Fed the body chunks in order (:meth:`feed`), by its own pass or riding along with
+    another reading pass; chunks without a formula, or without a sheetvol name and no
+    shared formula to follow, are passed over unparsed.
+    """
+
+    def __init__(self, sheet: str, pat: Patterns) -> None:
+        self.sheet = sheet
+        self.cursor = RowCursor(pat)
+        self.reader = CellReader(pat, None)
+        self.f_tag = b"<" + pat.prefix + b"f"
+        self.masters: dict[str, tuple[int, int, str]] = {}
+        self.found: list[FormulaCell] = []
+
+    def feed(self, chunk: bytes) -> None:
+        """Note the sheetvol formulas of the next chunk."""
+        if (self.f_tag not in chunk or (not self.masters and not _SV.search(chunk))) and (
+                self.cursor.skip(chunk)):
+            return
+        masters = self.masters
+        for r, c, _attrs, inner in self.cursor.cells(chunk):
+            if not inner or (b"<f" not in inner and b":f" not in inner):
+                continue
+            got = self.reader.formula(inner)
+            if got is None:
+                continue
+            _raw, text, fattrs = got
+            kind = fattrs.get("t", "normal")
+            if kind == "shared" and "si" in fattrs:
+                if text and _SV.search(text.encode()):
+                    masters[fattrs["si"]] = (r, c, text)
+                elif fattrs["si"] in masters:
+                    mr_, mc_, mtext = masters[fattrs["si"]]
+                    text = shift_formula(mtext, r - mr_, c - mc_)
+            if not text or not _SV.search(text.encode()):
+                continue
+            array_ref = fattrs.get("ref") if kind == "array" else None
+            self.found.append(FormulaCell(sheet=self.sheet, row=r, col=c,
+                                          formula=text.lstrip("="), array_ref=array_ref))
 
 
 def _cells_general(chunk: bytes, pat: Patterns) -> list[tuple[bytes, bytes, bytes, bytes]]:
