@@ -132,3 +132,69 @@ def test_a_fill_opens_the_price_sheet_four_times_not_five(tmp_path, monkeypatch)
     assert report.formulas_ok == 2
     # new columns go right of everything used near the top (the formula in G4)
     assert report.written[0].letter == "H"
+
+
+hypothesis = pytest.importorskip("hypothesis")
+st = hypothesis.strategies
+
+
+@hypothesis.given(st.lists(st.floats(allow_nan=True, allow_infinity=True), max_size=50))
+@hypothesis.settings(max_examples=300, deadline=None)
+def test_number_texts_are_python_repr(values):
+    # the writer's number text must stay exactly repr (the shortest round-trip text)
+    from sheetvol.workbook._rowedit import repr_texts
+
+    want = [repr(v) if v == v and abs(v) != float("inf") else "" for v in values]
+    assert repr_texts(np.array(values, dtype=np.float64)) == want
+
+
+def test_number_texts_are_python_repr_across_magnitudes():
+    # every binary exponent, both signs, the subnormals and the edges of repr's two styles
+    from sheetvol.workbook._rowedit import repr_texts
+
+    rng = np.random.default_rng(11)
+    bits = rng.integers(0, 2**63, 200_000, dtype=np.uint64) | (
+        rng.integers(0, 2, 200_000, dtype=np.uint64) << np.uint64(63))
+    values = bits.view(np.float64)
+    edges = np.array([1e-4, np.nextafter(1e-4, 0), 1e16, np.nextafter(1e16, 0), 5e-324,
+                      2.2250738585072014e-308, 1.7976931348623157e308, 0.1, 1.0, 0.0, -0.0])
+    values = np.concatenate([values, edges, -edges])
+    want = [repr(v) if np.isfinite(v) else "" for v in values.tolist()]
+    assert repr_texts(values) == want
+
+
+def test_write_behind_keeps_the_order_of_the_pieces():
+    import io
+
+    from sheetvol.workbook._zipcopy import WriteBehind
+
+    buf = io.BytesIO()
+    pieces = [f"<row r=\"{i}\"/>".encode() for i in range(1, 2001)]
+    with WriteBehind(buf, depth=3) as w:
+        for piece in pieces:
+            w.write(piece)
+    assert buf.getvalue() == b"".join(pieces)
+
+
+def test_write_behind_reports_a_failed_write_in_the_callers_thread():
+    from sheetvol.workbook._zipcopy import WriteBehind
+
+    class Full:
+        def write(self, data: bytes) -> int:
+            raise OSError(28, "No space left on device")
+
+    with pytest.raises(OSError, match="No space left"), WriteBehind(Full()) as w:
+        for _ in range(10):
+            w.write(b"<row/>")
+
+
+def test_write_behind_lets_the_callers_error_through():
+    import io
+
+    from sheetvol.workbook._zipcopy import WriteBehind
+
+    buf = io.BytesIO()
+    with pytest.raises(ValueError, match="row loop"), WriteBehind(buf) as w:
+        w.write(b"a")
+        raise ValueError("row loop failed")
+    assert buf.getvalue() == b"a"  # what was queued before the failure is written

@@ -76,6 +76,7 @@ from sheetvol.workbook._sheetxml import (
 )
 from sheetvol.workbook._styles import MINIMAL_STYLES, StyleBook
 from sheetvol.workbook._zipcopy import (
+    WriteBehind,
     clone_info,
     raw_copy,
     set_level,
@@ -624,7 +625,8 @@ class _Job:
             zi = clone_info(info)
             zi.compress_type = zipfile.ZIP_DEFLATED
             set_level(zi, self.level)
-            with zout.open(zi, "w", force_zip64=info.file_size > 1 << 30) as w:
+            with (zout.open(zi, "w", force_zip64=info.file_size > 1 << 30) as out,
+                  WriteBehind(out) as w):
                 w.write(head)
                 for piece in editor.process(stream.body(), progress):
                     w.write(piece)
