@@ -198,3 +198,43 @@ def test_write_behind_lets_the_callers_error_through():
         w.write(b"a")
         raise ValueError("row loop failed")
     assert buf.getvalue() == b"a"  # what was queued before the failure is written
+
+
+def test_read_ahead_gives_the_same_chunks_and_stops_early(tmp_path):
+    import io
+
+    from sheetvol.workbook._sheetxml import ReadAhead
+
+    data = bytes(range(256)) * 1000
+    ahead = ReadAhead(io.BytesIO(data), 4096)
+    got = [ahead.read(4096) for _ in range(3)]
+    assert got == [data[:4096], data[4096:8192], data[8192:12288]]
+    assert ahead.read(-1) == data[12288:]  # the rest, as a plain read(-1) gives it
+    assert ahead.read(4096) == b""
+    ahead.close()
+    early = ReadAhead(io.BytesIO(data), 1024)
+    assert early.read(1024) == data[:1024]
+    early.close()  # the thread stops though most of the data was never asked for
+    assert not early._thread.is_alive()
+
+
+def test_read_ahead_hands_a_damaged_part_to_the_reader(tmp_path):
+    # a sheet part whose deflated bytes are cut: the error names the file and the part
+    import zipfile
+
+    from sheetvol.workbook import Package, WorkbookError
+
+    src = price_book(tmp_path / "prices.xlsx", rows=3000)
+    bad = tmp_path / "bad.xlsx"
+    with zipfile.ZipFile(src) as zin, zipfile.ZipFile(bad, "w", zipfile.ZIP_DEFLATED) as zout:
+        for info in zin.infolist():
+            zout.writestr(info, zin.read(info))
+    raw = bytearray(bad.read_bytes())
+    with zipfile.ZipFile(bad) as zf:
+        info = zf.getinfo("xl/worksheets/sheet1.xml")
+    # the local header is 30 bytes plus the name and extra field; spoil the deflate stream
+    at = info.header_offset + 30 + len(info.filename) + len(info.extra) + info.compress_size // 2
+    raw[at : at + 64] = b"\xff" * 64
+    bad.write_bytes(bytes(raw))
+    with pytest.raises(WorkbookError, match=r"bad\.xlsx.*sheet1\.xml"):
+        Package.open(bad).read_columns("Prices", [4], first_row=2)

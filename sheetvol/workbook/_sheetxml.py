@@ -14,7 +14,9 @@ Text never contains a raw ``<``, so element starts found by the patterns are rea
 
 from __future__ import annotations
 
+import queue
 import re
+import threading
 import zipfile
 import zlib
 from collections.abc import Callable, Iterator
@@ -142,8 +144,10 @@ class SheetStream:
     starts with ``</sheetData>`` and is complete once :meth:`body` is exhausted.
     """
 
-    def __init__(self, fh: IO[bytes], part: str, name: str, chunk: int = CHUNK) -> None:
+    def __init__(self, fh: IO[bytes], part: str, name: str, chunk: int = CHUNK,
+                 ahead: bool = False) -> None:
         self.fh = fh
+        self.ahead = ahead  # inflate the next chunk in a second thread (whole passes only)
         self.part = part
         self.name = name
         self.chunk = chunk
@@ -176,6 +180,18 @@ class SheetStream:
         if self.empty:
             self.tail = self._rest + self._read(-1)
             return
+        if not self.ahead:
+            yield from self._body()
+            return
+        fh = self.fh
+        self.fh = ahead = ReadAhead(fh, self.chunk)
+        try:
+            yield from self._body()
+        finally:
+            ahead.close()
+            self.fh = fh
+
+    def _body(self) -> Iterator[bytes]:
         buf = self._rest
         self._rest = b""
         end_tag = self.pat.sheetdata_end
@@ -200,6 +216,64 @@ class SheetStream:
             if not data:
                 eof = True
             buf += data
+
+
+class ReadAhead:
+    """Reads ``fh`` in chunks of ``size`` in a second thread, one chunk ahead of the caller.
+
+    Inflating (zlib) releases the GIL, so the next chunk inflates on the other core
+    while the caller scans this one. The caller must :meth:`close` it (the thread then
+    stops even when the rest was never asked for). Errors of the thread are raised in
+    the caller's :meth:`read`.
+    """
+
+    def __init__(self, fh: IO[bytes], size: int) -> None:
+        self.fh = fh
+        self.size = size
+        self._queue: queue.Queue[bytes | BaseException] = queue.Queue(maxsize=1)
+        self._stop = False
+        self._done = False
+        self._thread = threading.Thread(target=self._run, name="sheetvol-inflate", daemon=True)
+        self._thread.start()
+
+    def _run(self) -> None:
+        try:
+            while not self._stop:
+                data = self.fh.read(self.size)
+                self._queue.put(data)
+                if not data:
+                    return
+        except BaseException as exc:  # handed to the caller's thread
+            self._queue.put(exc)
+
+    def _next(self) -> bytes:
+        if self._done:
+            return b""
+        item = self._queue.get()
+        if isinstance(item, BaseException):
+            self._done = True
+            raise item
+        self._done = not item
+        return item
+
+    def read(self, n: int = -1) -> bytes:
+        """The next chunk (``n`` is the chunk size), or everything left when ``n`` < 0."""
+        if n >= 0:
+            return self._next()
+        parts = []
+        while data := self._next():
+            parts.append(data)
+        return b"".join(parts)
+
+    def close(self) -> None:
+        """Stop the thread: it ends after the chunk it is inflating."""
+        self._stop = True
+        while self._thread.is_alive():
+            try:
+                self._queue.get(timeout=0.05)  # unblock a waiting put
+            except queue.Empty:
+                pass
+        self._thread.join()
 
 
 def _last_row_start(buf: bytes, start: bytes) -> int:

@@ -289,13 +289,14 @@ class Package:
         return shared
 
     # -- cells -----------------------------------------------------------------------
-    def _stream(self, zf: zipfile.ZipFile, info: SheetInfo) -> SheetStream:
+    def _stream(self, zf: zipfile.ZipFile, info: SheetInfo, ahead: bool = False
+                ) -> SheetStream:
         try:
             fh = zf.open(info.part)
         except KeyError:
             raise WorkbookError(f"{self.path.name}: the part of sheet {info.name!r} "
                                 f"({info.part}) is missing; the workbook is damaged.") from None
-        return SheetStream(fh, info.part, self.path.name)
+        return SheetStream(fh, info.part, self.path.name, ahead=ahead)
 
     def read_grid(self, sheet: str, max_rows: int | None = None) -> Grid:
         """All cells of a sheet (up to row ``max_rows``), for header detection and small sheets.
@@ -353,7 +354,7 @@ class Package:
         other: dict[int, dict[int, object]] = {c: {} for c in wanted}
         last = first_row - 1
         with self._zip() as zf:
-            stream = self._stream(zf, info)
+            stream = self._stream(zf, info, ahead=True)
             pat = stream.pat
             reader = CellReader(pat, self.shared_strings(zf))
             wanted_letters = {col_letters(c).encode(): c for c in wanted}
@@ -463,7 +464,7 @@ class Package:
                 if info.part not in self._formulas:
                     if info.part not in zf.namelist():
                         continue
-                    stream = self._stream(zf, info)
+                    stream = self._stream(zf, info, ahead=True)
                     scan = FormulaScan(info.name, stream.pat)
                     for chunk in stream.body():
                         scan.feed(chunk)

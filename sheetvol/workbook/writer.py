@@ -617,7 +617,7 @@ class _Job:
                      progress: Callable[[int], None] | None) -> None:
         sheet = next(s for s in self.pkg.sheets if s.part == info.filename)
         with self.zin.open(info) as fh:
-            stream = SheetStream(fh, info.filename, self.file)
+            stream = SheetStream(fh, info.filename, self.file, ahead=True)
             edits = self._sheet_edits(sheet, stream)
             editor = RowEditor(edits, stream.pat)
             edits.on_change = editor._refresh_ranges
