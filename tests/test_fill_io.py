@@ -238,3 +238,14 @@ def test_read_ahead_hands_a_damaged_part_to_the_reader(tmp_path):
     bad.write_bytes(bytes(raw))
     with pytest.raises(WorkbookError, match=r"bad\.xlsx.*sheet1\.xml"):
         Package.open(bad).read_columns("Prices", [4], first_row=2)
+
+
+def test_fill_benchmark_runs_and_prints_a_verdict_per_target(capsys):
+    # timings are printed, never asserted: they depend on the machine and its load
+    pytest.importorskip("python_calamine")
+    from benches import fill_io
+
+    assert fill_io.main(["--rows", "2000", "--small-runs", "1"]) == 0
+    out = capsys.readouterr().out
+    assert "machine:" in out and "fill / floors" in out
+    assert "500-row fill, whole process, under 0.3 s" in out
