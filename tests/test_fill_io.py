@@ -158,7 +158,9 @@ def test_number_texts_are_python_repr_across_magnitudes():
     values = bits.view(np.float64)
     edges = np.array([1e-4, np.nextafter(1e-4, 0), 1e16, np.nextafter(1e16, 0), 5e-324,
                       2.2250738585072014e-308, 1.7976931348623157e308, 0.1, 1.0, 0.0, -0.0])
-    values = np.concatenate([values, edges, -edges])
+    # one value per binary exponent, subnormals included (ldexp of a mantissa in [1, 2))
+    sweep = np.ldexp(rng.uniform(1, 2, 2098), np.arange(-1074, 1024))
+    values = np.concatenate([values, sweep, -sweep, edges, -edges])
     want = [repr(v) if np.isfinite(v) else "" for v in values.tolist()]
     assert repr_texts(values) == want
 
