@@ -251,3 +251,27 @@ def test_fill_benchmark_runs_and_prints_a_verdict_per_target(capsys):
     out = capsys.readouterr().out
     assert "machine:" in out and "fill / floors" in out
     assert "500-row fill, whole process, under 0.3 s" in out
+
+
+def test_a_write_that_fails_deep_in_the_sheet_leaves_no_thread_and_no_file(tmp_path,
+                                                                           monkeypatch):
+    import gc
+    import threading
+
+    from sheetvol.workbook import NewColumn, Package, WorkbookError, write_package
+    from sheetvol.workbook._sheetxml import SheetStream
+
+    # small chunks, so the failure comes while both helper threads are busy
+    monkeypatch.setattr(SheetStream.__init__, "__defaults__", (4096, False))
+    src = price_book(tmp_path / "prices.xlsx", rows=3000)
+    # cells in column F only far down: a header in F2501 and a number in F2502
+    write_package(Package.open(src), tmp_path / "marked.xlsx",
+                  [NewColumn("Prices", 6, 2501, "mark", 2502, np.ones(1), "0")])
+    out = tmp_path / "out.xlsx"
+    with pytest.raises(WorkbookError, match="F2501 already holds a value"):
+        write_package(Package.open(tmp_path / "marked.xlsx"), out,
+                      [NewColumn("Prices", 6, 1, "mark", 2, np.ones(3000), "0",
+                                 replace=False)])
+    gc.collect()
+    assert [t.name for t in threading.enumerate() if t.name.startswith("sheetvol")] == []
+    assert not out.exists() and not list(tmp_path.glob(".out.xlsx.*"))
