@@ -1,22 +1,23 @@
-"""Benchmark of the package layer's fill path (not a timed test).
+"""Benchmark of ``sheetvol fill`` against the input/output floors (not a timed test).
 
-Builds OHLC workbooks of 100,000 and 1,048,576 rows (7 columns: date, open, high,
-low, close, volume, a text column), then measures in separate processes, each with its
-own peak memory (``ru_maxrss``):
+Builds OHLC workbooks (7 columns: date, open, high, low, close, volume, a text column;
+invented random-walk prices) and measures, each in its own process so that peak memory
+(``ru_maxrss``) is its own, in the same run:
 
-- ``sheetvol``: ``Package.open`` + ``read_columns`` (5 columns) + ``write_package``
-  with 4 new columns;
-- ``openpyxl``: ``load_workbook`` + the same 4 columns written cell by cell + ``save``
-  (the path the package layer replaces);
-- ``rezip``: inflating and deflating every part, the floor for any rewrite.
+- **fill**: ``fill_file`` on the workbook, the whole job of ``sheetvol fill`` (header
+  detection, reading, the default columns, the notes sheet, writing), timed inside
+  the process;
+- **read floor**: python-calamine (a compiled reader) reading every cell of the price
+  sheet;
+- **write floor**: re-zipping the fill's output at zlib level 1 (the level the fill
+  uses for the sheets it rewrites): inflating and deflating every part;
+- **small fill, whole process**: ``python -m sheetvol fill`` on a 500-row workbook,
+  wall time from start to exit (median of 5, bytecode cached as in an installed
+  package).
 
-The 1,048,576-row workbook is built from an xlsxwriter workbook whose sheet part is
-replaced by generated XML of the same form (xlsxwriter itself needs minutes for it).
-
-Run from the repository root: ``python -m benches.fill_io [rows ...]``
-Options: ``--openpyxl-rows N`` measures openpyxl at N rows and scales linearly to the
-larger sizes (it takes minutes and gigabytes at a million rows); ``--openpyxl-full``
-measures it at every size.
+Then one line per target says met / not met with the figures. Run from the repository
+root: ``python -m benches.fill_io`` (sizes with ``--rows``). python-calamine is a
+test-only dependency (the ``test`` extra).
 """
 
 from __future__ import annotations
@@ -24,6 +25,8 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import platform
+import statistics
 import subprocess
 import sys
 import tempfile
@@ -34,8 +37,15 @@ from pathlib import Path
 import numpy as np
 
 HERE = Path(__file__).resolve()
-ROOT = HERE.parents[2]
+ROOT = HERE.parents[1]
 HEADERS = ["Date", "Open", "High", "Low", "Close", "Volume", "Note"]
+BIG, MID, SMALL = 1_048_576, 100_000, 500
+# the targets of the fill (issue "The fill: close to the I/O floor")
+FLOOR_RATIO = 1.25  # fill time / (read floor + write floor) at BIG rows
+PEAK_MB = 1024.0  # peak memory at BIG rows
+MID_SECONDS = 1.5  # fill time at MID rows
+SMALL_SECONDS = 0.3  # whole process at SMALL rows
+SMALL_RUNS = 5
 
 
 def build(path: Path, rows: int, seed: int = 7) -> Path:
@@ -86,102 +96,163 @@ def build(path: Path, rows: int, seed: int = 7) -> Path:
     return path
 
 
-def run_sheetvol(src: str, dst: str) -> dict:
-    """The package-layer fill: read 5 columns, compute 4, write them."""
+def run_fill(src: str, dst: str) -> dict:
+    """The whole fill job, as ``sheetvol fill`` runs it."""
     sys.path.insert(0, str(ROOT))
-    from sheetvol.workbook import NewColumn, Package, write_package
+    from sheetvol.fill.job import FillOptions, fill_file
 
     t0 = time.perf_counter()
-    pkg = Package.open(src)
-    cols = pkg.read_columns("Prices", [1, 2, 3, 4, 5], first_row=2)
-    t1 = time.perf_counter()
-    high, low, close = cols[3].numbers, cols[4].numbers, cols[5].numbers
-    rng = high - low
-    edits = [
-        NewColumn("Prices", 8, 1, "range", 2, rng, "0.0000", width=10),
-        NewColumn("Prices", 9, 1, "mid", 2, (high + low) / 2, "0.00"),
-        NewColumn("Prices", 10, 1, "ret", 2, np.r_[np.nan, np.diff(np.log(close))], "0.00%"),
-        NewColumn("Prices", 11, 1, "x", 2, close * 1.5, "0.00"),
-    ]
-    write_package(pkg, dst, edits)
-    t2 = time.perf_counter()
-    return {"read_s": t1 - t0, "write_s": t2 - t1, "total_s": t2 - t0}
-
-
-def run_openpyxl(src: str, dst: str) -> dict:
-    """openpyxl load + the same 4 columns + save."""
-    import openpyxl
-
-    t0 = time.perf_counter()
-    wb = openpyxl.load_workbook(src)
-    ws = wb["Prices"]
-    n = ws.max_row
-    for j, name in enumerate(["range", "mid", "ret", "x"], start=8):
-        ws.cell(1, j, name)
-        for r in range(2, n + 1):
-            ws.cell(r, j, r * 0.5)
-    wb.save(dst)
+    fill_file(src, FillOptions(output=Path(dst)))
     return {"total_s": time.perf_counter() - t0}
 
 
-def run_rezip(src: str, dst: str) -> dict:
-    """Inflate and deflate every part (default level)."""
+def run_read_floor(src: str, dst: str) -> dict:
+    """python-calamine reading every cell of the price sheet."""
+    from python_calamine import CalamineWorkbook
+
     t0 = time.perf_counter()
-    with zipfile.ZipFile(src) as zin, zipfile.ZipFile(dst, "w", zipfile.ZIP_DEFLATED) as zout:
+    rows = CalamineWorkbook.from_path(src).get_sheet_by_name("Prices").to_python()
+    return {"total_s": time.perf_counter() - t0, "rows": len(rows)}
+
+
+def run_write_floor(src: str, dst: str) -> dict:
+    """Re-zip ``src`` (here: the fill's output) at zlib level 1."""
+    t0 = time.perf_counter()
+    with zipfile.ZipFile(src) as zin, zipfile.ZipFile(
+            dst, "w", zipfile.ZIP_DEFLATED, compresslevel=1) as zout:
         for info in zin.infolist():
-            zout.writestr(info.filename, zin.read(info))
+            with zin.open(info) as r, zout.open(info.filename, "w", force_zip64=True) as w:
+                while data := r.read(1 << 23):
+                    w.write(data)
     return {"total_s": time.perf_counter() - t0}
 
 
 def child(kind: str, src: str, dst: str) -> None:
     import resource
 
-    fn = {"sheetvol": run_sheetvol, "openpyxl": run_openpyxl, "rezip": run_rezip}[kind]
+    fn = {"fill": run_fill, "read": run_read_floor, "write": run_write_floor}[kind]
+    before = resource.getrusage(resource.RUSAGE_SELF)
     out = fn(src, dst)
-    out["peak_mb"] = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+    usage = resource.getrusage(resource.RUSAGE_SELF)
+    out["peak_mb"] = usage.ru_maxrss / 1024
+    # CPU seconds of all threads: on a busy machine wall time stretches, this does less
+    out["cpu_s"] = (usage.ru_utime + usage.ru_stime) - (before.ru_utime + before.ru_stime)
     print(json.dumps(out))
 
 
-def measure(kind: str, src: Path, dst: Path) -> dict:
+def child_env(cache: Path) -> dict[str, str]:
+    """The environment of measured processes: bytecode cached (as after an install)."""
+    env = {k: v for k, v in os.environ.items() if k != "PYTHONDONTWRITEBYTECODE"}
+    env["PYTHONPYCACHEPREFIX"] = str(cache)
+    env["PYTHONPATH"] = os.pathsep.join([str(ROOT), env.get("PYTHONPATH", "")]).rstrip(
+        os.pathsep)
+    return env
+
+
+def measure(kind: str, src: Path, dst: Path, env: dict[str, str]) -> dict:
     proc = subprocess.run([sys.executable, str(HERE), "--child", kind, str(src), str(dst)],
-                          capture_output=True, text=True)
+                          capture_output=True, text=True, env=env, cwd=ROOT)
     if proc.returncode:
         raise SystemExit(f"{kind} failed:\n{proc.stderr}")
     return json.loads(proc.stdout.strip().splitlines()[-1])
 
 
-def main() -> None:
+def whole_process(src: Path, dst: Path, env: dict[str, str], runs: int
+                  ) -> tuple[list[float], list[float]]:
+    """Wall and CPU times of ``python -m sheetvol fill`` from start to exit."""
+    import resource
+
+    cmd = [sys.executable, "-m", "sheetvol", "fill", str(src), "-o", str(dst)]
+    subprocess.run(cmd, env=env, cwd=ROOT, capture_output=True, check=True)  # warm the cache
+    walls, cpus = [], []
+    for _ in range(runs):
+        before = resource.getrusage(resource.RUSAGE_CHILDREN)
+        t0 = time.perf_counter()
+        subprocess.run(cmd, env=env, cwd=ROOT, capture_output=True, check=True)
+        walls.append(time.perf_counter() - t0)
+        after = resource.getrusage(resource.RUSAGE_CHILDREN)
+        cpus.append(after.ru_utime + after.ru_stime - before.ru_utime - before.ru_stime)
+    return walls, cpus
+
+
+def machine() -> str:
+    """CPU model, cores, caches (from lscpu), Python and load: printed with every run."""
+    info: dict[str, str] = {}
+    try:
+        out = subprocess.run(["lscpu"], capture_output=True, text=True, check=True).stdout
+        for line in out.splitlines():
+            key, _, value = line.partition(":")
+            info[key.strip()] = value.strip()
+    except (OSError, subprocess.CalledProcessError):
+        pass
+    caches = ", ".join(f"{k.split()[0]} {info[k]}" for k in ("L2 cache", "L3 cache")
+                       if k in info)
+    load = ", ".join(f"{x:.1f}" for x in os.getloadavg())
+    return (f"{info.get('Model name', platform.processor() or 'unknown CPU')}, "
+            f"{os.cpu_count()} cores, {caches}; Python {platform.python_version()}; "
+            f"load average {load}")
+
+
+def verdict(ok: bool, text: str) -> str:
+    return f"  {'met    ' if ok else 'NOT MET'}  {text}"
+
+
+def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("rows", nargs="*", type=int, default=[100_000, 1_048_576])
-    ap.add_argument("--openpyxl-rows", type=int, default=100_000)
-    ap.add_argument("--openpyxl-full", action="store_true")
+    ap.add_argument("--rows", nargs="*", type=int, default=[MID, BIG],
+                    help="sheet rows of the filled workbooks (default: 100000 1048576)")
+    ap.add_argument("--small-runs", type=int, default=SMALL_RUNS)
     ap.add_argument("--child", nargs=3, help=argparse.SUPPRESS)
-    args = ap.parse_args()
+    args = ap.parse_args(argv)
     if args.child:
         child(*args.child)
-        return
+        return 0
+    print(f"machine: {machine()}", flush=True)
+    lines = []
     with tempfile.TemporaryDirectory(prefix="sv-bench-") as d:
         folder = Path(d)
-        op_ref = None
+        env = child_env(folder / "pycache")
+        small = build(folder / "small.xlsx", SMALL + 1)
+        times, cpus = whole_process(small, folder / "small-out.xlsx", env, args.small_runs)
+        mid_small = statistics.median(times)
+        print(f"{SMALL:>9} rows: whole process {mid_small:.3f} s wall, "
+              f"{statistics.median(cpus):.3f} s CPU (medians of {len(times)}; wall: "
+              f"{', '.join(f'{t:.3f}' for t in times)})", flush=True)
+        lines.append(verdict(mid_small < SMALL_SECONDS, f"{SMALL}-row fill, whole process, "
+                             f"under {SMALL_SECONDS} s: {mid_small:.3f} s"))
+        print(f"{'rows':>9} {'file':>6} {'fill':>7} {'peak':>8} {'read floor':>11} "
+              f"{'write floor':>12} {'fill / floors':>14}   CPU s: fill, read, write")
         for rows in sorted(set(args.rows)):
             src = build(folder / f"ohlc{rows}.xlsx", rows)
-            mb = src.stat().st_size / 1e6
-            sv = measure("sheetvol", src, folder / "out-sv.xlsx")
-            rz = measure("rezip", src, folder / "out-rz.xlsx")
-            line = (f"{rows:>9} rows ({mb:.0f} MB): sheetvol {sv['total_s']:.1f} s "
-                    f"(read {sv['read_s']:.1f} s, write {sv['write_s']:.1f} s), "
-                    f"{sv['peak_mb']:.0f} MB peak; re-zip alone {rz['total_s']:.1f} s")
-            if args.openpyxl_full or rows <= args.openpyxl_rows:
-                op = measure("openpyxl", src, folder / "out-op.xlsx")
-                op_ref = (rows, op)
-                line += (f"; openpyxl load+save {op['total_s']:.1f} s, {op['peak_mb']:.0f} MB "
-                         f"peak -> {op['total_s'] / sv['total_s']:.1f}x")
-            elif op_ref is not None:
-                scaled = op_ref[1]["total_s"] * rows / op_ref[0]
-                line += (f"; openpyxl scaled from {op_ref[0]} rows ~{scaled:.0f} s "
-                         f"-> ~{scaled / sv['total_s']:.1f}x")
-            print(line, flush=True)
+            out = folder / "out.xlsx"
+            fill = measure("fill", src, out, env)
+            read = measure("read", src, folder / "unused", env)
+            write = measure("write", out, folder / "rezip.xlsx", env)
+            floors = read["total_s"] + write["total_s"]
+            ratio = fill["total_s"] / floors
+            print(f"{rows:>9} {src.stat().st_size / 1e6:>4.0f}MB {fill['total_s']:>6.2f}s "
+                  f"{fill['peak_mb']:>6.0f}MB {read['total_s']:>10.2f}s {write['total_s']:>11.2f}s "
+                  f"{ratio:>13.2f}x   {fill['cpu_s']:.2f}, {read['cpu_s']:.2f}, "
+                  f"{write['cpu_s']:.2f}", flush=True)
+            if rows == BIG:
+                lines.append(verdict(ratio <= FLOOR_RATIO, (
+                    f"{BIG}-row fill within {FLOOR_RATIO}x of read floor + write floor: "
+                    f"{ratio:.2f}x ({fill['total_s']:.1f} s vs {read['total_s']:.1f} + "
+                    f"{write['total_s']:.1f} s)")))
+                lines.append(verdict(fill["peak_mb"] < PEAK_MB, (
+                    f"{BIG}-row fill peak memory under {PEAK_MB:.0f} MB: "
+                    f"{fill['peak_mb']:.0f} MB")))
+            if rows == MID:
+                lines.append(verdict(fill["total_s"] < MID_SECONDS, (
+                    f"{MID}-row fill under {MID_SECONDS} s: {fill['total_s']:.2f} s")))
+    print("targets (wall time):")
+    print("\n".join(lines))
+    load = os.getloadavg()[0]
+    if load > (os.cpu_count() or 1):
+        print(f"  (the machine was busy: load average {load:.1f} on {os.cpu_count()} cores, "
+              "so wall times are stretched; compare the CPU seconds)")
+    return 0
 
 
 if __name__ == "__main__":
-    main()
+    sys.exit(main())

@@ -31,7 +31,7 @@ FACE = 4
 ALLOWED_THIRD_PARTY = {
     0: {"numpy"},
     1: {"numpy", "pandas", "openpyxl"},
-    2: {"numpy", "defusedxml"},
+    2: {"numpy", "defusedxml", "orjson"},
     3: {"numpy", "pandas", "defusedxml", "tqdm", "tomli", "xlsxwriter", "openpyxl"},
     4: {"numpy", "pandas", "xlwings", "pythoncom", "win32com"},  # pywin32: xlwings on Windows
 }

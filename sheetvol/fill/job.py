@@ -31,7 +31,6 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
-import pandas as pd
 
 from sheetvol.fill.locate import (
     HEADER_SCAN_ROWS,
@@ -84,6 +83,7 @@ from sheetvol.fill.trade_log import (
     plan_trade_review,
 )
 from sheetvol.functions import cells, registry
+from sheetvol.functions._lazy import pandas as pd
 from sheetvol.workbook import (
     CellError,
     CellResult,
@@ -875,9 +875,7 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport,
     exclude = frozenset(n.casefold() for n in (log.sheet if log else "", instruments.sheet) if n)
     chosen = _choose_sheets(pkg, src, options, exclude, report.skipped)
     progress.sheets([name for name, _, _ in chosen])
-    progress.stage(f"{src.name}: looking for typed sheetvol formulas")
-    typed = pkg.formula_cells() if options.formulas != "skip" else []
-    progress.advance(progress.SCAN)
+    scan = options.formulas != "skip"
     recorded = _recorded(pkg)
     edits: list = []
     taken: dict[str, set[int]] = {}
@@ -903,8 +901,7 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport,
             report.warnings.append(f"{_where(src, sheet)}: {sr.long_sheet}")
             continue
         specs = _select_specs(options, match, _where(src, sheet), report)
-        typed_cols = [fc.col for fc in typed if fc.sheet == sheet]
-        cols, targets, specs = _plan_sheet(pkg, src, options, sr, specs, max_col, typed_cols,
+        cols, targets, specs = _plan_sheet(pkg, src, options, sr, specs, max_col, scan,
                                            recorded.get(sheet.casefold(), {}),
                                            report.warnings, progress, share,
                                            report.assumptions)
@@ -929,6 +926,10 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport,
             e.col for e in trade_edits if isinstance(e, NewColumn))
         report.warnings.extend(report.trades.problems)
         report.assumptions.extend(report.trades.assumptions)
+    # the price sheets' formulas were noted while they were read: only the others are read now
+    progress.stage(f"{src.name}: looking for typed sheetvol formulas")
+    typed = pkg.formula_cells() if scan else []
+    progress.advance(progress.SCAN)
     if typed:
         progress.stage(f"{src.name}: evaluating typed sheetvol formulas")
         edits.extend(_evaluate_formulas(pkg, typed, taken, report, keep=options.formulas == "keep"))
@@ -943,7 +944,7 @@ def _plan(pkg: Package, src: Path, options: FillOptions, report: FillReport,
 
 
 def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
-                specs: list[ColumnSpec], max_col: int, typed_cols: list[int],
+                specs: list[ColumnSpec], max_col: int, typed: bool,
                 recorded: Mapping[str, str], warnings: list[str],
                 progress: _Progress | None = None, share: float = 0.0,
                 assumptions: list[str] | None = None,
@@ -951,7 +952,9 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
     """Read one price sheet, compute its columns and say where each one goes.
 
     Returns the edits, each spec's column and the specs as computed (bars per year
-    filled in from the dates where the recipe did not state them).
+    filled in from the dates where the recipe did not state them). ``typed``: typed
+    sheetvol formulas count as used cells (they are evaluated, and their cells kept);
+    the reading pass notes them.
     """
     assumptions = assumptions if assumptions is not None else []
     progress = progress or _Progress()
@@ -966,7 +969,7 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
         if t.header_row == match.row and t.left <= match.columns["close"] <= t.right:
             max_col = max(max_col, t.right)
             table_of_bars = t
-    max_col = max([max_col, *own, *typed_cols])
+    max_col = max([max_col, *own])
 
     roles = sorted(match.columns, key=match.columns.__getitem__)
     letters = {role: col_letter(match.columns[role]) for role in roles}
@@ -976,6 +979,8 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
     # prices: the headers (and so the reuse of earlier columns) are known after the dates
     read = pkg.read_columns(sheet, price_cols + list(range(start, start + len(specs))),
                             first_row=match.row + 1)
+    # typed formulas (noted by that pass) right of the data: new columns go right of them
+    typed_cols = [fc.col for fc in pkg.formula_cells([sheet])] if typed else []
     table = build_price_table(
         {role: read[match.columns[role]] for role in roles},
         header_row=match.row, letters=letters, date1904=pkg.date1904,
@@ -989,6 +994,10 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
     reused = {h: c for c, h in own.items() if h in headers}
     free = sorted(c for c in own if own[c] not in headers)
     n_new = max(0, len(specs) - len(reused) - len(free))
+    if typed_cols and max(typed_cols) >= start:
+        start = max(typed_cols) + 1
+        read = pkg.read_columns(sheet, list(range(start, start + n_new)),
+                                first_row=match.row + 1) | {c: read[c] for c in price_cols}
     while busy := [c for c in range(start, start + n_new) if _has_cells(read[c])]:
         # cells far below the header in the columns we meant to use: move right of them
         start = max(busy) + 1

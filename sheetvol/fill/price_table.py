@@ -34,9 +34,9 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-import pandas as pd
 
 from sheetvol.functions import cells
+from sheetvol.functions._lazy import pandas as pd
 from sheetvol.workbook.errors import CellError
 
 __all__ = ["PriceTable", "PriceTableError", "build_price_table", "date_order_problem",

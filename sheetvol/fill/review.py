@@ -24,7 +24,6 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
-import pandas as pd
 
 from sheetvol.core import levels, sizing
 from sheetvol.core import review as trade_review
@@ -35,6 +34,7 @@ from sheetvol.fill.recipe import split_basis
 from sheetvol.fill.table import find_roles
 from sheetvol.fill.trade_settings import Instrument, TradeSettings, instrument_key
 from sheetvol.functions import cells, registry
+from sheetvol.functions._lazy import pandas as pd
 from sheetvol.functions.worksheet import REVIEW_FLAG_WORDS, size_words
 
 __all__ = [

@@ -21,7 +21,6 @@ from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
-import pandas as pd
 
 from sheetvol.fill.locate import (
     HEADER_SCAN_ROWS,
@@ -49,6 +48,7 @@ from sheetvol.fill.review import (
 )
 from sheetvol.fill.trade_settings import Instrument, TradeSettings, instrument_key
 from sheetvol.functions import cells
+from sheetvol.functions._lazy import pandas as pd
 from sheetvol.workbook import CellError, NewColumn, NewSheet, Package, Styled
 
 __all__ = [

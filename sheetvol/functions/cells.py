@@ -16,9 +16,9 @@ from collections.abc import Iterable
 from typing import Any
 
 import numpy as np
-import pandas as pd
 
 from sheetvol.core._types import FloatArray
+from sheetvol.functions._lazy import pandas as pd
 
 ERROR_TEXTS = frozenset(
     {

@@ -14,6 +14,7 @@ from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 
 import numpy as np
+import orjson
 
 from sheetvol.functions.grid import MAX_COL
 from sheetvol.workbook._sheetxml import (
@@ -59,6 +60,35 @@ def number_text(value: float) -> str:
     """Shortest text that reads back to the same double (``repr``), e.g. ``1850.25``."""
     text = repr(value)
     return text[:-2] if text.endswith(".0") else text
+
+
+# Python's repr switches to an exponent below 1e-4; orjson writes such numbers in another
+# style (0.00005, 5e-7 for 5e-05, 5e-07), so they take repr itself
+_SMALL = 1e-4
+
+
+def repr_texts(values: np.ndarray) -> list[str]:
+    """``repr`` of each double (its shortest round-trip text), ``""`` for NaN and inf.
+
+    orjson writes the same shortest digits as ``repr`` several times faster; the few
+    numbers it spells differently (magnitudes below 1e-4) take ``repr`` itself.
+
+    Examples
+    --------
+    >>> repr_texts(np.array([1850.25, 1.0, 3e-05, np.nan, -0.0, 1e16]))
+    ['1850.25', '1.0', '3e-05', '', '-0.0', '1e+16']
+    """
+    arr = np.ascontiguousarray(values, dtype=np.float64).ravel()
+    if not len(arr):
+        return []
+    texts = orjson.dumps(arr, option=orjson.OPT_SERIALIZE_NUMPY)[1:-1].decode("ascii").split(",")
+    with np.errstate(invalid="ignore"):
+        small = np.flatnonzero((np.abs(arr) < _SMALL) & (arr != 0))
+    for i in small.tolist():
+        texts[i] = repr(float(arr[i]))
+    if not np.isfinite(arr).all():  # orjson writes null for NaN and inf: no cell
+        texts = ["" if t == "null" else t for t in texts]
+    return texts
 
 
 def text_cell(ref: str, text: str, style: int | None, prefix: str = "") -> str:
@@ -267,18 +297,15 @@ class RowEditor:
                 continue
             s = f' s="{run.style}"' if run.style else ""
             pre, mid, post = f'<{p}c r="{run.letters}', f'"{s}><{p}v>', f"</{p}v></{p}c>"
-            vals = run.values[a - run.first_row : b - run.first_row]
+            nums = repr_texts(np.asarray(run.values[a - run.first_row : b - run.first_row],
+                                         dtype=np.float64))
             if run.texts:  # a column with text cells: their XML is ready-made
                 tx = run.texts
-                strs = [tx[i] if i in tx else (f"{pre}{i}{mid}{v!r}{post}" if v - v == 0
-                                               else "")
-                        for i, v in zip(range(a, b), vals, strict=True)]
-            elif np.isfinite(np.asarray(vals)).all():  # the usual block: no test per cell
-                strs = [f"{pre}{i}{mid}{v!r}{post}" for i, v in zip(range(a, b), vals,
-                                                                    strict=True)]
-            else:  # v - v == 0 is False for NaN and +-inf: no cell
-                strs = [f"{pre}{i}{mid}{v!r}{post}" if v - v == 0 else ""
-                        for i, v in zip(range(a, b), vals, strict=True)]
+                strs = [tx[i] if i in tx else (f"{pre}{i}{mid}{t}{post}" if t else "")
+                        for i, t in zip(range(a, b), nums, strict=True)]
+            else:  # "" for NaN and +-inf: no cell
+                strs = [f"{pre}{i}{mid}{t}{post}" if t else ""
+                        for i, t in zip(range(a, b), nums, strict=True)]
             lists.append([""] * (a - lo) + strs + [""] * (hi - b))
         if not lists:
             blk = [""] * (hi - lo)

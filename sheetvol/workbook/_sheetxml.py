@@ -14,7 +14,9 @@ Text never contains a raw ``<``, so element starts found by the patterns are rea
 
 from __future__ import annotations
 
+import queue
 import re
+import threading
 import zipfile
 import zlib
 from collections.abc import Callable, Iterator
@@ -182,8 +184,10 @@ class SheetStream:
     starts with ``</sheetData>`` and is complete once :meth:`body` is exhausted.
     """
 
-    def __init__(self, fh: IO[bytes], part: str, name: str, chunk: int = CHUNK) -> None:
+    def __init__(self, fh: IO[bytes], part: str, name: str, chunk: int = CHUNK,
+                 ahead: bool = False) -> None:
         self.fh = fh
+        self.ahead = ahead  # inflate the next chunk in a second thread (whole passes only)
         self.part = part
         self.name = name
         self.chunk = chunk
@@ -216,6 +220,18 @@ class SheetStream:
         if self.empty:
             self.tail = self._rest + self._read(-1)
             return
+        if not self.ahead:
+            yield from self._body()
+            return
+        fh = self.fh
+        self.fh = ahead = ReadAhead(fh, self.chunk)
+        try:
+            yield from self._body()
+        finally:
+            ahead.close()
+            self.fh = fh
+
+    def _body(self) -> Iterator[bytes]:
         buf = self._rest
         self._rest = b""
         end_tag = self.pat.sheetdata_end
@@ -240,6 +256,64 @@ class SheetStream:
             if not data:
                 eof = True
             buf += data
+
+
+class ReadAhead:
+    """Reads ``fh`` in chunks of ``size`` in a second thread, one chunk ahead of the caller.
+
+    Inflating (zlib) releases the GIL, so the next chunk inflates on the other core
+    while the caller scans this one. The caller must :meth:`close` it (the thread then
+    stops even when the rest was never asked for). Errors of the thread are raised in
+    the caller's :meth:`read`.
+    """
+
+    def __init__(self, fh: IO[bytes], size: int) -> None:
+        self.fh = fh
+        self.size = size
+        self._queue: queue.Queue[bytes | BaseException] = queue.Queue(maxsize=1)
+        self._stop = False
+        self._done = False
+        self._thread = threading.Thread(target=self._run, name="sheetvol-inflate", daemon=True)
+        self._thread.start()
+
+    def _run(self) -> None:
+        try:
+            while not self._stop:
+                data = self.fh.read(self.size)
+                self._queue.put(data)
+                if not data:
+                    return
+        except BaseException as exc:  # handed to the caller's thread
+            self._queue.put(exc)
+
+    def _next(self) -> bytes:
+        if self._done:
+            return b""
+        item = self._queue.get()
+        if isinstance(item, BaseException):
+            self._done = True
+            raise item
+        self._done = not item
+        return item
+
+    def read(self, n: int = -1) -> bytes:
+        """The next chunk (``n`` is the chunk size), or everything left when ``n`` < 0."""
+        if n >= 0:
+            return self._next()
+        parts = []
+        while data := self._next():
+            parts.append(data)
+        return b"".join(parts)
+
+    def close(self) -> None:
+        """Stop the thread: it ends after the chunk it is inflating."""
+        self._stop = True
+        while self._thread.is_alive():
+            try:
+                self._queue.get(timeout=0.05)  # unblock a waiting put
+            except queue.Empty:
+                pass
+        self._thread.join()
 
 
 def _last_row_start(buf: bytes, start: bytes) -> int:
@@ -314,36 +388,42 @@ class CellReader:
 _ATTRS = re.compile(rb"""([\w:.\-]+)\s*=\s*(["'])(.*?)\2""", re.S)
 
 
-def iter_cells(
-    stream: SheetStream,
-    max_row: int | None = None,
-    skip_chunk: Callable[[bytes], bool] | None = None,
-) -> Iterator[tuple[int, int, bytes, bytes | None]]:
-    """Yield (row, col, attrs, inner) for each cell, with implied positions filled in.
+class RowCursor:
+    """Walks the body chunks of one sheet in order, keeping the row number across them.
 
-    ``skip_chunk(chunk)`` True passes over a whole chunk of rows unparsed (when its last
-    row states its number, so later implied row numbers stay right).
+    Rows and cells that omit ``r`` take the position after the previous one, so the
+    row number carries from chunk to chunk; :meth:`skip` passes over a chunk without
+    parsing it when its last row states its number.
     """
-    pat = stream.pat
-    row_re, cell_re = pat.row, pat.cell
-    r = 0
-    for chunk in stream.body():
-        if skip_chunk is not None and skip_chunk(chunk):
-            last = _last_row_start(chunk, pat.row_start)
-            m = ATTR_R_ROW.search(chunk, last, chunk.find(b">", last))
-            if m:
-                r = int(m[1])
-                if max_row is not None and r > max_row:
-                    return
-                continue
+
+    def __init__(self, pat: Patterns, name: str = "", part: str = "") -> None:
+        self.pat = pat
+        self.name, self.part = name, part  # the file and part a refusal names
+        self.r = 0
+        self.done = False  # a row beyond ``max_row`` was reached
+
+    def skip(self, chunk: bytes) -> bool:
+        """Pass over ``chunk`` unparsed; False (nothing done) when its last row has no ``r``."""
+        last = _last_row_start(chunk, self.pat.row_start)
+        m = ATTR_R_ROW.search(chunk, last, chunk.find(b">", last))
+        if m:
+            self.r = int(m[1])
+        return m is not None
+
+    def cells(self, chunk: bytes, max_row: int | None = None
+              ) -> Iterator[tuple[int, int, bytes, bytes | None]]:
+        """(row, col, attrs, inner) of each cell of ``chunk``, up to row ``max_row``."""
+        row_re, cell_re = self.pat.row, self.pat.cell
+        r = self.r
         for rm in row_re.finditer(chunk):
             mr = ATTR_R_ROW.search(rm[1])
-            r = int(mr[1]) if mr else r + 1
+            r = self.r = int(mr[1]) if mr else r + 1
             if r > MAX_ROW:
                 first = ATTR_R_CELL.search(rm[3] or b"")
                 ref = (first[1].decode() if first else "") + str(r)
-                raise beyond_sheet(stream.name, stream.part, ref if first else f"row {r}")
+                raise beyond_sheet(self.name, self.part, ref if first else f"row {r}")
             if max_row is not None and r > max_row:
+                self.done = True
                 return
             inner = rm[3]
             if not inner:
@@ -354,9 +434,30 @@ def iter_cells(
                 mc = ATTR_R_CELL.search(attrs)
                 c = col_index(mc[1]) if mc else c + 1
                 if c > MAX_COL:
-                    raise beyond_sheet(stream.name, stream.part,
+                    raise beyond_sheet(self.name, self.part,
                                        (mc[1].decode() if mc else f"column {c} ") + str(r))
                 yield r, c, attrs, cm[3]
+
+
+def iter_cells(
+    stream: SheetStream,
+    max_row: int | None = None,
+    skip_chunk: Callable[[bytes], bool] | None = None,
+) -> Iterator[tuple[int, int, bytes, bytes | None]]:
+    """Yield (row, col, attrs, inner) for each cell, with implied positions filled in.
+
+    ``skip_chunk(chunk)`` True passes over a whole chunk of rows unparsed (when its last
+    row states its number, so later implied row numbers stay right).
+    """
+    cursor = RowCursor(stream.pat, stream.name, stream.part)
+    for chunk in stream.body():
+        if skip_chunk is not None and skip_chunk(chunk) and cursor.skip(chunk):
+            if max_row is not None and cursor.r > max_row:
+                return
+            continue
+        yield from cursor.cells(chunk, max_row)
+        if cursor.done:
+            return
 
 
 _REF_TOKEN = re.compile(

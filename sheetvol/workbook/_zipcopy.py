@@ -8,8 +8,11 @@ date and attributes of the entry they replace.
 from __future__ import annotations
 
 import os
+import queue
 import struct
+import threading
 import zipfile
+from typing import IO
 
 from sheetvol.workbook.errors import WorkbookError
 
@@ -85,3 +88,64 @@ def write_entry(zout: zipfile.ZipFile, zi: zipfile.ZipInfo, data: bytes, level: 
     if zi.compress_type == zipfile.ZIP_DEFLATED:
         set_level(zi, level)
     zout.writestr(zi, data)
+
+
+class WriteBehind:
+    """Writes pieces to ``out`` in a second thread, so deflating overlaps making them.
+
+    zlib (compress and crc32) and file writes release the GIL, so on two cores the
+    row loop makes the next piece while this thread deflates the last one. At most
+    ``depth`` pieces wait, which bounds the memory held. Use as a context manager: on
+    leaving, every queued piece has been written (or the first error is raised).
+
+    Examples
+    --------
+    >>> import io
+    >>> buf = io.BytesIO()
+    >>> with WriteBehind(buf) as w:
+    ...     w.write(b"<row/>")
+    ...     w.write(b"<row/>")
+    >>> buf.getvalue()
+    b'<row/><row/>'
+    """
+
+    def __init__(self, out: IO[bytes], depth: int = 2) -> None:
+        self.out = out
+        self.error: BaseException | None = None
+        self._queue: queue.Queue[bytes | None] = queue.Queue(maxsize=depth)
+        self._thread = threading.Thread(target=self._run, name="sheetvol-deflate", daemon=True)
+        self._thread.start()
+
+    def _run(self) -> None:
+        while (piece := self._queue.get()) is not None:
+            if self.error is None:  # after a failure, pieces are only drained
+                try:
+                    self.out.write(piece)
+                except BaseException as exc:  # raised again in the caller's thread
+                    self.error = exc
+
+    def write(self, piece: bytes) -> None:
+        """Queue ``piece`` (waits while ``depth`` pieces are queued)."""
+        if self.error is not None:
+            raise self.error
+        self._queue.put(piece)
+
+    def close(self) -> None:
+        """Wait until every queued piece is written; raise the thread's error if any."""
+        if self._thread.is_alive():
+            self._queue.put(None)
+            self._thread.join()
+        if self.error is not None:
+            raise self.error
+
+    def __enter__(self) -> WriteBehind:
+        return self
+
+    def __exit__(self, kind: object, exc: object, tb: object) -> None:
+        if exc is None:
+            self.close()
+            return
+        try:  # the caller failed: stop the thread, and let the caller's error through
+            self.close()
+        except BaseException:  # the first error is the one that matters
+            pass

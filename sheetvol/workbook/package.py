@@ -14,6 +14,7 @@ import posixpath
 import re
 import weakref
 import zipfile
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import IO
@@ -30,6 +31,7 @@ from sheetvol.workbook._sheetxml import (
     CellReader,
     CellTextError,
     Patterns,
+    RowCursor,
     SheetStream,
     beyond_sheet,
     col_index,
@@ -146,6 +148,10 @@ class Package:
     _shared_loaded: bool = field(default=False, repr=False)
     _fh: IO[bytes] | None = field(default=None, repr=False)
     _stat: tuple[int, ...] = field(default=(), repr=False)
+    # typed sheetvol formulas by sheet part, noted by any pass that read the whole sheet
+    _formulas: dict[str, list[FormulaCell]] = field(default_factory=dict, repr=False)
+    # each sheet part's head (everything before the cells), kept by the first pass over it
+    _heads: dict[str, bytes] = field(default_factory=dict, repr=False)
 
     @classmethod
     def open(cls, path: str | Path, *, max_total: int | None = None,
@@ -386,12 +392,15 @@ class Package:
         return shared
 
     # -- cells -----------------------------------------------------------------------
-    def _stream(self, zf: zipfile.ZipFile, info: SheetInfo) -> SheetStream:
+    def _stream(self, zf: zipfile.ZipFile, info: SheetInfo, ahead: bool = False
+                ) -> SheetStream:
         if info.part not in zf.NameToInfo:
             raise WorkbookError(f"{self.path.name}: the part of sheet {info.name!r} "
                                 f"({info.part}) is missing; the workbook is damaged.")
         fh = _safety.open_part(zf, info.part, self.path.name, self.limits)
-        return SheetStream(fh, info.part, self.path.name)
+        stream = SheetStream(fh, info.part, self.path.name, ahead=ahead)
+        self._heads.setdefault(info.part, stream.head)
+        return stream
 
     def hidden_columns(self, sheet: str) -> set[int]:
         """Columns the sheet's ``<cols>`` block hides (1-based).
@@ -406,8 +415,10 @@ class Package:
         set of int
         """
         info = self._worksheet(sheet)
-        with self._zip() as zf:
-            head = self._stream(zf, info).head
+        if info.part not in self._heads:  # usually read already, with the header rows
+            with self._zip() as zf:
+                self._stream(zf, info)
+        head = self._heads[info.part]
         out: set[int] = set()
         for m in _COL.finditer(head):
             attrs = m[1]
@@ -456,6 +467,10 @@ class Package:
         except CellTextError as exc:
             raise self._bad_text(info, r, c, exc) from None
 
+    def _bad_text_of(self, info: SheetInfo) -> Callable[[int, int, Exception], WorkbookError]:
+        """The refusal of damaged cell text on this sheet, for a reader that knows the cell."""
+        return lambda r, c, exc: self._bad_text(info, r, c, exc)
+
     def _bad_text(self, info: SheetInfo, r: int, c: int, exc: Exception) -> WorkbookError:
         return WorkbookError(f'{self.path.name}, sheet "{info.name}", cell {col_letters(c)}{r}: '
                              f"the cell holds {exc}; the file is damaged. Fix or clear the "
@@ -487,7 +502,7 @@ class Package:
         other: dict[int, dict[int, object]] = {c: {} for c in wanted}
         last = first_row - 1
         with self._zip() as zf:
-            stream = self._stream(zf, info)
+            stream = self._stream(zf, info, ahead=True)
             pat = stream.pat
             reader = CellReader(pat, self.shared_strings(zf))
             wanted_letters = {col_letters(c).encode(): c for c in wanted}
@@ -502,7 +517,11 @@ class Package:
                               + p + rb"c>)", re.S)
             r_first = b"<" + pat.prefix + b'c r="'
             c_any = b"<" + pat.prefix + b"c"
+            # the typed-formula scan rides along, so the sheet is inflated once for both
+            scan = FormulaScan(info.name, pat, self._bad_text_of(info),
+                               (self.path.name, info.part))
             for chunk in stream.body():
+                scan.feed(chunk)
                 # every "<c" starting a cell with r first? (rich text runs such as <color>
                 # also count, and merely send the chunk down the general path)
                 if chunk.count(r_first) == chunk.count(c_any):
@@ -540,6 +559,7 @@ class Package:
                     else:
                         other[c][r] = value
                     last = max(last, r)
+        self._formulas[info.part] = scan.found
         n = max(last - first_row + 1, 0)
         out = {}
         for c in cols:
@@ -643,51 +663,38 @@ class Package:
                     out[r - top][c - left] = self._value(reader, info, r, c, attrs, inner)
         return out
 
-    def formula_cells(self) -> list[FormulaCell]:
+    def formula_cells(self, sheets: list[str] | None = None) -> list[FormulaCell]:
         """Every worksheet cell whose formula text mentions a sheetvol function (``SV_``).
+
+        A sheet already read whole by :meth:`read_columns` is not read again: that pass
+        noted its formulas.
+
+        Parameters
+        ----------
+        sheets : list of str, optional
+            Only these sheets (default: every worksheet).
 
         Returns
         -------
         list of FormulaCell
             In sheet order, then row and column order.
         """
+        wanted = None if sheets is None else {self.sheet(s).part for s in sheets}
         out: list[FormulaCell] = []
         with self._zip() as zf:
             for info in self.sheets:
-                if info.kind != "worksheet" or info.part not in zf.namelist():
+                if info.kind != "worksheet" or (wanted is not None and info.part not in wanted):
                     continue
-                stream = self._stream(zf, info)
-                reader = CellReader(stream.pat, None)
-                masters: dict[str, tuple[int, int, str]] = {}
-                f_tag = b"<" + stream.pat.prefix + b"f"
-
-                def skip(chunk: bytes, f_tag: bytes = f_tag,
-                         masters: dict[str, tuple[int, int, str]] = masters) -> bool:
-                    # no formula at all, or no sheetvol name and no shared formula to follow
-                    return f_tag not in chunk or (not masters and not _SV.search(chunk))
-
-                for r, c, _attrs, inner in iter_cells(stream, skip_chunk=skip):
-                    if not inner or (b"<f" not in inner and b":f" not in inner):
+                if info.part not in self._formulas:
+                    if info.part not in zf.namelist():
                         continue
-                    try:
-                        got = reader.formula(inner)
-                    except CellTextError as exc:
-                        raise self._bad_text(info, r, c, exc) from None
-                    if got is None:
-                        continue
-                    _raw, text, fattrs = got
-                    kind = fattrs.get("t", "normal")
-                    if kind == "shared" and "si" in fattrs:
-                        if text and _SV.search(text.encode()):
-                            masters[fattrs["si"]] = (r, c, text)
-                        elif fattrs["si"] in masters:
-                            mr_, mc_, mtext = masters[fattrs["si"]]
-                            text = shift_formula(mtext, r - mr_, c - mc_)
-                    if not text or not _SV.search(text.encode()):
-                        continue
-                    array_ref = fattrs.get("ref") if kind == "array" else None
-                    out.append(FormulaCell(sheet=info.name, row=r, col=c,
-                                           formula=text.lstrip("="), array_ref=array_ref))
+                    stream = self._stream(zf, info, ahead=True)
+                    scan = FormulaScan(info.name, stream.pat, self._bad_text_of(info),
+                                       (self.path.name, info.part))
+                    for chunk in stream.body():
+                        scan.feed(chunk)
+                    self._formulas[info.part] = scan.found
+                out.extend(self._formulas[info.part])
         return out
 
     def tables(self, sheet: str) -> list[TableInfo]:
@@ -733,6 +740,55 @@ def changed_during_fill(name: str) -> WorkbookError:
 def _identity(st: os.stat_result) -> tuple[int, ...]:
     """What tells one file at a path from another: device, inode, size, modified time."""
     return (st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns)
+
+
+class FormulaScan:
+    """Finds the cells of one sheet whose formula mentions a sheetvol function.
+
+    Fed the body chunks in order (:meth:`feed`), by its own pass or riding along with
+    another reading pass; chunks without a formula, or without a sheetvol name and no
+    shared formula to follow, are passed over unparsed.
+    """
+
+    def __init__(self, sheet: str, pat: Patterns,
+                 bad_text: Callable[[int, int, Exception], WorkbookError],
+                 where: tuple[str, str] = ("", "")) -> None:
+        self.sheet = sheet
+        self.bad_text = bad_text  # damaged cell text: the refusal naming the cell
+        self.cursor = RowCursor(pat, *where)  # (file, part): named by a row beyond the sheet
+        self.reader = CellReader(pat, None)
+        self.f_tag = b"<" + pat.prefix + b"f"
+        self.masters: dict[str, tuple[int, int, str]] = {}
+        self.found: list[FormulaCell] = []
+
+    def feed(self, chunk: bytes) -> None:
+        """Note the sheetvol formulas of the next chunk."""
+        if (self.f_tag not in chunk or (not self.masters and not _SV.search(chunk))) and (
+                self.cursor.skip(chunk)):
+            return
+        masters = self.masters
+        for r, c, _attrs, inner in self.cursor.cells(chunk):
+            if not inner or (b"<f" not in inner and b":f" not in inner):
+                continue
+            try:
+                got = self.reader.formula(inner)
+            except CellTextError as exc:
+                raise self.bad_text(r, c, exc) from None
+            if got is None:
+                continue
+            _raw, text, fattrs = got
+            kind = fattrs.get("t", "normal")
+            if kind == "shared" and "si" in fattrs:
+                if text and _SV.search(text.encode()):
+                    masters[fattrs["si"]] = (r, c, text)
+                elif fattrs["si"] in masters:
+                    mr_, mc_, mtext = masters[fattrs["si"]]
+                    text = shift_formula(mtext, r - mr_, c - mc_)
+            if not text or not _SV.search(text.encode()):
+                continue
+            array_ref = fattrs.get("ref") if kind == "array" else None
+            self.found.append(FormulaCell(sheet=self.sheet, row=r, col=c,
+                                          formula=text.lstrip("="), array_ref=array_ref))
 
 
 def _cells_general(chunk: bytes, pat: Patterns) -> list[tuple[bytes, bytes, bytes, bytes]]:

@@ -83,6 +83,7 @@ from sheetvol.workbook._sheetxml import (
 )
 from sheetvol.workbook._styles import MINIMAL_STYLES, StyleBook
 from sheetvol.workbook._zipcopy import (
+    WriteBehind,
     clone_info,
     raw_copy,
     set_level,
@@ -650,7 +651,7 @@ class _Job:
                      progress: Callable[[int], None] | None) -> None:
         sheet = next(s for s in self.pkg.sheets if s.part == info.filename)
         with open_part(self.zin, info.filename, self.file) as fh:
-            stream = SheetStream(fh, info.filename, self.file)
+            stream = SheetStream(fh, info.filename, self.file, ahead=True)
             edits = self._sheet_edits(sheet, stream)
             editor = RowEditor(edits, stream.pat)
             edits.on_change = editor._refresh_ranges
@@ -658,7 +659,8 @@ class _Job:
             zi = clone_info(info)
             zi.compress_type = zipfile.ZIP_DEFLATED
             set_level(zi, self.level)
-            with zout.open(zi, "w", force_zip64=info.file_size > 1 << 30) as w:
+            with (zout.open(zi, "w", force_zip64=info.file_size > 1 << 30) as out,
+                  WriteBehind(out) as w):
                 w.write(head)
                 for piece in editor.process(stream.body(), progress):
                     w.write(piece)
