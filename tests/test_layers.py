@@ -125,3 +125,24 @@ def test_import_sheetvol_and_the_core_load_no_heavy_library():
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                          check=True, cwd=ROOT)
     assert out.stdout.strip() == ""
+
+
+def test_the_contributor_guide_lists_every_module():
+    # DEVELOPERS.md's layout names each module of the package once, and nothing else:
+    # a new or renamed module must be placed in it.
+    text = (ROOT / "DEVELOPERS.md").read_text(encoding="utf-8")
+    block = text[text.index("```text\nsheetvol/"):]
+    block = block[: block.index("```", 8)]
+    listed, folder = set(), ""
+    for line in block.splitlines()[2:]:
+        name = line.split()[0] if line.strip() else ""
+        indent = len(line) - len(line.lstrip())
+        if name.endswith("/") and indent == 2:
+            folder = name
+        elif name.endswith(".py"):
+            listed.add(("" if indent == 2 else folder) + name)
+        elif indent == 0 and name:
+            break  # benches/, workbooks/...: outside the package
+    modules = {str(p.relative_to(PACKAGE)) for p in PACKAGE.rglob("*.py")
+               if p.name not in ("__init__.py", "__main__.py", "_version.py")}
+    assert listed == modules, (sorted(modules - listed), sorted(listed - modules))
