@@ -654,7 +654,7 @@ class Package:
             Formula cells give their stored result.
         """
         info = self._worksheet(sheet)
-        out = [[None] * (right - left + 1) for _ in range(bottom - top + 1)]
+        out: list[list[object]] = [[None] * (right - left + 1) for _ in range(bottom - top + 1)]
         with self._zip() as zf:
             stream = self._stream(zf, info)
             reader = CellReader(stream.pat, self.shared_strings(zf))
