@@ -183,6 +183,7 @@ class _Grid:
             self.last[: n - self.whole * period] = values[self.whole * period :]
 
     def column(self, b: int) -> FloatArray:
+        # b past the whole blocks is asked for only when the partial last block exists
         return self.view[:, b] if b < self.whole else self.last  # type: ignore[return-value]
 
     def put(self, out: FloatArray, b0: int, b1: int, minus: FloatArray | None = None) -> None:

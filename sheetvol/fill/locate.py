@@ -187,8 +187,8 @@ def role_of(text: object) -> tuple[str, int] | None:
         return hit
     # Two words of one role, as in "Close / Last".
     hits = [_SYNONYM_INDEX.get(w) for w in norm.split()]
-    if len(hits) == 2 and all(hits) and hits[0][0] == hits[1][0]:  # type: ignore[index]
-        return min(hits)  # type: ignore[type-var]
+    if len(hits) == 2 and hits[0] and hits[1] and hits[0][0] == hits[1][0]:
+        return min(hits[0], hits[1])
     return None
 
 

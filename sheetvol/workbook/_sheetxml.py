@@ -21,7 +21,7 @@ import zipfile
 import zlib
 from collections.abc import Callable, Iterator
 from functools import lru_cache
-from typing import IO, Protocol
+from typing import Protocol
 
 from sheetvol.functions.grid import MAX_COL, MAX_ROW
 from sheetvol.workbook._safety import check_prolog
@@ -190,7 +190,7 @@ class SheetStream:
     starts with ``</sheetData>`` and is complete once :meth:`body` is exhausted.
     """
 
-    def __init__(self, fh: IO[bytes], part: str, name: str, chunk: int = CHUNK,
+    def __init__(self, fh: Readable, part: str, name: str, chunk: int = CHUNK,
                  ahead: bool = False) -> None:
         self.fh: Readable = fh  # a ReadAhead over fh during a whole pass
         self.ahead = ahead  # inflate the next chunk in a second thread (whole passes only)

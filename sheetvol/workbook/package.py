@@ -233,7 +233,8 @@ class Package:
                     digest.update(block)
             return digest.hexdigest()
         self._fh.seek(0)
-        for block in iter(lambda: self._fh.read(1 << 20), b""):  # type: ignore[union-attr]
+        read = self._fh.read
+        for block in iter(lambda: read(1 << 20), b""):
             digest.update(block)
         return digest.hexdigest()
 
