@@ -334,6 +334,8 @@ def make_udf(
     udf.__name__ = udf.__qualname__ = name
     udf.__module__ = __name__
     udf.__doc__ = function_help(func, variant)
+    # attributes set on a function object (read by inspect and by the add-in's
+    # registration), which the checker does not model
     udf.__signature__ = signature  # type: ignore[attr-defined]
 
     arg_opts: dict[str, dict[str, Any]] = {}
@@ -352,7 +354,7 @@ def make_udf(
         # would turn every value over again and None into empty text.
         ret_opts["convert"] = "raw"
     func_opts = {"category": CATEGORY, "call_in_wizard": False, "volatile": False}
-    udf.__sheetvol__ = {  # type: ignore[attr-defined]
+    udf.__sheetvol__ = {  # type: ignore[attr-defined]  # as __signature__ above
         "function": func.name, "variant": variant, "func": func_opts, "args": arg_opts,
         "ret": ret_opts, "spills": spills, "runtime": runtime,
     }

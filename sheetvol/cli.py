@@ -16,6 +16,7 @@ import os
 import sys
 from collections.abc import Sequence
 from pathlib import Path
+from typing import Any
 
 from sheetvol._version import __version__
 from sheetvol.fill.job import USER_ERRORS, FillOptions, fill_file, output_path
@@ -354,7 +355,8 @@ def _run_fill(args: argparse.Namespace, parser: argparse.ArgumentParser) -> int:
             print(f"{PROG}: error: {exc}", file=sys.stderr)
             return 1
         specs, trades = recipe.columns, recipe.trades or trades
-    changes: dict[str, object] = {}
+    # field name -> value (float or sheet name); dataclasses.replace checks the names
+    changes: dict[str, Any] = {}
     for key in ("risk", "stop_multiple", "target_multiple", "trail_multiple", "equity"):
         value = getattr(args, key)
         if value is not None:

@@ -64,6 +64,7 @@ def skip_gaps(n_series: int) -> Callable[[Callable[..., Any]], Callable[..., Any
                 return tuple(_scatter(r, usable) for r in result)
             return _scatter(result, usable)
 
+        # an attribute of our own on a function object, which the checker does not model
         wrapper.__wrapped_kernel__ = kernel  # type: ignore[attr-defined]
         return wrapper
 

@@ -38,7 +38,7 @@ from __future__ import annotations
 import math
 import operator
 from collections.abc import Iterable
-from typing import Any
+from typing import Any, Literal
 
 import numpy as np
 
@@ -183,6 +183,7 @@ class _Grid:
             self.last[: n - self.whole * period] = values[self.whole * period :]
 
     def column(self, b: int) -> FloatArray:
+        # b past the whole blocks is asked for only when the partial last block exists
         return self.view[:, b] if b < self.whole else self.last  # type: ignore[return-value]
 
     def put(self, out: FloatArray, b0: int, b1: int, minus: FloatArray | None = None) -> None:
@@ -197,6 +198,7 @@ class _Grid:
         if top > b0:
             np.subtract(self.view[:, b0:top], minus[: top - b0], out=out[:, : top - b0])
         if b1 > self.whole:
+            assert self.last is not None  # blocks past the whole ones: the partial last one
             np.subtract(self.last, minus[-1], out=out[:, -1])
 
 
@@ -234,7 +236,7 @@ def _engine(
     flagged: list[np.ndarray] = []
     # Every chunk works in the same few buffers: fresh temporaries of this size would
     # each be paged in again (the allocator hands their memory back between chunks).
-    order = "C" if wide else "F"
+    order: Literal["C", "F"] = "C" if wide else "F"
     y_buf = np.empty((period, cols + 1), order=order)
     y2_buf = np.empty((period, cols + 1), order=order) if mode != "linear" else None
     work = [np.empty((period, cols), order=order) for _ in range(5)]

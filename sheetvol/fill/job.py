@@ -35,6 +35,7 @@ import numpy as np
 from sheetvol.fill.locate import (
     HEADER_SCAN_ROWS,
     ColumnFlagError,
+    ColumnFlagFields,
     HeaderMatch,
     LocateError,
     col_letter,
@@ -745,12 +746,13 @@ def _choose_sheets(pkg: Package, src: Path, options: FillOptions,
             role_of(h) is not None for h in e.fields["headers"].values()))
         others = [t for t in tried if t != best.sheet]
         also = f"; not on {', '.join(repr(t) for t in others)} either" if others else ""
-        raise ColumnFlagError(**{**best.fields, "also": also})
+        fields: ColumnFlagFields = {**best.fields, "also": also}
+        raise ColumnFlagError(**fields)
     if passed:
         why = "; ".join(f"{name!r}: {w}" for name, w in passed.items())
-        others = f"; no Close header on {', '.join(repr(t) for t in tried)}" if tried else ""
+        no_close = f"; no Close header on {', '.join(repr(t) for t in tried)}" if tried else ""
         raise FillError(
-            f"{src.name}: no price sheet found ({PRICE_SHEET_RULE}; {why}{others}); pick the "
+            f"{src.name}: no price sheet found ({PRICE_SHEET_RULE}; {why}{no_close}); pick the "
             "sheet with --sheet and name its columns with --date-col and --close-col")
     if len(tried) == 1 and first_error is not None:
         raise first_error

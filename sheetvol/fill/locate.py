@@ -15,7 +15,7 @@ from __future__ import annotations
 import re
 from collections.abc import Mapping
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, TypedDict
 
 from sheetvol.functions.grid import MAX_COL
 
@@ -75,6 +75,18 @@ class LocateError(ValueError):
     """The price columns cannot be found; the message lists what was found."""
 
 
+class ColumnFlagFields(TypedDict):
+    """The parts of a :class:`ColumnFlagError`, to raise it again with one part changed."""
+
+    role: str
+    given: str
+    row: int
+    headers: dict[int, str]
+    file: str
+    sheet: str
+    also: str
+
+
 class ColumnFlagError(LocateError):
     """A column the user named by flag (``--close-col Settle``) is not on the sheet.
 
@@ -90,8 +102,9 @@ in row 1: A 'Date'); give a header from that row or a column letter
 
     def __init__(self, *, role: str, given: str, row: int, headers: Mapping[int, str],
                  file: str = "", sheet: str = "", also: str = "") -> None:
-        self.fields = {"role": role, "given": given, "row": row, "headers": dict(headers),
-                       "file": file, "sheet": sheet, "also": also}
+        self.fields: ColumnFlagFields = {
+            "role": role, "given": given, "row": row, "headers": dict(headers),
+            "file": file, "sheet": sheet, "also": also}
         self.sheet = sheet
         on = f' on sheet "{sheet}"' if sheet else ""
         super().__init__(
@@ -174,8 +187,8 @@ def role_of(text: object) -> tuple[str, int] | None:
         return hit
     # Two words of one role, as in "Close / Last".
     hits = [_SYNONYM_INDEX.get(w) for w in norm.split()]
-    if len(hits) == 2 and all(hits) and hits[0][0] == hits[1][0]:  # type: ignore[index]
-        return min(hits)  # type: ignore[type-var]
+    if len(hits) == 2 and hits[0] and hits[1] and hits[0][0] == hits[1][0]:
+        return min(hits[0], hits[1])
     return None
 
 

@@ -50,8 +50,9 @@ def as_specs(columns: ColumnsArg) -> list[ColumnSpec]:
     if isinstance(columns, (str, Path)):
         return load_recipe(columns)
     items = list(columns)
-    if items and all(isinstance(c, ColumnSpec) for c in items):
-        return items  # type: ignore[return-value]
+    specs = [c for c in items if isinstance(c, ColumnSpec)]
+    if items and len(specs) == len(items):
+        return specs
     return parse_recipe([c.__dict__ if isinstance(c, ColumnSpec) else c for c in items],
                         source="columns")
 

@@ -9,7 +9,7 @@ time one of its attributes is asked for and forwards to the real module from the
 from __future__ import annotations
 
 from types import ModuleType
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 
 class LazyPandas:
@@ -37,6 +37,11 @@ class LazyPandas:
 
 
 #: Use as ``from sheetvol.functions._lazy import pandas as pd``.
-pandas = LazyPandas()
+if TYPE_CHECKING:
+    # The type checker reads the stand-in as the real module, so ``pd.DataFrame`` in an
+    # annotation and every ``pd.`` call are checked against pandas' own types.
+    import pandas as pandas
+else:
+    pandas = LazyPandas()
 
 __all__ = ["LazyPandas", "pandas"]

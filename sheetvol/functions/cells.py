@@ -13,7 +13,7 @@ import datetime as dt
 import math
 import re
 from collections.abc import Iterable
-from typing import Any
+from typing import Any, overload
 
 import numpy as np
 
@@ -156,6 +156,18 @@ def datetime_to_serial(value: dt.date | dt.datetime, *, date1904: bool = False) 
     epoch = EPOCH_1904 if date1904 else EPOCH_1900
     delta = value.replace(tzinfo=None) - epoch
     return delta.days + delta.seconds / 86400 + delta.microseconds / 86_400_000_000
+
+
+@overload
+def to_datetime(
+    value: dt.date, *, date1904: bool = False, dayfirst: bool = False
+) -> dt.datetime: ...
+
+
+@overload
+def to_datetime(
+    value: Any, *, date1904: bool = False, dayfirst: bool = False
+) -> dt.datetime | None: ...
 
 
 def to_datetime(

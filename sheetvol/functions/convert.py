@@ -284,7 +284,7 @@ def _filled_length(seq: Sequence[Any], blanks: tuple[Any, ...]) -> int:
         part = seq[start:stop]
         left = len(part)
         for b in blanks:  # mostly the first kind of blank alone settles it
-            left -= part.count(b)  # type: ignore[attr-defined]
+            left -= part.count(b)
             if left == 0:
                 return True
         return False
@@ -327,8 +327,10 @@ def head(value: Any, height: int) -> Any:
         return value[:height]
     if not isinstance(value, (list, tuple)):
         return value
+    # taken before the length test, which narrows a tuple's type to one item
+    kind: type[list[Any]] | type[tuple[Any, ...]] = type(value)
     if len(value) == 1 and isinstance(value[0], (list, tuple)) and height:
-        return type(value)([value[0][:height]])
+        return kind([value[0][:height]])
     return value[:height]
 
 
@@ -489,7 +491,7 @@ def day_numbers(value: Any, *, func: str, param: str, date1904: bool = False) ->
     return out
 
 
-def _days_at_once(flat: Sequence[Any], date1904: bool) -> FloatArray | None:
+def _days_at_once(flat: list[Any], date1904: bool) -> FloatArray | None:
     """Day numbers of serials or date objects in one pass; None when cells are mixed."""
     kinds = set(map(type, flat))
     if kinds <= _PLAIN:

@@ -720,10 +720,11 @@ def variant_of(name: str) -> tuple[Function, Variant]:
     key = name.strip().upper()
     if key in _BY_NAME:
         return _BY_NAME[key], "column"
-    for suffix, variant in (("_LAST", "last"), ("_ON", "on")):
+    suffixes: tuple[tuple[str, Variant], ...] = (("_LAST", "last"), ("_ON", "on"))
+    for suffix, variant in suffixes:
         base = key.removesuffix(suffix)
         if base != key and base in _BY_NAME and _BY_NAME[base].shape == "series":
-            return _BY_NAME[base], variant  # type: ignore[return-value]
+            return _BY_NAME[base], variant
     raise KeyError(f"no sheetvol function named {name!r}")
 
 

@@ -279,7 +279,8 @@ class RowEditor:
         self.check_from = min((a for _, a, _ in ranges), default=_INF)
         self.check_to = max((b for _, _, b in ranges), default=0)
         self.ranges = ranges
-        self._seg = (1, 0)  # cached _active() result valid for rows seg[0]..seg[1]
+        # cached _active() result valid for rows seg[0]..seg[1] (the end may be infinite)
+        self._seg: tuple[int, float] = (1, 0)
         self._seg_act: dict[int, bool] = {}
         self._seg_min = MAX_COL + 1
 
@@ -658,9 +659,9 @@ def formula_result_cell(cm: re.Match[bytes] | None, pat: Patterns, value: object
                         where: str) -> bytes:
     """An existing formula cell with its stored result replaced (the ``<f>`` kept)."""
 
-    if cm is None or not cm[3] or pat.f.search(cm[3]) is None:
+    fm = pat.f.search(cm[3]) if cm is not None and cm[3] else None
+    if cm is None or fm is None:
         raise WorkbookError(f"{where} holds no formula, so no result can be stored in it.")
-    fm = pat.f.search(cm[3])
     attrs = _T_ATTR.sub(b"", cm[1])
     p = pat.prefix
     t = b""

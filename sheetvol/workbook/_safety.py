@@ -312,13 +312,13 @@ class PartReader:
 
 
 def open_part(zf: zipfile.ZipFile, part: str, name: str, limits: Limits | None = None
-              ) -> IO[bytes]:
+              ) -> PartReader:
     """A reader of one part that never inflates beyond what its entry declares."""
     try:
         info = zf.getinfo(part)
     except KeyError:
         raise WorkbookError(f"{name}: part {part} is missing; the workbook is damaged.") from None
-    return PartReader(zf, info, name, limits or Limits())  # type: ignore[return-value]
+    return PartReader(zf, info, name, limits or Limits())
 
 
 def check_sizes(zf: zipfile.ZipFile, name: str, limits: Limits) -> None:

@@ -21,7 +21,7 @@ import zipfile
 import zlib
 from collections.abc import Callable, Iterator
 from functools import lru_cache
-from typing import IO
+from typing import Protocol
 
 from sheetvol.functions.grid import MAX_COL, MAX_ROW
 from sheetvol.workbook._safety import check_prolog
@@ -176,6 +176,12 @@ def escape_text(text: str) -> str:
     return text
 
 
+class Readable(Protocol):
+    """What the sheet reader needs of a file: ``read``."""
+
+    def read(self, n: int = -1, /) -> bytes: ...
+
+
 class SheetStream:
     """A worksheet part read in chunks: ``head``, then body chunks of whole rows, then ``tail``.
 
@@ -184,9 +190,9 @@ class SheetStream:
     starts with ``</sheetData>`` and is complete once :meth:`body` is exhausted.
     """
 
-    def __init__(self, fh: IO[bytes], part: str, name: str, chunk: int = CHUNK,
+    def __init__(self, fh: Readable, part: str, name: str, chunk: int = CHUNK,
                  ahead: bool = False) -> None:
-        self.fh = fh
+        self.fh: Readable = fh  # a ReadAhead over fh during a whole pass
         self.ahead = ahead  # inflate the next chunk in a second thread (whole passes only)
         self.part = part
         self.name = name
@@ -267,7 +273,7 @@ class ReadAhead:
     the caller's :meth:`read`.
     """
 
-    def __init__(self, fh: IO[bytes], size: int) -> None:
+    def __init__(self, fh: Readable, size: int) -> None:
         self.fh = fh
         self.size = size
         self._queue: queue.Queue[bytes | BaseException] = queue.Queue(maxsize=1)

@@ -57,10 +57,13 @@ def raw_copy(zout: zipfile.ZipFile, zin: zipfile.ZipFile, info: zipfile.ZipInfo)
     zi.file_size, zi.compress_size, zi.CRC = info.file_size, info.compress_size, info.CRC
     zip64 = max(zi.file_size, zi.compress_size) > zipfile.ZIP64_LIMIT
     out = zout.fp
+    if out is None:
+        return False  # the output archive is closed
     out.seek(zout.start_dir)
     zi.header_offset = out.tell()
-    zout._writecheck(zi)
-    zout._didModify = True
+    # zipfile's private writer state (see above); typeshed does not declare it
+    zout._writecheck(zi)  # type: ignore[attr-defined]
+    zout._didModify = True  # type: ignore[attr-defined]
     out.write(zi.FileHeader(zip64))
     fp.seek(info.header_offset + 30 + name_len + extra_len)
     left = info.compress_size

@@ -233,7 +233,8 @@ class Package:
                     digest.update(block)
             return digest.hexdigest()
         self._fh.seek(0)
-        for block in iter(lambda: self._fh.read(1 << 20), b""):  # type: ignore[union-attr]
+        read = self._fh.read
+        for block in iter(lambda: read(1 << 20), b""):
             digest.update(block)
         return digest.hexdigest()
 
@@ -654,7 +655,7 @@ class Package:
             Formula cells give their stored result.
         """
         info = self._worksheet(sheet)
-        out = [[None] * (right - left + 1) for _ in range(bottom - top + 1)]
+        out: list[list[object]] = [[None] * (right - left + 1) for _ in range(bottom - top + 1)]
         with self._zip() as zf:
             stream = self._stream(zf, info)
             reader = CellReader(stream.pat, self.shared_strings(zf))

@@ -373,10 +373,10 @@ class _Job:
             ids = [int(x) for x in re.findall(r'\sid\s*=\s*["\'](\d+)', all_cols)]
             p = (cols[-1][1] if cols else "") or ""
             entry = f'<{p}tableColumn id="{max(ids, default=0) + 1}" name="{name}"/>'
-            m = re.search(r"</([\w.\-]+:)?tableColumns>", text)
-            if m is None:
+            end = re.search(r"</([\w.\-]+:)?tableColumns>", text)
+            if end is None:
                 raise WorkbookError(f"{self.file}: table part {table.part} is damaged.")
-            text = text[: m.start()] + entry + text[m.start():]
+            text = text[: end.start()] + entry + text[end.start():]
             mc = re.search(r"<([\w.\-]+:)?tableColumns(?=[\s>])([^>]*)>", text)
             if mc:
                 attrs = re.sub(r'\s+count\s*=\s*["\']\d*["\']', "", mc[2])
