@@ -212,10 +212,7 @@ def _call_series(
             raw[p.name] = [[None]] if _convert.is_empty_cell(a) else a
         else:
             options[p.name] = _option(p, a, wname, date1904)
-    # bind() validates options and notices missing columns; columns are converted below.
-    given = {k: (None if a is None else 0.0) for k, a in raw.items()}
-    bound = func.bind((), {**given, **options})
-    opts = {k: v for k, v in bound.items() if k not in raw}
+    opts = _bound_options(func, raw, options)
     reader = _Reader(func, wname, raw, decimal_comma)
 
     if variant == "column":
@@ -235,6 +232,35 @@ def _call_series(
         _check_high_low(wname, *part)
         return _convert.to_cell(_compute(func, wname, part[0], opts, part[1])[-1])
     return _on(reader, opts, need, date_arg, dates_arg, date1904)
+
+
+# Options validated by Function.bind, by function and given values: a filled-down column
+# of per-cell calls repeats the same few options on every cell. Values are keyed with
+# their type (1 and True, or 14 and 14.0, are not the same argument to bind).
+_BOUND: dict[tuple[Any, ...], dict[str, Any]] = {}
+_BOUND_SIZE = 1024
+
+
+def _bound_options(func: Function, raw: Mapping[str, Any], options: Mapping[str, Any]
+                   ) -> dict[str, Any]:
+    """``func.bind`` of the options, which also notices missing columns (cached)."""
+    key = (func.name, *((k, a is None) for k, a in raw.items()),
+           *((k, type(v), v) for k, v in options.items()))
+    try:
+        return dict(_BOUND[key])
+    except KeyError:
+        pass
+    except TypeError:  # an unhashable value: bind without the cache
+        key = ()
+    # bind() validates options and notices missing columns; columns are converted later.
+    given = {k: (None if a is None else 0.0) for k, a in raw.items()}
+    bound = func.bind((), {**given, **options})
+    opts = {k: v for k, v in bound.items() if k not in raw}
+    if key:
+        if len(_BOUND) >= _BOUND_SIZE:
+            _BOUND.clear()
+        _BOUND[key] = opts
+    return dict(opts)
 
 
 class _Reader:
