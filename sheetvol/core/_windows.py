@@ -216,22 +216,27 @@ def _small(
     """
     n, big_n = len(x), float(period)
     m = n - period + 1
-    x = np.ascontiguousarray(x)
+    if not x.flags.c_contiguous:
+        x = np.ascontiguousarray(x)
     step = x.strides[0]
     w = np.ndarray((m, period), np.float64, buffer=x, strides=(step, step))
-    shift = w[:, period // 2].copy()
-    y = w - shift[:, None]
-    outs = [np.full(n, np.nan) for _ in range({"moments": 2, "frame": 3}.get(mode, 1))]
-    tail = [o[period - 1 :] for o in outs]
+    shift = w[:, period // 2]  # a strided view; w - shift is a fresh array anyway
+    y = np.subtract(w, shift[:, None])
+    count = 3 if mode == "frame" else 2 if mode == "moments" else 1
+    outs = [np.empty(n) for _ in range(count)]
+    tail = []
+    for o in outs:
+        o[: period - 1] = np.nan
+        tail.append(o[period - 1 :])
     if mode == "linear":
         weights = np.arange(1.0, big_n + 1.0)
-        np.add(shift, (y @ weights) / (big_n * (big_n + 1.0) / 2.0), out=tail[0])
+        np.add(shift, np.dot(y, weights) / (big_n * (big_n + 1.0) / 2.0), out=tail[0])
         return outs
-    total = y.sum(axis=1)
+    total = np.add.reduce(y, axis=1)
     if mode == "sum":
         np.add(big_n * shift, total, out=tail[0])
         return outs
-    offset = total / big_n
+    offset = np.divide(total, big_n, out=total)
     if mode == "mean":
         np.add(shift, offset, out=tail[0])
         return outs
@@ -239,9 +244,11 @@ def _small(
         y -= (level[period - 1 :] - shift)[:, None]  # level - shift: exact nearby
     else:
         y -= offset[:, None]
-    squares = np.einsum("ij,ij->i", y, y)
+    np.multiply(y, y, out=y)
+    squares = np.add.reduce(y, axis=1)
     if mode == "deviation":
-        np.sqrt(squares / (big_n - 1.0 if sample else big_n), out=tail[0])
+        squares /= big_n - 1.0 if sample else big_n
+        np.sqrt(squares, out=tail[0])
     elif mode == "moments":
         np.add(shift, offset, out=tail[0])
         np.divide(squares, big_n, out=tail[1])

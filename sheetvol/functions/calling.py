@@ -311,18 +311,17 @@ class _Reader:
         exact message for a bad cell.
         """
         logged = self.func.name in _LOGGED
+        if need <= stop and (dated is None or dated[stop - need:stop].all()):
+            # The usual case, no gap among the last bars: exactly those rows are read.
+            last = self._rows(stop - need, stop)
+            if last is not None and _usable(last.values(), logged).all():
+                return last, np.arange(stop - need, stop)
         parts: dict[str, list[FloatArray]] = {k: [] for k in self.raw}
         seen, start, size = 0, stop, max(2 * need, 64)
         while start > 0 and seen < need:
             end, start = start, max(0, start - size)
-            try:
-                chunk = {
-                    k: _convert.column(_convert.line_slice(a, start, end), func=self.wname,
-                                       param=k, decimal_comma=self.decimal_comma,
-                                       first_item=start).values
-                    for k, a in self.raw.items()
-                }
-            except ArgumentError:
+            chunk = self._rows(start, end)
+            if chunk is None:
                 return None
             for k, v in chunk.items():
                 parts[k].append(v)
@@ -344,6 +343,19 @@ class _Reader:
             columns = {k: v[cut:] for k, v in columns.items()}
             rows = rows[cut:]
         return columns, rows
+
+
+    def _rows(self, start: int, stop: int) -> dict[str, FloatArray] | None:
+        """Rows ``start`` to ``stop - 1`` of every column; None if a cell needs the rows above."""
+        try:
+            return {
+                k: _convert.column(_convert.line_slice(a, start, stop), func=self.wname,
+                                   param=k, decimal_comma=self.decimal_comma,
+                                   first_item=start).values
+                for k, a in self.raw.items()
+            }
+        except ArgumentError:
+            return None
 
 
 def _usable(columns: Any, positive: bool = False) -> np.ndarray:
