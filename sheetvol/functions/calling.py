@@ -344,7 +344,6 @@ class _Reader:
             rows = rows[cut:]
         return columns, rows
 
-
     def _rows(self, start: int, stop: int) -> dict[str, FloatArray] | None:
         """Rows ``start`` to ``stop - 1`` of every column; None if a cell needs the rows above."""
         try:
