@@ -9,6 +9,7 @@ is what the policy says the result must equal. Warm-up rows are NaN, never 0.
 
 from __future__ import annotations
 
+import inspect
 from collections.abc import Callable
 from dataclasses import dataclass
 
@@ -190,3 +191,36 @@ def test_huge_finite_prices_are_not_gaps():
     x[1] = np.inf  # a real gap among huge values is still a gap
     got = moving_average(x, 1)
     assert np.isnan(got[1]) and got[2] == 5e307 and np.isfinite(np.delete(got, 1)).all()
+
+
+def test_every_way_of_passing_columns_and_options_gives_the_same_result():
+    # The wrapper splits positional and keyword calls itself; the reference is the
+    # same kernel called positionally on the compressed series (the policy above).
+    rng = np.random.default_rng(5)
+    close = 100 + np.cumsum(rng.normal(0, 1, 40))
+    high, low = close + 1.0, close - 1.0
+    close_gap = close.copy()
+    close_gap[7] = np.nan
+    keep = np.isfinite(close_gap)
+    want = average_true_range(high[keep], low[keep], close[keep], N, "simple")
+    calls = [
+        lambda: average_true_range(high, low, close_gap, N, "simple"),
+        lambda: average_true_range(high, low, close_gap, N, smoothing="simple"),
+        lambda: average_true_range(high, low, close=close_gap, period=N, smoothing="simple"),
+        lambda: average_true_range(high=high, low=low, close=close_gap, period=N,
+                                   smoothing="simple"),
+        lambda: average_true_range(smoothing="simple", close=close_gap, low=low, high=high,
+                                   period=N),
+    ]
+    for call in calls:
+        got = call()
+        assert np.isnan(got[7])
+        np.testing.assert_array_equal(got[keep], want)
+    # Wrong calls fail as Python's own calls do (TypeError), not with a wrong answer.
+    with pytest.raises(TypeError):
+        average_true_range(high, low, close, N, high=high)
+    with pytest.raises(TypeError):
+        average_true_range(high, low)
+    extra = len(inspect.signature(average_true_range).parameters) - 3  # one too many
+    with pytest.raises(TypeError):
+        average_true_range(high, low, close, *([N] * (extra + 1)))

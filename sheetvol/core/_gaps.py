@@ -41,25 +41,44 @@ def skip_gaps(n_series: int) -> Callable[[Callable[..., Any]], Callable[..., Any
         signature = inspect.signature(kernel)
         names = list(signature.parameters)[:n_series]
 
+        def _split(args: tuple[Any, ...], kwargs: dict[str, Any]) -> tuple[Any, ...]:
+            bound = signature.bind(*args, **kwargs)
+            given = tuple(bound.arguments[name] for name in names)
+            options = {k: v for k, v in bound.arguments.items() if k not in names}
+            return given, (), options
+
+        column_names = frozenset(names)
+
         @functools.wraps(kernel)
         def wrapper(*args: Any, **kwargs: Any) -> Any:
             # Columns may come by position (Python callers) or by keyword (the registry).
-            bound = signature.bind(*args, **kwargs)
-            series = [as_series(bound.arguments[name], name) for name in names]
+            # The two plain cases are split here directly (per-cell forms pay this on
+            # every call); anything else goes through the signature, which also gives
+            # Python's own message for a wrong call.
+            rest: tuple[Any, ...] = ()
+            if len(args) >= n_series:
+                given, rest, options = args[:n_series], args[n_series:], kwargs
+                if column_names.intersection(kwargs):
+                    given, rest, options = _split(args, kwargs)
+            elif not args and column_names.issubset(kwargs):
+                given = tuple(kwargs[name] for name in names)
+                options = {k: v for k, v in kwargs.items() if k not in column_names}
+            else:
+                given, rest, options = _split(args, kwargs)
+            series = [as_series(a, name) for a, name in zip(given, names, strict=True)]
             n = len(series[0])
             if any(len(s) != n for s in series[1:]):
                 pairs = zip(names, series, strict=True)
                 lengths = ", ".join(f"{name} {len(s)}" for name, s in pairs)
                 raise ValueError(f"{kernel.__name__}: columns have different lengths ({lengths})")
-            options = {k: v for k, v in bound.arguments.items() if k not in names}
             if n > _LONG and _finite_sums(series):
-                return kernel(*series, **options)
-            usable = np.ones(n, dtype=bool)
-            for s in series:
+                return kernel(*series, *rest, **options)
+            usable = np.isfinite(series[0])
+            for s in series[1:]:
                 usable &= np.isfinite(s)
             if usable.all():
-                return kernel(*series, **options)
-            result = kernel(*(s[usable] for s in series), **options)
+                return kernel(*series, *rest, **options)
+            result = kernel(*(s[usable] for s in series), *rest, **options)
             if isinstance(result, tuple):
                 return tuple(_scatter(r, usable) for r in result)
             return _scatter(result, usable)

@@ -62,6 +62,10 @@ _GROUPED_ROWS = True
 # terms that cancel in the one-pass formula: the one-pass relative error is a few
 # eps divided by this share, so 1e-3 keeps it near 1e-12 or better.
 _REFINE_RATIO = 1e-3
+# Short inputs (windows x period up to this many values, e.g. the one window of a
+# per-cell _LAST call) skip the block engine, whose fixed cost is tens of numpy calls,
+# and are computed window by window in two passes (see _small).
+_SMALL_ELEMENTS = 4096
 
 
 # -- option checks shared by the kernels ---------------------------------------------
@@ -202,6 +206,61 @@ class _Grid:
             np.subtract(self.last, minus[-1], out=out[:, -1])
 
 
+def _small(
+    x: FloatArray, period: int, mode: str, level: FloatArray | None, sample: bool
+) -> list[FloatArray]:
+    """The engine's results for short inputs: every window on its own, two passes.
+
+    Each window is shifted by its own middle price (exact deviations for prices
+    of one sign, 0 on a flat window), summed, and its variance taken about the
+    mean of the deviations (two passes): no cancellation at all, so this is at
+    least as accurate as the block engine, in a few numpy calls.
+    """
+    n, big_n = len(x), float(period)
+    m = n - period + 1
+    if not x.flags.c_contiguous:
+        x = np.ascontiguousarray(x)
+    step = x.strides[0]
+    w = np.ndarray((m, period), np.float64, buffer=x, strides=(step, step))
+    shift = w[:, period // 2]  # a strided view; w - shift is a fresh array anyway
+    y = np.subtract(w, shift[:, None])
+    count = 3 if mode == "frame" else 2 if mode == "moments" else 1
+    outs = [np.empty(n) for _ in range(count)]
+    tail = []
+    for o in outs:
+        o[: period - 1] = np.nan
+        tail.append(o[period - 1 :])
+    if mode == "linear":
+        weights = np.arange(1.0, big_n + 1.0)
+        np.add(shift, np.dot(y, weights) / (big_n * (big_n + 1.0) / 2.0), out=tail[0])
+        return outs
+    total = np.add.reduce(y, axis=1)
+    if mode == "sum":
+        np.add(big_n * shift, total, out=tail[0])
+        return outs
+    offset = np.divide(total, big_n, out=total)
+    if mode == "mean":
+        np.add(shift, offset, out=tail[0])
+        return outs
+    if mode == "deviation" and level is not None:
+        y -= (level[period - 1 :] - shift)[:, None]  # level - shift: exact nearby
+    else:
+        y -= offset[:, None]
+    np.multiply(y, y, out=y)
+    squares = np.add.reduce(y, axis=1)
+    if mode == "deviation":
+        squares /= big_n - 1.0 if sample else big_n
+        np.sqrt(squares, out=tail[0])
+    elif mode == "moments":
+        np.add(shift, offset, out=tail[0])
+        np.divide(squares, big_n, out=tail[1])
+    else:  # frame
+        tail[0][:] = shift
+        tail[1][:] = offset
+        np.divide(squares, big_n, out=tail[2])
+    return outs
+
+
 def _engine(
     x: FloatArray, period: int, mode: str, level: FloatArray | None = None, sample: bool = False
 ) -> list[FloatArray]:
@@ -212,6 +271,8 @@ def _engine(
     or about the window mean) or ``"linear"`` (linearly weighted mean).
     """
     n, big_n = len(x), float(period)
+    if (n - period + 1) * period <= _SMALL_ELEMENTS:
+        return _small(x, period, mode, level, sample)
     gx = _Grid(x, period, x[-1])  # padding only feeds rows that are cut off again
     n_blocks = gx.n_blocks
     gl = None if level is None else _Grid(level, period, np.nan)

@@ -212,10 +212,7 @@ def _call_series(
             raw[p.name] = [[None]] if _convert.is_empty_cell(a) else a
         else:
             options[p.name] = _option(p, a, wname, date1904)
-    # bind() validates options and notices missing columns; columns are converted below.
-    given = {k: (None if a is None else 0.0) for k, a in raw.items()}
-    bound = func.bind((), {**given, **options})
-    opts = {k: v for k, v in bound.items() if k not in raw}
+    opts = _bound_options(func, raw, options)
     reader = _Reader(func, wname, raw, decimal_comma)
 
     if variant == "column":
@@ -235,6 +232,35 @@ def _call_series(
         _check_high_low(wname, *part)
         return _convert.to_cell(_compute(func, wname, part[0], opts, part[1])[-1])
     return _on(reader, opts, need, date_arg, dates_arg, date1904)
+
+
+# Options validated by Function.bind, by function and given values: a filled-down column
+# of per-cell calls repeats the same few options on every cell. Values are keyed with
+# their type (1 and True, or 14 and 14.0, are not the same argument to bind).
+_BOUND: dict[tuple[Any, ...], dict[str, Any]] = {}
+_BOUND_SIZE = 1024
+
+
+def _bound_options(func: Function, raw: Mapping[str, Any], options: Mapping[str, Any]
+                   ) -> dict[str, Any]:
+    """``func.bind`` of the options, which also notices missing columns (cached)."""
+    key = (func.name, *((k, a is None) for k, a in raw.items()),
+           *((k, type(v), v) for k, v in options.items()))
+    try:
+        return dict(_BOUND[key])
+    except KeyError:
+        pass
+    except TypeError:  # an unhashable value: bind without the cache
+        key = ()
+    # bind() validates options and notices missing columns; columns are converted later.
+    given = {k: (None if a is None else 0.0) for k, a in raw.items()}
+    bound = func.bind((), {**given, **options})
+    opts = {k: v for k, v in bound.items() if k not in raw}
+    if key:
+        if len(_BOUND) >= _BOUND_SIZE:
+            _BOUND.clear()
+        _BOUND[key] = opts
+    return dict(opts)
 
 
 class _Reader:
@@ -285,18 +311,17 @@ class _Reader:
         exact message for a bad cell.
         """
         logged = self.func.name in _LOGGED
+        if need <= stop and (dated is None or dated[stop - need:stop].all()):
+            # The usual case, no gap among the last bars: exactly those rows are read.
+            last = self._rows(stop - need, stop)
+            if last is not None and _usable(last.values(), logged).all():
+                return last, np.arange(stop - need, stop)
         parts: dict[str, list[FloatArray]] = {k: [] for k in self.raw}
         seen, start, size = 0, stop, max(2 * need, 64)
         while start > 0 and seen < need:
             end, start = start, max(0, start - size)
-            try:
-                chunk = {
-                    k: _convert.column(_convert.line_slice(a, start, end), func=self.wname,
-                                       param=k, decimal_comma=self.decimal_comma,
-                                       first_item=start).values
-                    for k, a in self.raw.items()
-                }
-            except ArgumentError:
+            chunk = self._rows(start, end)
+            if chunk is None:
                 return None
             for k, v in chunk.items():
                 parts[k].append(v)
@@ -318,6 +343,18 @@ class _Reader:
             columns = {k: v[cut:] for k, v in columns.items()}
             rows = rows[cut:]
         return columns, rows
+
+    def _rows(self, start: int, stop: int) -> dict[str, FloatArray] | None:
+        """Rows ``start`` to ``stop - 1`` of every column; None if a cell needs the rows above."""
+        try:
+            return {
+                k: _convert.column(_convert.line_slice(a, start, stop), func=self.wname,
+                                   param=k, decimal_comma=self.decimal_comma,
+                                   first_item=start).values
+                for k, a in self.raw.items()
+            }
+        except ArgumentError:
+            return None
 
 
 def _usable(columns: Any, positive: bool = False) -> np.ndarray:
