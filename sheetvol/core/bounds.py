@@ -32,6 +32,7 @@ __all__ = [
     "QUANTITY",
     "RISK",
     "TICK",
+    "TRAIL",
     "VOLATILITY",
     "WIDTH",
     "BarError",
@@ -138,6 +139,8 @@ FX_RATE = Bound(0.0, low_open=True)
 VOLATILITY = Bound(0.0)
 #: Volatility units between a price and a level (stop, target, trailing stop).
 MULTIPLE = Bound(0.0, 1000.0, low_open=True)
+#: Volatility units of a trailing stop: as :data:`MULTIPLE`, and 0 turns the trail off.
+TRAIL = Bound(0.0, MULTIPLE.high)
 #: Price increment levels are rounded to (0 means no rounding).
 TICK = Bound(0.0)
 #: Band half-width in deviations or ATRs (beyond 100 the bands say nothing).

@@ -51,7 +51,6 @@ SUMMARY = re.compile(
 SUMMARY_LABEL = "summary or footer row"
 NO_PRICES = "no prices on that date (holiday or blank)"
 NO_USABLE = "no usable price on that date (only error values or blank words)"
-_DATE_1904_OFFSET = 1462.0  # days between the 1900 and 1904 epochs
 
 
 class PriceTableError(ValueError):
@@ -337,7 +336,8 @@ def build_price_table(
     if has_dates:
         raw, other = aligned(columns["date"])
         as_ymd = _yyyymmdd(raw)
-        dates = as_ymd if as_ymd is not None else raw + (_DATE_1904_OFFSET if date1904 else 0.0)
+        shift = cells.DATE_1904_OFFSET if date1904 else 0.0
+        dates = as_ymd if as_ymd is not None else raw + shift
         content |= np.isfinite(dates)
         texts: dict[int, str] = {}
         for r, v in other.items():

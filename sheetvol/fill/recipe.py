@@ -37,6 +37,7 @@ from typing import Any
 
 import numpy as np
 
+from sheetvol.core import bounds
 from sheetvol.fill.trade_settings import TradeSettings
 from sheetvol.functions import registry
 
@@ -436,20 +437,21 @@ TRADE_KEYS = {
     "measure": '"atr", "deviation" or a sheetvol column function in price units',
     "options": "a table of the measure's options, e.g. { period = 20 }; basis = a price of "
                'the bar (e.g. "typical") for a measure of one price column',
-    "stop_multiple": "volatility units from entry to the stop, above 0",
-    "target_multiple": "volatility units from entry to the target, above 0",
-    "trail_multiple": "volatility units of the trailing stop, 0 (off) or more",
-    "risk": "risk is a share of equity: 0.01 = 1%; above 0 and at most 0.25",
-    "equity": "account equity where the log has none, above 0",
+    "stop_multiple": f"volatility units from entry to the stop, {bounds.MULTIPLE.words()}",
+    "target_multiple": f"volatility units from entry to the target, {bounds.MULTIPLE.words()}",
+    "trail_multiple": f"volatility units of the trailing stop (0: off), {bounds.TRAIL.words()}",
+    "risk": f"risk is a share of equity: 0.01 = 1%, {bounds.RISK.words()}",
+    "equity": f"account equity where the log has none, {bounds.EQUITY.words()}",
     "columns": 'a table of log roles to headers, e.g. { side = "B/S" }',
 }
 _LOG_ROLES = ("date", "instrument", "side", "entry", "exit", "exit_date", "quantity", "equity")
-_NUMBER_RULES = {
-    "stop_multiple": (0.0, False, math.inf),
-    "target_multiple": (0.0, False, math.inf),
-    "trail_multiple": (0.0, True, math.inf),
-    "risk": (0.0, False, 0.25),  # the worksheet SV_SIZE's cap: 1 typed for 1 % is refused
-    "equity": (0.0, False, math.inf),
+# the ranges of the [trades] numbers: the core's, as the worksheet functions take them
+_NUMBER_RULES: dict[str, bounds.Bound] = {
+    "stop_multiple": bounds.MULTIPLE,
+    "target_multiple": bounds.MULTIPLE,
+    "trail_multiple": bounds.TRAIL,
+    "risk": bounds.RISK,  # the worksheet SV_SIZE's cap: 1 typed for 1 % is refused
+    "equity": bounds.EQUITY,
 }
 
 
@@ -477,15 +479,14 @@ def check_trade_number(key: str, value: Any, where: str = "[trades]") -> float:
     >>> check_trade_number("risk", 2)
     Traceback (most recent call last):
     ...
-    sheetvol.fill.recipe.RecipeError: [trades] risk: risk is a share of equity: 0.01 = 1%; above 0 \
-and at most 0.25; got 2
+    sheetvol.fill.recipe.RecipeError: [trades] risk: risk is a share of equity: 0.01 = 1%, a number \
+above 0, up to 0.25; got 2
     """
-    low, low_ok, high = _NUMBER_RULES[key]
+    bound = _NUMBER_RULES[key]
     number = math.nan
     if isinstance(value, (int, float)) and not isinstance(value, bool):
         number = float(value)
-    ok = math.isfinite(number) and (number > low or (low_ok and number == low)) and number <= high
-    if not ok:
+    if not bound.holds(number):
         raise RecipeError(f"{where} {key}: {TRADE_KEYS[key]}; got {value!r}")
     return number
 

@@ -11,7 +11,6 @@ percentages), the outcome counts, the settings and the cautions.
 
 from __future__ import annotations
 
-import datetime as dt
 import itertools
 import math
 import re
@@ -76,7 +75,6 @@ __all__ = [
 
 REVIEW_SHEET = "Trade review"
 # Day 0 of the 1904 date system as a 1900-system serial (1462).
-_DATE_1904_OFFSET = cells.datetime_to_serial(dt.datetime(1904, 1, 1))
 #: The Review note of a trade whose price sheet was left out with --sheet.
 NOT_CHOSEN_NOTE = "not reviewed: its price sheet was not chosen (--sheet)"
 TRADE_CAUTIONS = (
@@ -631,7 +629,7 @@ def read_log(pkg: Package, log: TradeLog) -> tuple[LogArrays, Any]:
     >>> arrays, grid = read_log(pkg, find_trade_log(pkg, TradeSettings()))  # doctest: +SKIP
     """
     grid = pkg.read_grid(log.sheet)
-    offset = _DATE_1904_OFFSET if pkg.date1904 else 0.0
+    offset = cells.DATE_1904_OFFSET if pkg.date1904 else 0.0
     rows: list[int] = []
     values: dict[str, list[object]] = {role: [] for role in _CANONICAL}
     for r in sorted(r for r in grid.rows if r > log.header_row):  # rows with cells only
@@ -824,7 +822,7 @@ def plan_trade_review(
         column = reviewed[key]
         nums = pd.to_numeric(column, errors="coerce").to_numpy(dtype=float)
         if key in ("Bar date", "Exit date"):  # day numbers -> the workbook's date system
-            nums = nums - (_DATE_1904_OFFSET if pkg.date1904 else 0.0)
+            nums = nums - (cells.DATE_1904_OFFSET if pkg.date1904 else 0.0)
         values[at] = nums
         fmt = formats.get(key) or scaled_format(
             np.asarray(nums, dtype=float), size_places if key == "Size" else price_places)
