@@ -24,13 +24,17 @@ __all__ = [
     "BARS_PER_YEAR",
     "EQUITY",
     "FX_RATE",
+    "LOOKBACK",
     "LOT_STEP",
+    "MAX_PERIOD",
     "MULTIPLE",
     "PERCENT",
+    "PERIOD",
     "POINT_VALUE",
     "PRICE",
     "QUANTITY",
     "RISK",
+    "SPREAD_PERIOD",
     "TICK",
     "TRAIL",
     "VOLATILITY",
@@ -120,6 +124,17 @@ def _show(x: float) -> str:
     return str(int(x)) if x.is_integer() else repr(x)
 
 
+#: The longest window in bars: twenty years of daily bars; longer is taken for a slip
+#: (common practice, no source).
+MAX_PERIOD = 5000
+#: Bars in a window of an average, a true-range average or a range-based estimator. One
+#: bar is allowed: the average of one price is that price, ATR over one bar its true range.
+PERIOD = Bound(1, MAX_PERIOD, whole=True)
+#: Bars in a window of a spread (a standard deviation, bands on it, volatility of
+#: returns): one value has no spread, so at least two.
+SPREAD_PERIOD = Bound(2, MAX_PERIOD, whole=True)
+#: Readings a percentile rank compares against, today's included.
+LOOKBACK = Bound(1, 100_000, whole=True)
 #: Any finite price (futures spreads and some contracts trade below zero).
 PRICE = Bound()
 #: Account equity, in account currency.

@@ -38,6 +38,7 @@ from typing import Any
 import numpy as np
 
 from sheetvol.core import bounds
+from sheetvol.core.estimators import PER_YEAR
 from sheetvol.fill.trade_settings import TradeSettings
 from sheetvol.functions import registry
 
@@ -48,6 +49,7 @@ else:  # pragma: no cover - exercised on 3.10 only
 
 __all__ = [
     "DEFAULT_RECIPE",
+    "MEASURE_FUNCTIONS",
     "ROLES",
     "ColumnSpec",
     "Recipe",
@@ -57,6 +59,7 @@ __all__ = [
     "default_specs",
     "load_recipe",
     "make_spec",
+    "measure_function",
     "parse_recipe",
     "parse_trades",
     "read_recipe",
@@ -280,7 +283,7 @@ def default_header(function: str, options: Mapping[str, Any], inputs: Mapping[st
         head = f"{str(o['basis']).capitalize()} price"
     elif function in _VOL_NAMES:
         head = f"{_VOL_NAMES[function]} vol {period} (ann.)"
-        if float(o.get("per_year", 252)) != 252:
+        if float(o.get("per_year", PER_YEAR)) != PER_YEAR:
             extra.append(f"{_w(o['per_year'])}/yr")
     elif function == "SV_VOLRANK":
         head = f"Vol rank {o['lookback']} ({inputs.get('values', '')})"
@@ -479,8 +482,8 @@ def check_trade_number(key: str, value: Any, where: str = "[trades]") -> float:
     >>> check_trade_number("risk", 2)
     Traceback (most recent call last):
     ...
-    sheetvol.fill.recipe.RecipeError: [trades] risk: risk is a share of equity: 0.01 = 1%, a number \
-above 0, up to 0.25; got 2
+    sheetvol.fill.recipe.RecipeError: [trades] risk: risk is a share of equity: 0.01 = 1%, \
+a number above 0, up to 0.25; got 2
     """
     bound = _NUMBER_RULES[key]
     number = math.nan
@@ -575,8 +578,7 @@ def check_measure(recipe: TradeSettings, where: str = "[trades]") -> registry.Fu
     >>> check_measure(TradeSettings(measure="deviation", options={"period": 20})).name
     'SV_DEVIATION'
     """
-    name = {"atr": "SV_ATR", "deviation": "SV_DEVIATION"}.get(recipe.measure.lower(),
-                                                               recipe.measure)
+    name = measure_function(recipe.measure)
     try:
         func = registry.get(name)
     except KeyError:
@@ -599,6 +601,21 @@ def check_measure(recipe: TradeSettings, where: str = "[trades]") -> registry.Fu
     except registry.ArgumentError as exc:
         raise RecipeError(f"{where} options: {exc}") from None
     return func
+
+
+#: The registry function of each trade-measure word (:data:`sheetvol.core.review.MEASURES`).
+MEASURE_FUNCTIONS = {"atr": "SV_ATR", "deviation": "SV_DEVIATION"}
+
+
+def measure_function(measure: str) -> str:
+    """The registry name of a trade measure: a measure word's function, else as given.
+
+    Examples
+    --------
+    >>> measure_function(" ATR "), measure_function("SV_CLOSEVOL")
+    ('SV_ATR', 'SV_CLOSEVOL')
+    """
+    return MEASURE_FUNCTIONS.get(measure.strip().lower(), measure)
 
 
 #: The option of a trade measure that picks the bar's price it is computed on.

@@ -21,6 +21,9 @@ from typing import Any
 
 import numpy as np
 
+from sheetvol.core.levels import STOP_MULTIPLE, TARGET_MULTIPLE, TRAIL_MULTIPLE
+from sheetvol.core.review import MEASURE, PERIOD, RESULTS
+from sheetvol.core.sizing import RISK_SHARE
 from sheetvol.fill.locate import (
     HEADER_SCAN_ROWS,
     LocateError,
@@ -74,7 +77,6 @@ __all__ = [
 ]
 
 REVIEW_SHEET = "Trade review"
-# Day 0 of the 1904 date system as a 1900-system serial (1462).
 #: The Review note of a trade whose price sheet was left out with --sheet.
 NOT_CHOSEN_NOTE = "not reviewed: its price sheet was not chosen (--sheet)"
 TRADE_CAUTIONS = (
@@ -120,6 +122,10 @@ _SUMMARY_FORMATS = {"trades": "0", "finished": "0", "losing_streak": "0",
                     "open_risk": "#,##0.00",
                     "open_risk_share": "0.00%"}  # as the terminal prints it
 _SHARE_FORMAT = "0.0%"
+#: The review's defaults in words, as the sheet and the CLI help give them (stated in core).
+DEFAULTS_WORDS = (f"{MEASURE.upper()} {PERIOD}, "
+                  f"stop {STOP_MULTIPLE:g}, target {TARGET_MULTIPLE:g}, "
+                  f"trail {TRAIL_MULTIPLE:g}, risk {100 * RISK_SHARE:g}%")
 #: Risk per trade above this share of equity is accepted but warned about (common
 #: practice, no source: desks rarely risk more than a few percent on one trade).
 LARGE_RISK = 0.05
@@ -173,7 +179,7 @@ class TradeReport:
         if self.instrument:
             out.append(f'    no instrument column: every trade is on "{self.instrument}", the '
                        "only price sheet")
-        order = ("stop", "target", "trail", "closed", "open", "ambiguous", "")
+        order = (*RESULTS, "")  # "": not reviewed
         shown = [f"{self.counts[k]} {k or 'not reviewed'}" for k in order if self.counts[k]]
         out.append(f"    outcomes: {', '.join(shown) or 'none'}")
         if self.summary is not None:
@@ -1039,7 +1045,7 @@ def _settings_rows(recipe: TradeSettings, settings: TradeSettings,
         *levels,
         *([("Instrument", f'the log has no instrument column: every trade is on "{instrument}"'
             ", the workbook's only price sheet")] if instrument else []),
-        ("Defaults", "ATR 14, stop 2, target 3, trail 3, risk 1%: common practice, no source"),
+        ("Defaults", f"{DEFAULTS_WORDS}: common practice, no source"),
     ]
 
 
