@@ -230,3 +230,37 @@ def test_one_column_letter_rule_everywhere():
         assert _sheetxml.col_index(letters.encode()) == grid.column_number(letters) == col
     evaluator = (PACKAGE / "functions" / "evaluator.py").read_text(encoding="utf-8")
     assert "column_index_from_string" not in evaluator and "get_column_letter" not in evaluator
+
+
+def _choice_params():
+    from sheetvol.functions import registry
+
+    for func in registry.FUNCTIONS:
+        if func.kernel.startswith("sheetvol.core.") and func.shape == "series":
+            for p in func.params:
+                # the output selector (line of the bands) picks a result, not a kernel option
+                if p.kind == "choice" and p.name != func.select:
+                    yield pytest.param(func, p, id=f"{func.name}.{p.name}")
+
+
+@pytest.mark.parametrize(("func", "param"), list(_choice_params()))
+def test_worksheet_choices_are_the_kernel_choices(func, param):
+    # the kernel refuses an unknown word listing what it allows: the registry offers the
+    # same words, in the same order, and its default is the kernel's
+    import inspect
+    import re
+
+    import numpy as np
+
+    rng = np.random.default_rng(5)
+    close = 100 + np.cumsum(rng.normal(0, 1, 30))
+    cols = {"open": close + 0.1, "high": close + 1, "low": close - 1, "close": close,
+            "prices": close, "values": np.abs(close) / 100}
+    kernel = func.resolve_kernel()
+    args = {p.name: cols[p.name] for p in func.columns}
+    with pytest.raises(ValueError, match=f"{param.name} must be one of") as err:
+        kernel(**args, **{param.name: "no-such-word"})
+    listed = tuple(re.findall(r'"([^"]+)"', str(err.value)))
+    assert listed == tuple(param.choices)
+    default = inspect.signature(kernel).parameters[param.name].default
+    assert default == param.default
