@@ -39,6 +39,7 @@ import numpy as np
 
 from sheetvol.core import bounds
 from sheetvol.core.estimators import PER_YEAR
+from sheetvol.core.review import MEASURES
 from sheetvol.fill.trade_settings import TradeSettings
 from sheetvol.functions import registry
 
@@ -437,7 +438,8 @@ TRADE_KEYS = {
     "enabled": "true or false",
     "sheet": "the trade-log sheet's name",
     "instruments": "the instrument-details sheet's name",
-    "measure": '"atr", "deviation" or a sheetvol column function in price units',
+    "measure": ", ".join(f'"{m}"' for m in MEASURES)
+               + " or a sheetvol column function in price units",
     "options": "a table of the measure's options, e.g. { period = 20 }; basis = a price of "
                'the bar (e.g. "typical") for a measure of one price column',
     "stop_multiple": f"volatility units from entry to the stop, {bounds.MULTIPLE.words()}",
