@@ -28,6 +28,7 @@ from sheetvol.fill.recipe import (
     default_specs,
     read_recipe,
 )
+from sheetvol.fill.trade_log import DEFAULTS_WORDS
 from sheetvol.functions import registry
 
 __all__ = ["build_parser", "main"]
@@ -75,8 +76,8 @@ trade, with the outcome, size note and review note in words (blank where
 nothing applies; a re-run replaces them). A "Trade review" sheet holds the
 summary (hit rates, total R, expectancy in R, largest losing streak, open
 risk as a share of equity), the outcome counts, the settings and the
-cautions. Defaults: ATR 14, stop 2, target 3, trail 3 units, risk 1% of
-equity (common practice, no source).
+cautions. Defaults: {trade_defaults} (risk as a share of equity; common
+practice, no source).
 
 Default columns:
 {defaults}
@@ -187,7 +188,8 @@ def build_parser() -> argparse.ArgumentParser:
     fill = sub.add_parser(
         "fill",
         help="add volatility columns to .xlsx/.xlsm/.csv exports",
-        description=FILL_DESCRIPTION.format(defaults=_default_lines()),
+        description=FILL_DESCRIPTION.format(defaults=_default_lines(),
+                                            trade_defaults=DEFAULTS_WORDS),
         epilog=FILL_EPILOG,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )

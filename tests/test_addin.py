@@ -293,7 +293,7 @@ def test_scalar_functions_single_and_row_by_row():
 @pytest.mark.parametrize(
     ("call", "start"),
     [
-        (lambda c: addin.SV_ATR(c, c, c, 1), "SV_ATR: period must be a whole number from 2"),
+        (lambda c: addin.SV_ATR(c, c, c, 0), "SV_ATR: period must be a whole number from 1"),
         (lambda c: addin.SV_ATR(c, c, c, "abc"), "SV_ATR: period must be"),
         (lambda c: addin.SV_ATR_LAST(c, c, c, 2.5), "SV_ATR_LAST: period must be"),
         (lambda c: addin.SV_AVERAGE(c, 5, "weekly"), 'SV_AVERAGE: kind must be one of "simple"'),

@@ -52,7 +52,7 @@ def test_functions_shows_one_with_arguments(capsys):
     assert main(["functions", "sv_atr"]) == 0
     out = capsys.readouterr().out
     assert out.startswith("SV_ATR(high, low, close, [period], [smoothing], [seed], [first_bar])")
-    assert "period       a whole number from 2 to 5000 (default 14)" in out
+    assert "period       a whole number from 1 to 5000 (default 14)" in out
     assert main(["functions", "SV_ATR_ON"]) == 0
     assert capsys.readouterr().out.startswith("SV_ATR_ON(date, dates, high,")
     assert main(["functions", "SV_NOPE"]) == 1
@@ -128,11 +128,11 @@ def test_flags_reach_the_fill(tmp_path, capsys):
 
 def test_bad_recipe_is_reported(tmp_path, capsys):
     recipe = tmp_path / "r.toml"
-    recipe.write_text('[[column]]\nfunction = "SV_ATR"\noptions = { period = 1 }\n',
+    recipe.write_text('[[column]]\nfunction = "SV_DEVIATION"\noptions = { period = 1 }\n',
                       encoding="utf-8")
     assert main(["fill", "x.xlsx", "--recipe", str(recipe)]) == 1
-    assert "r.toml, column 1: SV_ATR: period must be a whole number from 2 to 5000, got 1" in (
-        capsys.readouterr().err)
+    assert ("r.toml, column 1: SV_DEVIATION: period must be a whole number from 2 to 5000, "
+            "got 1") in capsys.readouterr().err
 
 
 def test_python_dash_m_sheetvol(tmp_path):

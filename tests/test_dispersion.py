@@ -206,7 +206,7 @@ def test_bad_options_raise_clear_errors():
         dispersion(x, 14, divisor="unbiased")
     with pytest.raises(ValueError, match=r"average must be one of"):
         dispersion(x, 14, average="hull")
-    with pytest.raises(ValueError, match="at least 2"):
+    with pytest.raises(ValueError, match="from 2 to 5000"):
         dispersion(x, 1)
 
 

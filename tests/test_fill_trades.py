@@ -420,7 +420,7 @@ def test_cli_recipe_flags_summary_and_caution(tmp_path, capsys):
     assert main(["fill", str(src), "--risk", "2"]) == 2
     assert "--risk 2: risk is a share of equity: 0.01 = 1%" in capsys.readouterr().err
     assert main(["fill", str(src), "--risk", "0.3"]) == 2
-    assert "at most 0.25" in capsys.readouterr().err
+    assert "up to 0.25" in capsys.readouterr().err
 
 
 def test_typed_formulas_in_dependency_order(tmp_path):

@@ -87,7 +87,7 @@ ERRORS = {
     "=SV_AVERAGE(Closes, 5)": "cannot evaluate Closes: defined names are not supported",
     "=SV_AVERAGE(Quotes[Close], 5)": "cannot evaluate Quotes[Close]: table references",
     "=SV_NOPE(Prices!E2:E9)": "cannot evaluate SV_NOPE(...): no sheetvol function named SV_NOPE",
-    "=SV_AVERAGE(Prices!E2:E121, 1)": "SV_AVERAGE: period must be a whole number from 2",
+    "=SV_AVERAGE(Prices!E2:E121, 0)": "SV_AVERAGE: period must be a whole number from 1",
     "=SV_AVERAGE({1,2,3},2)": "array constants",
     "=SV_AVERAGE(Prices!E2:E9 Prices!E3:E9,2)": "range intersection",
     "=SV_ATR_LAST(Prices!C2:D121,Prices!D2:D121,Prices!E2:E121)":
@@ -499,9 +499,9 @@ def test_worksheet_functions_around_sheetvol_calls(book):
         # DATE(2025,3,7) is bar 60 (FIRST is 2025-01-06).
         "=SV_DEVIATION_ON(DATE(2025,3,7),Prices!A2:A121,Prices!E2:E121,14)":
             float(dispersion(P["close"], 14)[60]),
-        "=IFERROR(ROUND(SV_AVERAGE_LAST(Prices!E2:E121,1),2),-1)": -1.0,
+        "=IFERROR(ROUND(SV_AVERAGE_LAST(Prices!E2:E121,0),2),-1)": -1.0,
         # IF computes only the branch it takes: the bad call on the other one is not met.
-        "=IF(FALSE,SV_AVERAGE_LAST(Prices!E2:E121,1),5)": 5.0,
+        "=IF(FALSE,SV_AVERAGE_LAST(Prices!E2:E121,0),5)": 5.0,
     }
     for formula, expected in cases.items():
         got = evaluate(formula, resolver, current_sheet="Log")
@@ -520,17 +520,17 @@ def test_a_bad_argument_gives_the_add_in_message(book):
     from sheetvol.functions.registry import get
 
     udf = addin.make_udf("SV_AVERAGE_LAST", get("SV_AVERAGE"), "last")
-    shown = udf(P["close"].reshape(-1, 1).tolist(), 1)
-    assert shown.startswith("SV_AVERAGE_LAST: period must be a whole number from 2")
+    shown = udf(P["close"].reshape(-1, 1).tolist(), 0)
+    assert shown.startswith("SV_AVERAGE_LAST: period must be a whole number from 1")
     resolver = openpyxl_resolver(openpyxl.load_workbook(book, data_only=True))
-    for formula in ("=SV_AVERAGE_LAST(Prices!E2:E121,1)",
-                    "=ROUND(SV_AVERAGE_LAST(Prices!E2:E121,1),2)"):
+    for formula in ("=SV_AVERAGE_LAST(Prices!E2:E121,0)",
+                    "=ROUND(SV_AVERAGE_LAST(Prices!E2:E121,0),2)"):
         with pytest.raises(ArgumentMessage) as err:
             evaluate(formula, resolver, current_sheet="Log")
         assert err.value.text == shown
     # The add-in's text is a value, not an error: IFERROR passes it on unchanged.
     with pytest.raises(ArgumentMessage) as err:
-        evaluate("=IFERROR(SV_AVERAGE_LAST(Prices!E2:E121,1),0)", resolver, current_sheet="Log")
+        evaluate("=IFERROR(SV_AVERAGE_LAST(Prices!E2:E121,0),0)", resolver, current_sheet="Log")
     assert err.value.text == shown
 
 
@@ -543,7 +543,7 @@ def test_fill_writes_values_messages_and_lists_what_stays_a_formula(tmp_path):
     del wb["Log"]  # its whole-column forms spill over one another; a plain log instead
     log = wb.create_sheet("Log")
     log["E2"] = f"=ROUND(SV_ATR_LAST({HLC},14),2)"
-    log["E3"] = "=SV_AVERAGE_LAST(Prices!E2:E121,1)"
+    log["E3"] = "=SV_AVERAGE_LAST(Prices!E2:E121,0)"
     log["E4"] = f"=SQRT(SV_ATR_LAST({HLC},14))"
     log["E5"] = "=SV_SIZE(100000,1,100,95)"
     wb.save(src)
@@ -553,7 +553,7 @@ def test_fill_writes_values_messages_and_lists_what_stays_a_formula(tmp_path):
     from decimal import ROUND_HALF_UP, Decimal
     assert got["E2"].value == float(Decimal(repr(float(ATR14[-1]))).quantize(
         Decimal("0.01"), rounding=ROUND_HALF_UP))
-    assert got["E3"].value.startswith("SV_AVERAGE_LAST: period must be a whole number from 2")
+    assert got["E3"].value.startswith("SV_AVERAGE_LAST: period must be a whole number from 1")
     assert got["E4"].value == f"=SQRT(SV_ATR_LAST({HLC},14))"  # stays a formula
     assert got["E5"].value.startswith("SV_SIZE: risk must be a number above 0")
     notes = [[c for c in row if c is not None]
@@ -562,7 +562,7 @@ def test_fill_writes_values_messages_and_lists_what_stays_a_formula(tmp_path):
     listed = {row[0]: row for row in notes if row and row[0] in cells}
     assert set(listed) == cells
     assert "SQRT is not evaluated headless" in " ".join(map(str, listed["Log!E4"]))
-    assert "period must be a whole number from 2" in " ".join(map(str, listed["Log!E3"]))
+    assert "period must be a whole number from 1" in " ".join(map(str, listed["Log!E3"]))
 
 
 def test_date_in_a_1904_workbook():

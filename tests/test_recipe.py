@@ -80,7 +80,7 @@ options = { kind = "wilder", period = 5 }
         ({"function": "SV_NOPE"}, "no sheetvol function named 'SV_NOPE'"),
         ({"function": "SV_STOP"}, "gives one value, not a column"),
         ({"function": "SV_ATR", "options": {"period": 1.5}},
-         "SV_ATR: period must be a whole number from 2 to 5000, got 1.5"),
+         "SV_ATR: period must be a whole number from 1 to 5000, got 1.5"),
         ({"function": "SV_ATR", "options": {"length": 3}}, "has no option 'length'"),
         ({"function": "SV_BAND", "options": {"line": "top"}}, 'line must be one of "upper"'),
         ({"function": "SV_ATR", "inputs": {"prices": "close"}}, "has no input 'prices'"),

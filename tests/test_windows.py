@@ -26,6 +26,7 @@ from sheetvol.core._windows import (
     window_mean_var,
     window_sum,
 )
+from sheetvol.core.bounds import SPREAD_PERIOD
 
 
 @pytest.fixture(autouse=True, params=["block engine", "window by window"])
@@ -309,8 +310,8 @@ def test_option_checks_name_the_bad_value():
     for bad in (0, -3, 2.5, "14", True, None):
         with pytest.raises(ValueError, match="period must be a whole number"):
             check_period(bad)
-    with pytest.raises(ValueError, match="at least 2"):
-        check_period(1, minimum=2)
+    with pytest.raises(ValueError, match="from 2 to 5000"):
+        check_period(1, bound=SPREAD_PERIOD)
     with pytest.raises(ValueError, match=r'kind must be one of "a", "b", got \'c\''):
         check_choice("c", "kind", ("a", "b"))
     with pytest.raises(ValueError, match="level has 2 rows"):

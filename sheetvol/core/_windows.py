@@ -44,6 +44,7 @@ import numpy as np
 
 from sheetvol.core._gaps import as_series
 from sheetvol.core._types import FloatArray
+from sheetvol.core.bounds import PERIOD, Bound
 
 # Work is done on chunks of blocks so the temporaries stay in the CPU cache; a chunk
 # spans at least _MIN_COLUMNS blocks so the per-row numpy calls stay cheap, and about
@@ -68,8 +69,14 @@ _REFINE_RATIO = 1e-3
 _SMALL_ELEMENTS = 4096
 
 
+#: Windows the engine itself computes: any length (the public functions check theirs
+#: against :mod:`sheetvol.core.bounds` first).
+_ANY = Bound(1, whole=True)
+_ANY_SPREAD = Bound(2, whole=True)
+
+
 # -- option checks shared by the kernels ---------------------------------------------
-def check_period(period: Any, name: str = "period", minimum: int = 1) -> int:
+def check_period(period: Any, name: str = "period", bound: Bound = PERIOD) -> int:
     """Return ``period`` as an int or raise ``ValueError`` naming the bad value.
 
     Parameters
@@ -78,8 +85,9 @@ def check_period(period: Any, name: str = "period", minimum: int = 1) -> int:
         Window length in bars; a float is accepted only when it is whole.
     name : str
         Argument name used in the message.
-    minimum : int
-        Smallest allowed value.
+    bound : Bound, default :data:`sheetvol.core.bounds.PERIOD`
+        The allowed range, the one the worksheet functions state too
+        (:data:`~sheetvol.core.bounds.SPREAD_PERIOD` for a spread).
 
     Returns
     -------
@@ -90,20 +98,24 @@ def check_period(period: Any, name: str = "period", minimum: int = 1) -> int:
     --------
     >>> check_period(14.0)
     14
+    >>> from sheetvol.core.bounds import SPREAD_PERIOD
+    >>> check_period(1, bound=SPREAD_PERIOD)
+    Traceback (most recent call last):
+    ...
+    ValueError: period must be a whole number from 2 to 5000, got 1
     """
+    refused = f"{name} must be {bound.words()}, got {period!r}"
     if isinstance(period, (bool, np.bool_)):
-        raise ValueError(f"{name} must be a whole number of at least {minimum}, got {period!r}")
+        raise ValueError(refused)
     try:
         value = operator.index(period)
     except TypeError:
         if isinstance(period, (float, np.floating)) and float(period).is_integer():
             value = int(period)
         else:
-            raise ValueError(
-                f"{name} must be a whole number of at least {minimum}, got {period!r}"
-            ) from None
-    if value < minimum:
-        raise ValueError(f"{name} must be a whole number of at least {minimum}, got {period!r}")
+            raise ValueError(refused) from None
+    if not bound.holds(value):
+        raise ValueError(refused)
     return value
 
 
@@ -464,7 +476,7 @@ def _empty(n: int) -> FloatArray:
 
 
 def _prepare(values: Any, period: Any) -> tuple[FloatArray, int]:
-    return as_series(values), check_period(period)
+    return as_series(values), check_period(period, bound=_ANY)
 
 
 def window_sum(values: FloatArray, period: int) -> FloatArray:
@@ -618,7 +630,7 @@ def window_deviation(
     np.float64(2.23606797749979)
     """
     x = as_series(values)
-    period = check_period(period, minimum=2 if sample else 1)
+    period = check_period(period, bound=_ANY_SPREAD if sample else _ANY)
     lv = None
     if level is not None:
         lv = as_series(level, "level")

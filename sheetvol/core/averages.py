@@ -281,7 +281,7 @@ def moving_average(
         Prices, oldest first. Non-finite entries are gaps: NaN on that row, the
         average continues over the other bars.
     period : int, default 14
-        N, bars in the window (at least 1).
+        N, bars in the window: 1 to 5000 (:data:`sheetvol.core.bounds.PERIOD`).
     kind : {"simple", "linear", "exponential", "wilder"}, default "simple"
         ``"simple"``: mean of the last N; ``"exponential"``: alpha = 2/(N+1);
         ``"wilder"``: Wilder smoothing, alpha = 1/N; ``"linear"``: linearly

@@ -31,6 +31,7 @@ from sheetvol.core._gaps import as_series, skip_gaps
 from sheetvol.core._types import FloatArray
 from sheetvol.core._windows import check_choice, check_period, window_mean_var
 from sheetvol.core.averages import KINDS, average_of
+from sheetvol.core.bounds import SPREAD_PERIOD
 from sheetvol.core.dispersion import DIVISORS, dispersion_of
 from sheetvol.core.ranges import average_true_range_of
 
@@ -83,7 +84,8 @@ def deviation_bands(
     prices : array_like
         Prices, oldest first.
     period : int, default 20
-        Bars in the window.
+        Bars in the window: 2 to 5000 (one value has no spread)
+        (:data:`sheetvol.core.bounds.SPREAD_PERIOD`).
     width : float, default 2.0
         Band half-width in deviations, above 0 and up to 100.
     average : {"simple", "linear", "exponential", "wilder"}, default "simple"
@@ -105,7 +107,7 @@ def deviation_bands(
     >>> float(mid[2]), bool(abs(up[2] - (2 + 1.5 * math.sqrt(2 / 3))) < 1e-12)
     (2.0, True)
     """
-    period = check_period(period, minimum=2)
+    period = check_period(period, bound=SPREAD_PERIOD)
     check_choice(average, "average", KINDS)
     check_choice(divisor, "divisor", DIVISORS)
     bounds.check("width", width, bounds.WIDTH)
@@ -211,11 +213,12 @@ def atr_bands(
     high, low, close : array_like
         Aligned price columns, oldest first.
     period : int, default 20
-        Bars in the exponential middle line.
+        Bars in the exponential middle line: 1 to 5000
+        (:data:`sheetvol.core.bounds.PERIOD`).
     width : float, default 2.0
         Band half-width in ATRs, above 0 and up to 100.
     atr_period : int, default 10
-        Bars in the Wilder ATR.
+        Bars in the Wilder ATR: 1 to 5000 (:data:`sheetvol.core.bounds.PERIOD`).
 
     Returns
     -------
@@ -259,7 +262,7 @@ def envelope(
     prices : array_like
         Prices, oldest first.
     period : int, default 20
-        Bars in the moving average.
+        Bars in the moving average: 1 to 5000 (:data:`sheetvol.core.bounds.PERIOD`).
     percent : float, default 2.5
         Half-width in percent of the average (2.5 means 2.5 %), above 0 and up
         to 100.

@@ -24,14 +24,19 @@ __all__ = [
     "BARS_PER_YEAR",
     "EQUITY",
     "FX_RATE",
+    "LOOKBACK",
     "LOT_STEP",
+    "MAX_PERIOD",
     "MULTIPLE",
     "PERCENT",
+    "PERIOD",
     "POINT_VALUE",
     "PRICE",
     "QUANTITY",
     "RISK",
+    "SPREAD_PERIOD",
     "TICK",
+    "TRAIL",
     "VOLATILITY",
     "WIDTH",
     "BarError",
@@ -119,6 +124,17 @@ def _show(x: float) -> str:
     return str(int(x)) if x.is_integer() else repr(x)
 
 
+#: The longest window in bars: twenty years of daily bars; longer is taken for a slip
+#: (common practice, no source).
+MAX_PERIOD = 5000
+#: Bars in a window of an average, a true-range average or a range-based estimator. One
+#: bar is allowed: the average of one price is that price, ATR over one bar its true range.
+PERIOD = Bound(1, MAX_PERIOD, whole=True)
+#: Bars in a window of a spread (a standard deviation, bands on it, volatility of
+#: returns): one value has no spread, so at least two.
+SPREAD_PERIOD = Bound(2, MAX_PERIOD, whole=True)
+#: Readings a percentile rank compares against, today's included.
+LOOKBACK = Bound(1, 100_000, whole=True)
 #: Any finite price (futures spreads and some contracts trade below zero).
 PRICE = Bound()
 #: Account equity, in account currency.
@@ -138,6 +154,8 @@ FX_RATE = Bound(0.0, low_open=True)
 VOLATILITY = Bound(0.0)
 #: Volatility units between a price and a level (stop, target, trailing stop).
 MULTIPLE = Bound(0.0, 1000.0, low_open=True)
+#: Volatility units of a trailing stop: as :data:`MULTIPLE`, and 0 turns the trail off.
+TRAIL = Bound(0.0, MULTIPLE.high)
 #: Price increment levels are rounded to (0 means no rounding).
 TICK = Bound(0.0)
 #: Band half-width in deviations or ATRs (beyond 100 the bands say nothing).

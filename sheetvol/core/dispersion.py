@@ -21,6 +21,7 @@ from sheetvol.core._gaps import skip_gaps
 from sheetvol.core._types import FloatArray
 from sheetvol.core._windows import check_choice, check_period, window_deviation
 from sheetvol.core.averages import KINDS, SEEDS, average_of
+from sheetvol.core.bounds import SPREAD_PERIOD
 
 DIVISORS = ("population", "sample")
 
@@ -80,7 +81,8 @@ def dispersion(
         Prices, oldest first. Non-finite entries are gaps: NaN on that row, the
         windows continue over the other bars.
     period : int, default 14
-        N, bars in the window (at least 2).
+        N, bars in the window: 2 to 5000 (one value has no spread)
+        (:data:`sheetvol.core.bounds.SPREAD_PERIOD`).
     average : {"simple", "linear", "exponential", "wilder"}, default "simple"
         The moving average whose current value the deviations are measured from.
     divisor : {"population", "sample"}, default "population"
@@ -101,7 +103,7 @@ def dispersion(
     >>> dispersion([2.0, 4.0, 4.0, 4.0, 5.0, 5.0, 7.0, 9.0], 8)[-1]
     np.float64(2.0)
     """
-    period = check_period(period, minimum=2)
+    period = check_period(period, bound=SPREAD_PERIOD)
     check_choice(average, "average", KINDS)
     check_choice(divisor, "divisor", DIVISORS)
     check_choice(seed, "seed", SEEDS)

@@ -52,8 +52,14 @@ from sheetvol.core import bounds
 from sheetvol.core._gaps import as_series, skip_gaps
 from sheetvol.core._types import FloatArray
 from sheetvol.core._windows import check_period, window_mean_var, window_sum
+from sheetvol.core.bounds import SPREAD_PERIOD
 
-__all__ = ["close_to_close", "garman_klass", "parkinson", "rogers_satchell", "yang_zhang"]
+__all__ = ["PER_YEAR", "close_to_close", "garman_klass", "parkinson", "rogers_satchell",
+           "yang_zhang"]
+
+#: Bars per year for annualising, the default of every face: trading days a year of a market
+#: closed at weekends (common practice, no source).
+PER_YEAR = 252
 
 _LN2 = math.log(2.0)
 
@@ -109,7 +115,7 @@ def _close_to_close(close: FloatArray, period: int, per_year: float) -> FloatArr
 
 
 def close_to_close(
-    close: npt.ArrayLike, period: int = 20, per_year: float = 252
+    close: npt.ArrayLike, period: int = 20, per_year: float = PER_YEAR
 ) -> FloatArray:
     """Close-to-close volatility: sample standard deviation of log returns, annualised.
 
@@ -118,7 +124,8 @@ def close_to_close(
     close : array_like
         Closing prices, oldest first.
     period : int, default 20
-        Log returns in the window (the window spans ``period + 1`` closes).
+        Log returns in the window (the window spans ``period + 1`` closes):
+        2 to 5000 (:data:`sheetvol.core.bounds.SPREAD_PERIOD`).
     per_year : float, default 252
         Bars per year, above 0.
 
@@ -139,7 +146,7 @@ def close_to_close(
     >>> bool(abs(v[4] - r * math.sqrt(4 / 3)) < 1e-12)
     True
     """
-    period = check_period(period, minimum=2)
+    period = check_period(period, bound=SPREAD_PERIOD)
     (c,) = _positive(per_year, close=close)
     return _close_to_close(c, period, float(per_year))
 
@@ -154,7 +161,7 @@ def _parkinson(high: FloatArray, low: FloatArray, period: int, per_year: float) 
 
 
 def parkinson(
-    high: npt.ArrayLike, low: npt.ArrayLike, period: int = 20, per_year: float = 252
+    high: npt.ArrayLike, low: npt.ArrayLike, period: int = 20, per_year: float = PER_YEAR
 ) -> FloatArray:
     """Parkinson (1980) volatility from the high-low range, annualised.
 
@@ -163,7 +170,7 @@ def parkinson(
     high, low : array_like
         Aligned high and low prices, oldest first.
     period : int, default 20
-        Bars in the window.
+        Bars in the window: 1 to 5000 (:data:`sheetvol.core.bounds.PERIOD`).
     per_year : float, default 252
         Bars per year, above 0.
 
@@ -207,7 +214,7 @@ def garman_klass(
     low: npt.ArrayLike,
     close: npt.ArrayLike,
     period: int = 20,
-    per_year: float = 252,
+    per_year: float = PER_YEAR,
 ) -> FloatArray:
     """Garman-Klass (1980) volatility from open, high, low and close, annualised.
 
@@ -216,7 +223,7 @@ def garman_klass(
     open, high, low, close : array_like
         Aligned OHLC prices, oldest first.
     period : int, default 20
-        Bars in the window.
+        Bars in the window: 1 to 5000 (:data:`sheetvol.core.bounds.PERIOD`).
     per_year : float, default 252
         Bars per year, above 0.
 
@@ -274,7 +281,7 @@ def rogers_satchell(
     low: npt.ArrayLike,
     close: npt.ArrayLike,
     period: int = 20,
-    per_year: float = 252,
+    per_year: float = PER_YEAR,
 ) -> FloatArray:
     """Rogers-Satchell (1991) volatility, unbiased under drift, annualised.
 
@@ -283,7 +290,7 @@ def rogers_satchell(
     open, high, low, close : array_like
         Aligned OHLC prices, oldest first.
     period : int, default 20
-        Bars in the window.
+        Bars in the window: 1 to 5000 (:data:`sheetvol.core.bounds.PERIOD`).
     per_year : float, default 252
         Bars per year, above 0.
 
@@ -339,7 +346,7 @@ def yang_zhang(
     low: npt.ArrayLike,
     close: npt.ArrayLike,
     period: int = 20,
-    per_year: float = 252,
+    per_year: float = PER_YEAR,
 ) -> FloatArray:
     """Yang-Zhang (2000) volatility: overnight, open-to-close and Rogers-Satchell parts.
 
@@ -348,8 +355,9 @@ def yang_zhang(
     open, high, low, close : array_like
         Aligned OHLC prices, oldest first.
     period : int, default 20
-        Bars in the window (at least 2); the window also uses the close before
-        its first bar.
+        Bars in the window, 2 to 5000
+        (:data:`sheetvol.core.bounds.SPREAD_PERIOD`); the window also uses the
+        close before its first bar.
     per_year : float, default 252
         Bars per year, above 0.
 
@@ -372,6 +380,6 @@ def yang_zhang(
     >>> bool(abs(v[2] - math.sqrt(2.0)) < 1e-12)
     True
     """
-    period = check_period(period, minimum=2)
+    period = check_period(period, bound=SPREAD_PERIOD)
     o, h, lo, c = _positive(per_year, open=open, high=high, low=low, close=close)
     return _yang_zhang(o, h, lo, c, period, float(per_year))

@@ -204,7 +204,7 @@ def average_true_range(
     high, low, close : array_like
         Aligned price columns, oldest bar first.
     period : int, default 14
-        Bars averaged.
+        Bars averaged: 1 to 5000 (:data:`sheetvol.core.bounds.PERIOD`).
     smoothing : {"simple", "exponential", "wilder"}, default "wilder"
         Wilder smoothing (alpha = 1/period), a simple rolling mean, or an
         exponential average (alpha = 2/(period+1)).

@@ -25,6 +25,7 @@ import numpy.typing as npt
 from sheetvol.core._gaps import skip_gaps
 from sheetvol.core._types import FloatArray
 from sheetvol.core._windows import check_period
+from sheetvol.core.bounds import LOOKBACK, SPREAD_PERIOD
 from sheetvol.core.dispersion import dispersion_of
 from sheetvol.core.ranges import average_true_range_of
 
@@ -54,7 +55,8 @@ def percentile_rank(values: npt.ArrayLike, lookback: int = 252) -> FloatArray:
     values : array_like
         A series of readings (typically a volatility column), oldest first.
     lookback : int, default 252
-        Readings in the comparison window, today's included.
+        Readings in the comparison window, today's included: 1 to 100000
+        (:data:`sheetvol.core.bounds.LOOKBACK`).
 
     Returns
     -------
@@ -67,7 +69,7 @@ def percentile_rank(values: npt.ArrayLike, lookback: int = 252) -> FloatArray:
     >>> percentile_rank([3.0, 1.0, 2.0, 5.0, 0.5], lookback=3).tolist()
     [nan, nan, 0.6666666666666666, 1.0, 0.3333333333333333]
     """
-    return _percentile_rank(values, check_period(lookback, "lookback"))
+    return _percentile_rank(values, check_period(lookback, "lookback", LOOKBACK))
 
 
 @skip_gaps(3)
@@ -93,7 +95,8 @@ def deviation_to_atr(
     high, low, close : array_like
         Aligned price columns, oldest first.
     period : int, default 14
-        Bars in both the deviation window and the ATR.
+        Bars in both the deviation window and the ATR: 2 to 5000
+        (:data:`sheetvol.core.bounds.SPREAD_PERIOD`).
 
     Returns
     -------
@@ -114,4 +117,4 @@ def deviation_to_atr(
     >>> bool(abs(r[2] - math.sqrt(8 / 9) / (8 / 3)) < 1e-12)
     True
     """
-    return _deviation_to_atr(high, low, close, check_period(period, minimum=2))
+    return _deviation_to_atr(high, low, close, check_period(period, bound=SPREAD_PERIOD))

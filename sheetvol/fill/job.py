@@ -32,6 +32,7 @@ from typing import Any
 
 import numpy as np
 
+from sheetvol.core.prices import BAR_PRICES
 from sheetvol.fill.locate import (
     HEADER_SCAN_ROWS,
     ColumnFlagError,
@@ -1135,7 +1136,7 @@ def _bars_frame(table: PriceTable) -> pd.DataFrame:
     """A price table as the trade review reads bars: Date (day numbers, 1900-system serials)
     and the price columns."""
     data: dict[str, object] = {"Date": table.dates}  # day numbers: the review reads them as is
-    for role in ("open", "high", "low", "close"):
+    for role in BAR_PRICES:
         if role in table.prices:
             data[role.capitalize()] = table.prices[role]
     return pd.DataFrame(data)

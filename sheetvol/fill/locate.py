@@ -17,7 +17,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any, TypedDict
 
-from sheetvol.functions.grid import MAX_COL
+from sheetvol.functions.grid import MAX_COL, column_letters, column_number
 
 __all__ = [
     "HEADER_SCAN_ROWS",
@@ -223,53 +223,9 @@ class HeaderMatch:
         )
 
 
-def col_letter(col: int) -> str:
-    """1-based column number to letters.
-
-    Parameters
-    ----------
-    col : int
-        1-based column number.
-
-    Returns
-    -------
-    str
-
-    Examples
-    --------
-    >>> col_letter(28)
-    'AB'
-    """
-    out = ""
-    while col > 0:
-        col, rem = divmod(col - 1, 26)
-        out = chr(65 + rem) + out
-    return out
-
-
-def col_number(letters: str) -> int:
-    """Column letters to a 1-based number.
-
-    Parameters
-    ----------
-    letters : str
-        Column letters, any case.
-
-    Returns
-    -------
-    int
-
-    Examples
-    --------
-    >>> col_number("ab")
-    28
-    """
-    n = 0
-    for ch in letters.strip().upper():
-        if not "A" <= ch <= "Z":
-            raise ValueError(f"{letters!r} is not a column letter")
-        n = n * 26 + ord(ch) - 64
-    return n
+#: Column letters and numbers: the one rule, in :mod:`sheetvol.functions.grid`.
+col_letter = column_letters
+col_number = column_number
 
 
 

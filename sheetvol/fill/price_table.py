@@ -35,9 +35,11 @@ from typing import Any
 
 import numpy as np
 
+from sheetvol.core.prices import BAR_PRICES
 from sheetvol.functions import cells
 from sheetvol.functions._lazy import pandas as pd
 from sheetvol.workbook.errors import CellError
+from sheetvol.workbook.package import Column
 
 __all__ = ["PriceTable", "PriceTableError", "build_price_table", "date_order_problem",
            "price_decimals", "suspect_separator"]
@@ -51,20 +53,10 @@ SUMMARY = re.compile(
 SUMMARY_LABEL = "summary or footer row"
 NO_PRICES = "no prices on that date (holiday or blank)"
 NO_USABLE = "no usable price on that date (only error values or blank words)"
-_DATE_1904_OFFSET = 1462.0  # days between the 1900 and 1904 epochs
 
 
 class PriceTableError(ValueError):
     """A price sheet that cannot be used; the message names the cell and what to do."""
-
-
-@dataclass
-class RawColumn:
-    """Cells of one sheet column from ``first_row`` down (the package layer's ``Column``)."""
-
-    numbers: np.ndarray
-    other: dict[int, object]
-    first_row: int
 
 
 @dataclass
@@ -224,7 +216,7 @@ def _stamps_to_days(stamps: pd.Series) -> np.ndarray:
 
 
 def build_price_table(
-    columns: Mapping[str, RawColumn | Any],
+    columns: Mapping[str, Column | Any],
     *,
     header_row: int,
     letters: Mapping[str, str] | None = None,
@@ -266,8 +258,8 @@ def build_price_table(
 
     Examples
     --------
-    >>> col = RawColumn(np.array([3.0, 2.0, 1.0]), {}, 2)
-    >>> dates = RawColumn(np.array([45002.0, 45001.0, 45000.0]), {}, 2)
+    >>> col = Column(np.array([3.0, 2.0, 1.0]), {}, 2)
+    >>> dates = Column(np.array([45002.0, 45001.0, 45000.0]), {}, 2)
     >>> t = build_price_table({"close": col, "date": dates}, header_row=1)
     >>> t.order, t.rows.tolist(), t.prices["close"].tolist()
     ('newest first', [4, 3, 2], [1.0, 2.0, 3.0])
@@ -337,7 +329,8 @@ def build_price_table(
     if has_dates:
         raw, other = aligned(columns["date"])
         as_ymd = _yyyymmdd(raw)
-        dates = as_ymd if as_ymd is not None else raw + (_DATE_1904_OFFSET if date1904 else 0.0)
+        shift = cells.DATE_1904_OFFSET if date1904 else 0.0
+        dates = as_ymd if as_ymd is not None else raw + shift
         content |= np.isfinite(dates)
         texts: dict[int, str] = {}
         for r, v in other.items():
@@ -367,7 +360,7 @@ def build_price_table(
             dates[both] = np.floor(dates[both]) + frac[both]
 
     # ---- classify rows --------------------------------------------------------
-    price_roles = [r for r in ("open", "high", "low", "close") if r in prices]
+    price_roles = [r for r in BAR_PRICES if r in prices]
     any_price = np.zeros(n, dtype=bool)
     for role in price_roles:
         any_price |= np.isfinite(prices[role])

@@ -37,6 +37,9 @@ from typing import Any
 
 import numpy as np
 
+from sheetvol.core import bounds
+from sheetvol.core.estimators import PER_YEAR
+from sheetvol.core.review import MEASURES
 from sheetvol.fill.trade_settings import TradeSettings
 from sheetvol.functions import registry
 
@@ -47,6 +50,7 @@ else:  # pragma: no cover - exercised on 3.10 only
 
 __all__ = [
     "DEFAULT_RECIPE",
+    "MEASURE_FUNCTIONS",
     "ROLES",
     "ColumnSpec",
     "Recipe",
@@ -56,6 +60,7 @@ __all__ = [
     "default_specs",
     "load_recipe",
     "make_spec",
+    "measure_function",
     "parse_recipe",
     "parse_trades",
     "read_recipe",
@@ -279,7 +284,7 @@ def default_header(function: str, options: Mapping[str, Any], inputs: Mapping[st
         head = f"{str(o['basis']).capitalize()} price"
     elif function in _VOL_NAMES:
         head = f"{_VOL_NAMES[function]} vol {period} (ann.)"
-        if float(o.get("per_year", 252)) != 252:
+        if float(o.get("per_year", PER_YEAR)) != PER_YEAR:
             extra.append(f"{_w(o['per_year'])}/yr")
     elif function == "SV_VOLRANK":
         head = f"Vol rank {o['lookback']} ({inputs.get('values', '')})"
@@ -433,23 +438,25 @@ TRADE_KEYS = {
     "enabled": "true or false",
     "sheet": "the trade-log sheet's name",
     "instruments": "the instrument-details sheet's name",
-    "measure": '"atr", "deviation" or a sheetvol column function in price units',
+    "measure": ", ".join(f'"{m}"' for m in MEASURES)
+               + " or a sheetvol column function in price units",
     "options": "a table of the measure's options, e.g. { period = 20 }; basis = a price of "
                'the bar (e.g. "typical") for a measure of one price column',
-    "stop_multiple": "volatility units from entry to the stop, above 0",
-    "target_multiple": "volatility units from entry to the target, above 0",
-    "trail_multiple": "volatility units of the trailing stop, 0 (off) or more",
-    "risk": "risk is a share of equity: 0.01 = 1%; above 0 and at most 0.25",
-    "equity": "account equity where the log has none, above 0",
+    "stop_multiple": f"volatility units from entry to the stop, {bounds.MULTIPLE.words()}",
+    "target_multiple": f"volatility units from entry to the target, {bounds.MULTIPLE.words()}",
+    "trail_multiple": f"volatility units of the trailing stop (0: off), {bounds.TRAIL.words()}",
+    "risk": f"risk is a share of equity: 0.01 = 1%, {bounds.RISK.words()}",
+    "equity": f"account equity where the log has none, {bounds.EQUITY.words()}",
     "columns": 'a table of log roles to headers, e.g. { side = "B/S" }',
 }
 _LOG_ROLES = ("date", "instrument", "side", "entry", "exit", "exit_date", "quantity", "equity")
-_NUMBER_RULES = {
-    "stop_multiple": (0.0, False, math.inf),
-    "target_multiple": (0.0, False, math.inf),
-    "trail_multiple": (0.0, True, math.inf),
-    "risk": (0.0, False, 0.25),  # the worksheet SV_SIZE's cap: 1 typed for 1 % is refused
-    "equity": (0.0, False, math.inf),
+# the ranges of the [trades] numbers: the core's, as the worksheet functions take them
+_NUMBER_RULES: dict[str, bounds.Bound] = {
+    "stop_multiple": bounds.MULTIPLE,
+    "target_multiple": bounds.MULTIPLE,
+    "trail_multiple": bounds.TRAIL,
+    "risk": bounds.RISK,  # the worksheet SV_SIZE's cap: 1 typed for 1 % is refused
+    "equity": bounds.EQUITY,
 }
 
 
@@ -477,15 +484,14 @@ def check_trade_number(key: str, value: Any, where: str = "[trades]") -> float:
     >>> check_trade_number("risk", 2)
     Traceback (most recent call last):
     ...
-    sheetvol.fill.recipe.RecipeError: [trades] risk: risk is a share of equity: 0.01 = 1%; above 0 \
-and at most 0.25; got 2
+    sheetvol.fill.recipe.RecipeError: [trades] risk: risk is a share of equity: 0.01 = 1%, \
+a number above 0, up to 0.25; got 2
     """
-    low, low_ok, high = _NUMBER_RULES[key]
+    bound = _NUMBER_RULES[key]
     number = math.nan
     if isinstance(value, (int, float)) and not isinstance(value, bool):
         number = float(value)
-    ok = math.isfinite(number) and (number > low or (low_ok and number == low)) and number <= high
-    if not ok:
+    if not bound.holds(number):
         raise RecipeError(f"{where} {key}: {TRADE_KEYS[key]}; got {value!r}")
     return number
 
@@ -574,8 +580,7 @@ def check_measure(recipe: TradeSettings, where: str = "[trades]") -> registry.Fu
     >>> check_measure(TradeSettings(measure="deviation", options={"period": 20})).name
     'SV_DEVIATION'
     """
-    name = {"atr": "SV_ATR", "deviation": "SV_DEVIATION"}.get(recipe.measure.lower(),
-                                                               recipe.measure)
+    name = measure_function(recipe.measure)
     try:
         func = registry.get(name)
     except KeyError:
@@ -598,6 +603,21 @@ def check_measure(recipe: TradeSettings, where: str = "[trades]") -> registry.Fu
     except registry.ArgumentError as exc:
         raise RecipeError(f"{where} options: {exc}") from None
     return func
+
+
+#: The registry function of each trade-measure word (:data:`sheetvol.core.review.MEASURES`).
+MEASURE_FUNCTIONS = {"atr": "SV_ATR", "deviation": "SV_DEVIATION"}
+
+
+def measure_function(measure: str) -> str:
+    """The registry name of a trade measure: a measure word's function, else as given.
+
+    Examples
+    --------
+    >>> measure_function(" ATR "), measure_function("SV_CLOSEVOL")
+    ('SV_ATR', 'SV_CLOSEVOL')
+    """
+    return MEASURE_FUNCTIONS.get(measure.strip().lower(), measure)
 
 
 #: The option of a trade measure that picks the bar's price it is computed on.

@@ -30,7 +30,7 @@ from sheetvol.core import review as trade_review
 from sheetvol.core._types import FloatArray
 from sheetvol.core.prices import price_basis
 from sheetvol.fill.locate import normalize_header
-from sheetvol.fill.recipe import split_basis
+from sheetvol.fill.recipe import measure_function, split_basis
 from sheetvol.fill.table import find_roles
 from sheetvol.fill.trade_settings import Instrument, TradeSettings, instrument_key
 from sheetvol.functions import cells, registry
@@ -139,8 +139,6 @@ OUTPUT_COLUMNS = (
     "Result", "Exit price", "Exit date", "R", "Bars", "Adverse", "Favourable", "Adverse R",
     "Favourable R", "Open risk", "Note",
 )
-
-_MEASURE_WORDS = {"atr": "SV_ATR", "deviation": "SV_DEVIATION"}
 
 
 #: The Size note of a row whose instrument has no point value.
@@ -258,7 +256,7 @@ class _Bars:
 
 def _volatility_function(settings: TradeSettings) -> tuple[registry.Function, str, dict]:
     """The measure, its price basis and its other options, checked."""
-    name = _MEASURE_WORDS.get(settings.measure.strip().lower(), settings.measure)
+    name = measure_function(settings.measure)
     try:
         func = registry.get(name)
     except KeyError:

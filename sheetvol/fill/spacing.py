@@ -21,10 +21,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from sheetvol.core.estimators import PER_YEAR
+
 __all__ = ["TRADING_DAYS", "Spacing", "bars_per_year"]
 
-#: Trading days (sessions) a year of a market closed at weekends (common practice).
-TRADING_DAYS = 252
+#: Trading days (sessions) a year of a market closed at weekends (stated in the core).
+TRADING_DAYS = PER_YEAR
 #: Days a year of a market open every day.
 CALENDAR_DAYS = 365
 _SERIAL_EPOCH = np.datetime64("1899-12-30")  # day 0 of the 1900-system serials used here

@@ -11,7 +11,6 @@ percentages), the outcome counts, the settings and the cautions.
 
 from __future__ import annotations
 
-import datetime as dt
 import itertools
 import math
 import re
@@ -22,6 +21,9 @@ from typing import Any
 
 import numpy as np
 
+from sheetvol.core.levels import STOP_MULTIPLE, TARGET_MULTIPLE, TRAIL_MULTIPLE
+from sheetvol.core.review import MEASURE, PERIOD, RESULTS
+from sheetvol.core.sizing import RISK_SHARE
 from sheetvol.fill.locate import (
     HEADER_SCAN_ROWS,
     LocateError,
@@ -75,8 +77,6 @@ __all__ = [
 ]
 
 REVIEW_SHEET = "Trade review"
-# Day 0 of the 1904 date system as a 1900-system serial (1462).
-_DATE_1904_OFFSET = cells.datetime_to_serial(dt.datetime(1904, 1, 1))
 #: The Review note of a trade whose price sheet was left out with --sheet.
 NOT_CHOSEN_NOTE = "not reviewed: its price sheet was not chosen (--sheet)"
 TRADE_CAUTIONS = (
@@ -122,6 +122,10 @@ _SUMMARY_FORMATS = {"trades": "0", "finished": "0", "losing_streak": "0",
                     "open_risk": "#,##0.00",
                     "open_risk_share": "0.00%"}  # as the terminal prints it
 _SHARE_FORMAT = "0.0%"
+#: The review's defaults in words, as the sheet and the CLI help give them (stated in core).
+DEFAULTS_WORDS = (f"{MEASURE.upper()} {PERIOD}, "
+                  f"stop {STOP_MULTIPLE:g}, target {TARGET_MULTIPLE:g}, "
+                  f"trail {TRAIL_MULTIPLE:g}, risk {100 * RISK_SHARE:g}%")
 #: Risk per trade above this share of equity is accepted but warned about (common
 #: practice, no source: desks rarely risk more than a few percent on one trade).
 LARGE_RISK = 0.05
@@ -175,7 +179,7 @@ class TradeReport:
         if self.instrument:
             out.append(f'    no instrument column: every trade is on "{self.instrument}", the '
                        "only price sheet")
-        order = ("stop", "target", "trail", "closed", "open", "ambiguous", "")
+        order = (*RESULTS, "")  # "": not reviewed
         shown = [f"{self.counts[k]} {k or 'not reviewed'}" for k in order if self.counts[k]]
         out.append(f"    outcomes: {', '.join(shown) or 'none'}")
         if self.summary is not None:
@@ -631,7 +635,7 @@ def read_log(pkg: Package, log: TradeLog) -> tuple[LogArrays, Any]:
     >>> arrays, grid = read_log(pkg, find_trade_log(pkg, TradeSettings()))  # doctest: +SKIP
     """
     grid = pkg.read_grid(log.sheet)
-    offset = _DATE_1904_OFFSET if pkg.date1904 else 0.0
+    offset = cells.DATE_1904_OFFSET if pkg.date1904 else 0.0
     rows: list[int] = []
     values: dict[str, list[object]] = {role: [] for role in _CANONICAL}
     for r in sorted(r for r in grid.rows if r > log.header_row):  # rows with cells only
@@ -824,7 +828,7 @@ def plan_trade_review(
         column = reviewed[key]
         nums = pd.to_numeric(column, errors="coerce").to_numpy(dtype=float)
         if key in ("Bar date", "Exit date"):  # day numbers -> the workbook's date system
-            nums = nums - (_DATE_1904_OFFSET if pkg.date1904 else 0.0)
+            nums = nums - (cells.DATE_1904_OFFSET if pkg.date1904 else 0.0)
         values[at] = nums
         fmt = formats.get(key) or scaled_format(
             np.asarray(nums, dtype=float), size_places if key == "Size" else price_places)
@@ -1041,7 +1045,7 @@ def _settings_rows(recipe: TradeSettings, settings: TradeSettings,
         *levels,
         *([("Instrument", f'the log has no instrument column: every trade is on "{instrument}"'
             ", the workbook's only price sheet")] if instrument else []),
-        ("Defaults", "ATR 14, stop 2, target 3, trail 3, risk 1%: common practice, no source"),
+        ("Defaults", f"{DEFAULTS_WORDS}: common practice, no source"),
     ]
 
 

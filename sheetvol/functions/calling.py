@@ -30,6 +30,7 @@ from typing import Any
 import numpy as np
 
 from sheetvol.core._types import FloatArray
+from sheetvol.core.averages import WINDOW_KINDS
 from sheetvol.core.bounds import BarError
 from sheetvol.functions import cells
 from sheetvol.functions import convert as _convert
@@ -130,7 +131,7 @@ def _rename(message: str, base: str, wname: str) -> str:
 # them: Wilder ATR, ATR bands, deviation-to-ATR) carry the whole history in their
 # value, so they read whole columns. tests/test_addin.py checks every entry against the
 # full-column computation, and that every series function of the registry is listed.
-_WINDOW_AVERAGES = ("simple", "linear")
+_WINDOW_AVERAGES = WINDOW_KINDS
 
 
 def _by_average(option: str) -> Callable[[Mapping[str, Any]], int | None]:

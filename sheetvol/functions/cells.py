@@ -43,6 +43,8 @@ BLANK_TEXTS = frozenset({"", "-", "--", "n/a", "na", "nan", "null", "none"})
 
 EPOCH_1900 = dt.datetime(1899, 12, 30)
 EPOCH_1904 = dt.datetime(1904, 1, 1)
+#: Days between the two date systems: a 1904-system serial plus this is the 1900-system one.
+DATE_1904_OFFSET = float((EPOCH_1904 - EPOCH_1900).days)
 
 NUMBER_TEXT = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?$")
 # Numbers with thousands separators: groups of exactly three digits (key: decimal comma).

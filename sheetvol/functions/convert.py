@@ -54,7 +54,6 @@ def com_error_name(code: int) -> str:
     """
     return _COM_ERROR_NAMES.get(code - _COM_ERROR_BASE, "an error value")
 _FIRST = operator.itemgetter(0)
-_SERIAL_SHIFT_1904 = 1462.0  # days from 1899-12-30 to 1904-01-01
 _EPOCH_US = int(np.datetime64(cells.EPOCH_1900, "us").astype(np.int64))
 _US_PER_DAY = 86_400_000_000.0
 
@@ -471,7 +470,7 @@ def day_numbers(value: Any, *, func: str, param: str, date1904: bool = False) ->
     if isinstance(flat, np.ndarray):
         if flat.dtype.kind in "fiu":
             out = flat.astype(np.float64)
-            return out + _SERIAL_SHIFT_1904 if date1904 else _fix_1900(out)
+            return out + cells.DATE_1904_OFFSET if date1904 else _fix_1900(out)
         flat = flat.tolist()
     top = 0  # text cells at the top: a header, or dates typed as text
     while top < len(flat) and type(flat[top]) is str:
@@ -498,7 +497,7 @@ def _days_at_once(flat: list[Any], date1904: bool) -> FloatArray | None:
         out = np.array(flat, dtype=np.float64)
         if int in kinds:
             _blank_com_errors(flat, out)
-        return out + _SERIAL_SHIFT_1904 if date1904 else _fix_1900(out)
+        return out + cells.DATE_1904_OFFSET if date1904 else _fix_1900(out)
     if not all(k is type(None) or issubclass(k, (dt.date, pd.Timestamp)) for k in kinds):
         return None
     # Any date or datetime type, also pywin32's own datetime (a subclass carrying a UTC

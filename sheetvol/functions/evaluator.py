@@ -28,13 +28,13 @@ from typing import Any
 
 import numpy as np
 from openpyxl.formula.tokenizer import Token, Tokenizer, TokenizerError
-from openpyxl.utils.cell import column_index_from_string
 
 from sheetvol.functions import cells as _cells
 from sheetvol.functions import convert as _convert
 from sheetvol.functions.calling import Result, call_worksheet
 from sheetvol.functions.grid import MAX_COL as MAX_COLS
 from sheetvol.functions.grid import MAX_ROW as MAX_ROWS
+from sheetvol.functions.grid import column_number
 from sheetvol.functions.registry import ArgumentError, variant_of
 
 Resolver = Callable[[str | None, int, int, int | None, int | None], list[list[object]]]
@@ -425,16 +425,14 @@ def parse_reference(text: str) -> Ref:
     a, b = _CELL.match(first), _CELL.match(second)
     if a and b:
         top, bottom = sorted((int(a[2]), int(b[2])))
-        left, right = sorted((column_index_from_string(a[1].upper()),
-                              column_index_from_string(b[1].upper())))
+        left, right = sorted((column_number(a[1]), column_number(b[1])))
         if bottom > MAX_ROWS or right > MAX_COLS or top < 1:
             raise FormulaError(f"cannot evaluate {text}: not a cell reference")
         return Ref(text, sheet, top, left, bottom, right)
     if ":" in body:
         ca, cb = _COL.match(first), _COL.match(second)
         if ca and cb:
-            left, right = sorted((column_index_from_string(ca[1].upper()),
-                                  column_index_from_string(cb[1].upper())))
+            left, right = sorted((column_number(ca[1]), column_number(cb[1])))
             return Ref(text, sheet, 1, left, None, right)
         ra, rb = _ROW.match(first), _ROW.match(second)
         if ra and rb:

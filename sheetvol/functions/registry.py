@@ -29,6 +29,8 @@ import numpy as np
 from sheetvol.core import bounds
 from sheetvol.core.averages import KINDS, SEEDS
 from sheetvol.core.bounds import Bound
+from sheetvol.core.dispersion import DIVISORS
+from sheetvol.core.estimators import PER_YEAR
 from sheetvol.core.levels import SIDES, STOP_MULTIPLE, TARGET_MULTIPLE, TRAIL_MULTIPLE
 from sheetvol.core.prices import BASES, DERIVED_FORMULAS
 from sheetvol.core.ranges import FIRST_BAR, SMOOTHING
@@ -39,8 +41,6 @@ ParamKind = Literal["series", "dates", "date", "whole", "number", "choice", "tex
 Shape = Literal["series", "scalar"]
 Unit = Literal["price", "percent", "ratio", "quantity", "date", "text", "number"]
 Variant = Literal["column", "last", "on"]
-
-MAX_PERIOD = 5000
 
 
 class ArgumentError(ValueError):
@@ -261,8 +261,16 @@ def _prices(name: str = "prices", help: str = "price column, oldest bar first") 
     return Param(name, "series", help)
 
 
-def _period(default: int, help: str = "bars in the window") -> Param:
-    return Param("period", "whole", help, default, 2, MAX_PERIOD)
+def whole(name: str, help: str, default: Any, bound: Bound) -> Param:
+    """A whole-number argument (a window in bars) whose range is stated in the core."""
+    return Param(name, "whole", help, default, bound.low, bound.high)
+
+
+def _period(default: int, help: str = "bars in the window",
+            bound: Bound = bounds.PERIOD) -> Param:
+    """The window of a function: :data:`~sheetvol.core.bounds.PERIOD`, or
+    :data:`~sheetvol.core.bounds.SPREAD_PERIOD` for a spread (the kernel checks the same)."""
+    return whole("period", help, default, bound)
 
 
 def _average(default: str = "simple", name: str = "average") -> Param:
@@ -274,12 +282,12 @@ _DIVISOR = Param(
     "choice",
     "population divides by N (the trade's usual choice); sample divides by N-1",
     "population",
-    choices=("population", "sample"),
+    choices=DIVISORS,
 )
 _PER_YEAR = bounded(
     "per_year",
-    "bars per year for annualising (252 trading days; 365 for 24/7 markets)",
-    252,
+    f"bars per year for annualising ({PER_YEAR} trading days; 365 for 24/7 markets)",
+    PER_YEAR,
     bounds.BARS_PER_YEAR,
 )
 _OPEN = Param("open", "series", "opening prices, oldest bar first")
@@ -363,7 +371,7 @@ FUNCTIONS: tuple[Function, ...] = (
         "SV_DEVIATION",
         "dispersion",
         "Rolling standard deviation of the last N prices about the current value of a moving average.",
-        (_prices(), _period(14), _average(), _DIVISOR, _SEED),
+        (_prices(), _period(14, bound=bounds.SPREAD_PERIOD), _average(), _DIVISOR, _SEED),
         f"{_K}.dispersion:dispersion",
         "deviation in price units; blank until a full window",
         example='=SV_DEVIATION(E2:E400, 14, "simple")',
@@ -409,7 +417,7 @@ FUNCTIONS: tuple[Function, ...] = (
         (
             _prices(),
             Param("line", "choice", "which line of the bands", "upper", choices=LINES),
-            _period(20),
+            _period(20, bound=bounds.SPREAD_PERIOD),
             _WIDTH,
             _average(),
             _DIVISOR,
@@ -424,7 +432,7 @@ FUNCTIONS: tuple[Function, ...] = (
         "SV_PCTB",
         "bands",
         "%b: where the price sits within its bands (0 at the lower band, 1 at the upper).",
-        (_prices(), _period(20), _WIDTH, _average(), _DIVISOR),
+        (_prices(), _period(20, bound=bounds.SPREAD_PERIOD), _WIDTH, _average(), _DIVISOR),
         f"{_K}.bands:percent_b",
         "%b as a fraction",
         unit="ratio",
@@ -433,7 +441,7 @@ FUNCTIONS: tuple[Function, ...] = (
         "SV_BANDWIDTH",
         "bands",
         "Bandwidth: distance between the upper and lower band divided by the middle line.",
-        (_prices(), _period(20), _WIDTH, _average(), _DIVISOR),
+        (_prices(), _period(20, bound=bounds.SPREAD_PERIOD), _WIDTH, _average(), _DIVISOR),
         f"{_K}.bands:bandwidth",
         "bandwidth as a fraction of the middle line",
         unit="percent",
@@ -449,7 +457,7 @@ FUNCTIONS: tuple[Function, ...] = (
             Param("line", "choice", "which line of the bands", "upper", choices=LINES),
             _period(20, "bars in the middle average"),
             _WIDTH,
-            Param("atr_period", "whole", "bars in the ATR", 10, 2, MAX_PERIOD),
+            whole("atr_period", "bars in the ATR", 10, bounds.PERIOD),
         ),
         f"{_K}.bands:atr_bands",
         "the chosen band line in price units",
@@ -478,7 +486,7 @@ FUNCTIONS: tuple[Function, ...] = (
         "SV_CLOSEVOL",
         "returns",
         "Close-to-close volatility: sample standard deviation of log returns, annualised.",
-        (_CLOSE, _period(20, "returns in the window"), _PER_YEAR),
+        (_CLOSE, _period(20, "returns in the window", bounds.SPREAD_PERIOD), _PER_YEAR),
         f"{_K}.estimators:close_to_close",
         "annualised volatility (format as %)",
         unit="percent",
@@ -515,7 +523,7 @@ FUNCTIONS: tuple[Function, ...] = (
         "SV_YANGZHANG",
         "returns",
         "Yang-Zhang volatility (overnight, open-to-close and Rogers-Satchell parts), annualised.",
-        (_OPEN, _HIGH, _LOW, _CLOSE, _period(20), _PER_YEAR),
+        (_OPEN, _HIGH, _LOW, _CLOSE, _period(20, bound=bounds.SPREAD_PERIOD), _PER_YEAR),
         f"{_K}.estimators:yang_zhang",
         "annualised volatility (format as %)",
         unit="percent",
@@ -527,7 +535,7 @@ FUNCTIONS: tuple[Function, ...] = (
         "Where today's reading stands among its own last N readings: the share at or below it (1 = highest).",
         (
             Param("values", "series", "a volatility column, oldest first"),
-            Param("lookback", "whole", "readings to compare against", 252, 2, 100_000),
+            whole("lookback", "readings to compare against", 252, bounds.LOOKBACK),
         ),
         f"{_K}.regime:percentile_rank",
         "percentile rank as a fraction (format as %)",
@@ -538,7 +546,7 @@ FUNCTIONS: tuple[Function, ...] = (
         "SV_DEVATR",
         "regime",
         "Ratio of the close's standard deviation to ATR over the same period.",
-        (_HIGH, _LOW, _CLOSE, _period(14)),
+        (_HIGH, _LOW, _CLOSE, _period(14, bound=bounds.SPREAD_PERIOD)),
         f"{_K}.regime:deviation_to_atr",
         "ratio (around 0.5 to 2 on most markets)",
         unit="ratio",
@@ -635,7 +643,7 @@ FUNCTIONS: tuple[Function, ...] = (
             _SIDE,
             bounded("multiple", "volatility units between the best price since entry and the stop",
                     TRAIL_MULTIPLE, bounds.MULTIPLE),
-            _period(PERIOD, "bars in the volatility window"),
+            _period(PERIOD, "bars in the volatility window", bounds.SPREAD_PERIOD),
             _MEASURE,
             bounded("tick", _TICK.format("stop", "away from the price"), 0.0, bounds.TICK),
         ),
@@ -663,15 +671,10 @@ FUNCTIONS: tuple[Function, ...] = (
             Param("target", "number", "target price"),
             Param("field", "choice", "which figure to return", OUTCOME_FIELDS[0],
                   choices=OUTCOME_FIELDS),
-            Param(
-                "trail_multiple",
-                "number",
-                "trailing stop in volatility units (0 = no trailing stop)",
-                TRAIL_MULTIPLE,
-                0,
-                bounds.MULTIPLE.high,
-            ),
-            _period(PERIOD, "bars in the volatility window of the trailing stop"),
+            bounded("trail_multiple", "trailing stop in volatility units (0 = no trailing stop)",
+                    TRAIL_MULTIPLE, bounds.TRAIL),
+            _period(PERIOD, "bars in the volatility window of the trailing stop",
+                    bounds.SPREAD_PERIOD),
             _MEASURE,
             Param(
                 "exit_date", "date", "exit date from the trade log (blank = no recorded exit)", ""

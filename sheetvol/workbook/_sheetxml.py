@@ -23,7 +23,7 @@ from collections.abc import Callable, Iterator
 from functools import lru_cache
 from typing import Protocol
 
-from sheetvol.functions.grid import MAX_COL, MAX_ROW
+from sheetvol.functions.grid import MAX_COL, MAX_ROW, column_letters, column_number
 from sheetvol.workbook._safety import check_prolog
 from sheetvol.workbook.errors import CellError, WorkbookError
 
@@ -68,25 +68,19 @@ COLS_BLOCK: dict[bytes, int] = {}
 
 
 def col_index(letters: bytes) -> int:
-    """1-based column number of column letters (``b"A"`` -> 1, ``b"AA"`` -> 27)."""
+    """1-based column number of column letters (``b"A"`` -> 1, ``b"AA"`` -> 27).
+
+    The hot path of the reader: a cache in front of the one rule,
+    :func:`sheetvol.functions.grid.column_number`.
+    """
     n = COLS_BLOCK.get(letters)
     if n is None:
-        n = 0
-        for ch in letters:
-            n = n * 26 + ch - 64
-        COLS_BLOCK[letters] = n
+        n = COLS_BLOCK[letters] = column_number(letters.decode("ascii"))
     return n
 
 
-def col_letters(col: int) -> str:
-    """Column letters of a 1-based column number (1 -> ``"A"``)."""
-    if not 1 <= col <= MAX_COL:
-        raise ValueError(f"column {col} is outside 1..{MAX_COL}")
-    out = ""
-    while col:
-        col, rem = divmod(col - 1, 26)
-        out = chr(65 + rem) + out
-    return out
+#: Column letters of a 1-based column number (1 -> ``"A"``): the one rule.
+col_letters = column_letters
 
 
 def cell_name(row: int, col: int) -> str:
