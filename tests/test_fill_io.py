@@ -275,3 +275,49 @@ def test_a_write_that_fails_deep_in_the_sheet_leaves_no_thread_and_no_file(tmp_p
     gc.collect()
     assert [t.name for t in threading.enumerate() if t.name.startswith("sheetvol")] == []
     assert not out.exists() and not list(tmp_path.glob(".out.xlsx.*"))
+
+
+def rowedit_without_orjson(monkeypatch):
+    """A fresh copy of the row editor module loaded while ``import orjson`` fails, as in
+    an interpreter that lacks it (the add-in's in-Excel Python)."""
+    import importlib.util
+
+    from sheetvol.workbook import _rowedit
+
+    monkeypatch.setitem(sys.modules, "orjson", None)  # None in sys.modules: ImportError
+    spec = importlib.util.spec_from_file_location("rowedit_no_orjson", _rowedit.__file__)
+    mod = importlib.util.module_from_spec(spec)
+    monkeypatch.setitem(sys.modules, spec.name, mod)  # dataclasses look their module up
+    spec.loader.exec_module(mod)
+    assert mod.orjson is None
+    return mod
+
+
+def test_number_texts_without_orjson_are_the_same(monkeypatch):
+    from sheetvol.workbook._rowedit import repr_texts
+
+    plain = rowedit_without_orjson(monkeypatch)
+    rng = np.random.default_rng(3)
+    values = np.concatenate([rng.normal(100, 30, 5000), np.ldexp(1.5, np.arange(-1074, 1024)),
+                             [np.nan, np.inf, -np.inf, 0.0, -0.0, 3e-05, 1e16]])
+    # the reference is Python's own repr, "" where no cell goes
+    want = [repr(v) if np.isfinite(v) else "" for v in values.tolist()]
+    assert plain.repr_texts(values) == want == repr_texts(values)
+
+
+def test_a_fill_without_orjson_writes_the_same_bytes(tmp_path, monkeypatch):
+    import zipfile
+
+    from sheetvol.fill.job import FillOptions, fill_file
+    from sheetvol.workbook import _rowedit
+
+    src = price_book(tmp_path / "prices.xlsx", rows=700)
+    fill_file(src, FillOptions(output=tmp_path / "fast.xlsx"))
+    plain = rowedit_without_orjson(monkeypatch)
+    monkeypatch.setattr(_rowedit, "repr_texts", plain.repr_texts)
+    fill_file(src, FillOptions(output=tmp_path / "plain.xlsx"))
+    with (zipfile.ZipFile(tmp_path / "fast.xlsx") as a,
+          zipfile.ZipFile(tmp_path / "plain.xlsx") as b):
+        assert a.namelist() == b.namelist()
+        for name in a.namelist():
+            assert a.read(name) == b.read(name), name

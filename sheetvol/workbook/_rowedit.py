@@ -14,7 +14,11 @@ from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 
 import numpy as np
-import orjson
+
+try:
+    import orjson
+except ImportError:  # e.g. the add-in's in-Excel Python (Pyodide) may not have it
+    orjson = None
 
 from sheetvol.functions.grid import MAX_COL
 from sheetvol.workbook._sheetxml import (
@@ -71,7 +75,8 @@ def repr_texts(values: np.ndarray) -> list[str]:
     """``repr`` of each double (its shortest round-trip text), ``""`` for NaN and inf.
 
     orjson writes the same shortest digits as ``repr`` several times faster; the few
-    numbers it spells differently (magnitudes below 1e-4) take ``repr`` itself.
+    numbers it spells differently (magnitudes below 1e-4) take ``repr`` itself. Without
+    orjson every number takes ``repr``.
 
     Examples
     --------
@@ -81,6 +86,8 @@ def repr_texts(values: np.ndarray) -> list[str]:
     arr = np.ascontiguousarray(values, dtype=np.float64).ravel()
     if not len(arr):
         return []
+    if orjson is None:  # the same texts, slower
+        return [repr(x) if x - x == 0 else "" for x in arr.tolist()]
     texts = orjson.dumps(arr, option=orjson.OPT_SERIALIZE_NUMPY)[1:-1].decode("ascii").split(",")
     with np.errstate(invalid="ignore"):
         small = np.flatnonzero((np.abs(arr) < _SMALL) & (arr != 0))
