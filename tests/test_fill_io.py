@@ -321,3 +321,37 @@ def test_a_fill_without_orjson_writes_the_same_bytes(tmp_path, monkeypatch):
         assert a.namelist() == b.namelist()
         for name in a.namelist():
             assert a.read(name) == b.read(name), name
+
+
+def test_new_cells_laid_out_by_block_are_the_cells_one_by_one(monkeypatch):
+    # gaps, infinities, text cells, a column that starts and ends inside a block, a
+    # namespace prefix, several blocks: each row's new cells are what one f-string per
+    # cell with Python's repr of the number gives
+    from sheetvol.workbook import _rowedit
+    from sheetvol.workbook._rowedit import ColumnRun, RowEditor, SheetEdits
+    from sheetvol.workbook._sheetxml import patterns
+
+    monkeypatch.setattr(_rowedit, "BLOCK", 300)
+    rng = np.random.default_rng(8)
+    a = rng.normal(100, 5, 900)
+    a[rng.random(900) < 0.1] = np.nan
+    a[:14] = np.nan
+    a[[50, 51]] = [np.inf, -np.inf]
+    b = rng.normal(0, 1e-5, 460)  # small numbers: repr's exponent style
+    c = rng.normal(1e6, 1, 900)
+    texts = {r: f'<x:c r="J{r}" t="inlineStr"><x:is><x:t>note {r}</x:t></x:is></x:c>'
+             for r in (5, 299, 300, 301, 640)}
+    c[[r - 2 for r in texts]] = np.nan
+    runs = [ColumnRun(10, 2, c.tolist(), 0, texts=texts), ColumnRun(8, 2, a.tolist(), 5),
+            ColumnRun(9, 40, b.tolist(), 3)]
+    editor = RowEditor(SheetEdits("f.xlsx", "Prices", runs=runs), patterns(b"x:"))
+    for r in range(2, 1000):
+        got = editor._block(r)[r - editor._blk_lo]
+        want = []
+        for run, s in ((runs[1], ' s="5"'), (runs[2], ' s="3"'), (runs[0], "")):
+            if r in (run.texts or {}):
+                want.append(run.texts[r])
+            elif run.first_row <= r <= run.last_row and np.isfinite(run.values[r - run.first_row]):
+                want.append(f'<x:c r="{run.letters}{r}"{s}><x:v>'
+                            f'{run.values[r - run.first_row]!r}</x:v></x:c>')
+        assert got == "".join(want).encode(), r
