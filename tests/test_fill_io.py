@@ -355,3 +355,40 @@ def test_new_cells_laid_out_by_block_are_the_cells_one_by_one(monkeypatch):
                 want.append(f'<x:c r="{run.letters}{r}"{s}><x:v>'
                             f'{run.values[r - run.first_row]!r}</x:v></x:c>')
         assert got == "".join(want).encode(), r
+
+
+def test_read_columns_mixed_cells_agree_with_openpyxl(tmp_path):
+    # plain numbers around formulas with stored results, shared and inline text, booleans,
+    # errors and styled blanks in the columns read: each reaches the same place as
+    # openpyxl reads it (an independent reader)
+    import openpyxl
+
+    from sheetvol.workbook import Package
+
+    path = tmp_path / "mixed.xlsx"
+    wb = xlsxwriter.Workbook(str(path))
+    ws = wb.add_worksheet("Prices")
+    bold = wb.add_format({"bold": True})
+    rng = np.random.default_rng(4)
+    for r in range(1, 3000):
+        ws.write_row(r, 0, [f"n{r}", *rng.normal(100, 10, 3).tolist()])
+        if r % 97 == 0:
+            ws.write_formula(r, 2, f"=B{r + 1}*2", None, r * 0.5)
+        if r % 131 == 0:
+            ws.write_string(r, 1, f"text {r}")
+        if r % 149 == 0:
+            ws.write_boolean(r, 3, r % 2 == 0)
+        if r % 173 == 0:
+            ws.write_blank(r, 2, None, bold)
+        if r % 211 == 0:
+            ws.write_formula(r, 1, "=1/0", None, "#DIV/0!")
+    wb.close()
+    got = Package.open(path).read_columns("Prices", [2, 3, 4], first_row=2)
+    sheet = openpyxl.load_workbook(path, data_only=True)["Prices"]
+    for c in (2, 3, 4):
+        values = [sheet.cell(r, c).value for r in range(2, 3001)]
+        want = [v if isinstance(v, float) and not isinstance(v, bool) else np.nan
+                for v in values]
+        np.testing.assert_array_equal(got[c].numbers, want)
+        assert sorted(got[c].other) == [r for r, v in enumerate(values, 2)
+                                        if v is not None and not isinstance(v, float)]
