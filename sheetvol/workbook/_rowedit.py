@@ -511,7 +511,14 @@ class RowEditor:
                     blk = self._block(r)
                     blk_lo, blk_hi = self._blk_lo, self._blk_hi
                 tail = blk[r - blk_lo]
-                if inner_s == inner_e or b"spans" in attrs:
+                if inner_s != inner_e and (i := attrs.find(b' spans="')) >= 0 and (
+                        j := attrs.find(b'"', i + 8)) > 0:
+                    # the usual spans="1:7": copy around it, no row tag built
+                    append(chunk[pos : s + rsl + i])
+                    append(chunk[s + rsl + j + 1 : inner_e])
+                    append(tail)
+                    pos = inner_e
+                elif inner_s == inner_e or b"spans" in attrs:
                     append(chunk[pos:s])
                     append(row_open + _drop_spans(attrs) + b">")
                     append(chunk[inner_s:inner_e])
