@@ -275,3 +275,120 @@ def test_a_write_that_fails_deep_in_the_sheet_leaves_no_thread_and_no_file(tmp_p
     gc.collect()
     assert [t.name for t in threading.enumerate() if t.name.startswith("sheetvol")] == []
     assert not out.exists() and not list(tmp_path.glob(".out.xlsx.*"))
+
+
+def rowedit_without_orjson(monkeypatch):
+    """A fresh copy of the row editor module loaded while ``import orjson`` fails, as in
+    an interpreter that lacks it (the add-in's in-Excel Python)."""
+    import importlib.util
+
+    from sheetvol.workbook import _rowedit
+
+    monkeypatch.setitem(sys.modules, "orjson", None)  # None in sys.modules: ImportError
+    spec = importlib.util.spec_from_file_location("rowedit_no_orjson", _rowedit.__file__)
+    mod = importlib.util.module_from_spec(spec)
+    monkeypatch.setitem(sys.modules, spec.name, mod)  # dataclasses look their module up
+    spec.loader.exec_module(mod)
+    assert mod.orjson is None
+    return mod
+
+
+def test_number_texts_without_orjson_are_the_same(monkeypatch):
+    from sheetvol.workbook._rowedit import repr_texts
+
+    plain = rowedit_without_orjson(monkeypatch)
+    rng = np.random.default_rng(3)
+    values = np.concatenate([rng.normal(100, 30, 5000), np.ldexp(1.5, np.arange(-1074, 1024)),
+                             [np.nan, np.inf, -np.inf, 0.0, -0.0, 3e-05, 1e16]])
+    # the reference is Python's own repr, "" where no cell goes
+    want = [repr(v) if np.isfinite(v) else "" for v in values.tolist()]
+    assert plain.repr_texts(values) == want == repr_texts(values)
+
+
+def test_a_fill_without_orjson_writes_the_same_bytes(tmp_path, monkeypatch):
+    import zipfile
+
+    from sheetvol.fill.job import FillOptions, fill_file
+    from sheetvol.workbook import _rowedit
+
+    src = price_book(tmp_path / "prices.xlsx", rows=700)
+    fill_file(src, FillOptions(output=tmp_path / "fast.xlsx"))
+    plain = rowedit_without_orjson(monkeypatch)
+    monkeypatch.setattr(_rowedit, "repr_texts", plain.repr_texts)
+    fill_file(src, FillOptions(output=tmp_path / "plain.xlsx"))
+    with (zipfile.ZipFile(tmp_path / "fast.xlsx") as a,
+          zipfile.ZipFile(tmp_path / "plain.xlsx") as b):
+        assert a.namelist() == b.namelist()
+        for name in a.namelist():
+            assert a.read(name) == b.read(name), name
+
+
+def test_new_cells_laid_out_by_block_are_the_cells_one_by_one(monkeypatch):
+    # gaps, infinities, text cells, a column that starts and ends inside a block, a
+    # namespace prefix, several blocks: each row's new cells are what one f-string per
+    # cell with Python's repr of the number gives
+    from sheetvol.workbook import _rowedit
+    from sheetvol.workbook._rowedit import ColumnRun, RowEditor, SheetEdits
+    from sheetvol.workbook._sheetxml import patterns
+
+    monkeypatch.setattr(_rowedit, "BLOCK", 300)
+    rng = np.random.default_rng(8)
+    a = rng.normal(100, 5, 900)
+    a[rng.random(900) < 0.1] = np.nan
+    a[:14] = np.nan
+    a[[50, 51]] = [np.inf, -np.inf]
+    b = rng.normal(0, 1e-5, 460)  # small numbers: repr's exponent style
+    c = rng.normal(1e6, 1, 900)
+    texts = {r: f'<x:c r="J{r}" t="inlineStr"><x:is><x:t>note {r}</x:t></x:is></x:c>'
+             for r in (5, 299, 300, 301, 640)}
+    c[[r - 2 for r in texts]] = np.nan
+    runs = [ColumnRun(10, 2, c.tolist(), 0, texts=texts), ColumnRun(8, 2, a.tolist(), 5),
+            ColumnRun(9, 40, b.tolist(), 3)]
+    editor = RowEditor(SheetEdits("f.xlsx", "Prices", runs=runs), patterns(b"x:"))
+    for r in range(2, 1000):
+        got = editor._block(r)[r - editor._blk_lo]
+        want = []
+        for run, s in ((runs[1], ' s="5"'), (runs[2], ' s="3"'), (runs[0], "")):
+            if r in (run.texts or {}):
+                want.append(run.texts[r])
+            elif run.first_row <= r <= run.last_row and np.isfinite(run.values[r - run.first_row]):
+                want.append(f'<x:c r="{run.letters}{r}"{s}><x:v>'
+                            f'{run.values[r - run.first_row]!r}</x:v></x:c>')
+        assert got == "".join(want).encode(), r
+
+
+def test_read_columns_mixed_cells_agree_with_openpyxl(tmp_path):
+    # plain numbers around formulas with stored results, shared and inline text, booleans,
+    # errors and styled blanks in the columns read: each reaches the same place as
+    # openpyxl reads it (an independent reader)
+    import openpyxl
+
+    from sheetvol.workbook import Package
+
+    path = tmp_path / "mixed.xlsx"
+    wb = xlsxwriter.Workbook(str(path))
+    ws = wb.add_worksheet("Prices")
+    bold = wb.add_format({"bold": True})
+    rng = np.random.default_rng(4)
+    for r in range(1, 3000):
+        ws.write_row(r, 0, [f"n{r}", *rng.normal(100, 10, 3).tolist()])
+        if r % 97 == 0:
+            ws.write_formula(r, 2, f"=B{r + 1}*2", None, r * 0.5)
+        if r % 131 == 0:
+            ws.write_string(r, 1, f"text {r}")
+        if r % 149 == 0:
+            ws.write_boolean(r, 3, r % 2 == 0)
+        if r % 173 == 0:
+            ws.write_blank(r, 2, None, bold)
+        if r % 211 == 0:
+            ws.write_formula(r, 1, "=1/0", None, "#DIV/0!")
+    wb.close()
+    got = Package.open(path).read_columns("Prices", [2, 3, 4], first_row=2)
+    sheet = openpyxl.load_workbook(path, data_only=True)["Prices"]
+    for c in (2, 3, 4):
+        values = [sheet.cell(r, c).value for r in range(2, 3001)]
+        want = [v if isinstance(v, float) and not isinstance(v, bool) else np.nan
+                for v in values]
+        np.testing.assert_array_equal(got[c].numbers, want)
+        assert sorted(got[c].other) == [r for r, v in enumerate(values, 2)
+                                        if v is not None and not isinstance(v, float)]

@@ -14,7 +14,11 @@ from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 
 import numpy as np
-import orjson
+
+try:
+    import orjson
+except ImportError:  # e.g. the add-in's in-Excel Python (Pyodide) may not have it
+    orjson = None
 
 from sheetvol.functions.grid import MAX_COL
 from sheetvol.workbook._sheetxml import (
@@ -71,7 +75,8 @@ def repr_texts(values: np.ndarray) -> list[str]:
     """``repr`` of each double (its shortest round-trip text), ``""`` for NaN and inf.
 
     orjson writes the same shortest digits as ``repr`` several times faster; the few
-    numbers it spells differently (magnitudes below 1e-4) take ``repr`` itself.
+    numbers it spells differently (magnitudes below 1e-4) take ``repr`` itself. Without
+    orjson every number takes ``repr``.
 
     Examples
     --------
@@ -81,6 +86,8 @@ def repr_texts(values: np.ndarray) -> list[str]:
     arr = np.ascontiguousarray(values, dtype=np.float64).ravel()
     if not len(arr):
         return []
+    if orjson is None:  # the same texts, slower
+        return [repr(x) if x - x == 0 else "" for x in arr.tolist()]
     texts = orjson.dumps(arr, option=orjson.OPT_SERIALIZE_NUMPY)[1:-1].decode("ascii").split(",")
     with np.errstate(invalid="ignore"):
         small = np.flatnonzero((np.abs(arr) < _SMALL) & (arr != 0))
@@ -260,7 +267,7 @@ class RowEditor:
             self.by_row_mods.setdefault(r, {})[c] = fn
         self.special = set(self.by_row_points) | set(self.by_row_mods)
         self._blk_lo = self._blk_hi = 0
-        self._blk: list[str] = []
+        self._blk: list[bytes] = []
         self._run_min = min((run.col for run in edits.runs), default=MAX_COL)
         self._last_cell = re.compile(rb"<" + re.escape(pat.prefix) + rb'c r="([A-Z]{1,3})\d')
         self._refresh_ranges()
@@ -285,37 +292,82 @@ class RowEditor:
         self._seg_min = MAX_COL + 1
 
     # -- new cells ---------------------------------------------------------------------
-    def _block(self, r: int) -> list[str]:
-        """Text of the new number cells for rows in the current block (one str per row)."""
+    def _block(self, r: int) -> list[bytes]:
+        """Encoded new number cells for rows in the current block (one bytes per row).
+
+        Rows where every column of the block has a number (the usual case) are laid out
+        by slice assignment into one list of pieces, joined, encoded and split once; the
+        other rows (gaps, text cells, columns starting or ending inside the block) take
+        one f-string per cell.
+        """
         if self._blk_lo <= r < self._blk_hi:
             return self._blk
         lo, hi = r, r + BLOCK
         p = self.p
-        lists = []
+        cols = []  # (run, a, b, number texts of rows a..b-1)
         for run in sorted(self.e.runs, key=lambda x: x.col):
             a, b = max(lo, run.first_row), min(hi, run.last_row + 1)
-            if a >= b:
-                continue
-            s = f' s="{run.style}"' if run.style else ""
-            pre, mid, post = f'<{p}c r="{run.letters}', f'"{s}><{p}v>', f"</{p}v></{p}c>"
-            nums = repr_texts(np.asarray(run.values[a - run.first_row : b - run.first_row],
-                                         dtype=np.float64))
-            if run.texts:  # a column with text cells: their XML is ready-made
-                tx = run.texts
-                strs = [tx[i] if i in tx else (f"{pre}{i}{mid}{t}{post}" if t else "")
-                        for i, t in zip(range(a, b), nums, strict=True)]
-            else:  # "" for NaN and +-inf: no cell
-                strs = [f"{pre}{i}{mid}{t}{post}" if t else ""
-                        for i, t in zip(range(a, b), nums, strict=True)]
-            lists.append([""] * (a - lo) + strs + [""] * (hi - b))
-        if not lists:
-            blk = [""] * (hi - lo)
-        elif len(lists) == 1:
-            blk = lists[0]
-        else:
-            blk = ["".join(t) for t in zip(*lists, strict=True)]
-        self._blk_lo, self._blk_hi, self._blk = lo, hi, blk
-        return blk
+            if a < b:
+                nums = repr_texts(np.asarray(run.values[a - run.first_row : b - run.first_row],
+                                             dtype=np.float64))
+                cols.append((run, a, b, nums))
+        n = hi - lo
+        # rows that take the layout: every column covers them with a number, no text cell
+        full = np.full(n, bool(cols))
+        some = np.zeros(n, dtype=bool)  # rows with anything new at all
+        for run, a, b, nums in cols:
+            has = np.zeros(n, dtype=bool)
+            has[a - lo : b - lo] = np.fromiter(map(bool, nums), dtype=bool, count=b - a)
+            some |= has
+            if run.texts:
+                rows = np.fromiter(run.texts, dtype=np.int64, count=len(run.texts)) - lo
+                rows = rows[(rows >= 0) & (rows < n)]
+                has[rows] = False
+                some[rows] = True
+            full &= has
+        blk = np.full(n, b"", dtype=object)
+        idx = np.flatnonzero(full)
+        if len(idx):
+            m = len(idx)
+            first = int(idx[0])
+            run_of_rows = int(idx[-1]) - first + 1 == m
+            row_texts = list(map(str, range(lo + first, lo + first + m))) if run_of_rows \
+                else list(map(str, (idx + lo).tolist()))
+            stride = 4 * len(cols) + 1
+            pieces: list[str | None] = [None] * (m * stride)
+            before = ""
+            for k, (run, a, _, nums) in enumerate(cols):
+                s = f' s="{run.style}"' if run.style else ""
+                pieces[4 * k :: stride] = [f'{before}<{p}c r="{run.letters}'] * m
+                pieces[4 * k + 1 :: stride] = row_texts
+                pieces[4 * k + 2 :: stride] = [f'"{s}><{p}v>'] * m
+                j = lo + first - a
+                pieces[4 * k + 3 :: stride] = (nums[j : j + m] if run_of_rows else
+                                               [nums[i] for i in (idx + (lo - a)).tolist()])
+                before = f"</{p}v></{p}c>"
+            pieces[stride - 1 :: stride] = [before + "\n"] * m  # numbers hold no newline
+            texts = np.empty(m, dtype=object)
+            texts[:] = "".join(pieces).encode().split(b"\n")[:m]
+            blk[idx] = texts
+        rest = np.flatnonzero(some & ~full).tolist()
+        if rest:
+            others = np.empty(len(rest), dtype=object)
+            for o, i in enumerate(rest):
+                row = lo + i
+                cells = []
+                for run, a, b, nums in cols:
+                    if not a <= row < b:
+                        continue
+                    if run.texts and row in run.texts:  # its XML is ready-made
+                        cells.append(run.texts[row])
+                    elif t := nums[row - a]:  # "" for NaN and +-inf: no cell
+                        s = f' s="{run.style}"' if run.style else ""
+                        cells.append(f'<{p}c r="{run.letters}{row}"{s}><{p}v>{t}</{p}v></{p}c>')
+                others[o] = "".join(cells).encode()
+            blk[rest] = others
+        out = blk.tolist()
+        self._blk_lo, self._blk_hi, self._blk = lo, hi, out
+        return out
 
     def new_cells(self, r: int) -> dict[int, tuple[str, bool]]:
         """New cells of row r: col -> (xml, replacing allowed)."""
@@ -459,8 +511,15 @@ class RowEditor:
                 if r >= blk_hi:
                     blk = self._block(r)
                     blk_lo, blk_hi = self._blk_lo, self._blk_hi
-                tail = blk[r - blk_lo].encode()
-                if inner_s == inner_e or b"spans" in attrs:
+                tail = blk[r - blk_lo]
+                if inner_s != inner_e and (i := attrs.find(b' spans="')) >= 0 and (
+                        j := attrs.find(b'"', i + 8)) > 0:
+                    # the usual spans="1:7": copy around it, no row tag built
+                    append(chunk[pos : s + rsl + i])
+                    append(chunk[s + rsl + j + 1 : inner_e])
+                    append(tail)
+                    pos = inner_e
+                elif inner_s == inner_e or b"spans" in attrs:
                     append(chunk[pos:s])
                     append(row_open + _drop_spans(attrs) + b">")
                     append(chunk[inner_s:inner_e])

@@ -526,18 +526,23 @@ class Package:
                 # every "<c" starting a cell with r first? (rich text runs such as <color>
                 # also count, and merely send the chunk down the general path)
                 if chunk.count(r_first) == chunk.count(c_any):
-                    found = simple.findall(chunk)
-                    others = rest.findall(chunk)
-                    if found:
-                        got = _bulk_numbers(found, wanted_letters, first_row)
+                    # split, not findall: the groups come as three flat lists (no tuple
+                    # per cell), and the other cells of those columns are looked for in
+                    # what the plain ones leave (a cell never holds another, so each lies
+                    # whole between two plain ones; the joint cannot start a tag)
+                    parts = simple.split(chunk)
+                    lts, rws, vts = parts[1::4], parts[2::4], parts[3::4]
+                    others = rest.findall(b"\0".join(parts[::4]) if lts else chunk)
+                    if lts:
+                        got = _bulk_numbers(lts, rws, vts, wanted_letters, first_row)
                         if got is not None and any(int(rows_.max()) > MAX_ROW
                                                    for _, rows_, _ in got):
-                            bad = next(f for f in found if int(f[1]) > MAX_ROW)
-                            raise beyond_sheet(self.path.name, info.part,
-                                               (bad[0] + bad[1]).decode())
+                            lt, row = next((lt, row) for lt, row in zip(lts, rws, strict=True)
+                                           if int(row) > MAX_ROW)
+                            raise beyond_sheet(self.path.name, info.part, (lt + row).decode())
                         if got is None:  # some text that numpy cannot read: one by one
                             others = [(lt, row, b"", b"<v>" + v + b"</v>")
-                                      for lt, row, v in found] + others
+                                      for lt, row, v in zip(lts, rws, vts, strict=True)] + others
                         else:
                             for c, rows_, vals in got:
                                 pieces[c].append((rows_, vals))
@@ -809,15 +814,17 @@ def _cells_general(chunk: bytes, pat: Patterns) -> list[tuple[bytes, bytes, byte
 
 
 def _bulk_numbers(
-    found: list[tuple[bytes, bytes, bytes]], wanted: dict[bytes, int], first_row: int
+    letters: list[bytes], row_texts: list[bytes], value_texts: list[bytes],
+    wanted: dict[bytes, int], first_row: int
 ) -> list[tuple[int, np.ndarray, np.ndarray]] | None:
-    """(col, rows, values) arrays from (letters, row, value text) triples; None if unreadable."""
-    n = len(found)
+    """(col, rows, values) arrays from the cells' letters, rows and value texts; None if
+    some value text is unreadable."""
+    n = len(value_texts)
     try:
-        vals = np.fromiter((float(x[2]) for x in found), np.float64, n)
+        vals = np.fromiter(map(float, value_texts), np.float64, n)
     except ValueError:
         return None
-    rows = np.fromiter((int(x[1]) for x in found), np.int64, n)
+    rows = np.fromiter(map(int, row_texts), np.int64, n)
     keep = rows >= first_row
     out = []
     if len(wanted) == 1:
@@ -825,7 +832,7 @@ def _bulk_numbers(
         if keep.any():
             out.append((c, rows[keep], vals[keep]))
         return out
-    cols = np.fromiter((wanted[x[0]] for x in found), np.int64, n)
+    cols = np.fromiter(map(wanted.__getitem__, letters), np.int64, n)
     for c in wanted.values():
         m = (cols == c) & keep
         if m.any():
