@@ -18,7 +18,7 @@ import numpy as np
 try:
     import orjson
 except ImportError:  # e.g. the add-in's in-Excel Python (Pyodide) may not have it
-    orjson = None
+    orjson = None  # type: ignore[assignment]  # absent: repr_texts uses repr (same text)
 
 from sheetvol.functions.grid import MAX_COL
 from sheetvol.workbook._sheetxml import (
@@ -334,7 +334,7 @@ class RowEditor:
             row_texts = list(map(str, range(lo + first, lo + first + m))) if run_of_rows \
                 else list(map(str, (idx + lo).tolist()))
             stride = 4 * len(cols) + 1
-            pieces: list[str | None] = [None] * (m * stride)
+            pieces: list[str] = [""] * (m * stride)  # every slot is set below
             before = ""
             for k, (run, a, _, nums) in enumerate(cols):
                 s = f' s="{run.style}"' if run.style else ""
@@ -424,7 +424,7 @@ class RowEditor:
         watch_from, watch_to = self.watch_from, self.watch_to
         seg_end: float = -1  # rows up to seg_end share the cached self._active() answer
         limit = run_min
-        blk: list[str] = []
+        blk: list[bytes] = []
         blk_lo = blk_hi = 0
         r = 0
         for chunk in chunks:

@@ -27,7 +27,6 @@ from sheetvol.workbook import _safety
 from sheetvol.workbook._safety import Limits, local, parse_xml, read_part
 from sheetvol.workbook._sheetxml import (
     ATTR_R_CELL,
-    ATTR_R_ROW,
     CellReader,
     CellTextError,
     Patterns,
@@ -521,6 +520,8 @@ class Package:
             # the typed-formula scan rides along, so the sheet is inflated once for both
             scan = FormulaScan(info.name, pat, self._bad_text_of(info),
                                (self.path.name, info.part))
+            # row numbers carried across chunks, for rows and cells that omit ``r``
+            cursor = RowCursor(pat, self.path.name, info.part)
             for chunk in stream.body():
                 scan.feed(chunk)
                 # every "<c" starting a cell with r first? (rich text runs such as <color>
@@ -547,8 +548,12 @@ class Package:
                             for c, rows_, vals in got:
                                 pieces[c].append((rows_, vals))
                                 last = max(last, int(rows_[-1]))
+                    if not cursor.skip(chunk):  # the last row has no r: walk the rows
+                        for _ in cursor.cells(chunk):
+                            pass
                 else:  # some cell without r as its first attribute: the general scan
-                    others = [x for x in _cells_general(chunk, pat) if x[0] in wanted_letters]
+                    others = [x for x in _cells_general(chunk, cursor)
+                              if x[0] in wanted_letters]
                 for letters, row, attrs, cinner in others:
                     r = int(row)
                     if r > MAX_ROW:
@@ -797,19 +802,17 @@ class FormulaScan:
                                           formula=text.lstrip("="), array_ref=array_ref))
 
 
-def _cells_general(chunk: bytes, pat: Patterns) -> list[tuple[bytes, bytes, bytes, bytes]]:
-    """(letters, row, attrs, inner) of every cell of a chunk, positions implied if needed."""
+def _cells_general(chunk: bytes, cursor: RowCursor
+                   ) -> list[tuple[bytes, bytes, bytes, bytes | None]]:
+    """(letters, row, attrs, inner) of every cell of a chunk, positions implied if needed.
+
+    The cursor carries the row number from the chunks before, so a row without ``r``
+    in this chunk is the one after the last row of the previous chunk.
+    """
     out = []
-    r = 0
-    for rm in pat.row.finditer(chunk):
-        mr = ATTR_R_ROW.search(rm[1])
-        r = int(mr[1]) if mr else r + 1
-        c = 0
-        for cm in pat.cell.finditer(rm[3] or b""):
-            mc = ATTR_R_CELL.search(cm[1])
-            c = col_index(mc[1]) if mc else c + 1
-            letters = mc[1] if mc else col_letters(min(c, MAX_COL)).encode()
-            out.append((letters, str(r).encode(), cm[1], cm[3]))
+    for r, c, attrs, inner in cursor.cells(chunk):
+        mc = ATTR_R_CELL.search(attrs)
+        out.append((mc[1] if mc else col_letters(c).encode(), str(r).encode(), attrs, inner))
     return out
 
 
