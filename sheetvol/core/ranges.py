@@ -188,6 +188,15 @@ def average_true_range_of(
 _average_true_range = skip_gaps(3)(average_true_range_of)
 
 
+def _check_atr_args(high: npt.ArrayLike, low: npt.ArrayLike, close: npt.ArrayLike,
+                    smoothing: str, seed: str, first_bar: str) -> None:
+    """The checks every public ATR form makes before computing (one list for all)."""
+    check_choice(smoothing, "smoothing", SMOOTHING)
+    check_choice(seed, "seed", SEEDS)
+    check_choice(first_bar, "first_bar", FIRST_BAR)
+    bounds.check_high_low(high, low, close)
+
+
 def average_true_range(
     high: npt.ArrayLike,
     low: npt.ArrayLike,
@@ -229,10 +238,7 @@ def average_true_range(
     ...                    period=2).tolist()
     [nan, 2.0, 2.0]
     """
-    check_choice(smoothing, "smoothing", SMOOTHING)
-    check_choice(seed, "seed", SEEDS)
-    check_choice(first_bar, "first_bar", FIRST_BAR)
-    bounds.check_high_low(high, low, close)
+    _check_atr_args(high, low, close, smoothing, seed, first_bar)
     return _average_true_range(high, low, close, check_period(period), smoothing, seed, first_bar)
 
 
@@ -267,10 +273,7 @@ def atr_percent(
     ...             period=2).tolist()
     [nan, 0.2, 0.2]
     """
-    check_choice(smoothing, "smoothing", SMOOTHING)
-    check_choice(seed, "seed", SEEDS)
-    check_choice(first_bar, "first_bar", FIRST_BAR)
-    bounds.check_high_low(high, low, close)
+    _check_atr_args(high, low, close, smoothing, seed, first_bar)
     bounds.check_positive_prices("ATR as a share of the close", close=close)
     return _atr_percent(high, low, close, check_period(period), smoothing, seed, first_bar)
 
