@@ -247,6 +247,19 @@ def test_data_height_agrees_with_walking_up_from_the_bottom(cells_, tail):
     assert _convert.data_height([[c] for c in cells_]) == expected
     assert _convert.head(tuple((c,) for c in cells_), expected) == tuple(
         (c,) for c in cells_[:expected])
+    # The one-walk form for the calls: the same height, and cells a column reads alike.
+    rows = tuple((c,) for c in cells_)
+    ready, height = _convert.cut_to_data(rows)
+    assert height == expected
+    assert list(_convert.line_values(ready, "SV_X", "prices")[0]) == cells_
+
+
+def test_cut_to_data_keeps_ragged_and_exact_ranges_as_they_came():
+    exact = ((1.0,), (2.0,))
+    assert _convert.cut_to_data(exact) == (exact, 2)
+    # An empty row (not from a spreadsheet) is judged as rows compared with a blank row.
+    ragged = ((1.0,), (), (None,))
+    assert _convert.cut_to_data(ragged) == (ragged, 2)
 
 
 def test_com_error_cells_are_gaps_and_whole_numbers_stay_numbers():

@@ -281,7 +281,11 @@ class _Reader:
         then as tall as the data. The ``_LAST`` form does not cut: its value
         belongs to the last row of the ranges as given.
         """
-        height = max((_convert.data_height(a) for a in self.raw.values()), default=0)
+        heights = {}
+        for k, a in self.raw.items():
+            # A whole column comes back as the flat list of its cells: walked once.
+            self.raw[k], heights[k] = _convert.cut_to_data(a)
+        height = max(heights.values(), default=0)
         if height == 0 and self.raw:
             names = " and ".join(self.raw)
             raise ArgumentError(f"{self.wname}: {names} hold no values (every cell is blank)")

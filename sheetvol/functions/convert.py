@@ -266,12 +266,45 @@ def data_height(value: Any) -> int:
         if last[0] not in _BLANK_CELLS:
             return len(value)
         if width == 1 and len(first) == 1:
-            # One column: its cells, taken out of their rows once, are counted faster (a
-            # blank is the None object itself) than rows compared with a blank row.
-            return _filled_length(list(map(_FIRST, value)), _BLANK_CELLS)
-        blank_rows = tuple(type(last)((b,) * width) for b in _BLANK_CELLS)
-        return _filled_length(value, blank_rows)
+            return cut_to_data(value)[1]
+        return _rows_height(value)
     return _filled_length(value, _BLANK_CELLS)
+
+
+def cut_to_data(value: Any) -> tuple[Any, int]:
+    """A column argument ready for :func:`column`, and its :func:`data_height`.
+
+    A one-column range whose last cell is blank (a whole-column reference) is
+    walked once: its cells are taken out of their rows into a flat list, which
+    is counted for the height (a blank is the None object itself, cheaper to
+    count than rows compared with a blank row) and returned in place of the
+    rows, so the conversion does not walk the rows again. Anything else comes
+    back as it was, with :func:`data_height`.
+
+    Examples
+    --------
+    >>> cut_to_data(((1.0,), (None,), (2.0,), (None,)))
+    ([1.0, None, 2.0, None], 3)
+    >>> cut_to_data(((1.0,), (2.0,)))
+    (((1.0,), (2.0,)), 2)
+    """
+    if (isinstance(value, (list, tuple)) and len(value) > 1
+            and isinstance(value[0], (list, tuple)) and isinstance(value[-1], (list, tuple))
+            and len(value[0]) == 1 and len(value[-1]) == 1
+            and value[-1][0] in _BLANK_CELLS):
+        try:
+            flat = list(map(_FIRST, value))
+        except IndexError:  # ragged rows (not from a spreadsheet)
+            return value, _rows_height(value)
+        return flat, _filled_length(flat, _BLANK_CELLS)
+    return value, data_height(value)
+
+
+def _rows_height(rows: Sequence[Sequence[Any]]) -> int:
+    # Rows compared with a blank row as wide as the last one.
+    last = rows[-1]
+    blank_rows = tuple(type(last)((b,) * len(last)) for b in _BLANK_CELLS)
+    return _filled_length(rows, blank_rows)
 
 
 def _filled_length(seq: Sequence[Any], blanks: tuple[Any, ...]) -> int:
