@@ -28,6 +28,11 @@ def test_kernel_benchmark_prints_a_verdict_per_target(capsys):
             assert len(found) == 1, (kind, tgt.name)
             assert re.search(r"\d+\.\d+x \(target [\d.]+x", found[0])
             assert found[0].endswith(": met") or found[0].endswith(": NOT MET")
+        # Beside it, what reading the same columns and writing fresh outputs costs at
+        # both sizes (the part of the growth memory accounts for, measured in the run).
+        floor = [ln for ln in lines if ln.split()[:1] == ["floor"] and tgt.name in ln]
+        assert len(floor) == 1 and f"read {len(tgt.columns)}, write {tgt.outputs}" in floor[0]
+        assert re.search(r"[\d.]+ -> +[\d.]+ ns/bar \(\+?-?[\d.]+\)", floor[0])
     accuracy = [ln for ln in lines if ln.split()[:1] == ["accuracy"]]
     assert len(accuracy) == 6 and all(ln.endswith(": met") for ln in accuracy)
 

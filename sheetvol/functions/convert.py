@@ -300,7 +300,7 @@ def cut_to_data(value: Any) -> tuple[Any, int]:
     return value, data_height(value)
 
 
-def _rows_height(rows: Sequence[Sequence[Any]]) -> int:
+def _rows_height(rows: Any) -> int:
     # Rows compared with a blank row as wide as the last one.
     last = rows[-1]
     blank_rows = tuple(type(last)((b,) * len(last)) for b in _BLANK_CELLS)
