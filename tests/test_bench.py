@@ -55,3 +55,9 @@ def test_addin_benchmark_runs(capsys):
     bench_addin.main(["--rows", "2000", "--repeat", "1", "--fill-down", "50"])
     out = capsys.readouterr().out
     assert "SV_DEVIATION whole column" in out and "filled-down" in out
+    # The floor of a whole-column argument, and the budget per whole-column argument.
+    assert re.search(r"floor: taking the cells out of one whole column's 1,048,576 row "
+                     r"tuples once.*median [\d.]+ ms", out)
+    assert re.search(r"verdict: SV_ATR whole columns \(3\), read \+ compute \+ write "
+                     r"[\d.]+ ms, budget 150 ms \(50 ms per whole-column argument, 3 here\): "
+                     r"(met|NOT met)", out)
