@@ -272,3 +272,25 @@ def test_a_recipe_header_the_log_lacks_is_named_with_the_way_out(tmp_path):
     assert '[trades] columns: side = "B/S": no column headed "B/S" in row 1' in text
     assert "remove it from [trades] columns so the usual names are looked for" in text
     assert 'e.g. columns = { side = "B/S" }' not in text  # not the line that caused it
+
+
+@pytest.mark.parametrize(("cell", "value", "words"), [
+    ("A2", "sometime in May", "is not a date"),
+    ("D2", "a hundred", "is not a number"),
+    ("E2", "lots", "is not a number"),
+])
+def test_a_log_cell_that_cannot_be_read_is_refused_naming_the_cell(tmp_path, cell, value,
+                                                                    words):
+    # Found by mutating the demo workbook: text in a log's date or number column escaped as
+    # an unexpected failure. Now a refusal naming sheet, cell, header and the way out.
+    src = tmp_path / "book.xlsx"
+    row = [dt.datetime(2025, 1, 20), "BIRCH", "long", 100.0, 10_000]
+    row[{"A": 0, "D": 3, "E": 4}[cell[0]]] = value
+    _book(src, log_rows=[row])
+    with pytest.raises(ValueError) as err:
+        fill_file(src, FillOptions(output=tmp_path / "out.xlsx"))
+    message = str(err.value)
+    assert f'sheet "Trades", cell {cell}' in message and repr(value) in message
+    assert words in message and "clear the cell" in message
+    assert type(err.value).__name__ == "TradeLogError"
+    assert not (tmp_path / "out.xlsx").exists()

@@ -648,19 +648,36 @@ def read_log(pkg: Package, log: TradeLog) -> tuple[LogArrays, Any]:
             values[role].append(got.get(role))
     n = len(rows)
 
+    def unreadable(role: str, k: int, what: str) -> TradeLogError:
+        col = log.roles[role]
+        head = log.headers.get(col, role)
+        return TradeLogError(
+            f'trade log, sheet "{log.sheet}", cell {col_letter(col)}{rows[k]}: '
+            f'{values[role][k]!r} under "{head}" is not {what}; type {what} there or clear '
+            "the cell")
+
     def days(role: str) -> np.ndarray:
         out = np.full(n, np.nan)
         for k, v in enumerate(values[role]):
             if isinstance(v, (int, float)) and not isinstance(v, bool):
                 out[k] = float(v) + offset if math.isfinite(v) else math.nan
             elif v is not None:
-                out[k] = cells.to_day_numbers([v], date1904=pkg.date1904)[0]
+                try:
+                    out[k] = cells.to_day_numbers([v], date1904=pkg.date1904)[0]
+                except cells.CellValueError:
+                    raise unreadable(role, k, "a date") from None
         return out
 
     def numbers(role: str) -> np.ndarray:
         if role not in log.roles:
             return np.full(n, np.nan)
-        return cells.to_series(values[role], name=log.headers.get(log.roles[role], role))
+        out = np.full(n, np.nan)
+        for k, v in enumerate(values[role]):
+            try:
+                out[k] = cells.to_number(v)
+            except cells.CellValueError:
+                raise unreadable(role, k, "a number") from None
+        return out
 
     names = (np.full(n, log.instrument, dtype=object) if "instrument" not in log.roles
              else np.array(values["instrument"], dtype=object))
