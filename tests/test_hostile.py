@@ -191,6 +191,49 @@ def test_csv_header_field_beyond_the_csv_module_limit(tmp_path, capsys):
     assert (tmp_path / "good-filled.xlsx").exists()
 
 
+def _csv_bars(n: int = 40) -> list[str]:
+    return [f"2024-{1 + k // 28:02d}-{1 + k % 28:02d},{100 + k % 5},{101 + k % 5},{99 + k % 5},"
+            f"{100.5 + k % 5}" for k in range(n)]
+
+
+def test_csv_wider_than_a_worksheet_is_refused_by_line(tmp_path, capsys):
+    # Found by a hand-made hostile CSV: 17,006 columns escaped as an unexpected failure.
+    bad = tmp_path / "wide.csv"
+    head = "Date,Open,High,Low,Close," + ",".join(f"c{i}" for i in range(17_001))
+    bad.write_text("\n".join([head, *_csv_bars()]) + "\n", encoding="utf-8")
+    good = price_book(tmp_path / "good.xlsx")
+    rc, _, err = run_cli(["fill", str(bad), str(good), "-q"], capsys)
+    assert rc == 1
+    (line,) = error_lines(err)
+    assert "wide.csv" in line and "line 1" in line and "17,006" in line and "16,384" in line, line
+    assert "unexpected" not in line
+    assert (tmp_path / "good-filled.xlsx").exists()
+
+
+def test_csv_with_carriage_returns_alone_reads_as_lines(tmp_path):
+    # Old exports end lines with CR alone; the csv module reads them when given the text
+    # without newline translation (its documented newline="" use).
+    src = tmp_path / "cr.csv"
+    src.write_bytes("\r".join(["Date,Open,High,Low,Close", *_csv_bars()]).encode() + b"\r")
+    report = fill_file(src, FillOptions(output=tmp_path / "cr-filled.xlsx"))
+    table = report.sheets[0].table
+    assert table is not None and len(table.rows) == 40 and table.order == "oldest first"
+
+
+@pytest.mark.parametrize("when", ["0001-01-01", "1899-12-30", "1850-06-01"])
+def test_csv_date_before_1900_is_refused_naming_the_cell(tmp_path, when):
+    # A worksheet's dates start on 1900-01-01: an earlier one cannot be stored as a date
+    # (it was written as a negative or zero serial, shown as ##### or a bare time).
+    src = tmp_path / "old.csv"
+    bars = _csv_bars()
+    bars[5] = when + bars[5][10:]
+    src.write_text("\n".join(["Date,Open,High,Low,Close", *bars]) + "\n", encoding="utf-8")
+    with pytest.raises(ValueError) as err:
+        fill_file(src, FillOptions(output=tmp_path / "old-filled.xlsx"))
+    assert "A7" in str(err.value) and when in str(err.value), str(err.value)
+    assert not (tmp_path / "old-filled.xlsx").exists()
+
+
 def _docprops(book: Path) -> Entry:
     with zipfile.ZipFile(book) as zf:
         return deflated("docProps/app.xml", zf.read("docProps/app.xml"))

@@ -86,6 +86,7 @@ from sheetvol.fill.trade_log import (
 )
 from sheetvol.functions import cells, registry
 from sheetvol.functions._lazy import pandas as pd
+from sheetvol.functions.grid import MAX_COL, MAX_ROW
 from sheetvol.workbook import (
     CellError,
     CellResult,
@@ -459,7 +460,9 @@ def _csv_to_workbook(src: Path, dest: Path, options: FillOptions) -> str:
         dialect: type[csv.Dialect] | csv.Dialect = csv.Sniffer().sniff(sample, ",;\t|")
     except csv.Error:
         dialect = csv.excel
-    reader = csv.reader(io.StringIO(text), dialect)
+    # newline="": the csv module splits lines itself (CR alone, LF, CR LF, and line
+    # breaks inside quoted fields), as its documentation asks of the stream.
+    reader = csv.reader(io.StringIO(text, newline=""), dialect)
     try:
         rows = list(reader)
     except csv.Error as exc:  # e.g. a field over csv.field_size_limit() characters
@@ -467,6 +470,13 @@ def _csv_to_workbook(src: Path, dest: Path, options: FillOptions) -> str:
                         "check that the file is a price export") from None
     if not any(any(cell.strip() for cell in row) for row in rows):
         raise FillError(f"{src.name} is empty")
+    if len(rows) > MAX_ROW:
+        raise FillError(f"{src.name}: {len(rows):,} lines; a worksheet holds at most "
+                        f"{MAX_ROW:,} rows: split the export")
+    for i, row in enumerate(rows, start=1):
+        if len(row) > MAX_COL:
+            raise FillError(f"{src.name}, line {i}: {len(row):,} columns; a worksheet holds "
+                            f"at most {MAX_COL:,}: export fewer columns")
     top = {i: {j: v for j, v in enumerate(row, start=1) if v.strip()}
            for i, row in enumerate(rows[:HEADER_SCAN_ROWS], start=1)}
     date_col = None
@@ -526,13 +536,14 @@ def _csv_dates(rows: Sequence[Sequence[str]], col: int, dayfirst: bool
         if not text or cells.is_blank(text) or date_order_problem(text, dayfirst):
             continue  # left as text: the price reader names the cell
         if not pd.isna(stamp):
-            out[k] = stamp.to_pydatetime()
-            continue
-        try:
-            parsed = cells.to_datetime(text, dayfirst=dayfirst)
-        except cells.CellValueError:
-            continue  # left as text: the price reader names the cell if it matters
-        if parsed is not None:
+            parsed = stamp.to_pydatetime()
+        else:
+            try:
+                parsed = cells.to_datetime(text, dayfirst=dayfirst)
+            except cells.CellValueError:
+                continue  # left as text: the price reader names the cell if it matters
+        # A worksheet's dates start on 1900-01-01: an earlier one stays text, named below.
+        if parsed is not None and parsed >= cells.FIRST_DATE:
             out[k] = parsed
     return out
 

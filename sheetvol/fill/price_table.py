@@ -209,6 +209,17 @@ def _yyyymmdd(values: np.ndarray) -> np.ndarray | None:
     return _stamps_to_days(stamps)
 
 
+def _before_first_date(value: object, dayfirst: bool) -> bool:
+    """True for date text that reads as a date before a worksheet's first one."""
+    try:
+        cells.to_datetime(value, dayfirst=dayfirst)
+    except cells.EarlyDateError:
+        return True
+    except cells.CellValueError:
+        return False
+    return False
+
+
 def _stamps_to_days(stamps: pd.Series) -> np.ndarray:
     epoch = pd.Timestamp(cells.EPOCH_1900)
     days = (pd.DatetimeIndex(stamps) - epoch) / pd.Timedelta(days=1)
@@ -395,6 +406,8 @@ def build_price_table(
             if role in ("date", "time")
             else 'fix or clear the cell (blank, "n/a" and error values count as gaps)'
         )
+        if role == "date" and _before_first_date(v, dayfirst):
+            what, hint = "a date a worksheet can hold (they start on 1900-01-01)", "fix the cell"
         raise PriceTableError(f"{prefix}{cell(role, r)} holds {v!r}, which is not {what}; {hint}")
     if has_dates:
         inner = np.flatnonzero(content & ~has_date & ~summary & any_price)
@@ -541,6 +554,8 @@ def _parse_text_dates(
         except (ValueError, TypeError, OverflowError):
             stamps = pd.Series([pd.NaT] * len(values))
         days = _stamps_to_days(stamps)
+        # Before a worksheet's first date: judged one by one below, which names the cell.
+        days[days < cells.datetime_to_serial(cells.FIRST_DATE)] = np.nan
     else:
         days = np.full(len(values), np.nan)
     for k, v, d in zip(keys, values, days, strict=True):

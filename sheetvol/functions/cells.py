@@ -42,6 +42,8 @@ ERROR_TEXTS = frozenset(
 BLANK_TEXTS = frozenset({"", "-", "--", "n/a", "na", "nan", "null", "none"})
 
 EPOCH_1900 = dt.datetime(1899, 12, 30)
+#: A worksheet's first date (day 1 of the 1900 system): an earlier one cannot be stored.
+FIRST_DATE = dt.datetime(1900, 1, 1)
 EPOCH_1904 = dt.datetime(1904, 1, 1)
 #: Days between the two date systems: a 1904-system serial plus this is the 1900-system one.
 DATE_1904_OFFSET = float((EPOCH_1904 - EPOCH_1900).days)
@@ -56,6 +58,10 @@ _GROUPED = {
 
 class CellValueError(ValueError):
     """A cell value that is not blank but cannot be read as what is needed."""
+
+
+class EarlyDateError(CellValueError):
+    """A date before a worksheet's first date (1900-01-01), which no cell can hold."""
 
 
 def is_blank(value: Any) -> bool:
@@ -201,7 +207,10 @@ def to_datetime(
             raise CellValueError(f"{value!r} is not a date") from None
         if pd.isna(stamp):
             raise CellValueError(f"{value!r} is not a date")
-        return stamp.to_pydatetime().replace(tzinfo=None)
+        when = stamp.to_pydatetime().replace(tzinfo=None)
+        if when < FIRST_DATE:
+            raise EarlyDateError(f"{value!r} is before 1900-01-01, a worksheet's first date")
+        return when
     raise CellValueError(f"{value!r} is not a date")
 
 
