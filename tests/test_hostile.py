@@ -234,6 +234,38 @@ def test_csv_date_before_1900_is_refused_naming_the_cell(tmp_path, when):
     assert not (tmp_path / "old-filled.xlsx").exists()
 
 
+DAMAGED_VALUES = {
+    # a shared-string index past the table: the header "Close" vanished, silently
+    "shared-index-past-the-table": (rb'<c r="E1" t="s"><v>4</v></c>',
+                                    b'<c r="E1" t="s"><v>999</v></c>', "E1"),
+    "shared-index-not-a-number": (rb'<c r="E1" t="s"><v>4</v></c>',
+                                  b'<c r="E1" t="s"><v>four</v></c>', "E1"),
+    # a number cell whose value is not a number: a price read as a gap, silently
+    "number-cell-with-text": (rb'<c r="E5"><v>[^<]*</v></c>', b'<c r="E5"><v>abc</v></c>',
+                              "E5"),
+    "number-cell-with-comma": (rb'<c r="C9"><v>[^<]*</v></c>', b'<c r="C9"><v>1,5</v></c>',
+                               "C9"),
+}
+
+
+@pytest.mark.parametrize("case", sorted(DAMAGED_VALUES))
+def test_a_cell_value_the_file_cannot_hold_is_refused_naming_the_cell(tmp_path, capsys, case):
+    # Found by mutating workbooks: such cells were read as blank, so a header or a price
+    # went missing without a word. Spreadsheet programs write neither.
+    old, new, ref = DAMAGED_VALUES[case]
+    base = price_book(tmp_path / "base.xlsx")
+    bad = edit_part(base, tmp_path / "bad.xlsx", SHEET,
+                    lambda d: re.sub(old, lambda _m: new, d, count=1))
+    assert new in zipfile.ZipFile(bad).read(SHEET)
+    good = price_book(tmp_path / "good.xlsx")
+    rc, _, err = run_cli(["fill", str(bad), str(good), "-q"], capsys)
+    assert rc == 1
+    (line,) = error_lines(err)
+    assert "bad.xlsx" in line and f"cell {ref}" in line and '"Prices"' in line, line
+    assert "damaged" in line, line
+    assert (tmp_path / "good-filled.xlsx").exists()
+
+
 def _docprops(book: Path) -> Entry:
     with zipfile.ZipFile(book) as zf:
         return deflated("docProps/app.xml", zf.read("docProps/app.xml"))

@@ -106,6 +106,11 @@ class CellTextError(WorkbookError):
     """
 
 
+def _shown(raw: bytes) -> str:
+    text = raw.decode("utf-8", "replace")
+    return repr(text if len(text) <= 40 else text[:37] + "...")
+
+
 def unescape(raw: bytes) -> str:
     """Text of XML character data: entity references and ``_xHHHH_`` escapes decoded.
 
@@ -337,6 +342,19 @@ class CellReader:
         self.pat = pat
         self.shared = shared
 
+    def _shared_text(self, raw: bytes) -> str:
+        """The shared string a cell points at; a pointer to none is refused (named above)."""
+        table = self.shared or []
+        try:
+            index = int(raw)
+        except ValueError:
+            raise CellTextError(f"{_shown(raw)} where a shared-string number belongs"
+                                ) from None
+        if not 0 <= index < len(table):
+            raise CellTextError(f"a pointer to shared string {index}, but the workbook's "
+                                f"table has {len(table)} (numbered from 0)") from None
+        return table[index]
+
     def value(self, attrs: bytes, inner: bytes | None) -> object:
         """Value of one cell: float, str, bool, CellError or None."""
 
@@ -354,12 +372,13 @@ class CellReader:
             try:
                 return float(raw)
             except ValueError:
-                return None
+                if not raw.strip():
+                    return None
+                # Read as blank, it would drop a price without a word (the callers name
+                # the cell).
+                raise CellTextError(f"{_shown(raw)} in a number cell") from None
         if t == b"s":
-            try:
-                return self.shared[int(raw)] if self.shared is not None else None
-            except (ValueError, IndexError):
-                return None
+            return self._shared_text(raw)
         if t == b"str":
             return unescape(raw)
         if t == b"b":
