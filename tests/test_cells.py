@@ -103,3 +103,22 @@ def test_not_a_date():
 def test_day_numbers_sort_like_dates_and_blank_is_nan():
     days = cells.to_day_numbers(["2025-01-02", None, dt.datetime(2025, 1, 3), 45660])
     assert days[0] == 45659.0 and math.isnan(days[1]) and days[2] == 45660.0 and days[3] == 45660.0
+
+
+@pytest.mark.parametrize("serial", [math.inf, -math.inf, math.nan, 1e9, 2958466.0, -1.0])
+def test_a_serial_no_worksheet_date_has_is_refused(serial):
+    # Found by random arguments: 1e9 or inf as a date argument escaped as Python's
+    # OverflowError. A worksheet's day numbers run from 0 to 2,958,465 (9999-12-31).
+    with pytest.raises(cells.CellValueError, match="not a date a worksheet can hold"):
+        cells.serial_to_datetime(serial)
+    assert cells.serial_to_datetime(2958465.0) == dt.datetime(9999, 12, 31)
+
+
+def test_a_date_argument_out_of_range_names_the_argument():
+    from sheetvol.functions.calling import call_worksheet
+    from sheetvol.functions.convert import ArgumentError
+
+    dates = [[dt.datetime(2024, 1, 1) + dt.timedelta(days=i)] for i in range(30)]
+    closes = [[100.0 + i] for i in range(30)]
+    with pytest.raises(ArgumentError, match=r"SV_AVERAGE_ON: date is 1000000000.0, not a date"):
+        call_worksheet("SV_AVERAGE_ON", [1e9, dates, closes, 5])

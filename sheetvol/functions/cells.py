@@ -47,6 +47,9 @@ FIRST_DATE = dt.datetime(1900, 1, 1)
 EPOCH_1904 = dt.datetime(1904, 1, 1)
 #: Days between the two date systems: a 1904-system serial plus this is the 1900-system one.
 DATE_1904_OFFSET = float((EPOCH_1904 - EPOCH_1900).days)
+#: Day number of a worksheet's last date, 9999-12-31, in the 1900 and 1904 systems.
+LAST_SERIAL = 2_958_465
+LAST_SERIAL_1904 = LAST_SERIAL - int(DATE_1904_OFFSET)
 
 NUMBER_TEXT = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?$")
 # Numbers with thousands separators: groups of exactly three digits (key: decimal comma).
@@ -149,9 +152,13 @@ def serial_to_datetime(serial: float, *, date1904: bool = False) -> dt.datetime:
     In the 1900 system serial 60 is the fictitious 1900-02-29; serials below
     61 are shifted by one day so that 1 is 1900-01-01, as spreadsheets show it.
     """
-    if date1904:
-        return EPOCH_1904 + dt.timedelta(days=float(serial))
     days = float(serial)
+    # Day numbers of 0001-01-01 to 9999-12-31 fit a datetime; a worksheet's run from 0.
+    if not 0.0 <= days < (LAST_SERIAL_1904 if date1904 else LAST_SERIAL) + 1:
+        raise CellValueError(f"{serial!r} is not a date a worksheet can hold (day numbers "
+                             f"0 to {LAST_SERIAL_1904 if date1904 else LAST_SERIAL:,})")
+    if date1904:
+        return EPOCH_1904 + dt.timedelta(days=days)
     if days < 61:
         days += 1
     return EPOCH_1900 + dt.timedelta(days=days)
