@@ -122,3 +122,18 @@ def test_a_date_argument_out_of_range_names_the_argument():
     closes = [[100.0 + i] for i in range(30)]
     with pytest.raises(ArgumentError, match=r"SV_AVERAGE_ON: date is 1000000000.0, not a date"):
         call_worksheet("SV_AVERAGE_ON", [1e9, dates, closes, 5])
+
+
+@pytest.mark.parametrize("bad", [1e12, -5.0])
+def test_a_dates_column_holding_a_serial_no_worksheet_has_is_refused_by_item(bad):
+    # Found by random arguments: such a serial in the dates column reached the message
+    # that shows a date and escaped as Python's OverflowError.
+    from sheetvol.functions.calling import call_worksheet
+    from sheetvol.functions.convert import ArgumentError
+
+    dates = [[45000.0 + i] for i in range(30)]
+    dates[7] = [bad]
+    closes = [[100.0 + i] for i in range(30)]
+    with pytest.raises(ArgumentError, match=r"SV_AVERAGE_ON: dates item 8 is .*not a date a "
+                                            r"worksheet can hold"):
+        call_worksheet("SV_AVERAGE_ON", [45020.0, dates, closes, 5])

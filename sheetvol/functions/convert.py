@@ -497,6 +497,21 @@ def day_numbers(value: Any, *, func: str, param: str, date1904: bool = False) ->
     >>> day_numbers([[dt.datetime(2025, 1, 2)], [45660.0]], func="SV_X_ON", param="dates")
     array([45659., 45660.])
     """
+    out = _day_numbers(value, func=func, param=param, date1904=date1904)
+    # Serials pass through unchecked on the fast paths: one outside a worksheet's dates
+    # (0 to 9999-12-31) is refused here, by item.
+    with np.errstate(invalid="ignore"):
+        wrong = np.flatnonzero((out < 0) | (out >= cells.LAST_SERIAL + 1))
+    if wrong.size:
+        item = int(wrong[0])
+        flat, _ = line_values(value, func, param)
+        raise ArgumentError(f"{func}: {param} item {item + 1} is {_show(flat[item])}, not a "
+                            f"date a worksheet can hold (day numbers 0 to "
+                            f"{cells.LAST_SERIAL:,})")
+    return out
+
+
+def _day_numbers(value: Any, *, func: str, param: str, date1904: bool) -> FloatArray:
     if value is None:
         raise ArgumentError(f"{func}: {param} is required (a column of dates)")
     flat, _ = line_values(value, func, param)
