@@ -194,3 +194,23 @@ def test_a_sheet_without_dates_is_filled_when_named_with_its_close_column(tmp_pa
     report = fill_file(src, FillOptions(sheets=("Closes",), columns={"close": "A"}))
     assert [s.sheet for s in report.sheets] == ["Closes"]
     assert any("no date column: rows taken as oldest first" in w for w in report.warnings)
+
+
+def test_merged_cells_right_of_the_prices_are_not_written_into(tmp_path):
+    # Found by mutating workbooks: a merged block where the new columns would go (here a
+    # comment box F2:H6 beside the bars) hid the values written under it, and the summary
+    # said nothing. A spreadsheet shows only a merged block's top-left cell.
+    src = tmp_path / "book.xlsx"
+    wb = xlsxwriter.Workbook(str(src))
+    add_prices(wb)
+    wb.worksheets()[0].merge_range("F2:H6", "desk comment: roll on the 14th")
+    wb.close()
+    report = fill_file(src)
+    letters = [w.letter for w in report.written]
+    assert letters[0] == "I", letters  # right of the merged block
+    ws = openpyxl.load_workbook(report.output)["Prices"]
+    assert [str(r) for r in ws.merged_cells.ranges] == ["F2:H6"]
+    assert ws["F2"].value == "desk comment: roll on the 14th"
+    assert ws["I1"].value == report.written[0].spec.header
+    text = "\n".join(report.summary())
+    assert f"columns written: {letters[0]} " in text

@@ -294,3 +294,22 @@ def test_a_log_cell_that_cannot_be_read_is_refused_naming_the_cell(tmp_path, cel
     assert words in message and "clear the cell" in message
     assert type(err.value).__name__ == "TradeLogError"
     assert not (tmp_path / "out.xlsx").exists()
+
+
+def test_review_columns_go_right_of_a_merged_block_beside_the_log(tmp_path):
+    # As on price sheets: a merged block right of the log (a comment box F2:H4) would hide
+    # the review values written under it; they go right of it instead.
+    src = tmp_path / "desk.xlsx"
+    _book(src)
+    wb = load_workbook(src)
+    wb["Trades"]["F2"] = "checked by risk"
+    wb["Trades"].merge_cells("F2:H4")
+    wb.save(src)
+    report = fill_file(src)
+    ws = load_workbook(report.output)["Trades"]
+    heads = {c.value: c.column for c in ws[1] if c.value is not None}
+    review = [col for h, col in heads.items()
+              if h not in ("Date", "Instrument", "Side", "Entry", "Equity")]
+    assert min(review) == 9, heads  # column I, right of the block
+    assert [str(r) for r in ws.merged_cells.ranges] == ["F2:H4"]
+    assert ws["F2"].value == "checked by risk"

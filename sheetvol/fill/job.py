@@ -1012,8 +1012,13 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
         start = max(typed_cols) + 1
         read = pkg.read_columns(sheet, list(range(start, start + n_new)),
                                 first_row=match.row + 1) | {c: read[c] for c in price_cols}
-    while busy := [c for c in range(start, start + n_new) if _has_cells(read[c])]:
-        # cells far below the header in the columns we meant to use: move right of them
+    # merged blocks at or below the header row: only their top-left cell shows
+    merged = [(left, right) for top, left, bottom, right in pkg.merged_blocks(sheet)
+              if bottom >= match.row]
+    while busy := [c for c in range(start, start + n_new)
+                   if _has_cells(read[c]) or any(lo <= c <= hi for lo, hi in merged)]:
+        # cells far below the header, or a merged block, in the columns we meant to use:
+        # move right of them
         start = max(busy) + 1
         read = pkg.read_columns(sheet, list(range(start, start + n_new)),
                                 first_row=match.row + 1) | {c: read[c] for c in price_cols}

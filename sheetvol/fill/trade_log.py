@@ -807,12 +807,17 @@ def plan_trade_review(
     # Earlier columns of ours are reused in order; more go right of every used column.
     used = [c for row in grid.rows.values() for c, v in row.items() if v is not None]
     start = max([*used, *log.roles.values()]) + 1
+    # merged blocks at or below the header row show only their top-left cell: not free
+    merged = [(lo, hi) for _top, lo, bottom, hi in pkg.merged_blocks(log.sheet)
+              if bottom >= log.header_row]
     free = sorted(own)
     targets = {}
     for key in heads:
         if free:
             targets[key] = free.pop(0)
         else:
+            while any(lo <= start <= hi for lo, hi in merged):
+                start += 1
             targets[key] = start
             start += 1
     report.replaced = len(own) - len(free)

@@ -55,6 +55,7 @@ MACRO_TYPES = ("macroEnabled", "vbaProject")
 _SV = re.compile(rb"(?i)\bSV_")
 _COL = re.compile(rb"<(?:[A-Za-z_][\w.\-]*:)?col(?=[\s>/])([^>]*)>")
 _HIDDEN = re.compile(rb"""\shidden\s*=\s*["'](?:1|true)["']""")
+_MERGE = re.compile(rb"""<(?:[A-Za-z_][\w.\-]*:)?mergeCell\s[^>]*?ref\s*=\s*["']([^"']*)["']""")
 _MIN = re.compile(rb"""\smin\s*=\s*["'](\d+)["']""")
 _MAX = re.compile(rb"""\smax\s*=\s*["'](\d+)["']""")
 
@@ -151,6 +152,7 @@ class Package:
     _formulas: dict[str, list[FormulaCell]] = field(default_factory=dict, repr=False)
     # each sheet part's head (everything before the cells), kept by the first pass over it
     _heads: dict[str, bytes] = field(default_factory=dict, repr=False)
+    _tails: dict[str, bytes] = field(default_factory=dict, repr=False)
 
     @classmethod
     def open(cls, path: str | Path, *, max_total: int | None = None,
@@ -429,6 +431,37 @@ class Package:
                 out.update(range(int(lo[1]), min(int(hi[1]), MAX_COL) + 1))
         return out
 
+    def merged_blocks(self, sheet: str) -> list[tuple[int, int, int, int]]:
+        """The sheet's merged cells as blocks (top, left, bottom, right), 1-based.
+
+        A spreadsheet shows only a merged block's top-left cell, so a column under
+        one is not free to write into. Read from the part after the cells (kept by
+        :meth:`read_columns`; streamed here when that has not run).
+
+        Parameters
+        ----------
+        sheet : str
+            Sheet name.
+
+        Returns
+        -------
+        list of tuple of int
+        """
+        info = self._worksheet(sheet)
+        if info.part not in self._tails:
+            with self._zip() as zf:
+                stream = self._stream(zf, info)
+                for _ in stream.body():
+                    pass
+                self._tails[info.part] = stream.tail
+        out = []
+        for m in _MERGE.finditer(self._tails[info.part]):
+            try:
+                out.append(parse_ref(m[1].decode("ascii", "replace")))
+            except ValueError:
+                continue  # not a block: it merges nothing a program would show
+        return out
+
     def read_grid(self, sheet: str, max_rows: int | None = None) -> Grid:
         """All cells of a sheet (up to row ``max_rows``), for header detection and small sheets.
 
@@ -571,6 +604,7 @@ class Package:
                         other[c][r] = value
                     last = max(last, r)
         self._formulas[info.part] = scan.found
+        self._tails[info.part] = stream.tail
         n = max(last - first_row + 1, 0)
         out = {}
         for c in cols:
