@@ -572,3 +572,12 @@ def test_date_in_a_1904_workbook():
         return [[None]]
 
     assert evaluate("=DATE(2025,3,14)", cells, date1904=True) == 45730.0 - 1462
+
+
+@pytest.mark.parametrize("text", ["=E1}", "=1e30)9", "=SV_RO)GERSSATCHELL_LAST()",
+                                  "=A2:A}121", "=ROUNDUP}()"])
+def test_a_closer_without_its_opener_is_a_formula_message(text):
+    # Found by random formula text: the tokenizer (openpyxl's) fails with IndexError on a
+    # ")" or "}" that closes nothing; the fill and the evaluator must answer in words.
+    with pytest.raises(FormulaError, match="cannot read the formula"):
+        parse(text)

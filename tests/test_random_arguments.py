@@ -1,4 +1,5 @@
-"""Every worksheet function, given random arguments, answers with a value or a message.
+"""Every worksheet function, given random arguments, answers with a value or a message;
+so does the evaluator, given random formula text.
 
 What a cell may hold is anything: blanks, text, true/false, error codes, dates,
 huge or non-finite numbers, blocks, rows, ranges of any length. The contract of the
@@ -113,3 +114,63 @@ def test_the_random_arguments_reach_both_answers():
     for name in NAMES[:20]:
         test_random_arguments_give_a_value_or_a_message_naming_the_function(name)
     assert OUTCOMES["value"] >= 20 and OUTCOMES["message"] >= 20, OUTCOMES
+
+
+# -- random formula text through the evaluator (the fill's path for typed formulas) -------
+REFS = ["C:C", "D:D", "E:E", "E2:E121", "E2:E10", "A2:A121", "$E$2:E50", "Prices!E:E",
+        "'Odd sheet''s'!A1:A2", "E1", "F:F", "A:E", "E2:E1", "XFD1", "Nope!A1", "E0",
+        "E1048577", "1:1"]
+ATOMS = ["14", "0", "-3", "1e309", '"exponential"', '"wilder"', '"upper"', '"x"', '""', "TRUE",
+         "FALSE", "#N/A", "#DIV/0!", "2.5", '"14"', "DATE(2024,2,1)", "DATE(2024,13,45)",
+         "DATE(-1,1,1)", "1/0", '-"a"', "45330"]
+OPERATORS = ["+", "-", "*", "/", "^", "&", "=", "<>", "<", ">=", ""]
+OTHERS = ["IF", "IFERROR", "ROUND", "ROUNDUP", "MIN", "MAX", "ABS", "AND", "OR", "DATE", "SUM",
+          "INDEX", "sv_atr", "SV_NOPE"]
+STRAY = ["(", ")", ",", '"', "!", "'", ":", "$", "=", " ", "@", "{", "}", ";"]
+
+
+def _formula(rng: random.Random, depth: int = 0) -> str:
+    r = rng.random()
+    if depth > 3 or r < 0.35:
+        return rng.choice(ATOMS + REFS)
+    if r < 0.7:
+        args = [_formula(rng, depth + 1) for _ in range(rng.choice([0, 1, 2, 3, 4, 6, 12]))]
+        if rng.random() < 0.1:
+            args.insert(rng.randrange(len(args) + 1), "")
+        return f"{rng.choice(NAMES + OTHERS)}({','.join(args)})"
+    if r < 0.85:
+        return f"({_formula(rng, depth + 1)}{rng.choice(OPERATORS)}{_formula(rng, depth + 1)})"
+    text = _formula(rng, depth + 1)
+    cut = rng.randrange(len(text) + 1)
+    return text[:cut] + rng.choice(STRAY) + text[cut:]
+
+
+def test_random_formula_text_gives_a_result_or_a_formula_message():
+    from openpyxl import Workbook
+
+    from sheetvol.functions.evaluator import FormulaError, evaluate, openpyxl_resolver
+
+    wb = Workbook()
+    ws = wb.active
+    ws.title = "Prices"
+    ws.append(["Date", "Open", "High", "Low", "Close", "Note"])
+    for i in range(120):
+        c = 100 + 5 * math.sin(i / 7)
+        ws.append([dt.datetime(2024, 1, 1) + dt.timedelta(days=i), c, c + 1, c - 1, c + 0.2,
+                   "x" if i % 17 == 0 else None])
+    odd = wb.create_sheet("Odd sheet's")
+    odd["A1"], odd["A2"], odd["B2"] = "abc", 5, True
+    resolve = openpyxl_resolver(wb)
+    rng = random.Random(7)
+    outcomes = {"value": 0, "message": 0}
+    for _ in range(250):
+        text = "=" + _formula(rng)
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", RuntimeWarning)
+                evaluate(text, resolve, current_sheet="Prices")
+        except FormulaError:  # any other exception fails the test
+            outcomes["message"] += 1
+        else:
+            outcomes["value"] += 1
+    assert outcomes["value"] >= 20 and outcomes["message"] >= 20, outcomes

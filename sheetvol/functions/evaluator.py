@@ -227,6 +227,9 @@ def parse(text: str, names: Mapping[str, str] | None = None) -> Node:
         tokens = Tokenizer(_with_equals(text)).items
     except TokenizerError as exc:
         raise FormulaError(f"cannot read the formula {text!r}: {exc}") from None
+    except IndexError:  # the tokenizer's own failure on a ")" or "}" that closes nothing
+        raise FormulaError(f"cannot read the formula {text!r}: a closing bracket with no "
+                           "opening one") from None
     parser = _Parser(tokens, text, {k.upper(): v for k, v in (names or {}).items()})
     node = parser.expression()
     if parser.pos < len(parser.tokens):
