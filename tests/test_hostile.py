@@ -266,6 +266,31 @@ def test_a_cell_value_the_file_cannot_hold_is_refused_naming_the_cell(tmp_path, 
     assert (tmp_path / "good-filled.xlsx").exists()
 
 
+@pytest.mark.parametrize(("old", "new", "where"), [
+    # in a price row the fill edits (its output had the cell with two r attributes)
+    (rb'<c r="E7">', b'<c r="e7">', "row 7"),
+    (rb'<c r="B9">', b'<c r="B9x">', "row 9"),
+    # in the header row, which is read to find the columns
+    (rb'<c r="B1" t="s">', b'<c r="1B" t="s">', "row 1"),
+])
+def test_a_cell_reference_that_is_not_one_is_refused_naming_the_row(tmp_path, capsys, old, new,
+                                                                    where):
+    # Found by mutating workbooks: a cell whose r attribute is not an A1 reference was
+    # taken for a cell without one; the row editor then added a second r attribute and
+    # wrote a sheet no program can open.
+    base = price_book(tmp_path / "base.xlsx")
+    bad = edit_part(base, tmp_path / "bad.xlsx", SHEET, lambda d: d.replace(old, new, 1))
+    assert new in zipfile.ZipFile(bad).read(SHEET)
+    good = price_book(tmp_path / "good.xlsx")
+    rc, _, err = run_cli(["fill", str(bad), str(good), "-q"], capsys)
+    assert rc == 1
+    (line,) = error_lines(err)
+    assert "bad.xlsx" in line and where in line and repr(new.split(b'"')[1].decode()) in line
+    assert "damaged" in line, line
+    assert not (tmp_path / "bad-filled.xlsx").exists()
+    assert (tmp_path / "good-filled.xlsx").exists()
+
+
 def _docprops(book: Path) -> Entry:
     with zipfile.ZipFile(book) as zf:
         return deflated("docProps/app.xml", zf.read("docProps/app.xml"))

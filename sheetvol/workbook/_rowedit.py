@@ -26,6 +26,7 @@ from sheetvol.workbook._sheetxml import (
     ATTR_R_ROW,
     COLS_BLOCK,
     Patterns,
+    bad_cell_ref,
     cell_name,
     col_index,
     col_letters,
@@ -617,6 +618,8 @@ class RowEditor:
                 c = col_index(mc[1])
                 raw = cm[0]
             else:
+                if bad := bad_cell_ref(cattrs, f"{self.e.file}: sheet {self.e.sheet!r}", r):
+                    raise bad
                 # keep the position explicit, since new cells may now precede this one
                 c += 1
                 raw = (b"<" + self.pat.prefix + b'c r="' + col_letters(c).encode()

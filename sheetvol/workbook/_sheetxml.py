@@ -32,6 +32,29 @@ CHUNK = 1 << 23
 _SHEETDATA = re.compile(rb"<([A-Za-z_][\w.\-]*:)?sheetData(?=[\s>/])[^>]*?(/?)>")
 ATTR_R_ROW = re.compile(rb"""(?:^|\s)r\s*=\s*["'](\d+)["']""")
 ATTR_R_CELL = re.compile(rb"""(?:^|\s)r\s*=\s*["']([A-Z]{1,3})(\d+)["']""")
+_ATTR_R_ANY = re.compile(rb"""(?:^|\s)r\s*=\s*["']([^"']*)["']""")
+
+
+def bad_cell_ref(attrs: bytes, where: str, row: int) -> WorkbookError | None:
+    """The refusal of a cell whose ``r`` is there but not an A1 reference, else None.
+
+    Taken for a cell without ``r``, it would be placed by guess, and an editor adding
+    the position would give the cell two ``r`` attributes (a sheet no program opens).
+
+    Examples
+    --------
+    >>> str(bad_cell_ref(b' r="e7"', "a.xlsx: part xl/worksheets/sheet1.xml", 7))[:62]
+    "a.xlsx: part xl/worksheets/sheet1.xml, row 7: a cell reference"
+    >>> bad_cell_ref(b' s="1"', "a.xlsx", 7) is None
+    True
+    """
+    m = _ATTR_R_ANY.search(attrs)
+    if m is None:
+        return None
+    shown = m[1].decode("utf-8", "replace")[:20]
+    return WorkbookError(f"{where}, row {row}: a cell reference {shown!r} that is not one "
+                         "(such as B7); the file is damaged. Open it in your spreadsheet "
+                         "program and save it again.")
 _ATTR_T = re.compile(rb"""(?:^|\s)t\s*=\s*["'](\w+)["']""")
 _ENTITY = re.compile(r"&(#x[0-9A-Fa-f]+|#\d+|amp|lt|gt|quot|apos);")
 _XESC = re.compile(r"_x([0-9A-Fa-f]{4})_")
@@ -451,6 +474,9 @@ class RowCursor:
             for cm in cell_re.finditer(inner):
                 attrs = cm[1]
                 mc = ATTR_R_CELL.search(attrs)
+                if mc is None and (bad := bad_cell_ref(attrs, f"{self.name}: part {self.part}",
+                                                       r)):
+                    raise bad
                 c = col_index(mc[1]) if mc else c + 1
                 if c > MAX_COL:
                     raise beyond_sheet(self.name, self.part,
