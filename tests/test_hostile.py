@@ -291,6 +291,28 @@ def test_a_cell_reference_that_is_not_one_is_refused_naming_the_row(tmp_path, ca
     assert (tmp_path / "good-filled.xlsx").exists()
 
 
+@pytest.mark.parametrize(("extra", "cell"), [
+    (b'<mergeCells count="1"><mergeCell ref="F1:XFD1048576"/></mergeCells>', None),
+    (b"", b'<c r="XFD3"><v>1</v></c>'),
+    (b"", b'<c r="XFA1" t="inlineStr"><is><t>note</t></is></c>'),
+])
+def test_no_room_right_of_the_prices_is_refused_at_once(tmp_path, capsys, extra, cell):
+    # A merged block or cells reaching the sheet's last column leave no room for the new
+    # columns: one refusal naming the sheet, without reading the sheet again and again.
+    base = price_book(tmp_path / "base.xlsx")
+    bad = edit_part(base, tmp_path / "bad.xlsx", SHEET,
+                    lambda d: d.replace(b"</sheetData>", b"</sheetData>" + extra))
+    if cell:
+        row = int(re.search(rb"\d+", cell[8:]).group())
+        bad = with_cell(bad, tmp_path / "bad2.xlsx", row, cell)
+        bad = bad.replace(bad.with_name("bad.xlsx"))
+    start = time.perf_counter()
+    rc, _, err = run_cli(["fill", str(bad), "-q"], capsys)
+    assert rc == 1 and time.perf_counter() - start < 5
+    (line,) = error_lines(err)
+    assert '"Prices"' in line and "no room for 6 new columns" in line and "XFD" in line, line
+
+
 def _docprops(book: Path) -> Entry:
     with zipfile.ZipFile(book) as zf:
         return deflated("docProps/app.xml", zf.read("docProps/app.xml"))

@@ -991,7 +991,8 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
     start = max_col + 1
     # as many columns right of the sheet as there are specs, read in the same pass as the
     # prices: the headers (and so the reuse of earlier columns) are known after the dates
-    read = pkg.read_columns(sheet, price_cols + list(range(start, start + len(specs))),
+    read = pkg.read_columns(sheet, price_cols + list(range(start, min(start + len(specs),
+                                                                        MAX_COL + 1))),
                             first_row=match.row + 1)
     # typed formulas (noted by that pass) right of the data: new columns go right of them
     typed_cols = [fc.col for fc in pkg.formula_cells([sheet])] if typed else []
@@ -1008,18 +1009,29 @@ def _plan_sheet(pkg: Package, src: Path, options: FillOptions, sr: SheetReport,
     reused = {h: c for c, h in own.items() if h in headers}
     free = sorted(c for c in own if own[c] not in headers)
     n_new = max(0, len(specs) - len(reused) - len(free))
+
+    def room(start: int) -> None:
+        if n_new and start + n_new - 1 > MAX_COL:
+            raise FillError(
+                f"{where}: no room for {n_new} new columns: cells or merged blocks right of "
+                f"the prices reach column {col_letter(start - 1)} and a sheet ends at "
+                f"{col_letter(MAX_COL)}; clear or move them, or fill with fewer columns")
+
     if typed_cols and max(typed_cols) >= start:
         start = max(typed_cols) + 1
+        room(start)
         read = pkg.read_columns(sheet, list(range(start, start + n_new)),
                                 first_row=match.row + 1) | {c: read[c] for c in price_cols}
     # merged blocks at or below the header row: only their top-left cell shows
     merged = [(left, right) for top, left, bottom, right in pkg.merged_blocks(sheet)
               if bottom >= match.row]
+    room(start)
     while busy := [c for c in range(start, start + n_new)
                    if _has_cells(read[c]) or any(lo <= c <= hi for lo, hi in merged)]:
         # cells far below the header, or a merged block, in the columns we meant to use:
-        # move right of them
-        start = max(busy) + 1
+        # move right of them (past a merged block in one step)
+        start = max([max(busy) + 1, *(hi + 1 for lo, hi in merged if lo <= max(busy) <= hi)])
+        room(start)
         read = pkg.read_columns(sheet, list(range(start, start + n_new)),
                                 first_row=match.row + 1) | {c: read[c] for c in price_cols}
     new_cols = list(range(start, start + n_new))
