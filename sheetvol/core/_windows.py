@@ -104,19 +104,24 @@ def check_period(period: Any, name: str = "period", bound: Bound = PERIOD) -> in
     ...
     ValueError: period must be a whole number from 2 to 5000, got 1
     """
-    refused = f"{name} must be {bound.words()}, got {period!r}"
+    if type(period) is int and bound.holds(period):  # the usual case: no message to build
+        return period
     if isinstance(period, (bool, np.bool_)):
-        raise ValueError(refused)
+        raise _refused(period, name, bound)
     try:
         value = operator.index(period)
     except TypeError:
         if isinstance(period, (float, np.floating)) and float(period).is_integer():
             value = int(period)
         else:
-            raise ValueError(refused) from None
+            raise _refused(period, name, bound) from None
     if not bound.holds(value):
-        raise ValueError(refused)
+        raise _refused(period, name, bound)
     return value
+
+
+def _refused(period: Any, name: str, bound: Bound) -> ValueError:
+    return ValueError(f"{name} must be {bound.words()}, got {period!r}")
 
 
 def check_choice(value: Any, name: str, allowed: Iterable[str]) -> str:
@@ -141,6 +146,8 @@ def check_choice(value: Any, name: str, allowed: Iterable[str]) -> str:
     >>> check_choice("simple", "kind", ("simple", "exponential"))
     'simple'
     """
+    if type(allowed) is tuple and type(value) is str and value in allowed:
+        return value  # the usual case, without building the message's list
     options = tuple(allowed)
     if not isinstance(value, str) or value not in options:
         listed = ", ".join(f'"{o}"' for o in options)

@@ -93,6 +93,11 @@ class Bound:
 
     def holds(self, value: npt.ArrayLike) -> Any:
         """True where ``value`` is a finite number in the range (elementwise for arrays)."""
+        if type(value) in _SCALARS:  # one option value: plain Python, no numpy calls
+            try:
+                return self._holds_one(float(value))  # type: ignore[arg-type]
+            except OverflowError:  # an int too large for a float: the array way refuses it
+                pass
         x = np.asarray(value, dtype=float)
         ok = np.isfinite(x)
         with np.errstate(invalid="ignore"):
@@ -103,6 +108,14 @@ class Bound:
             if self.high is not None:
                 ok &= x <= self.high
         return ok
+
+    def _holds_one(self, x: float) -> bool:
+        # The same tests as the array path, in the same order, on one float.
+        if not math.isfinite(x) or (self.whole and not x.is_integer()):
+            return False
+        if self.low is not None and (x <= self.low if self.low_open else x < self.low):
+            return False
+        return self.high is None or x <= self.high
 
     def words(self) -> str:
         """The range in plain words, as messages and the function reference give it."""
@@ -117,6 +130,10 @@ class Bound:
         if high is not None:
             return f"{noun} up to {_show(high)}"
         return noun
+
+
+# Option values checked without numpy (bool is not here: it goes the array way, as before).
+_SCALARS = frozenset({int, float, np.float64, np.int64})
 
 
 def _show(x: float) -> str:

@@ -1,0 +1,66 @@
+"""Short-input fast paths give exactly what the general paths give.
+
+Reference: the general code path of the same function, forced by setting the
+fast path's threshold to zero (the general paths are themselves checked against
+plain loops, TA-Lib and ``statistics`` in the kernel tests).
+"""
+
+from __future__ import annotations
+
+import re
+
+import numpy as np
+import pytest
+
+from sheetvol.core import averages, bounds
+from sheetvol.core._windows import check_period
+
+
+def _general_recursion(x, r, scale, shift, monkeypatch):
+    with monkeypatch.context() as m:
+        m.setattr(averages, "_SHORT_RECURSION", 0)
+        out = np.empty_like(x)
+        averages._recur_into(x, out, r, scale, shift)
+    return out
+
+
+@pytest.mark.parametrize("n", [0, 1, 15, 16, 31, 32, 33, 47, 300, 301, 511])
+@pytest.mark.parametrize(("r", "scale", "shift"), [
+    (19 / 21, 2 / 21, 100.0), (13 / 14, 1 / 14, -3.5), (0.5, 1.0, 0.0), (0.0, 1.0, 2.0),
+    (1e-3, 0.999, 7.0), (1.0, 0.0, 1.0),
+])
+def test_short_recursion_is_the_general_one_bit_for_bit(n, r, scale, shift, monkeypatch):
+    x = 100 + np.cumsum(np.random.default_rng(n).normal(0, 1, n))
+    want = _general_recursion(x, r, scale, shift, monkeypatch)
+    got = np.empty_like(x)
+    averages._recur_into(x, got, r, scale, shift)
+    np.testing.assert_array_equal(got, want)
+    same = x.copy()  # in place, as the recursive averages call it
+    averages._recur_into(same, same, r, scale, shift)
+    np.testing.assert_array_equal(same, want)
+
+
+@pytest.mark.parametrize("bound", [bounds.PERIOD, bounds.SPREAD_PERIOD, bounds.RISK,
+                                   bounds.EQUITY, bounds.TRAIL, bounds.PRICE, bounds.WIDTH])
+def test_one_value_is_judged_as_the_array_path_judges_it(bound):
+    values = [0, 1, 2, 14, 5000, 5001, -1, 0.0, 0.25, 0.2500001, 1e-300, 2.5, 14.0, 1e308,
+              float("nan"), float("inf"), -float("inf"), np.float64(3.0), np.int64(7),
+              10**400, -(10**400), True, False]
+    for v in values:
+        try:
+            want = bool(np.all(bound.holds(np.array([v], dtype=object))))  # the array path
+        except OverflowError:  # an int too large for a float: raised on both paths
+            with pytest.raises(OverflowError):
+                bound.holds(v)
+            continue
+        assert bool(bound.holds(v)) == want, v
+
+
+def test_period_refusals_keep_their_words():
+    # The message is built only on refusal now; its words are the bound's own.
+    for bad in (0, 5001, 2.5, True, "14", None):
+        with pytest.raises(ValueError, match=r"^period must be a whole number from 1 to 5000, "
+                                             rf"got {re.escape(repr(bad))}$"):
+            check_period(bad)
+    assert check_period(14) == 14 and check_period(14.0) == 14
+    assert check_period(np.int64(3)) == 3 and type(check_period(np.int64(3))) is int
