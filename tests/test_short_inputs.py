@@ -7,13 +7,17 @@ plain loops, TA-Lib and ``statistics`` in the kernel tests).
 
 from __future__ import annotations
 
+import datetime as dt
 import re
 
 import numpy as np
+import pandas as pd
 import pytest
 
 from sheetvol.core import averages, bounds
 from sheetvol.core._windows import check_period
+from sheetvol.functions import convert
+from sheetvol.functions.registry import ArgumentError
 
 
 def _general_recursion(x, r, scale, shift, monkeypatch):
@@ -64,3 +68,57 @@ def test_period_refusals_keep_their_words():
             check_period(bad)
     assert check_period(14) == 14 and check_period(14.0) == 14
     assert check_period(np.int64(3)) == 3 and type(check_period(np.int64(3))) is int
+
+
+class _PywinTime(dt.datetime):
+    """Shaped like pywin32's datetime: a subclass of datetime, carrying UTC."""
+
+
+def _date_columns():
+    rng = np.random.default_rng(11)
+    start = dt.datetime(2019, 3, 1)
+    days = np.cumsum(rng.integers(1, 4, 40)).tolist()
+    plain = [start + dt.timedelta(days=d) for d in days]
+    utc = [_PywinTime(*v.timetuple()[:6], tzinfo=dt.timezone.utc) for v in plain]
+    east = [v.replace(tzinfo=dt.timezone(dt.timedelta(hours=9))) for v in plain]
+    only_dates = [v.date() for v in plain]
+    stamps = [pd.Timestamp(v) for v in plain]
+    intraday = [v + dt.timedelta(hours=9, minutes=30, microseconds=7) for v in plain]
+    with_blanks = [None, *plain[1:10], None, *plain[11:]]
+    header = ["date", *plain[1:]]
+    early = [dt.datetime(1900, 1, 1) + dt.timedelta(days=d) for d in days]  # before 1900-03-01
+    mixed = [*only_dates[:5], *plain[5:]]
+    return [plain, utc, east, only_dates, stamps, intraday, with_blanks, header, early, mixed,
+            [None] * 5, [plain[0]]]
+
+
+@pytest.mark.parametrize("i", range(12))
+@pytest.mark.parametrize("date1904", [False, True])
+def test_dates_of_daily_bars_read_without_pandas_as_with_it(i, date1904, monkeypatch):
+    values = _date_columns()[i]
+    cells_ = [[v] for v in values]
+    try:
+        got = convert.day_numbers(cells_, func="SV_X_ON", param="dates", date1904=date1904)
+    except ArgumentError as exc:
+        got = str(exc)
+    with monkeypatch.context() as m:
+        m.setattr(convert, "_midnight_days", lambda flat, kinds: None)
+        try:
+            want = convert.day_numbers(cells_, func="SV_X_ON", param="dates",
+                                       date1904=date1904)
+        except ArgumentError as exc:
+            want = str(exc)
+    if isinstance(want, str):
+        assert got == want
+    else:
+        np.testing.assert_array_equal(got, want)
+
+
+def test_daily_dates_take_the_path_without_pandas():
+    columns = _date_columns()
+    for i in (0, 1, 2, 3, 4, 6, 8):  # dates and midnight datetimes, with blanks too
+        flat = columns[i]
+        assert convert._midnight_days(flat, set(map(type, flat))) is not None, i
+    for i in (5, 9):  # a time of day; dates mixed with datetimes
+        flat = columns[i]
+        assert convert._midnight_days(flat, set(map(type, flat))) is None, i
