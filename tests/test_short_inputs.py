@@ -16,7 +16,7 @@ import pytest
 
 from sheetvol.core import averages, bounds
 from sheetvol.core._windows import check_period
-from sheetvol.functions import convert
+from sheetvol.functions import calling, convert
 from sheetvol.functions.registry import ArgumentError
 
 
@@ -122,3 +122,64 @@ def test_daily_dates_take_the_path_without_pandas():
     for i in (5, 9):  # a time of day; dates mixed with datetimes
         flat = columns[i]
         assert convert._midnight_days(flat, set(map(type, flat))) is None, i
+
+
+def _on_cases():
+    rng = np.random.default_rng(5)
+    cases = []
+    for trial in range(40):
+        n = int(rng.integers(1, 60))
+        close = 100 * np.exp(np.cumsum(rng.normal(0, 0.01, n)))
+        high = close * (1 + np.abs(rng.normal(0, 0.004, n)))
+        low = close * (1 - np.abs(rng.normal(0, 0.004, n)))
+        cols = [[[float(v)] for v in a] for a in (high, low, close)]
+        start = dt.datetime(2024, 1, 2)
+        dates = [[start + dt.timedelta(days=int(d))]
+                 for d in np.cumsum(rng.integers(1, 3, n))]
+        for col in cols:  # gaps, text numbers
+            for i in rng.integers(0, n, int(rng.integers(0, 3))):
+                if col[i][0] is not None:
+                    col[i] = [None] if rng.random() < 0.5 else [f"{col[i][0]:.6f}"]
+        if trial % 10 == 9:  # a header row in every range
+            cols = [[[name], *c[1:]] for name, c in zip(("high", "low", "close"), cols,
+                                                         strict=True)]
+            dates = [["date"], *dates[1:]]
+        pick = int(rng.integers(0, n))
+        on = dates[pick][0] if isinstance(dates[pick][0], dt.datetime) else start
+        on = on + dt.timedelta(hours=int(rng.integers(0, 30)))  # between bars too
+        if trial % 13 == 0:
+            on = start - dt.timedelta(days=3)  # before the first bar
+        period = int(rng.choice([1, 2, 5, 14, n, n + 1]))
+        cases += [
+            ("SV_DEVIATION_ON", [on, dates, cols[2], max(period, 2)]),
+            ("SV_AVERAGE_ON", [on, dates, cols[2], period, "exponential"]),
+            ("SV_AVERAGE_ON", [on, dates, cols[2], period, "linear"]),
+            ("SV_ATR_ON", [on, dates, *cols, period]),
+            ("SV_ATR_ON", [on, dates, *cols, period, "simple"]),
+            ("SV_CLOSEVOL_ON", [on, dates, cols[2], max(period, 2)]),
+            ("SV_PARKINSON_ON", [on, dates, cols[0], cols[1], period]),
+        ]
+    return cases
+
+
+def _outcome(name, args):
+    try:
+        return calling.call_worksheet(name, args)
+    except ArgumentError as exc:
+        return str(exc)
+
+
+def test_on_forms_over_dated_rows_in_order_agree_with_the_general_path(monkeypatch):
+    taken = 0
+    for name, args in _on_cases():
+        got = _outcome(name, args)
+        try:
+            taken += calling._in_order(convert.day_numbers(args[1], func="x", param="dates"))
+        except ArgumentError:  # a range of nothing but its header
+            pass
+        with monkeypatch.context() as m:
+            m.setattr(calling, "_in_order", lambda days: False)
+            want = _outcome(name, args)
+        assert got == want or (isinstance(got, float) and np.isnan(got) and np.isnan(want)), (
+            name, got, want)
+    assert taken > 200  # most cases took the shortcut

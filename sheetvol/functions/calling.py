@@ -431,6 +431,8 @@ def _on(
             f"{wname}: dates has {len(days)} rows but the price ranges have {n}; "
             "give ranges covering the same rows"
         )
+    if _in_order(days):  # the usual layout: the rows are their own order
+        return _on_in_order(reader, opts, need, days, target)
     dated = np.isfinite(days)
     dated_rows = np.flatnonzero(dated)
     ascending = bool(np.all(np.diff(days[dated_rows]) > 0))
@@ -461,6 +463,39 @@ def _on(
             if len(ok) >= need:
                 rows = rows[ok[-need]:]
         part = {k: v[rows] for k, v in whole.items()}, rows
+    columns, rows = part
+    _check_high_low(wname, columns, rows)
+    usable = np.flatnonzero(_usable(columns.values()))
+    if usable.size == 0:
+        return None
+    out = _compute(func, wname, columns, opts, rows)
+    return _convert.to_cell(out[usable[-1]])
+
+
+def _in_order(days: FloatArray) -> bool:
+    """Every row dated, oldest first, each date once (a NaN step fails the test)."""
+    return (len(days) > 0 and math.isfinite(days[0]) and math.isfinite(days[-1])
+            and bool((np.diff(days) > 0).all()))
+
+
+def _on_in_order(reader: _Reader, opts: dict, need: int | None, days: FloatArray,
+                 target: float) -> Result:
+    """:func:`_on` when every row is dated in ascending order (the same steps, unmasked)."""
+    func, wname = reader.func, reader.wname
+    pos = int(np.searchsorted(days, target, side="right")) - 1
+    if pos < 0:
+        raise ArgumentError(f"{wname}: no bar on or before {_show_day(target)}; "
+                            f"the first date is {_show_day(days[0])}")
+    part = reader.tail(pos + 1, need) if need is not None else None
+    if part is None:
+        whole, _ = reader.whole()
+        start = 0
+        if need is not None:  # a window function: its value needs only the last bars
+            ok = np.flatnonzero(_usable((v[: pos + 1] for v in whole.values()),
+                                        func.name in _LOGGED))
+            if len(ok) >= need:
+                start = int(ok[-need])
+        part = {k: v[start: pos + 1] for k, v in whole.items()}, np.arange(start, pos + 1)
     columns, rows = part
     _check_high_low(wname, columns, rows)
     usable = np.flatnonzero(_usable(columns.values()))
