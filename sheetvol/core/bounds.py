@@ -220,6 +220,8 @@ def check(name: str, value: Any, bound: Bound, *, blank_ok: bool = False) -> Any
     """
     x = np.asarray(value, dtype=float) if not isinstance(value, float) else value
     ok = bound.holds(x)
+    if ok is True:  # one value in range (np.all of a plain bool costs more than the check)
+        return value
     if blank_ok:
         ok = ok | np.isnan(x)
     if np.all(ok):
@@ -264,10 +266,10 @@ def check_high_low(high: npt.ArrayLike, low: npt.ArrayLike,
     lo = np.asarray(low, dtype=float)
     if h.shape != lo.shape:
         return  # the length check of the kernel itself names the columns
+    wrong = h < lo  # False where either is NaN (a comparison with NaN does not warn)
+    if not wrong.any():  # the usual case: one comparison of the whole columns
+        return
     with np.errstate(invalid="ignore"):
-        wrong = h < lo  # False where either is NaN
-        if not wrong.any():  # the usual case: one comparison of the whole columns
-            return
         wrong &= np.isfinite(h) & np.isfinite(lo)
         for other in others:
             o = np.asarray(other, dtype=float)
@@ -308,9 +310,9 @@ def check_positive_prices(why: str, **prices: npt.ArrayLike) -> None:
     """
     for name, p in prices.items():
         a = np.asarray(p, dtype=float)
+        if not a.size or a.min() > 0:  # a NaN makes min() NaN (quietly): look closer then
+            continue
         with np.errstate(invalid="ignore"):
-            if not a.size or a.min() > 0:  # a NaN makes min() NaN: look closer then
-                continue
             bad = np.flatnonzero(np.ravel((a <= 0) & np.isfinite(a)))
         if bad.size:
             i = int(bad[0])
