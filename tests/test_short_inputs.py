@@ -15,7 +15,7 @@ import pandas as pd
 import pytest
 
 from sheetvol.core import averages, bounds
-from sheetvol.core._windows import check_period
+from sheetvol.core._windows import check_period, window_mean
 from sheetvol.functions import calling, convert
 from sheetvol.functions.registry import ArgumentError
 
@@ -183,3 +183,13 @@ def test_on_forms_over_dated_rows_in_order_agree_with_the_general_path(monkeypat
         assert got == want or (isinstance(got, float) and np.isnan(got) and np.isnan(want)), (
             name, got, want)
     assert taken > 200  # most cases took the shortcut
+
+
+@pytest.mark.parametrize("period", [1, 2, 3, 7, 8, 9, 14, 16, 17, 20, 127, 128, 129, 300,
+                                    1000, 5000])
+def test_seed_of_the_recursive_averages_is_the_window_mean(period):
+    rng = np.random.default_rng(period)
+    for level in (100.0, 1e7, -50.0):
+        x = level + np.cumsum(rng.normal(0, 1, period + 5))
+        want = float(window_mean(x[:period], period)[-1])
+        assert averages._first_mean(x, period) == want

@@ -304,11 +304,23 @@ def average_of(
     out = prices if overwrite else None
     if seed == "average":
         # Seed = mean of the first N values (taken from the accurate window mean).
-        first_mean = float(window_mean(prices[:period], period)[-1])
+        first_mean = _first_mean(prices, period)
         return recursive_average(prices, alpha, period - 1, first_mean, out)
     out = recursive_average(prices, alpha, 0, float(prices[0]), out)
     out[: period - 1] = np.nan
     return out
+
+
+def _first_mean(prices: FloatArray, period: int) -> float:
+    """The mean of the first ``period`` prices, as ``window_mean`` gives it for one window.
+
+    Its short path's arithmetic without its layers (a recursive average pays this
+    on every call): the deviations from the middle price, summed, divided by N,
+    added back to that price.
+    """
+    shift = prices[period // 2]
+    total = np.add.reduce(prices[:period] - shift)
+    return float(shift + total / float(period))
 
 
 _average = skip_gaps(1)(average_of)

@@ -375,6 +375,8 @@ def _check_high_low(wname: str, columns: Mapping[str, FloatArray],
     """Refuse a usable bar whose high is below its low: the columns are likely swapped."""
     if "high" not in columns or "low" not in columns:
         return
+    if not (columns["high"] < columns["low"]).any():  # the usual case (NaN compares False)
+        return
     series = [v for k, v in columns.items() if k != "dates"]
     with np.errstate(invalid="ignore"):
         bad = np.flatnonzero(_usable(series) & (columns["high"] < columns["low"]))
