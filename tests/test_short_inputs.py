@@ -14,9 +14,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from sheetvol.core import averages, bounds
+from sheetvol.core import _windows, averages, bounds
 from sheetvol.core._windows import check_period, window_mean
-from sheetvol.functions import calling, convert
+from sheetvol.functions import calling, convert, registry
 from sheetvol.functions.registry import ArgumentError
 
 
@@ -193,3 +193,31 @@ def test_seed_of_the_recursive_averages_is_the_window_mean(period):
         x = level + np.cumsum(rng.normal(0, 1, period + 5))
         want = float(window_mean(x[:period], period)[-1])
         assert averages._first_mean(x, period) == want
+
+
+@pytest.mark.parametrize("period", [2, 3, 8, 9, 14, 20, 129, 300])
+@pytest.mark.parametrize("sample", [False, True])
+@pytest.mark.parametrize("about", ["mean", "level"])
+def test_one_window_is_the_first_window_of_two(period, sample, about):
+    # The one-window deviation (a _LAST call's) against the window-by-window path,
+    # which handles a second window the same way it handles the first.
+    rng = np.random.default_rng(period)
+    for start in (100.0, 1e7, -3.0):
+        x = start + np.cumsum(rng.normal(0, 1, period + 1))
+        level = None if about == "mean" else x + rng.normal(0, 0.5, period + 1)
+        two = _windows._small(x, period, "deviation", level, sample)[0]
+        one = _windows._small(x[:period], period, "deviation",
+                              None if level is None else level[:period], sample)[0]
+        assert len(one) == period and np.isnan(one[:-1]).all()
+        assert one[-1] == two[period - 1]
+
+
+@pytest.mark.parametrize("kind", ["whole", "number", "choice", "text", "series"])
+def test_plain_option_values_pass_as_the_general_steps_pass_them(kind):
+    p = registry.Param("x", kind, "help")
+    for value in (None, 1.5, 14.0, "", "exponential", " 14 ", "2024-01-02", -0.0):
+        assert calling._option(p, value, "SV_X", False) == convert.single(
+            value, func="SV_X", param="x")
+    date = registry.Param("d", "date", "help")
+    assert calling._option(date, None, "SV_X", False) is None
+    assert calling._option(date, "2025-01-02", "SV_X", False) == 45659.0

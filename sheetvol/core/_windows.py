@@ -239,6 +239,8 @@ def _small(
     """
     n, big_n = len(x), float(period)
     m = n - period + 1
+    if m == 1 and mode == "deviation":  # one window (a per-cell _LAST call's): 1-D steps
+        return [_one_deviation(x, period, level, sample)]
     if not x.flags.c_contiguous:
         x = np.ascontiguousarray(x)
     step = x.strides[0]
@@ -282,6 +284,25 @@ def _small(
         tail[1][:] = offset
         np.divide(squares, big_n, out=tail[2])
     return outs
+
+
+def _one_deviation(x: FloatArray, period: int, level: FloatArray | None,
+                   sample: bool) -> FloatArray:
+    """:func:`_small`'s deviation of one window (``len(x) == period``): the same steps."""
+    big_n = float(period)
+    shift = x[period // 2]
+    y = np.subtract(x, shift)
+    if level is not None:
+        y -= level[-1] - shift
+    else:
+        y -= np.add.reduce(y) / big_n
+    np.multiply(y, y, out=y)
+    squares = np.add.reduce(y) / big_n
+    if sample:
+        squares *= big_n / (big_n - 1.0)
+    out = np.full(period, np.nan)
+    out[-1] = np.sqrt(squares)
+    return out
 
 
 def _engine(

@@ -388,12 +388,18 @@ def _check_high_low(wname: str, columns: Mapping[str, FloatArray],
 
 
 def _option(p: Param, value: Any, wname: str, date1904: bool) -> Any:
+    if value is None or (type(value) in _PLAIN_OPTIONS and p.kind != "date"):
+        return value  # what the general steps below give these (per-cell calls: every cell)
     v = _convert.single(value, func=wname, param=p.name)
     if type(v) is int and v in _convert.COM_ERRORS:  # an error cell, as COM passes it
         raise ArgumentError(f"{wname}: {p.name} is an error cell ({_convert.com_error_name(v)})")
     if p.kind == "date" and not cells.is_blank(v):
         return _convert.day_number(v, func=wname, param=p.name, date1904=date1904)
     return v
+
+
+# Option values that are one cell already and cannot be error cells (those come as ints).
+_PLAIN_OPTIONS = frozenset({float, str})
 
 
 def _same_height(wname: str, heights: Mapping[str, int]) -> None:
