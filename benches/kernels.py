@@ -471,7 +471,12 @@ def main(argv: list[str] | None = None) -> int:
                         help="processor time of this process (default) or elapsed time")
     parser.add_argument("--no-targets", action="store_true",
                         help="leave out the targets section (verdicts and accuracy asserts)")
+    parser.add_argument("--short-only", action="store_true",
+                        help=f"only the fixed cost at {SHORT_BARS} bars (a per-cell call's)")
     args = parser.parse_args(argv)
+    if args.short_only:
+        run_short(args.repeat, args.clock)
+        return 0
     if args.bars < max(args.periods) + 2 or args.repeat < 1:
         parser.error("--bars must exceed the largest period and --repeat must be at least 1")
     if min(args.bars, *args.scaling) < 1000:
