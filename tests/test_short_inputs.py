@@ -221,3 +221,15 @@ def test_plain_option_values_pass_as_the_general_steps_pass_them(kind):
     date = registry.Param("d", "date", "help")
     assert calling._option(date, None, "SV_X", False) is None
     assert calling._option(date, "2025-01-02", "SV_X", False) == 45659.0
+
+
+def test_names_as_typed_are_remembered_without_changing_what_they_mean():
+    prices = [[100.0 + i % 7] for i in range(30)]
+    want = calling.call_worksheet("SV_DEVIATION_LAST", [prices, 14])
+    for name in ("SV_DEVIATION_LAST", " sv_deviation_last ", "Sv_Deviation_Last"):
+        for _ in range(2):  # the second call takes the remembered entry
+            assert calling.call_worksheet(name, [prices, 14]) == want
+    assert calling.call_worksheet("SV_DEVIATION", [prices, 14])[-1] == want
+    for _ in range(2):  # an unknown name is refused every time, never remembered
+        with pytest.raises(ArgumentError, match=r"^SV_NOPE_LAST: no sheetvol function"):
+            calling.call_worksheet(" sv_nope_last", [prices, 14])

@@ -97,11 +97,18 @@ def call_worksheet(
     96.0
     """
     try:
-        func, variant = variant_of(name)
+        func, variant, wname, params = _NAMES[name]
     except KeyError:
-        raise ArgumentError(f"{name.strip().upper()}: no sheetvol function by that name") from None
-    wname = worksheet_name(func, variant)
-    params = variant_params(func, variant)
+        try:
+            func, variant = variant_of(name)
+        except KeyError:
+            raise ArgumentError(
+                f"{name.strip().upper()}: no sheetvol function by that name") from None
+        wname = worksheet_name(func, variant)
+        params = variant_params(func, variant)
+        if len(_NAMES) >= _NAMES_SIZE:
+            _NAMES.clear()
+        _NAMES[name] = func, variant, wname, params
     args = list(args)
     if len(args) > len(params):
         raise ArgumentError(f"{wname}: takes at most {len(params)} arguments, got {len(args)}")
@@ -112,6 +119,11 @@ def call_worksheet(
         return _call_series(func, variant, wname, args, date1904, decimal_comma)
     except ArgumentError as exc:
         raise ArgumentError(_rename(str(exc), func.name, wname)) from None
+
+
+# Names as typed, with what they name: a filled-down column repeats one name on every cell.
+_NAMES: dict[str, tuple[Function, Variant, str, tuple[Param, ...]]] = {}
+_NAMES_SIZE = 1024
 
 
 def _rename(message: str, base: str, wname: str) -> str:
@@ -206,8 +218,8 @@ def _call_series(
         date_arg, dates_arg, args = args[0], args[1], args[2:]
     options: dict[str, Any] = {}
     raw: dict[str, Any] = {}
-    for p, a in zip(func.params, args, strict=True):
-        if p.is_column:
+    for p, column, a in zip(func.params, _column_flags(func), args, strict=True):
+        if column:
             # An empty one-cell range arrives as nothing on some paths, so nothing is read
             # as that one blank cell everywhere: a _LAST over a blank row is blank.
             raw[p.name] = [[None]] if _convert.is_empty_cell(a) else a
@@ -233,6 +245,18 @@ def _call_series(
         _check_high_low(wname, *part)
         return _convert.to_cell(_compute(func, wname, part[0], opts, part[1])[-1])
     return _on(reader, opts, need, date_arg, dates_arg, date1904)
+
+
+_COLUMN_FLAGS: dict[str, tuple[bool, ...]] = {}
+
+
+def _column_flags(func: Function) -> tuple[bool, ...]:
+    """``p.is_column`` for each parameter of ``func``, worked out once per function."""
+    try:
+        return _COLUMN_FLAGS[func.name]
+    except KeyError:
+        flags = _COLUMN_FLAGS[func.name] = tuple(p.is_column for p in func.params)
+        return flags
 
 
 # Options validated by Function.bind, by function and given values: a filled-down column
@@ -315,7 +339,7 @@ class _Reader:
         if need <= stop and (dated is None or dated[stop - need:stop].all()):
             # The usual case, no gap among the last bars: exactly those rows are read.
             last = self._rows(stop - need, stop)
-            if last is not None and _usable(last.values(), logged).all():
+            if last is not None and np.count_nonzero(_usable(last.values(), logged)) == need:
                 return last, np.arange(stop - need, stop)
         parts: dict[str, list[FloatArray]] = {k: [] for k in self.raw}
         seen, start, size = 0, stop, max(2 * need, 64)
@@ -363,8 +387,7 @@ def _usable(columns: Any, positive: bool = False) -> np.ndarray:
     for v in columns:
         good = np.isfinite(v)
         if positive:
-            with np.errstate(invalid="ignore"):
-                good &= v > 0
+            good &= v > 0  # a comparison with NaN is False and does not warn
         ok = good if ok is None else ok & good
     assert ok is not None
     return ok
