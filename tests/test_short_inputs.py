@@ -140,6 +140,11 @@ def _on_cases():
             for i in rng.integers(0, n, int(rng.integers(0, 3))):
                 if col[i][0] is not None:
                     col[i] = [None] if rng.random() < 0.5 else [f"{col[i][0]:.6f}"]
+        if trial % 7 == 3:  # a cell that is no number: refused, or outside the window read
+            cols[2][int(rng.integers(0, n))] = ["abc"]
+        if trial % 11 == 5:  # a high below its low
+            i = int(rng.integers(0, n))
+            cols[0][i], cols[1][i] = cols[1][i], cols[0][i]
         if trial % 10 == 9:  # a header row in every range
             cols = [[[name], *c[1:]] for name, c in zip(("high", "low", "close"), cols,
                                                          strict=True)]
