@@ -220,9 +220,12 @@ def test_one_window_is_the_first_window_of_two(period, sample, about):
 @pytest.mark.parametrize("kind", ["whole", "number", "choice", "text", "series"])
 def test_plain_option_values_pass_as_the_general_steps_pass_them(kind):
     p = registry.Param("x", kind, "help")
-    for value in (None, 1.5, 14.0, "", "exponential", " 14 ", "2024-01-02", -0.0):
+    for value in (None, 1.5, 14.0, "", "exponential", " 14 ", "2024-01-02", -0.0, 14, 0,
+                  -2146828288 + 1999, -2146828288 + 2100, True):
         assert calling._option(p, value, "SV_X", False) == convert.single(
             value, func="SV_X", param="x")
+    with pytest.raises(ArgumentError, match="error cell"):  # an error cell, as COM passes it
+        calling._option(p, convert.COM_NA, "SV_X", False)
     date = registry.Param("d", "date", "help")
     assert calling._option(date, None, "SV_X", False) is None
     assert calling._option(date, "2025-01-02", "SV_X", False) == 45659.0

@@ -269,8 +269,9 @@ _BOUND_SIZE = 1024
 def _bound_options(func: Function, raw: Mapping[str, Any], options: Mapping[str, Any]
                    ) -> dict[str, Any]:
     """``func.bind`` of the options, which also notices missing columns (cached)."""
-    key = (func.name, *((k, a is None) for k, a in raw.items()),
-           *((k, type(v), v) for k, v in options.items()))
+    values = tuple(options.values())  # the names are func's own options, in order
+    key: tuple[Any, ...] = (func.name, tuple(raw), tuple(a is None for a in raw.values()),
+                            tuple(options), values, tuple(map(type, values)))
     try:
         return dict(_BOUND[key])
     except KeyError:
@@ -411,7 +412,8 @@ def _check_high_low(wname: str, columns: Mapping[str, FloatArray],
 
 
 def _option(p: Param, value: Any, wname: str, date1904: bool) -> Any:
-    if value is None or (type(value) in _PLAIN_OPTIONS and p.kind != "date"):
+    if value is None or (p.kind != "date" and (type(value) in _PLAIN_OPTIONS or (
+            type(value) is int and value not in _convert.COM_ERRORS))):
         return value  # what the general steps below give these (per-cell calls: every cell)
     v = _convert.single(value, func=wname, param=p.name)
     if type(v) is int and v in _convert.COM_ERRORS:  # an error cell, as COM passes it
@@ -421,7 +423,8 @@ def _option(p: Param, value: Any, wname: str, date1904: bool) -> Any:
     return v
 
 
-# Option values that are one cell already and cannot be error cells (those come as ints).
+# Option values that are one cell already and cannot be error cells (those come as ints,
+# which are let through above only outside the range of error codes).
 _PLAIN_OPTIONS = frozenset({float, str})
 
 
