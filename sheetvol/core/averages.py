@@ -163,23 +163,17 @@ def _recur_short(x: FloatArray, out: FloatArray, r: float, scale: float, shift: 
         dev = np.subtract(x[:start].reshape(n_blocks, size), shift)
         ends = np.matmul(dev, ends_w)
         if r**size >= _NEGLIGIBLE:  # the recursion on the ends, as _recur_into(ends, ends, r^L)
-            rl, e, done = r**size, 0.0, []
-            for v in ends.tolist():
-                e = rl * e + 1.0 * (v - 0.0)
-                done.append(0.0 + e)
-            ends = np.array(done)
+            rl, e = r**size, 0.0
+            ends = np.array([0.0 + (e := rl * e + 1.0 * (v - 0.0)) for v in ends.tolist()])
         if n_blocks > 1:
             dev[1:, 0] += (r / scale) * ends[:-1]
         np.matmul(dev, block_w, out=out[:start].reshape(n_blocks, size))
         if shift:
             out[:start] += shift
         acc = float(ends[-1])
-    if start < n:
-        rest = []
-        for v in x[start:].tolist():
-            acc = r * acc + scale * (v - shift)
-            rest.append(shift + acc)
-        out[start:] = rest
+    if start < n:  # the plain loop of _recur_into, as one list (acc is carried along)
+        out[start:] = [shift + (acc := r * acc + scale * (v - shift))
+                       for v in x[start:].tolist()]
 
 
 def linear_recurrence(u: FloatArray, r: float) -> FloatArray:
