@@ -88,11 +88,12 @@ def _date_columns():
     header = ["date", *plain[1:]]
     early = [dt.datetime(1900, 1, 1) + dt.timedelta(days=d) for d in days]  # before 1900-03-01
     mixed = [*only_dates[:5], *plain[5:]]
+    with_nat = [plain[0], pd.NaT, *plain[2:]]  # NaT is a datetime too, with no date in it
     return [plain, utc, east, only_dates, stamps, intraday, with_blanks, header, early, mixed,
-            [None] * 5, [plain[0]]]
+            [None] * 5, [plain[0]], with_nat]
 
 
-@pytest.mark.parametrize("i", range(12))
+@pytest.mark.parametrize("i", range(13))
 @pytest.mark.parametrize("date1904", [False, True])
 def test_dates_of_daily_bars_read_without_pandas_as_with_it(i, date1904, monkeypatch):
     values = _date_columns()[i]
@@ -116,10 +117,10 @@ def test_dates_of_daily_bars_read_without_pandas_as_with_it(i, date1904, monkeyp
 
 def test_daily_dates_take_the_path_without_pandas():
     columns = _date_columns()
-    for i in (0, 1, 2, 3, 4, 6, 8):  # dates and midnight datetimes, with blanks too
+    for i in (0, 1, 2, 3, 6, 8):  # dates and midnight datetimes, with blanks too
         flat = columns[i]
         assert convert._midnight_days(flat, set(map(type, flat))) is not None, i
-    for i in (5, 9):  # a time of day; dates mixed with datetimes
+    for i in (4, 5, 9, 12):  # pandas' own; a time of day; dates mixed with datetimes; NaT
         flat = columns[i]
         assert convert._midnight_days(flat, set(map(type, flat))) is None, i
 

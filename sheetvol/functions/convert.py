@@ -520,6 +520,7 @@ def _days_at_once(flat: list[Any], date1904: bool) -> FloatArray | None:
 
 
 _MIDNIGHT = dt.time()
+_PANDAS_TIMES = (pd.Timestamp, type(pd.NaT))
 _EPOCH_ORDINAL = cells.EPOCH_1900.toordinal()
 
 
@@ -531,8 +532,8 @@ def _midnight_days(flat: list[Any], kinds: set[type]) -> FloatArray | None:
     microseconds (any time zone is left aside there too). Blanks (None) give NaN.
     """
     dated = kinds - {type(None)}
-    if not dated:
-        return None
+    if not dated or any(issubclass(k, _PANDAS_TIMES) for k in dated):
+        return None  # pandas' own (NaT is a datetime too, with no date in it): pandas reads them
     if not all(issubclass(k, dt.datetime) for k in dated) and dated != {dt.date}:
         return None  # dates mixed with datetimes: the general path
     present = [v for v in flat if v is not None] if type(None) in kinds else flat
