@@ -422,6 +422,48 @@ def run_targets(bars: int, repeat: int, scaling: tuple[int, int], clock: str = "
         raise AssertionError(f"accuracy target not met: {', '.join(failures)}")
 
 
+# -- fixed cost on short inputs: what a per-cell worksheet call pays -------------------------
+SHORT_BARS = 300
+SHORT_LIMIT_US = 30.0  # the per-cell forms' target; a kernel is one part of such a call
+SHORT_CALLS = 200  # calls per timing
+
+
+def short_kernels(ta: Any) -> list[tuple[str, Callable[[Bars], Any], str, Callable | None]]:
+    """The target kernels (at their usual periods) and a few more, each with TA-Lib's work."""
+    bands, est = _optional("bands"), _optional("estimators")
+    out: list[tuple[str, Callable[[Bars], Any], str, Callable | None]] = [
+        (t.name, t.ours, t.ref_name, t.ref) for t in targets(ta) if "200" not in t.name]
+    out += [
+        ("Bollinger Bands (20, 2)", lambda b: bands.deviation_bands(b["close"], 20),
+         "talib.BBANDS(20)", lambda b: ta.BBANDS(b["close"], 20, 2.0, 2.0, 0)),
+        ("close-to-close, 20", lambda b: est.close_to_close(b["close"], 20),
+         "talib.STDDEV of log returns", lambda b: ta.STDDEV(np.diff(np.log(b["close"])), 20, 1)),
+        ("Yang-Zhang, 20", lambda b: est.yang_zhang(*(b[k] for k in b), 20), "-", None),
+    ]
+    return out
+
+
+def run_short(repeat: int, clock: str = "cpu") -> None:
+    """Print the cost of one call at 300 bars, ours and TA-Lib's, with one verdict each."""
+    ta = _talib()
+    if ta is None:
+        print("short inputs: TA-Lib is not installed, no comparison (pip install ta-lib)")
+        return
+    data = synthetic_bars(SHORT_BARS, seed=5)
+    print()
+    print(f"Fixed cost at {SHORT_BARS} bars ({clock} time per call, best of {repeat} rounds of "
+          f"{SHORT_CALLS} calls; target {SHORT_LIMIT_US:g} us a call):")
+    for name, ours, ref_name, ref in short_kernels(ta):
+        fns = [lambda f=ours: [f(data) for _ in range(SHORT_CALLS)]]
+        if ref is not None:
+            fns.append(lambda f=ref: [f(data) for _ in range(SHORT_CALLS)])
+        us = [ms * 1e3 / SHORT_CALLS for ms in best_ms(fns, repeat, clock)]
+        versus = (f"{ref_name:<28} {us[1]:5.1f} us, {us[0] / us[1]:5.1f}x" if ref
+                  else "no TA-Lib function")
+        verdict = "met" if us[0] <= SHORT_LIMIT_US else "NOT met"
+        print(f"  short     {name:<30} {us[0]:7.1f} us vs {versus}: {verdict}")
+
+
 def run(bars: int, repeat: int, periods: tuple[int, ...],
         scaling: tuple[int, int] | None = (100_000, 10_000_000), clock: str = "cpu") -> None:
     """Print the timing table, the accuracy table and the target verdicts."""
@@ -474,13 +516,19 @@ def main(argv: list[str] | None = None) -> int:
                         help="processor time of this process (default) or elapsed time")
     parser.add_argument("--no-targets", action="store_true",
                         help="leave out the targets section (verdicts and accuracy asserts)")
+    parser.add_argument("--short-only", action="store_true",
+                        help=f"only the fixed cost at {SHORT_BARS} bars (a per-cell call's)")
     args = parser.parse_args(argv)
+    if args.short_only:
+        run_short(args.repeat, args.clock)
+        return 0
     if args.bars < max(args.periods) + 2 or args.repeat < 1:
         parser.error("--bars must exceed the largest period and --repeat must be at least 1")
     if min(args.bars, *args.scaling) < 1000:
         parser.error("--bars and --scaling need at least 1000 bars (the targets use period 200)")
     scaling = None if args.no_targets else (args.scaling[0], args.scaling[1])
     run(args.bars, args.repeat, tuple(args.periods), scaling, args.clock)
+    run_short(args.repeat, args.clock)
     return 0
 
 

@@ -61,3 +61,19 @@ def test_addin_benchmark_runs(capsys):
     assert re.search(r"verdict: SV_ATR whole columns \(3\), read \+ compute \+ write "
                      r"[\d.]+ ms, budget 150 ms \(50 ms per whole-column argument, 3 here\): "
                      r"(met|NOT met)", out)
+    # One verdict per per-cell form timed, each with its ratio to the target.
+    forms = [k for k in bench_addin.per_cell(repeat=1, number=1) if k != bench_addin.REFERENCE]
+    for form in forms:
+        found = [ln for ln in out.splitlines() if ln.startswith(f"verdict: per-cell {form},")]
+        assert len(found) == 1, form
+        assert re.search(r": (met|NOT met) \(x\d+\.\d\d; reference", found[0])
+
+
+def test_kernel_benchmark_prints_the_fixed_cost_of_each_kernel_at_300_bars(capsys):
+    assert bench.main(["--short-only", "--repeat", "1"]) == 0
+    lines = [ln for ln in capsys.readouterr().out.splitlines() if ln.split()[:1] == ["short"]]
+    names = [name for name, *_ in bench.short_kernels(talib)]
+    assert len(lines) == len(names) >= 9
+    for name, line in zip(names, lines, strict=True):
+        assert name in line and re.search(r"\d+\.\d us vs ", line)
+        assert line.endswith(": met") or line.endswith(": NOT met")

@@ -58,16 +58,19 @@ def skip_gaps(n_series: int) -> Callable[[Callable[..., Any]], Callable[..., Any
             rest: tuple[Any, ...] = ()
             if len(args) >= n_series:
                 given, rest, options = args[:n_series], args[n_series:], kwargs
-                if column_names.intersection(kwargs):
+                if kwargs and not column_names.isdisjoint(kwargs):
                     given, rest, options = _split(args, kwargs)
             elif not args and column_names.issubset(kwargs):
                 given = tuple(kwargs[name] for name in names)
                 options = {k: v for k, v in kwargs.items() if k not in column_names}
             else:
                 given, rest, options = _split(args, kwargs)
-            series = [as_series(a, name) for a, name in zip(given, names, strict=True)]
+            if n_series == 1:
+                series = [as_series(given[0], names[0])]
+            else:
+                series = [as_series(a, name) for a, name in zip(given, names, strict=True)]
             n = len(series[0])
-            if any(len(s) != n for s in series[1:]):
+            if n_series > 1 and any(len(s) != n for s in series[1:]):
                 pairs = zip(names, series, strict=True)
                 lengths = ", ".join(f"{name} {len(s)}" for name, s in pairs)
                 raise ValueError(f"{kernel.__name__}: columns have different lengths ({lengths})")
@@ -76,7 +79,7 @@ def skip_gaps(n_series: int) -> Callable[[Callable[..., Any]], Callable[..., Any
             usable = np.isfinite(series[0])
             for s in series[1:]:
                 usable &= np.isfinite(s)
-            if usable.all():
+            if np.count_nonzero(usable) == n:  # every bar usable (cheaper than .all())
                 return kernel(*series, *rest, **options)
             result = kernel(*(s[usable] for s in series), *rest, **options)
             if isinstance(result, tuple):

@@ -103,6 +103,9 @@ def _recur_into(
     data, instead of the many strided ones a position-by-position recursion makes),
     and each product stays small enough that the BLAS library runs it on one thread.
     """
+    if len(x) < _SHORT_RECURSION:
+        _recur_short(x, out, r, scale, shift)
+        return
     n, size, rows = len(x), _RECURSION_BLOCK, _RECURSION_ROWS
     n_blocks = n // size
     acc = 0.0
@@ -136,6 +139,41 @@ def _recur_into(
     for i in range(start, n):
         acc = r * acc + scale * (float(x[i]) - shift)
         out[i] = shift + acc
+
+
+# Series shorter than this (a per-cell call's few hundred bars) take _recur_short: their
+# block ends number under 32, so the recursion on the ends is a plain loop anyway.
+_SHORT_RECURSION = 2 * _RECURSION_BLOCK * _RECURSION_BLOCK
+
+
+def _recur_short(x: FloatArray, out: FloatArray, r: float, scale: float, shift: float) -> None:
+    """:func:`_recur_into` for fewer than ``_SHORT_RECURSION`` values, bit for bit.
+
+    The same products of the same shapes and the same loops, without the general
+    path's fixed cost: the block ends and the partial last block run on Python
+    floats (the same IEEE operations) instead of numpy scalars, in one chunk.
+    """
+    n, size = len(x), _RECURSION_BLOCK
+    n_blocks = n // size
+    acc = 0.0
+    start = 0
+    if n_blocks >= 2 and scale != 0.0:
+        start = n_blocks * size
+        ends_w, block_w = _weights(r, scale)
+        dev = np.subtract(x[:start].reshape(n_blocks, size), shift)
+        ends = np.matmul(dev, ends_w)
+        if r**size >= _NEGLIGIBLE:  # the recursion on the ends, as _recur_into(ends, ends, r^L)
+            rl, e = r**size, 0.0
+            ends = np.array([0.0 + (e := rl * e + 1.0 * (v - 0.0)) for v in ends.tolist()])
+        if n_blocks > 1:
+            dev[1:, 0] += (r / scale) * ends[:-1]
+        np.matmul(dev, block_w, out=out[:start].reshape(n_blocks, size))
+        if shift:
+            out[:start] += shift
+        acc = float(ends[-1])
+    if start < n:  # the plain loop of _recur_into, as one list (acc is carried along)
+        out[start:] = [shift + (acc := r * acc + scale * (v - shift))
+                       for v in x[start:].tolist()]
 
 
 def linear_recurrence(u: FloatArray, r: float) -> FloatArray:
@@ -260,11 +298,23 @@ def average_of(
     out = prices if overwrite else None
     if seed == "average":
         # Seed = mean of the first N values (taken from the accurate window mean).
-        first_mean = float(window_mean(prices[:period], period)[-1])
+        first_mean = _first_mean(prices, period)
         return recursive_average(prices, alpha, period - 1, first_mean, out)
     out = recursive_average(prices, alpha, 0, float(prices[0]), out)
     out[: period - 1] = np.nan
     return out
+
+
+def _first_mean(prices: FloatArray, period: int) -> float:
+    """The mean of the first ``period`` prices, as ``window_mean`` gives it for one window.
+
+    Its short path's arithmetic without its layers (a recursive average pays this
+    on every call): the deviations from the middle price, summed, divided by N,
+    added back to that price.
+    """
+    shift = prices[period // 2]
+    total = np.add.reduce(prices[:period] - shift)
+    return float(shift + total / float(period))
 
 
 _average = skip_gaps(1)(average_of)

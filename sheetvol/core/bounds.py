@@ -93,6 +93,11 @@ class Bound:
 
     def holds(self, value: npt.ArrayLike) -> Any:
         """True where ``value`` is a finite number in the range (elementwise for arrays)."""
+        if type(value) in _SCALARS:  # one option value: plain Python, no numpy calls
+            try:
+                return self._holds_one(float(value))  # type: ignore[arg-type]
+            except OverflowError:  # an int too large for a float: the array way refuses it
+                pass
         x = np.asarray(value, dtype=float)
         ok = np.isfinite(x)
         with np.errstate(invalid="ignore"):
@@ -103,6 +108,14 @@ class Bound:
             if self.high is not None:
                 ok &= x <= self.high
         return ok
+
+    def _holds_one(self, x: float) -> bool:
+        # The same tests as the array path, in the same order, on one float.
+        if not math.isfinite(x) or (self.whole and not x.is_integer()):
+            return False
+        if self.low is not None and (x <= self.low if self.low_open else x < self.low):
+            return False
+        return self.high is None or x <= self.high
 
     def words(self) -> str:
         """The range in plain words, as messages and the function reference give it."""
@@ -117,6 +130,10 @@ class Bound:
         if high is not None:
             return f"{noun} up to {_show(high)}"
         return noun
+
+
+# Option values checked without numpy (bool is not here: it goes the array way, as before).
+_SCALARS = frozenset({int, float, np.float64, np.int64})
 
 
 def _show(x: float) -> str:
@@ -203,6 +220,8 @@ def check(name: str, value: Any, bound: Bound, *, blank_ok: bool = False) -> Any
     """
     x = np.asarray(value, dtype=float) if not isinstance(value, float) else value
     ok = bound.holds(x)
+    if ok is True:  # one value in range (np.all of a plain bool costs more than the check)
+        return value
     if blank_ok:
         ok = ok | np.isnan(x)
     if np.all(ok):
@@ -247,10 +266,10 @@ def check_high_low(high: npt.ArrayLike, low: npt.ArrayLike,
     lo = np.asarray(low, dtype=float)
     if h.shape != lo.shape:
         return  # the length check of the kernel itself names the columns
+    wrong = h < lo  # False where either is NaN (a comparison with NaN does not warn)
+    if not wrong.any():  # the usual case: one comparison of the whole columns
+        return
     with np.errstate(invalid="ignore"):
-        wrong = h < lo  # False where either is NaN
-        if not wrong.any():  # the usual case: one comparison of the whole columns
-            return
         wrong &= np.isfinite(h) & np.isfinite(lo)
         for other in others:
             o = np.asarray(other, dtype=float)
@@ -291,9 +310,9 @@ def check_positive_prices(why: str, **prices: npt.ArrayLike) -> None:
     """
     for name, p in prices.items():
         a = np.asarray(p, dtype=float)
+        if not a.size or a.min() > 0:  # a NaN makes min() NaN (quietly): look closer then
+            continue
         with np.errstate(invalid="ignore"):
-            if not a.size or a.min() > 0:  # a NaN makes min() NaN: look closer then
-                continue
             bad = np.flatnonzero(np.ravel((a <= 0) & np.isfinite(a)))
         if bad.size:
             i = int(bad[0])

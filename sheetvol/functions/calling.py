@@ -97,11 +97,18 @@ def call_worksheet(
     96.0
     """
     try:
-        func, variant = variant_of(name)
+        func, variant, wname, params = _NAMES[name]
     except KeyError:
-        raise ArgumentError(f"{name.strip().upper()}: no sheetvol function by that name") from None
-    wname = worksheet_name(func, variant)
-    params = variant_params(func, variant)
+        try:
+            func, variant = variant_of(name)
+        except KeyError:
+            raise ArgumentError(
+                f"{name.strip().upper()}: no sheetvol function by that name") from None
+        wname = worksheet_name(func, variant)
+        params = variant_params(func, variant)
+        if len(_NAMES) >= _NAMES_SIZE:
+            _NAMES.clear()
+        _NAMES[name] = func, variant, wname, params
     args = list(args)
     if len(args) > len(params):
         raise ArgumentError(f"{wname}: takes at most {len(params)} arguments, got {len(args)}")
@@ -112,6 +119,11 @@ def call_worksheet(
         return _call_series(func, variant, wname, args, date1904, decimal_comma)
     except ArgumentError as exc:
         raise ArgumentError(_rename(str(exc), func.name, wname)) from None
+
+
+# Names as typed, with what they name: a filled-down column repeats one name on every cell.
+_NAMES: dict[str, tuple[Function, Variant, str, tuple[Param, ...]]] = {}
+_NAMES_SIZE = 1024
 
 
 def _rename(message: str, base: str, wname: str) -> str:
@@ -206,8 +218,8 @@ def _call_series(
         date_arg, dates_arg, args = args[0], args[1], args[2:]
     options: dict[str, Any] = {}
     raw: dict[str, Any] = {}
-    for p, a in zip(func.params, args, strict=True):
-        if p.is_column:
+    for p, column, a in zip(func.params, _column_flags(func), args, strict=True):
+        if column:
             # An empty one-cell range arrives as nothing on some paths, so nothing is read
             # as that one blank cell everywhere: a _LAST over a blank row is blank.
             raw[p.name] = [[None]] if _convert.is_empty_cell(a) else a
@@ -235,6 +247,18 @@ def _call_series(
     return _on(reader, opts, need, date_arg, dates_arg, date1904)
 
 
+_COLUMN_FLAGS: dict[str, tuple[bool, ...]] = {}
+
+
+def _column_flags(func: Function) -> tuple[bool, ...]:
+    """``p.is_column`` for each parameter of ``func``, worked out once per function."""
+    try:
+        return _COLUMN_FLAGS[func.name]
+    except KeyError:
+        flags = _COLUMN_FLAGS[func.name] = tuple(p.is_column for p in func.params)
+        return flags
+
+
 # Options validated by Function.bind, by function and given values: a filled-down column
 # of per-cell calls repeats the same few options on every cell. Values are keyed with
 # their type (1 and True, or 14 and 14.0, are not the same argument to bind).
@@ -245,8 +269,9 @@ _BOUND_SIZE = 1024
 def _bound_options(func: Function, raw: Mapping[str, Any], options: Mapping[str, Any]
                    ) -> dict[str, Any]:
     """``func.bind`` of the options, which also notices missing columns (cached)."""
-    key = (func.name, *((k, a is None) for k, a in raw.items()),
-           *((k, type(v), v) for k, v in options.items()))
+    values = tuple(options.values())  # the names are func's own options, in order
+    key: tuple[Any, ...] = (func.name, tuple(raw), tuple(a is None for a in raw.values()),
+                            tuple(options), values, tuple(map(type, values)))
     try:
         return dict(_BOUND[key])
     except KeyError:
@@ -319,7 +344,7 @@ class _Reader:
         if need <= stop and (dated is None or dated[stop - need:stop].all()):
             # The usual case, no gap among the last bars: exactly those rows are read.
             last = self._rows(stop - need, stop)
-            if last is not None and _usable(last.values(), logged).all():
+            if last is not None and np.count_nonzero(_usable(last.values(), logged)) == need:
                 return last, np.arange(stop - need, stop)
         parts: dict[str, list[FloatArray]] = {k: [] for k in self.raw}
         seen, start, size = 0, stop, max(2 * need, 64)
@@ -367,8 +392,7 @@ def _usable(columns: Any, positive: bool = False) -> np.ndarray:
     for v in columns:
         good = np.isfinite(v)
         if positive:
-            with np.errstate(invalid="ignore"):
-                good &= v > 0
+            good &= v > 0  # a comparison with NaN is False and does not warn
         ok = good if ok is None else ok & good
     assert ok is not None
     return ok
@@ -378,6 +402,8 @@ def _check_high_low(wname: str, columns: Mapping[str, FloatArray],
                     rows: np.ndarray | None = None) -> None:
     """Refuse a usable bar whose high is below its low: the columns are likely swapped."""
     if "high" not in columns or "low" not in columns:
+        return
+    if not (columns["high"] < columns["low"]).any():  # the usual case (NaN compares False)
         return
     series = [v for k, v in columns.items() if k != "dates"]
     with np.errstate(invalid="ignore"):
@@ -390,12 +416,20 @@ def _check_high_low(wname: str, columns: Mapping[str, FloatArray],
 
 
 def _option(p: Param, value: Any, wname: str, date1904: bool) -> Any:
+    if value is None or (p.kind != "date" and (type(value) in _PLAIN_OPTIONS or (
+            type(value) is int and value not in _convert.COM_ERRORS))):
+        return value  # what the general steps below give these (per-cell calls: every cell)
     v = _convert.single(value, func=wname, param=p.name)
     if type(v) is int and v in _convert.COM_ERRORS:  # an error cell, as COM passes it
         raise ArgumentError(f"{wname}: {p.name} is an error cell ({_convert.com_error_name(v)})")
     if p.kind == "date" and not cells.is_blank(v):
         return _convert.day_number(v, func=wname, param=p.name, date1904=date1904)
     return v
+
+
+# Option values that are one cell already and cannot be error cells (those come as ints,
+# which are let through above only outside the range of error codes).
+_PLAIN_OPTIONS = frozenset({float, str})
 
 
 def _same_height(wname: str, heights: Mapping[str, int]) -> None:
@@ -435,6 +469,8 @@ def _on(
             f"{wname}: dates has {len(days)} rows but the price ranges have {n}; "
             "give ranges covering the same rows"
         )
+    if _in_order(days):  # the usual layout: the rows are their own order
+        return _on_in_order(reader, opts, need, days, target)
     dated = np.isfinite(days)
     dated_rows = np.flatnonzero(dated)
     ascending = bool(np.all(np.diff(days[dated_rows]) > 0))
@@ -465,6 +501,39 @@ def _on(
             if len(ok) >= need:
                 rows = rows[ok[-need]:]
         part = {k: v[rows] for k, v in whole.items()}, rows
+    columns, rows = part
+    _check_high_low(wname, columns, rows)
+    usable = np.flatnonzero(_usable(columns.values()))
+    if usable.size == 0:
+        return None
+    out = _compute(func, wname, columns, opts, rows)
+    return _convert.to_cell(out[usable[-1]])
+
+
+def _in_order(days: FloatArray) -> bool:
+    """Every row dated, oldest first, each date once (a NaN step fails the test)."""
+    return (len(days) > 0 and math.isfinite(days[0]) and math.isfinite(days[-1])
+            and bool((np.diff(days) > 0).all()))
+
+
+def _on_in_order(reader: _Reader, opts: dict, need: int | None, days: FloatArray,
+                 target: float) -> Result:
+    """:func:`_on` when every row is dated in ascending order (the same steps, unmasked)."""
+    func, wname = reader.func, reader.wname
+    pos = int(np.searchsorted(days, target, side="right")) - 1
+    if pos < 0:
+        raise ArgumentError(f"{wname}: no bar on or before {_show_day(target)}; "
+                            f"the first date is {_show_day(days[0])}")
+    part = reader.tail(pos + 1, need) if need is not None else None
+    if part is None:
+        whole, _ = reader.whole()
+        start = 0
+        if need is not None:  # a window function: its value needs only the last bars
+            ok = np.flatnonzero(_usable((v[: pos + 1] for v in whole.values()),
+                                        func.name in _LOGGED))
+            if len(ok) >= need:
+                start = int(ok[-need])
+        part = {k: v[start: pos + 1] for k, v in whole.items()}, np.arange(start, pos + 1)
     columns, rows = part
     _check_high_low(wname, columns, rows)
     usable = np.flatnonzero(_usable(columns.values()))

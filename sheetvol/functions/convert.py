@@ -548,6 +548,9 @@ def _days_at_once(flat: list[Any], date1904: bool) -> FloatArray | None:
         return out + cells.DATE_1904_OFFSET if date1904 else _fix_1900(out)
     if not all(k is type(None) or issubclass(k, (dt.date, pd.Timestamp)) for k in kinds):
         return None
+    midnight = _midnight_days(flat, kinds)
+    if midnight is not None:  # dates of daily bars: no pandas needed
+        return midnight
     # Any date or datetime type, also pywin32's own datetime (a subclass carrying a UTC
     # time zone): pandas reads them all; the wall-clock time is kept below.
     try:
@@ -562,6 +565,35 @@ def _days_at_once(flat: list[Any], date1904: bool) -> FloatArray | None:
     days = (micros - _EPOCH_US) / _US_PER_DAY
     days[stamps.isna()] = math.nan
     return days
+
+
+_MIDNIGHT = dt.time()
+_PANDAS_TIMES = (pd.Timestamp, type(pd.NaT))
+_EPOCH_ORDINAL = cells.EPOCH_1900.toordinal()
+
+
+def _midnight_days(flat: list[Any], kinds: set[type]) -> FloatArray | None:
+    """Day numbers of dates, or of datetimes that all fall on midnight; None otherwise.
+
+    Daily bars carry no time of day, so their day number is the wall-clock date's
+    ordinal less the epoch's, the same whole number the general path reaches through
+    microseconds (any time zone is left aside there too). Blanks (None) give NaN.
+    """
+    dated = kinds - {type(None)}
+    if not dated or any(issubclass(k, _PANDAS_TIMES) for k in dated):
+        return None  # pandas' own (NaT is a datetime too, with no date in it): pandas reads them
+    if not all(issubclass(k, dt.datetime) for k in dated) and dated != {dt.date}:
+        return None  # dates mixed with datetimes: the general path
+    present = [v for v in flat if v is not None] if type(None) in kinds else flat
+    if dt.date not in dated and set(map(dt.datetime.time, present)) != {_MIDNIGHT}:
+        return None  # a time of day: the general path
+    days = np.fromiter(map(dt.date.toordinal, present), np.float64, len(present))
+    days -= _EPOCH_ORDINAL
+    if len(present) == len(flat):
+        return days
+    out = np.full(len(flat), math.nan)
+    out[[i for i, v in enumerate(flat) if v is not None]] = days
+    return out
 
 
 def _read_days(

@@ -20,6 +20,7 @@ and not written by hand:
 from __future__ import annotations
 
 import importlib
+import sys
 from collections.abc import Callable, Iterator, Mapping
 from dataclasses import dataclass
 from typing import Any, Literal
@@ -149,7 +150,10 @@ class Function:
 
     def resolve_kernel(self) -> Callable[..., Any]:
         module, _, attr = self.kernel.partition(":")
-        return getattr(importlib.import_module(module), attr)
+        # A module already imported is taken as it is (per-cell calls ask on every cell);
+        # the attribute is looked up each time, so a replaced kernel is seen.
+        loaded = sys.modules.get(module)
+        return getattr(loaded if loaded is not None else importlib.import_module(module), attr)
 
     # -- validation ----------------------------------------------------------
     def bind(self, args: tuple[Any, ...] = (), kwargs: Mapping[str, Any] | None = None) -> dict:
