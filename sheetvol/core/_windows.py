@@ -61,7 +61,10 @@ _MIN_COLUMNS = 1024
 # positions are grouped (see _Rows), and a chunk spans at least _GROUPED_CALL values
 # per position of a group, so the copies by position stay long enough.
 _ROW_LOOP_MAX_PERIOD = 64
-_GROUPED_CALL = 2048
+_GROUPED_CALL = 4096
+# Up to this many groups their running totals are a loop of additions (a call per
+# group); numpy's cumulative sum across the groups costs about a call per block.
+_LOOP_GROUPS = 32
 # A window is recomputed by two passes when its variance is below this share of the
 # terms that cancel in the one-pass formula: the one-pass relative error is a few
 # eps divided by this share, so 1e-3 keeps it near 1e-12 or better.
@@ -204,6 +207,7 @@ class _Work:
 
     def __init__(self, lay: _Rows, period: int, q: int, m: int, level: bool) -> None:
         rows, size, g = lay.rows, lay.size, lay.groups
+        self.size = size
         self.a = a = np.empty((2 * q, rows, m))  # sums: new part's, then old part's
         self.prices = p = np.empty((rows + 1, m + 1))  # position x block; block 0: before
         self.result = r = np.empty((rows, m))  # results in position order
@@ -222,8 +226,16 @@ class _Work:
                           for i in range(1, size)]
             by_group = _split(a, 1, size)  # (sums, i, group, blocks)
             self.totals, self.later = by_group[:, -1, :-1], by_group[:, :, 1:]
-            self.carry = np.empty(self.totals.shape)
-            self.carried = self.carry[:, None]
+            # the running totals of the groups before each group (0 before the first):
+            # a loop over few groups, numpy's cumulative sum across many
+            self.carry = np.zeros((2 * q, g, m))
+            self.carried = self.carry[:, None, 1:]
+            self.carry_steps = [(self.carry[:, k - 1], self.totals[:, k - 1], self.carry[:, k])
+                                for k in range(1, g)] if g <= _LOOP_GROUPS else None
+            # a window's sums take the carries of its two rows' groups: stored row
+            # i * g + k pairs with row (size - 1 - i) * g + (g - 1 - k)
+            self.both = np.empty((q, g, m))
+            self.windows = _split(a[:q], 1, size)
         self.level = None
         if level:
             self.level = lv = np.empty((rows, m))
@@ -232,15 +244,41 @@ class _Work:
             self.gap = np.empty((rows, m))
             self.gap_out = lay.split(self.gap)
 
-    def cumsum(self) -> None:
-        """Running sums down the positions of every sum, in place (see :class:`_Rows`)."""
+    def cumsum(self, fold: bool) -> None:
+        """Running sums down the positions of every sum, in place (see :class:`_Rows`).
+
+        Grouped positions with ``fold``: the sums run within each group only, and the
+        totals of the groups before are left in ``carry`` for :meth:`windows_sums`,
+        which adds them to the window sums, half the values of all four sums.
+        """
         for before, here in self.steps:
             np.add(before, here, out=here)
         if self.carry is not None:
-            # each group's total is its last row; the running totals of the groups
-            # before each one are added to all its rows in one call
-            np.cumsum(self.totals, axis=1, out=self.carry)
-            np.add(self.later, self.carried, out=self.later)
+            if self.carry_steps is None:
+                np.cumsum(self.totals, axis=1, out=self.carry[:, 1:])
+            else:
+                for before, total, here in self.carry_steps:
+                    np.add(before, total, out=here)
+            if not fold:
+                np.add(self.later, self.carried, out=self.later)
+
+    def by_slab(self, sums: FloatArray) -> FloatArray:
+        """The smallest of each group's rows for every block, as (groups, blocks) rows
+        to reduce further (fewer, longer rows for numpy's reduction)."""
+        if self.carry is None:
+            return sums
+        return np.fmin.reduce(self.slabs(sums), axis=0).reshape(-1, sums.shape[1])
+
+    def slabs(self, sums: FloatArray) -> FloatArray:
+        return sums.reshape(self.size, -1)
+
+    def window_sums(self, fold: bool) -> None:
+        """The sums of each window: the new part's and the paired old part's rows."""
+        np.add(self.parts, self.older, out=self.parts)
+        if fold and self.carry is not None:
+            q = len(self.parts)
+            np.add(self.carry[:q], self.carry[q:, ::-1], out=self.both)
+            np.add(self.windows, self.both[:, None], out=self.windows)
 
 
 class _Blocks:
@@ -382,14 +420,19 @@ def _engine(
         elif q == 2:
             np.multiply(a[0], a[0], out=a[1])
             np.multiply(a[2], a[2], out=a[3])
-            # Every term of a window's sum of squares is one of these: their totals bound
-            # it, and the rounding of the variance is a few eps times that bound.
+        fold = mode != "linear"  # the weighted mean takes the old part's sum on its own
+        w.cumsum(fold)
+        if q == 2 and mode != "linear":
+            # Every term of a window's sum of squares is one of these: the totals of the
+            # two parts bound it, and the variance's rounding is a few eps times that.
             bound = np.add(a[1, end_row], a[3, rows - 1])
+            if w.carry is not None:
+                bound += w.carry[1, -1]
+                bound += w.carry[3, -1]
             bound *= _REFINE_RATIO
-        w.cumsum()
         # The window ending at position j: positions 0..j of the new part, and the old
         # part's positions after j, whose running sum is at row rows - 1 - j.
-        np.add(w.parts, w.older, out=w.parts)
+        w.window_sums(fold)
         s1 = a[0]
         out_blocks = [o[b0:b1] for o in by_block]
         if mode == "linear":
@@ -431,7 +474,7 @@ def _engine(
         # Blocks with a window below its bound: a reduction first, rows only for those.
         # fmin skips the NaN of windows whose level is still warming up (a plain min
         # would be NaN and hide the block's other windows).
-        few = np.flatnonzero(np.fmin.reduce(s2, axis=0) < bound)
+        few = np.flatnonzero(np.fmin.reduce(w.by_slab(s2), axis=0) < bound)
         if len(few):
             at_row, at = np.nonzero(s2[:, few] < bound[few])
             flagged.append((b0 + few[at]) * period + lay.position[at_row])
