@@ -196,14 +196,17 @@ def test_all_window_functions_against_oracles(walk, n, period):
     ids=["many-chunks-row-loop", "many-chunks-grouped", "one-chunk-grouped", "default"],
 )
 @pytest.mark.parametrize("period", [2, 9, 70])
+@pytest.mark.parametrize("row_loop_from", [2, 10**6], ids=["row-loop", "numpy-cumsum"])
 def test_chunking_and_layouts_do_not_change_results(walk, monkeypatch, chunk, min_cols,
-                                                    max_period, period):
+                                                    max_period, period, row_loop_from):
     # Same oracle (Python statistics, fsum) whatever the chunk size and the order the
-    # positions are stored in (max_period 1: every period grouped, see _Rows).
+    # positions are stored in (max_period 1: every period grouped, see _Rows), and
+    # whether short periods sum by the row loop or by numpy's cumulative sum.
     monkeypatch.setattr(_windows, "_CHUNK_ELEMENTS", chunk)
     monkeypatch.setattr(_windows, "_MIN_COLUMNS", min_cols)
     monkeypatch.setattr(_windows, "_GROUPED_CALL", min_cols)
     monkeypatch.setattr(_windows, "_ROW_LOOP_MAX_PERIOD", max_period)
+    monkeypatch.setattr(_windows, "_ROW_LOOP_MIN_COLUMNS", row_loop_from)
     x = walk(2003, start=5e6, step=0.01, seed=period)
     want_mean, want_var = oracle_mean_var(x, period)
     mean, var = window_mean_var(x, period)

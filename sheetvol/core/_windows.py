@@ -61,10 +61,10 @@ _MIN_COLUMNS = 1024
 # positions are grouped (see _Rows), and a chunk spans at least _GROUPED_CALL values
 # per position of a group, so the copies by position stay long enough.
 _ROW_LOOP_MAX_PERIOD = 64
+# With fewer blocks than this (short series) the row loop's calls cost more than
+# numpy's cumulative sum down the positions, which is used instead.
+_ROW_LOOP_MIN_COLUMNS = 256
 _GROUPED_CALL = 4096
-# Up to this many groups their running totals are a loop of additions (a call per
-# group); numpy's cumulative sum across the groups costs about a call per block.
-_LOOP_GROUPS = 32
 # A window is recomputed by two passes when its variance is below this share of the
 # terms that cancel in the one-pass formula: the one-pass relative error is a few
 # eps divided by this share, so 1e-3 keeps it near 1e-12 or better.
@@ -163,7 +163,7 @@ def _split(a: np.ndarray, axis: int, outer: int) -> np.ndarray:
     shape = list(a.shape)
     shape[axis : axis + 1] = [outer, shape[axis] // outer]
     view = a.reshape(shape)
-    assert np.may_share_memory(view, a), "a split axis is a view"
+    assert view.base is (a if a.base is None else a.base), "a split axis is a view"
     return view
 
 
@@ -210,7 +210,8 @@ class _Work:
         self.size = size
         self.a = a = np.empty((2 * q, rows, m))  # sums: new part's, then old part's
         self.prices = p = np.empty((rows + 1, m + 1))  # position x block; block 0: before
-        self.result = r = np.empty((rows, m))  # results in position order
+        # results in position order, in the old part's last sum (spent by then)
+        r = a[-1]
         self.blocks_in, self.before, self.padding = p[:period, 1:], p[:period, 0], p[period:]
         self.new_in, self.old_in = lay.stored(p[:rows, 1:]), lay.stored(p[rows:0:-1, :m])
         self.new_out, self.old_out = lay.split(a[0]), lay.split(a[q])
@@ -218,20 +219,24 @@ class _Work:
         self.parts, self.older = a[:q], a[q:, ::-1]
         self.split = [lay.split(a[i]) for i in range(2 * q)]
         self.pad = self.split[1][lay.tail :, -1] if lay.tail < size and q == 2 else None
+        self.carry = None
         if size == 1:
-            self.steps = [(a[:, k - 1], a[:, k]) for k in range(1, rows)]
-            self.carry = None
+            # few blocks (short series): numpy's own cumulative sum, one call
+            wide = m >= _ROW_LOOP_MIN_COLUMNS
+            self.steps = [(a[:, k - 1], a[:, k]) for k in range(1, rows)] if wide else []
+            self.whole = None if wide else a
         else:
+            self.whole = None
             self.steps = [(a[:, (i - 1) * g : i * g], a[:, i * g : (i + 1) * g])
                           for i in range(1, size)]
             by_group = _split(a, 1, size)  # (sums, i, group, blocks)
-            self.totals, self.later = by_group[:, -1, :-1], by_group[:, :, 1:]
-            # the running totals of the groups before each group (0 before the first):
-            # a loop over few groups, numpy's cumulative sum across many
-            self.carry = np.zeros((2 * q, g, m))
+            self.later = by_group[:, :, 1:]
+            self.totals = by_group[:, -1]
+            # the totals of the groups before each group (0 before the first), as one
+            # small matrix product (a numpy call per group would cost more)
+            self.before_groups = np.tri(g, k=-1)
+            self.carry = np.empty((2 * q, g, m))
             self.carried = self.carry[:, None, 1:]
-            self.carry_steps = [(self.carry[:, k - 1], self.totals[:, k - 1], self.carry[:, k])
-                                for k in range(1, g)] if g <= _LOOP_GROUPS else None
             # a window's sums take the carries of its two rows' groups: stored row
             # i * g + k pairs with row (size - 1 - i) * g + (g - 1 - k)
             self.both = np.empty((q, g, m))
@@ -251,14 +256,12 @@ class _Work:
         totals of the groups before are left in ``carry`` for :meth:`windows_sums`,
         which adds them to the window sums, half the values of all four sums.
         """
+        if self.whole is not None:
+            np.cumsum(self.whole, axis=1, out=self.whole)
         for before, here in self.steps:
             np.add(before, here, out=here)
         if self.carry is not None:
-            if self.carry_steps is None:
-                np.cumsum(self.totals, axis=1, out=self.carry[:, 1:])
-            else:
-                for before, total, here in self.carry_steps:
-                    np.add(before, total, out=here)
+            np.matmul(self.before_groups, self.totals, out=self.carry)
             if not fold:
                 np.add(self.later, self.carried, out=self.later)
 
