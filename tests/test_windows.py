@@ -428,3 +428,40 @@ def test_engine_deviation_about_a_level_and_sample_at_chunk_edges(walk, period):
     assert np.max(np.abs(pop[ends] - want) / want) <= tol
     want_smp = want * math.sqrt(period / (period - 1.0))
     assert np.max(np.abs(smp[ends] - want_smp) / want_smp) <= tol
+
+
+def test_a_window_far_from_its_shift_is_recomputed_by_two_passes(monkeypatch):
+    # One odd price at the start of a block of 2000 (the block's shift) among equal ones:
+    # each window holding it has a sum of squares N times its variance, past the refine
+    # ratio, so those windows are recomputed. Hand-worked: one value 0.5 off among N
+    # equal ones has population deviation 0.5 sqrt(N - 1) / N.
+    period = 2000
+    x = np.full(5 * period, 100.0)
+    x[2 * period] = 100.5
+    seen = []
+
+    def spy(x, period, ends, *rest):
+        seen.extend(ends.tolist())
+        return refine(x, period, ends, *rest)
+
+    refine = _windows._refine
+    monkeypatch.setattr(_windows, "_refine", spy)
+    got = window_deviation(x, period)
+    holding = np.arange(2 * period, 3 * period)  # windows ending in that block hold it
+    assert set(holding.tolist()) <= set(seen)
+    want = 0.5 * math.sqrt(period - 1) / period
+    np.testing.assert_allclose(got[holding], want, rtol=1e-14)
+    assert np.all(got[period - 1 : 2 * period] == 0.0) and np.all(got[3 * period :] == 0.0)
+
+
+@pytest.mark.parametrize("ratio", [1e-3, 2.0], ids=["default", "every window refined"])
+def test_refined_windows_match_the_oracles(walk, monkeypatch, ratio):
+    # With every window recomputed by two passes (ratio 2: always below), the results
+    # are the same as the one-pass ones to the engine's accuracy: Python statistics.
+    monkeypatch.setattr(_windows, "_REFINE_RATIO", ratio)
+    x = np.round(walk(3000, start=100.0, step=0.0005, seed=5), 2)  # stale: flat runs
+    _, want_var = oracle_mean_var(x, 30)
+    _, var = window_mean_var(x, 30)
+    ok = want_var > 0
+    assert np.all(var[29:][~ok[29:]] == 0.0)
+    assert np.max(np.abs(var[ok] - want_var[ok]) / want_var[ok]) < 1e-13

@@ -21,11 +21,13 @@ so the variance ``S2/N - (S1/N)^2`` loses almost no digits; nothing accumulates
 along the series, so there is no drift after a million bars. Constant prices give
 exactly zero (every deviation is 0).
 
-When a window is much flatter than its neighbourhood (a flat stretch after a
-jump, two nearly equal prices at period 2), the one-pass variance could lose
-relative digits; such windows are detected from the size of the cancelling terms
-and recomputed by two passes (exactly flat ones in O(n) by counting price
-changes), see ``_refine``.
+As the shift lies inside the window, a window's sum of squares in its frame is at
+most 2N times its sum of squares about its mean (the variance is at least
+range^2 / 2N), so the one-pass formula loses at most a factor 2N. A window whose
+variance is below a thousandth of its sum of squares (which takes a period past 500
+and an odd price at the start of its block) is recomputed by two passes, see
+``_refine``. A flat window holds its shift, so its deviations are all 0 and its
+variance is exactly 0.
 
 The blocks are laid out transposed, one row per position inside a block and one
 column per block, so the cumulative sums are vectorised row additions across all
@@ -66,8 +68,10 @@ _ROW_LOOP_MAX_PERIOD = 64
 _ROW_LOOP_MIN_COLUMNS = 256
 _GROUPED_CALL = 4096
 # A window is recomputed by two passes when its variance is below this share of the
-# terms that cancel in the one-pass formula: the one-pass relative error is a few
-# eps divided by this share, so 1e-3 keeps it near 1e-12 or better.
+# terms that cancel in the one-pass formula (its sum of squares in the block's frame):
+# the one-pass relative error is a few eps divided by this share, so 1e-3 keeps it
+# near 1e-13 or better; with the shift inside every window only periods past 500 can
+# get there (see the module docstring).
 _REFINE_RATIO = 1e-3
 # Short inputs (windows x period up to this many values, e.g. the one window of a
 # per-cell _LAST call) skip the block engine, whose fixed cost is tens of numpy calls,
@@ -477,10 +481,15 @@ def _engine(
             w.pad[...] = np.inf
         # Blocks with a window below its bound: a reduction first, rows only for those.
         # fmin skips the NaN of windows whose level is still warming up (a plain min
-        # would be NaN and hide the block's other windows).
+        # would be NaN and hide the block's other windows). There, each window is held
+        # to its own terms: s2 below the share of s2 + S1^2/N (its sum of squares in the
+        # frame, and more with a level), which the block's bound is at least.
         few = np.flatnonzero(np.fmin.reduce(w.by_slab(s2), axis=0) < bound)
         if len(few):
-            at_row, at = np.nonzero(s2[:, few] < bound[few])
+            low, own = s2[:, few], s1[:, few]  # s1 holds S1^2/N by now
+            own += low
+            own *= _REFINE_RATIO
+            at_row, at = np.nonzero((low < bound[few]) & (low < own))
             flagged.append((b0 + few[at]) * period + lay.position[at_row])
         if mode == "moments":
             np.add(w.split[2], c, out=w.final)
@@ -521,12 +530,12 @@ def _refine(
 ) -> None:
     """Recompute flagged windows by two passes (in place on ``out``).
 
-    Flagged windows are those whose variance is tiny next to the deviations from
-    the block shift (a flat stretch after a jump, two nearly equal prices in a short
-    window). There the one-pass formula could lose relative digits; two passes over
-    just those windows restore full accuracy. For random walks this is a few percent
-    of the windows at period 2 and almost none at longer periods; stale prices give
-    many exactly flat windows, which are recognised in O(n) and need no second pass.
+    Flagged windows are those whose variance is tiny next to their sum of squares in
+    the block's frame (an odd price at the start of a long block, see the module
+    docstring). There the one-pass formula could lose relative digits; two passes
+    over just those windows restore full accuracy. They are rare; should many be
+    flagged (stale, tick-rounded prices with a tiny ratio), the exactly flat ones are
+    recognised in O(n) and need no second pass.
     """
     if len(ends) * period > 4 * len(x):
         # Many flagged windows (stale, tick-rounded prices): the flat ones, those with
@@ -550,7 +559,8 @@ def _refine(
         else:
             dev = w - w[:, -1:]  # exact for nearby prices; 0 on a flat window
             dev -= dev.mean(axis=1, keepdims=True)
-        var = np.einsum("ij,ij->i", dev, dev) / period
+        dev *= dev
+        var = np.add.reduce(dev, axis=1) / period  # pairwise summation along each row
         if mode == "deviation":
             out[t] = np.sqrt(var * (period / (period - 1.0)) if sample else var)
         else:
