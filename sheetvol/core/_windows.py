@@ -57,12 +57,12 @@ from sheetvol.core.bounds import PERIOD, Bound
 # _CHUNK_ELEMENTS windows, and at least _MIN_COLUMNS blocks while each numpy call of
 # the row loop covers one position of every block of the chunk (measured on 1e6 bars,
 # see docs/performance.md).
-_CHUNK_ELEMENTS = 32768
+_CHUNK_ELEMENTS = 49152
 _MIN_COLUMNS = 1024
 # Periods up to this: a row loop, one numpy call per position. Longer periods: the
 # positions are grouped (see _Rows), and a chunk spans at least _GROUPED_CALL values
 # per position of a group, so the copies by position stay long enough.
-_ROW_LOOP_MAX_PERIOD = 64
+_ROW_LOOP_MAX_PERIOD = 24
 # With fewer blocks than this (short series) the row loop's calls cost more than
 # numpy's cumulative sum down the positions, which is used instead.
 _ROW_LOOP_MIN_COLUMNS = 256
