@@ -257,8 +257,8 @@ class _Work:
         """Running sums down the positions of every sum, in place (see :class:`_Rows`).
 
         Grouped positions with ``fold``: the sums run within each group only, and the
-        totals of the groups before are left in ``carry`` for :meth:`windows_sums`,
-        which adds them to the window sums, half the values of all four sums.
+        totals of the groups before are left in ``carry`` for :meth:`window_sums`,
+        which adds them to the two window sums instead of to all four running sums.
         """
         if self.whole is not None:
             np.cumsum(self.whole, axis=1, out=self.whole)
@@ -274,10 +274,8 @@ class _Work:
         to reduce further (fewer, longer rows for numpy's reduction)."""
         if self.carry is None:
             return sums
-        return np.fmin.reduce(self.slabs(sums), axis=0).reshape(-1, sums.shape[1])
-
-    def slabs(self, sums: FloatArray) -> FloatArray:
-        return sums.reshape(self.size, -1)
+        by_row = np.fmin.reduce(sums.reshape(self.size, -1), axis=0)
+        return by_row.reshape(-1, sums.shape[1])
 
     def window_sums(self, fold: bool) -> None:
         """The sums of each window: the new part's and the paired old part's rows."""
