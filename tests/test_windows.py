@@ -193,16 +193,20 @@ def test_all_window_functions_against_oracles(walk, n, period):
 @pytest.mark.parametrize(
     ("chunk", "min_cols", "max_period"),
     [(64, 4, 64), (64, 4, 1), (10_000, 1, 1), (10_000, 1024, 64)],
-    ids=["many-chunks-rows", "many-chunks-contiguous", "one-chunk-contiguous", "default"],
+    ids=["many-chunks-row-loop", "many-chunks-grouped", "one-chunk-grouped", "default"],
 )
 @pytest.mark.parametrize("period", [2, 9, 70])
+@pytest.mark.parametrize("row_loop_from", [2, 10**6], ids=["row-loop", "numpy-cumsum"])
 def test_chunking_and_layouts_do_not_change_results(walk, monkeypatch, chunk, min_cols,
-                                                    max_period, period):
-    # Same oracle (Python statistics, fsum) whatever the chunk size and memory layout.
+                                                    max_period, period, row_loop_from):
+    # Same oracle (Python statistics, fsum) whatever the chunk size and the order the
+    # positions are stored in (max_period 1: every period grouped, see _Rows), and
+    # whether short periods sum by the row loop or by numpy's cumulative sum.
     monkeypatch.setattr(_windows, "_CHUNK_ELEMENTS", chunk)
     monkeypatch.setattr(_windows, "_MIN_COLUMNS", min_cols)
+    monkeypatch.setattr(_windows, "_GROUPED_CALL", min_cols)
     monkeypatch.setattr(_windows, "_ROW_LOOP_MAX_PERIOD", max_period)
-    monkeypatch.setattr(_windows, "_ROW_LOOP_MIN_COLUMNS", 2)
+    monkeypatch.setattr(_windows, "_ROW_LOOP_MIN_COLUMNS", row_loop_from)
     x = walk(2003, start=5e6, step=0.01, seed=period)
     want_mean, want_var = oracle_mean_var(x, period)
     mean, var = window_mean_var(x, period)
@@ -350,3 +354,114 @@ def test_short_path_agrees_with_block_engine(walk, monkeypatch, n, period):
 
 def test_docstring_examples():
     assert doctest.testmod(_windows).failed == 0
+
+
+# -- the engine at its chunk edges, against plain two passes -------------------------------------
+def two_pass_deviation(x, t, period, level=None):
+    """Plain two passes with exact sums (math.fsum) over the window ending at t.
+
+    Taken from the window's last price (exact differences for nearby prices), so the
+    rounding of the mean is on the scale of the moves, not of the price."""
+    window = x[t - period + 1 : t + 1]
+    d = (window - (window[-1] if level is None else level)).tolist()
+    centre = math.fsum(d) / period if level is None else 0.0
+    return math.sqrt(math.fsum([(v - centre) ** 2 for v in d]) / period)
+
+
+def engine_edges(n, period):
+    """Window ends around every block edge of the first, a middle and the last chunks,
+    wherever the engine puts its chunk edges (some multiple of the period): the first
+    windows, the ones on each side of a block edge and the last ones."""
+    ends = {period - 1, period, n - 1, n - 2}
+    for b in range(1, n // period + 1):
+        for t in (b * period - 1, b * period):
+            if period - 1 <= t < n:
+                ends.add(t)
+    return np.array(sorted(ends))
+
+
+@pytest.mark.parametrize("period", [2, 14, 200, 5000])
+@pytest.mark.parametrize(("start", "step"), [(100.0, 0.1), (1e7, 0.01)],
+                         ids=["near 100", "near 1e7"])
+@pytest.mark.parametrize("chunk", ["default", "tiny chunks"])
+def test_engine_deviation_at_chunk_edges_matches_two_passes(walk, monkeypatch, period, start,
+                                                            step, chunk):
+    # Oracle: two passes with math.fsum (and Python's statistics.pstdev on a sample),
+    # on every window next to a block edge, so every chunk edge is among them.
+    if chunk == "tiny chunks":  # many chunks: an edge every few blocks
+        monkeypatch.setattr(_windows, "_CHUNK_ELEMENTS", 3 * period)
+        monkeypatch.setattr(_windows, "_MIN_COLUMNS", 3)
+        monkeypatch.setattr(_windows, "_GROUPED_CALL", 1)
+    n = max(20 * period, 40_000 if chunk == "default" else 0) + period // 2  # a partial last block
+    if period == 5000 and chunk == "default":
+        n = 60 * period + 7  # more than one default chunk at this period
+    x = walk(n, start=start, step=step, seed=period)
+    got = window_deviation(x, period)
+    _, var = window_mean_var(x, period)
+    ends = engine_edges(n, period)
+    if period == 5000:  # two passes of 5000 values per window: a sample of the edges
+        ends = ends[:: max(1, len(ends) // 60)]
+    want = np.array([two_pass_deviation(x, t, period) for t in ends])
+    assert np.isnan(got[: period - 1]).all() and np.isfinite(got[period - 1 :]).all()
+    # 1e-14; at period 2 a window of two close prices keeps what the refine ratio allows
+    # (windows below it are recomputed by two passes, see _REFINE_RATIO): 1e-13.
+    tol = 1e-13 if period == 2 else 1e-14
+    assert np.max(np.abs(got[ends] - want) / want) <= tol
+    # the variance the bands use is the same number, squared
+    np.testing.assert_array_equal(np.sqrt(var[ends]), got[ends])
+    for t in ends[:: max(1, len(ends) // 8)]:
+        exact = statistics.pstdev(x[t - period + 1 : t + 1].tolist())  # exact arithmetic
+        assert got[t] == pytest.approx(exact, rel=tol)
+
+
+@pytest.mark.parametrize("period", [2, 14, 200])
+def test_engine_deviation_about_a_level_and_sample_at_chunk_edges(walk, period):
+    # Oracle: two passes with math.fsum about the given level; sample: times N/(N-1).
+    n = 30 * period + 1024 * period // 7 + 3
+    x = walk(n, start=1e7, step=0.01, seed=period + 1)
+    level = x + 0.03 * np.sin(np.arange(n))
+    ends = engine_edges(n, period)
+    pop = window_deviation(x, period, level)
+    smp = window_deviation(x, period, level, sample=True)
+    want = np.array([two_pass_deviation(x, t, period, level[t]) for t in ends])
+    tol = 1e-13 if period == 2 else 1e-14  # as in the test above
+    assert np.max(np.abs(pop[ends] - want) / want) <= tol
+    want_smp = want * math.sqrt(period / (period - 1.0))
+    assert np.max(np.abs(smp[ends] - want_smp) / want_smp) <= tol
+
+
+def test_a_window_far_from_its_shift_is_recomputed_by_two_passes(monkeypatch):
+    # One odd price at the start of a block of 2000 (the block's shift) among equal ones:
+    # each window holding it has a sum of squares N times its variance, past the refine
+    # ratio, so those windows are recomputed. Hand-worked: one value 0.5 off among N
+    # equal ones has population deviation 0.5 sqrt(N - 1) / N.
+    period = 2000
+    x = np.full(5 * period, 100.0)
+    x[2 * period] = 100.5
+    seen = []
+
+    def spy(x, period, ends, *rest):
+        seen.extend(ends.tolist())
+        return refine(x, period, ends, *rest)
+
+    refine = _windows._refine
+    monkeypatch.setattr(_windows, "_refine", spy)
+    got = window_deviation(x, period)
+    holding = np.arange(2 * period, 3 * period)  # windows ending in that block hold it
+    assert set(holding.tolist()) <= set(seen)
+    want = 0.5 * math.sqrt(period - 1) / period
+    np.testing.assert_allclose(got[holding], want, rtol=1e-14)
+    assert np.all(got[period - 1 : 2 * period] == 0.0) and np.all(got[3 * period :] == 0.0)
+
+
+@pytest.mark.parametrize("ratio", [1e-3, 2.0], ids=["default", "every window refined"])
+def test_refined_windows_match_the_oracles(walk, monkeypatch, ratio):
+    # With every window recomputed by two passes (ratio 2: always below), the results
+    # are the same as the one-pass ones to the engine's accuracy: Python statistics.
+    monkeypatch.setattr(_windows, "_REFINE_RATIO", ratio)
+    x = np.round(walk(3000, start=100.0, step=0.0005, seed=5), 2)  # stale: flat runs
+    _, want_var = oracle_mean_var(x, 30)
+    _, var = window_mean_var(x, 30)
+    ok = want_var > 0
+    assert np.all(var[29:][~ok[29:]] == 0.0)
+    assert np.max(np.abs(var[ok] - want_var[ok]) / want_var[ok]) < 1e-13

@@ -8,29 +8,36 @@ are large and the moves small. The obvious accurate method (two passes over
 every window) costs O(n * period).
 
 What we do instead (block-local shifts): the series is cut into blocks of
-exactly ``period`` bars, so the window ending in block ``b`` covers a suffix
-of block ``b-1`` and a prefix of block ``b``. Each block gets its own shift
-``c_b`` (one of its own prices), and only the deviations ``y = x - c_b`` are
-summed, with cumulative sums that never run over more than one block. The
-part of a window taken from block ``b-1`` is moved to the shift of block ``b``
-with the exact identity ``sum(y + d) = Y1 + k d`` and
-``sum((y + d)^2) = Y2 + 2 d Y1 + k d^2`` (``d = c_{b-1} - c_b``, ``k`` bars).
-Deviations are small, so the variance ``S2/N - (S1/N)^2`` loses almost no
-digits, and nothing accumulates along the series, so there is no drift after a
-million bars. Constant prices give exactly zero (every deviation is 0).
+exactly ``period`` bars, so the window ending at position ``j`` of block ``b``
+covers positions ``0..j`` of block ``b`` (the new part) and positions after
+``j`` of block ``b-1`` (the old part). Each block gets its own shift ``c_b``,
+its first price, which lies inside every window that ends in the block; both
+parts are taken as deviations ``y = x - c_b`` from it, straight from the prices
+(exact by Sterbenz's lemma for prices within a factor of two of each other). The new part is summed
+forwards and the old part backwards, with cumulative sums that never run over
+more than one block, so a window's sums of ``y`` and ``y^2`` are one running sum
+of each part, added. The deviations are no larger than the window's own range,
+so the variance ``S2/N - (S1/N)^2`` loses almost no digits; nothing accumulates
+along the series, so there is no drift after a million bars. Constant prices give
+exactly zero (every deviation is 0).
 
-When a window is much flatter than its neighbourhood (a flat stretch after a
-jump, two nearly equal prices at period 2), the one-pass variance could lose
-relative digits; such windows are detected from the size of the cancelling terms
-and recomputed by two passes (exactly flat ones in O(n) by counting price
-changes), see ``_refine``.
+As the shift lies inside the window, a window's sum of squares in its frame is at
+most 2N times its sum of squares about its mean (the variance is at least
+range^2 / 2N), so the one-pass formula loses at most a factor 2N. A window whose
+variance is below a thousandth of its sum of squares (which takes a period past 500
+and an odd price at the start of its block) is recomputed by two passes, see
+``_refine``. A flat window holds its shift, so its deviations are all 0 and its
+variance is exactly 0.
 
 The blocks are laid out transposed, one row per position inside a block and one
 column per block, so the cumulative sums are vectorised row additions across all
 blocks instead of a sequential scan (several times faster in numpy); long periods
-group the rows so the number of numpy calls grows only like sqrt(period). The
-work runs over chunks of blocks small enough to stay in the CPU cache, and the
-cost per bar does not grow with the period.
+store the positions grouped (see ``_Rows``), so the number of numpy calls grows
+only like sqrt(period). Each sum (the deviations and their squares, of each part)
+is one contiguous array, so the steps between the sums are single passes. The
+work runs over chunks of blocks small enough to stay in the CPU cache, with the
+buffers and their views made once, and the cost per bar does not grow with the
+period.
 """
 
 from __future__ import annotations
@@ -38,7 +45,7 @@ from __future__ import annotations
 import math
 import operator
 from collections.abc import Iterable
-from typing import Any, Literal
+from typing import Any
 
 import numpy as np
 
@@ -46,22 +53,25 @@ from sheetvol.core._gaps import as_series
 from sheetvol.core._types import FloatArray
 from sheetvol.core.bounds import PERIOD, Bound
 
-# Work is done on chunks of blocks so the temporaries stay in the CPU cache; a chunk
-# spans at least _MIN_COLUMNS blocks so the per-row numpy calls stay cheap, and about
-# _CHUNK_ELEMENTS values otherwise (measured on 1e6 bars, see docs/performance.md).
-_CHUNK_ELEMENTS = 32768
+# Work is done on chunks of blocks so the buffers stay in the CPU cache: about
+# _CHUNK_ELEMENTS windows, and at least _MIN_COLUMNS blocks while each numpy call of
+# the row loop covers one position of every block of the chunk (measured on 1e6 bars,
+# see docs/performance.md).
+_CHUNK_ELEMENTS = 49152
 _MIN_COLUMNS = 1024
-# With fewer blocks than this (short series), the row loop costs more than numpy's own
-# cumulative sum down each block, which is then run on blocks stored contiguously.
+# Periods up to this: a row loop, one numpy call per position. Longer periods: the
+# positions are grouped (see _Rows), and a chunk spans at least _GROUPED_CALL values
+# per position of a group, so the copies by position stay long enough.
+_ROW_LOOP_MAX_PERIOD = 24
+# With fewer blocks than this (short series) the row loop's calls cost more than
+# numpy's cumulative sum down the positions, which is used instead.
 _ROW_LOOP_MIN_COLUMNS = 256
-_ROW_LOOP_MAX_PERIOD = 64
-# Longer periods: rows are grouped (see _cumsum_rows); each call covers about this many
-# values. _GROUPED_ROWS False falls back to numpy's cumulative sum on contiguous blocks.
-_GROUPED_CALL = 2048
-_GROUPED_ROWS = True
+_GROUPED_CALL = 4096
 # A window is recomputed by two passes when its variance is below this share of the
-# terms that cancel in the one-pass formula: the one-pass relative error is a few
-# eps divided by this share, so 1e-3 keeps it near 1e-12 or better.
+# terms that cancel in the one-pass formula (its sum of squares in the block's frame):
+# the one-pass relative error is a few eps divided by this share, so 1e-3 keeps it
+# near 1e-13 or better; with the shift inside every window only periods past 500 can
+# get there (see the module docstring).
 _REFINE_RATIO = 1e-3
 # Short inputs (windows x period up to this many values, e.g. the one window of a
 # per-cell _LAST call) skip the block engine, whose fixed cost is tens of numpy calls,
@@ -158,73 +168,152 @@ def check_choice(value: Any, name: str, allowed: Iterable[str]) -> str:
 
 
 # -- the block engine ------------------------------------------------------------------
-def _cumsum_rows(a: FloatArray) -> FloatArray:
-    """Cumulative sums down each column (one column per block), in place.
+def _split(a: np.ndarray, axis: int, outer: int) -> np.ndarray:
+    """View of ``a`` with ``axis`` split into (outer, len // outer).
 
-    Short blocks: one numpy call per row. Long blocks: rows are grouped by about
-    sqrt(period); sums run within all groups at once, then each group gets the
-    total of the groups before it, so the calls number about 2 sqrt(period).
+    Splitting one axis never needs a copy, whatever the strides; the check is cheap.
     """
-    rows = a.shape[0]
-    if not a.flags.c_contiguous:
-        return np.cumsum(a, axis=0, out=a)
-    if rows <= _ROW_LOOP_MAX_PERIOD:
-        for j in range(1, rows):
-            np.add(a[j - 1], a[j], out=a[j])
-        return a
-    size = math.isqrt(rows)
-    groups = rows // size
-    main = groups * size
-    grouped = a[:main].reshape(groups, size, a.shape[1])
-    for r in range(1, size):
-        np.add(grouped[:, r - 1], grouped[:, r], out=grouped[:, r])
-    for g in range(1, groups):
-        grouped[g] += grouped[g - 1, -1]
-    for j in range(main, rows):
-        np.add(a[j - 1], a[j], out=a[j])
-    return a
+    shape = list(a.shape)
+    shape[axis : axis + 1] = [outer, shape[axis] // outer]
+    view = a.reshape(shape)
+    assert view.base is (a if a.base is None else a.base), "a split axis is a view"
+    return view
 
 
-def _older(prefix: FloatArray) -> FloatArray:
-    """Sum over rows j+1..N-1 of the previous block, for each row j of blocks 1..c."""
-    return prefix[-1, :-1] - prefix[:, :-1]
+class _Rows:
+    """The positions of a block, stored in the order the cumulative sums want them.
 
-
-class _Grid:
-    """A series viewed as blocks of ``period`` bars, (position in block, block).
-
-    Whole blocks are a view of the input (no copy); only a last, partial block is
-    copied and padded with ``fill``.
+    Short blocks: position j is row j, and the sums add row j - 1 to row j (one numpy
+    call per row, each across every block of the chunk). Long blocks: positions are
+    grouped, ``size`` to a group and ``groups`` groups, padded to ``rows`` =
+    size x groups; position r = k * size + i (group k) is stored at row i * groups + k.
+    The sums within all groups are then ``size - 1`` additions of one contiguous slab
+    of rows to the next, and the groups get the running totals of the groups before
+    them in one more call: about sqrt(period) numpy calls, each over contiguous rows.
     """
+
+    def __init__(self, period: int) -> None:
+        size = 1 if period <= _ROW_LOOP_MAX_PERIOD else math.isqrt(period)
+        groups = -(-period // size)
+        self.size, self.groups, self.rows = size, groups, size * groups
+        self.tail = period - (groups - 1) * size  # positions in the last group (1..size)
+        # the position kept at each storage row (rows from ``period`` on: padding)
+        self.position = np.arange(self.rows).reshape(groups, size).T.ravel()
+
+    def stored(self, logical: np.ndarray) -> np.ndarray:
+        """A view of rows in position order as (i, group, ...): the storage order."""
+        return _split(logical, 0, self.groups).swapaxes(0, 1)
+
+    def split(self, stored: np.ndarray) -> np.ndarray:
+        """Rows in storage order as (i, group, ...), to pair with :meth:`stored` views."""
+        return _split(stored, 0, self.size)
+
+
+class _Work:
+    """The buffers of chunks of ``m`` blocks and the views every step uses.
+
+    Made once per chunk size (a view costs about as much as a numpy call on a few
+    thousand values, and a chunk takes dozens), and reused by every chunk of that
+    size: fresh temporaries would each be paged in again (the allocator hands their
+    memory back between chunks).
+    """
+
+    def __init__(self, lay: _Rows, period: int, q: int, m: int, level: bool) -> None:
+        rows, size, g = lay.rows, lay.size, lay.groups
+        self.size = size
+        self.a = a = np.empty((2 * q, rows, m))  # sums: new part's, then old part's
+        self.prices = p = np.empty((rows + 1, m + 1))  # position x block; block 0: before
+        # results in position order, in the old part's last sum (spent by then)
+        r = a[-1]
+        self.blocks_in, self.before, self.padding = p[:period, 1:], p[:period, 0], p[period:]
+        self.new_in, self.old_in = lay.stored(p[:rows, 1:]), lay.stored(p[rows:0:-1, :m])
+        self.new_out, self.old_out = lay.split(a[0]), lay.split(a[q])
+        self.final, self.blocks_out = lay.stored(r), r[:period].T
+        self.parts, self.older = a[:q], a[q:, ::-1]
+        self.split = [lay.split(a[i]) for i in range(2 * q)]
+        self.pad = self.split[1][lay.tail :, -1] if lay.tail < size and q == 2 else None
+        self.carry = None
+        if size == 1:
+            # few blocks (short series): numpy's own cumulative sum, one call
+            wide = m >= _ROW_LOOP_MIN_COLUMNS
+            self.steps = [(a[:, k - 1], a[:, k]) for k in range(1, rows)] if wide else []
+            self.whole = None if wide else a
+        else:
+            self.whole = None
+            self.steps = [(a[:, (i - 1) * g : i * g], a[:, i * g : (i + 1) * g])
+                          for i in range(1, size)]
+            by_group = _split(a, 1, size)  # (sums, i, group, blocks)
+            self.later = by_group[:, :, 1:]
+            self.totals = by_group[:, -1]
+            # the totals of the groups before each group (0 before the first), as one
+            # small matrix product (a numpy call per group would cost more)
+            self.before_groups = np.tri(g, k=-1)
+            self.carry = np.empty((2 * q, g, m))
+            self.carried = self.carry[:, None, 1:]
+            # a window's sums take the carries of its two rows' groups: stored row
+            # i * g + k pairs with row (size - 1 - i) * g + (g - 1 - k)
+            self.both = np.empty((q, g, m))
+            self.windows = _split(a[:q], 1, size)
+        self.level = None
+        if level:
+            self.level = lv = np.empty((rows, m))
+            self.level_in, self.level_pad = lv[:period], lv[period:]
+            self.level_rows = lay.stored(lv)
+            self.gap = np.empty((rows, m))
+            self.gap_out = lay.split(self.gap)
+
+    def cumsum(self, fold: bool) -> None:
+        """Running sums down the positions of every sum, in place (see :class:`_Rows`).
+
+        Grouped positions with ``fold``: the sums run within each group only, and the
+        totals of the groups before are left in ``carry`` for :meth:`window_sums`,
+        which adds them to the two window sums instead of to all four running sums.
+        """
+        if self.whole is not None:
+            np.cumsum(self.whole, axis=1, out=self.whole)
+        for before, here in self.steps:
+            np.add(before, here, out=here)
+        if self.carry is not None:
+            np.matmul(self.before_groups, self.totals, out=self.carry)
+            if not fold:
+                np.add(self.later, self.carried, out=self.later)
+
+    def by_slab(self, sums: FloatArray) -> FloatArray:
+        """The smallest of each group's rows for every block, as (groups, blocks) rows
+        to reduce further (fewer, longer rows for numpy's reduction)."""
+        if self.carry is None:
+            return sums
+        by_row = np.fmin.reduce(sums.reshape(self.size, -1), axis=0)
+        return by_row.reshape(-1, sums.shape[1])
+
+    def window_sums(self, fold: bool) -> None:
+        """The sums of each window: the new part's and the paired old part's rows."""
+        np.add(self.parts, self.older, out=self.parts)
+        if fold and self.carry is not None:
+            q = len(self.parts)
+            np.add(self.carry[:q], self.carry[q:, ::-1], out=self.both)
+            np.add(self.windows, self.both[:, None], out=self.windows)
+
+
+class _Blocks:
+    """A series as blocks of ``period`` bars, one per row; a partial last block is
+    copied and padded with ``fill`` (padding feeds only rows that are cut off again)."""
 
     def __init__(self, values: FloatArray, period: int, fill: float) -> None:
         n = len(values)
         self.whole = n // period
-        self.n_blocks = -(-n // period)
-        self.view = values[: self.whole * period].reshape(self.whole, period).T
+        self.count = -(-n // period)
+        self.view = values[: self.whole * period].reshape(self.whole, period)
         self.last = None
-        if self.n_blocks > self.whole:
-            self.last = np.full(period, fill)
-            self.last[: n - self.whole * period] = values[self.whole * period :]
+        if self.count > self.whole:
+            self.last = np.full((1, period), fill)
+            self.last[0, : n - self.whole * period] = values[self.whole * period :]
 
-    def column(self, b: int) -> FloatArray:
-        # b past the whole blocks is asked for only when the partial last block exists
-        return self.view[:, b] if b < self.whole else self.last  # type: ignore[return-value]
-
-    def put(self, out: FloatArray, b0: int, b1: int, minus: FloatArray | None = None) -> None:
-        """Copy blocks b0..b1-1 into the columns of ``out``, less ``minus`` per column."""
-        top = min(b1, self.whole)
-        if minus is None:
-            if top > b0:
-                out[:, : top - b0] = self.view[:, b0:top]
-            if b1 > self.whole:
-                out[:, -1] = self.last
-            return
-        if top > b0:
-            np.subtract(self.view[:, b0:top], minus[: top - b0], out=out[:, : top - b0])
-        if b1 > self.whole:
-            assert self.last is not None  # blocks past the whole ones: the partial last one
-            np.subtract(self.last, minus[-1], out=out[:, -1])
+    def take(self, b0: int, b1: int) -> FloatArray:
+        """Blocks b0..b1-1, one per row (a view unless the partial last one is among them)."""
+        if b1 <= self.whole or self.last is None:
+            return self.view[b0:b1]
+        return np.concatenate([self.view[b0 : self.whole], self.last])
 
 
 def _small(
@@ -317,135 +406,139 @@ def _engine(
     n, big_n = len(x), float(period)
     if (n - period + 1) * period <= _SMALL_ELEMENTS:
         return _small(x, period, mode, level, sample)
-    gx = _Grid(x, period, x[-1])  # padding only feeds rows that are cut off again
-    n_blocks = gx.n_blocks
-    gl = None if level is None else _Grid(level, period, np.nan)
-    # The shift of each block is one of its own prices: deviations from it are exact
-    # (Sterbenz) for prices of one sign, and 0 for constant prices.
-    shift = np.empty(n_blocks)
-    shift[: gx.whole] = gx.view[period // 2]
-    if gx.last is not None:
-        shift[-1] = gx.last[period // 2]
+    per_bar = 1.0 / big_n  # a product costs less than a quotient (within an ulp of it)
+    bx = _Blocks(x, period, x[-1])
+    n_blocks = bx.count
+    bl = None if level is None else _Blocks(level, period, np.nan)
+    # The shift of each block is its first price, which lies in every window that ends
+    # in the block: deviations from it are exact (Sterbenz) for prices of one sign, 0
+    # for constant prices, and no larger than the window's own range.
+    shift = np.empty(n_blocks + 1)
+    shift[: bx.whole] = bx.view[:, 0]
+    if bx.last is not None:
+        shift[bx.whole] = bx.last[0, 0]
+    shift[-1] = shift[-2]  # past the last block: only ever fills padding
+    lay = _Rows(period)
+    rows = lay.rows
     n_out = {"moments": 2, "frame": 3}.get(mode, 1)
     outs = [np.empty(n_blocks * period) for _ in range(n_out)]
-    grids = [o.reshape(n_blocks, period).T for o in outs]
-    pos = np.arange(period, dtype=np.float64)[:, None]
-    k = (period - 1.0) - pos  # bars of each window that lie in the previous block
-    if period <= _ROW_LOOP_MAX_PERIOD:
-        wide = n_blocks >= _ROW_LOOP_MIN_COLUMNS
-        cols = max(_MIN_COLUMNS if wide else 4, _CHUNK_ELEMENTS // period)
-    else:  # grouped rows: keep each numpy call over a few thousand values
-        wide = _GROUPED_ROWS
-        cols = max(_GROUPED_CALL // math.isqrt(period), _CHUNK_ELEMENTS // period)
+    by_block = [o.reshape(n_blocks, period) for o in outs]
+    q = 1 if mode in ("sum", "mean") else 2  # sums per part: y, then y^2 or y x position
+    least = _MIN_COLUMNS if lay.size == 1 else _GROUPED_CALL // lay.size
+    cols = max(least, _CHUNK_ELEMENTS // period, 1)
     cols = min(n_blocks, cols)
+    at_new = lay.position.astype(np.float64)[:, None]
+    at_old = rows - at_new  # the position the old part keeps at each row
+    from_end = big_n - at_new
+    end_row = int(np.flatnonzero(lay.position == period - 1)[0])
     flagged: list[np.ndarray] = []
-    # Every chunk works in the same few buffers: fresh temporaries of this size would
-    # each be paged in again (the allocator hands their memory back between chunks).
-    order: Literal["C", "F"] = "C" if wide else "F"
-    y_buf = np.empty((period, cols + 1), order=order)
-    y2_buf = np.empty((period, cols + 1), order=order) if mode != "linear" else None
-    work = [np.empty((period, cols), order=order) for _ in range(5)]
+    works: dict[int, _Work] = {}
     for b0 in range(0, n_blocks, cols):
         b1 = min(b0 + cols, n_blocks)
         m = b1 - b0
-        here = slice(b0, b1)
-        # Column 0 is the previous block; before block 0 a dummy of zero deviations.
-        sh = np.empty(m + 1)
-        sh[1:] = shift[here]
-        sh[0] = shift[b0 - 1] if b0 else shift[0]
-        # Wide chunks: one row per position (row loop); narrow: one contiguous block
-        # per column (numpy's cumulative sum); every later step follows this order.
-        y = y_buf if m == cols else np.empty((period, m + 1), order=order)
-        gx.put(y[:, 1:], b0, b1, minus=sh[1:])  # deviations from each block's shift
-        if b0:
-            np.subtract(gx.column(b0 - 1), sh[0], out=y[:, 0])
-        else:
-            y[:, 0] = 0.0
-        d = sh[:-1] - sh[1:]  # moves the older part onto the newer block's shift
-        kd, t1, t2, t3, t4 = (w if m == cols else w[:, :m] for w in work)
-        np.multiply(k, d, out=kd)
+        if m not in works:
+            works[m] = _Work(lay, period, q, m, level is not None)
+        w = works[m]
+        a = w.a
+        c = shift[b0:b1]
+        # Prices by position (rows) and block (columns); column 0 is the block before
+        # the chunk (before block 0: the first shift, so zero deviations). Rows past
+        # the period hold the next block's shift, so they add zeros.
+        np.copyto(w.blocks_in, bx.take(b0, b1).T)
+        np.copyto(w.before, bx.view[b0 - 1] if b0 else c[0])
+        np.copyto(w.padding, shift[b0 : b1 + 1])
+        # The new part: this block's deviations, position j at its row. The old part:
+        # the block before, in this block's frame, backwards (row r holds position
+        # rows - r), so its running sums are the sums over its last positions.
+        np.subtract(w.new_in, c, out=w.new_out)
+        np.subtract(w.old_in, c, out=w.old_out)
         if mode == "linear":
-            pj = _cumsum_rows(y * pos)
-            p1 = _cumsum_rows(y)
-            q1, qj = _older(p1), _older(pj)
-            # Rows 0..j of block b carry weights (N - j) + p, rows j+1..N-1 of block
-            # b-1 carry p - j; the shift change adds d * k(k+1)/2.
-            acc = (big_n - pos) * p1[:, 1:]
-            acc += pj[:, 1:]
-            acc += qj
-            acc -= pos * q1
-            acc += kd * ((k + 1.0) / 2.0)
+            np.multiply(a[0], at_new, out=a[1])
+            np.multiply(a[2], at_old, out=a[3])
+        elif q == 2:
+            np.multiply(a[0], a[0], out=a[1])
+            np.multiply(a[2], a[2], out=a[3])
+        fold = mode != "linear"  # the weighted mean takes the old part's sum on its own
+        w.cumsum(fold)
+        if q == 2 and mode != "linear":
+            # Every term of a window's sum of squares is one of these: the totals of the
+            # two parts bound it, and the variance's rounding is a few eps times that.
+            bound = np.add(a[1, end_row], a[3, rows - 1])
+            if w.carry is not None:
+                bound += w.carry[1, -1]
+                bound += w.carry[3, -1]
+            bound *= _REFINE_RATIO
+        # The window ending at position j: positions 0..j of the new part, and the old
+        # part's positions after j, whose running sum is at row rows - 1 - j.
+        w.window_sums(fold)
+        s1 = a[0]
+        out_blocks = [o[b0:b1] for o in by_block]
+        if mode == "linear":
+            # (N - j) x window sum + sum of position x y - N x the old part's sum
+            drop = np.multiply(w.older[0], big_n, out=a[3])
+            acc = np.multiply(s1, from_end, out=a[2])
+            acc += a[1]
+            acc -= drop
             acc /= big_n * (big_n + 1.0) / 2.0
-            acc += sh[1:]
-            grids[0][:, here] = acc
+            np.add(w.split[2], c, out=w.final)
+            np.copyto(out_blocks[0], w.blocks_out)
             continue
-        y2 = None
-        if mode in ("moments", "frame", "deviation"):
-            y2 = y2_buf if m == cols else np.empty((period, m + 1), order=order)
-            np.multiply(y, y, out=y2)
-        p1 = _cumsum_rows(y)
-        q1 = np.subtract(p1[-1, :-1], p1[:, :-1], out=t1)  # the older part of each window
-        s1 = np.add(p1[:, 1:], q1, out=t2)
-        s1 += kd
         if mode == "sum":
-            s1 += big_n * sh[1:]
-            grids[0][:, here] = s1
+            np.add(w.split[0], big_n * c, out=w.final)
+            np.copyto(out_blocks[0], w.blocks_out)
             continue
-        mean = np.divide(s1, big_n, out=t3)  # the window mean minus the shift
-        if y2 is None:
-            np.add(mean, sh[1:], out=grids[0][:, here])
+        if q == 1:
+            s1 *= per_bar  # the window mean minus the shift
+            np.add(w.split[0], c, out=w.final)
+            np.copyto(out_blocks[0], w.blocks_out)
             continue
-        p2 = _cumsum_rows(y2)
-        # Size of the terms that cancel in s2, per block: block sums of squares, the
-        # cross term bounded by Cauchy-Schwarz (sum|y| <= sqrt(N sum y^2)) and N d^2.
-        # The variance's rounding error is a few eps times this, which only matters
-        # when a window is much flatter than its neighbourhood (see _refine).
-        prev_total = p2[-1, :-1]
-        bound = p2[-1, 1:] + prev_total
-        bound += 2.0 * np.abs(d) * np.sqrt(big_n * prev_total)
-        bound += big_n * d * d
-        bound *= _REFINE_RATIO
-        # s2 = N * population variance in the block's frame, term by term in the
-        # buffers of the terms that are done with.
-        s2 = np.subtract(p2[-1, :-1], p2[:, :-1], out=t4)
-        s2 += p2[:, 1:]
-        np.multiply(q1, 2.0 * d, out=q1)
-        s2 += q1
-        np.multiply(kd, d, out=kd)
-        s2 += kd
+        mean = np.multiply(s1, per_bar, out=a[2])  # the window mean minus the shift
+        s2 = a[1]
         np.multiply(s1, mean, out=s1)
-        s2 -= s1  # minus N * (mean - shift)^2
+        s2 -= s1  # N * population variance: the sum of squares less N (mean - shift)^2
         # Rounding may leave s2 a hair below 0 on a flat window: such windows are below
         # their bound and recomputed by _refine (and their square roots ignored).
-        if mode == "deviation" and gl is not None:
+        if mode == "deviation" and bl is not None and w.level is not None:
             # mean - level in the local frame: (level - shift) is exact nearby.
-            gap = kd
-            gl.put(gap, b0, b1)
-            gap -= sh[1:]
-            np.subtract(mean, gap, out=gap)
+            np.copyto(w.level_in, bl.take(b0, b1).T)
+            w.level_pad[...] = 0.0
+            np.subtract(w.level_rows, c, out=w.gap_out)
+            gap = np.subtract(mean, w.gap, out=w.gap)
             gap *= gap
             gap *= big_n
             s2 += gap
+        if w.pad is not None:  # padding rows are no windows
+            w.pad[...] = np.inf
         # Blocks with a window below its bound: a reduction first, rows only for those.
         # fmin skips the NaN of windows whose level is still warming up (a plain min
-        # would be NaN and hide the block's other windows).
-        few = np.flatnonzero(np.fmin.reduce(s2, axis=0) < bound)
+        # would be NaN and hide the block's other windows). There, each window is held
+        # to its own terms: s2 below the share of s2 + S1^2/N (its sum of squares in the
+        # frame, and more with a level), which the block's bound is at least.
+        few = np.flatnonzero(np.fmin.reduce(w.by_slab(s2), axis=0) < bound)
         if len(few):
-            rows, at = np.nonzero(s2[:, few] < bound[few])
-            flagged.append((b0 + few[at]) * period + rows)
+            low, own = s2[:, few], s1[:, few]  # s1 holds S1^2/N by now
+            own += low
+            own *= _REFINE_RATIO
+            at_row, at = np.nonzero((low < bound[few]) & (low < own))
+            flagged.append((b0 + few[at]) * period + lay.position[at_row])
         if mode == "moments":
-            np.add(mean, sh[1:], out=grids[0][:, here])
-            np.divide(s2, big_n, out=grids[1][:, here])
+            np.add(w.split[2], c, out=w.final)
+            np.copyto(out_blocks[0], w.blocks_out)
+            np.multiply(w.split[1], per_bar, out=w.final)
+            np.copyto(out_blocks[1], w.blocks_out)
         elif mode == "frame":
-            grids[0][:, here] = sh[1:]
-            grids[1][:, here] = mean
-            np.divide(s2, big_n, out=grids[2][:, here])
+            out_blocks[0][:] = c[:, None]
+            np.copyto(w.final, w.split[2])
+            np.copyto(out_blocks[1], w.blocks_out)
+            np.multiply(w.split[1], per_bar, out=w.final)
+            np.copyto(out_blocks[2], w.blocks_out)
         else:
-            s2 /= big_n  # the same roundings as window_mean_var, so callers can mix them
+            s2 *= per_bar  # the same roundings as window_mean_var, so callers can mix them
             if sample:
                 s2 *= big_n / (big_n - 1.0)
             with np.errstate(invalid="ignore"):
-                np.sqrt(s2, out=grids[0][:, here])
+                np.sqrt(w.split[1], out=w.final)
+            np.copyto(out_blocks[0], w.blocks_out)
     for o in outs:
         o[: period - 1] = np.nan
     outs = [o[:n] for o in outs]
@@ -467,12 +560,12 @@ def _refine(
 ) -> None:
     """Recompute flagged windows by two passes (in place on ``out``).
 
-    Flagged windows are those whose variance is tiny next to the deviations from
-    the block shift (a flat stretch after a jump, two nearly equal prices in a short
-    window). There the one-pass formula could lose relative digits; two passes over
-    just those windows restore full accuracy. For random walks this is a few percent
-    of the windows at period 2 and almost none at longer periods; stale prices give
-    many exactly flat windows, which are recognised in O(n) and need no second pass.
+    Flagged windows are those whose variance is tiny next to their sum of squares in
+    the block's frame (an odd price at the start of a long block, see the module
+    docstring). There the one-pass formula could lose relative digits; two passes
+    over just those windows restore full accuracy. They are rare; should many be
+    flagged (stale, tick-rounded prices with a tiny ratio), the exactly flat ones are
+    recognised in O(n) and need no second pass.
     """
     if len(ends) * period > 4 * len(x):
         # Many flagged windows (stale, tick-rounded prices): the flat ones, those with
@@ -496,7 +589,8 @@ def _refine(
         else:
             dev = w - w[:, -1:]  # exact for nearby prices; 0 on a flat window
             dev -= dev.mean(axis=1, keepdims=True)
-        var = np.einsum("ij,ij->i", dev, dev) / period
+        dev *= dev
+        var = np.add.reduce(dev, axis=1) / period  # pairwise summation along each row
         if mode == "deviation":
             out[t] = np.sqrt(var * (period / (period - 1.0)) if sample else var)
         else:
