@@ -10,8 +10,10 @@ from __future__ import annotations
 
 import math
 import re
+from bisect import bisect_right
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
+from itertools import repeat
 
 import numpy as np
 
@@ -268,6 +270,11 @@ class RowEditor:
         self.special = set(self.by_row_points) | set(self.by_row_mods)
         self._blk_lo = self._blk_hi = 0
         self._blk: list[bytes] = []
+        self._blk_arr: np.ndarray = np.empty(0, dtype=object)  # the same, as an array
+        # chunks edited as a whole (plain rows) and row by row: what tests look at
+        self.chunks_whole = self.chunks_by_row = 0
+        self._row_r = pat.row_start + b' r="'
+        self._special = np.array(sorted(self.special), dtype=np.int64)
         self._run_min = min((run.col for run in edits.runs), default=MAX_COL)
         self._last_cell = re.compile(rb"<" + re.escape(pat.prefix) + rb'c r="([A-Z]{1,3})\d')
         self._refresh_ranges()
@@ -366,7 +373,7 @@ class RowEditor:
                 others[o] = "".join(cells).encode()
             blk[rest] = others
         out = blk.tolist()
-        self._blk_lo, self._blk_hi, self._blk = lo, hi, out
+        self._blk_lo, self._blk_hi, self._blk, self._blk_arr = lo, hi, out, blk
         return out
 
     def new_cells(self, r: int) -> dict[int, tuple[str, bool]]:
@@ -428,6 +435,16 @@ class RowEditor:
         blk_lo = blk_hi = 0
         r = 0
         for chunk in chunks:
+            got = self._whole_chunk(chunk, ni)
+            if got is not None:
+                self.chunks_whole += 1
+                piece, ni, r = got
+                if progress is not None and r > self.rows_done:
+                    progress(r - self.rows_done)
+                    self.rows_done = r
+                yield piece
+                continue
+            self.chunks_by_row += 1
             find = chunk.find
             out: list[bytes] = []
             append = out.append
@@ -539,6 +556,143 @@ class RowEditor:
         self.ni = n_need
         if rest:
             yield b"".join(rest)
+
+    def _whole_chunk(self, chunk: bytes, ni: int) -> tuple[bytes, int, int] | None:
+        """The edited chunk made in one go when all its rows are plain, else None.
+
+        Plain rows (what spreadsheet programs and exports write): each starts with
+        ``<row r="N"`` right after the previous ``</row>``, numbers increase, none is
+        a header, a formula to replace or in a checked range, no new row goes between
+        them, and a row that gets new cells has its own cells, each with ``r`` first,
+        all left of the new ones. Such a row gets exactly what the row loop gives it:
+        its ``spans`` hint dropped and the new cells put before ``</row>``; the other
+        rows stay as they are. The tests compare both ways byte for byte.
+
+        Returns (edited chunk, index into the rows needing new cells, last row).
+        """
+        rend = self.pat.row_end
+        n = chunk.count(rend)
+        if not n or chunk.count(self.pat.row_start) != n:
+            return None
+        pieces = chunk.split(rend)  # each one row without its end tag ...
+        rest = pieces.pop()  # ... and what follows the last one
+        head = self._row_r
+        if not all(map(bytes.startswith, pieces, repeat(head))):
+            return None  # (so each piece holds exactly one row start, at its start)
+        a = np.frombuffer(chunk, dtype=np.uint8)
+        size = np.fromiter(map(len, pieces), dtype=np.int64, count=n)
+        offs = np.zeros(n, dtype=np.int64)
+        np.cumsum(size[:-1] + len(rend), out=offs[1:])
+        # the row numbers: up to 7 digits and a quote
+        at = offs + len(head)
+        win = np.take(a, at[:, None] + np.arange(8), mode="clip")
+        digit = (win >= 48) & (win <= 57)
+        k = np.argmin(digit, axis=1)  # the first byte that is not a digit
+        lines = np.arange(n)
+        if not digit[:, 0].all() or digit.all(axis=1).any() or (win[lines, k] != 34).any():
+            return None
+        rows = np.zeros(n, dtype=np.int64)
+        for j in range(7):
+            rows = np.where(j < k, rows * 10 + win[:, j] - 48, rows)
+        if n > 1 and (np.diff(rows) <= 0).any():
+            return None
+        first, last = int(rows[0]), int(rows[-1])
+        if first <= self.watch_to and last >= self.watch_from:
+            return None  # a shared formula may need a new master: the row loop
+        sp = self._special
+        if len(sp) and ((sp >= first) & (sp <= last)).any():
+            return None
+        # columns whose existing cells go (a replaced column, a spill's range): a row
+        # with a cell there goes row by row, so every row is looked at, not only the
+        # rows with new cells
+        lim = self._run_min
+        checked = first <= self.check_to and last >= self.check_from
+        if checked:
+            lim = min([lim] + [c for c, lo, hi in self.ranges if lo <= last and hi >= first])
+        need = self.need
+        nj = bisect_right(need, last, ni)
+        if nj == ni and not checked:  # nothing new in these rows
+            return chunk, ni, last
+        wanted = np.array(need[ni:nj], dtype=np.int64)
+        at_row = np.searchsorted(rows, wanted)
+        present = rows[at_row] == wanted  # (at_row < n: wanted ends at the last row)
+        new = at_row[present]  # the rows that get new cells
+        # rows with new cells that the sheet lacks: made here, put before the next row
+        made: dict[int, list[bytes]] = {}
+        for i, x in zip(at_row[~present].tolist(), wanted[~present].tolist(), strict=True):
+            made.setdefault(i, []).append(self._new_row(x))
+        look = lines if checked else new  # the rows whose last column matters
+        sel = [pieces[i] for i in look.tolist()]
+        p = offs[look]
+        # the end of the row tag (the first ">") and the existing cells' last column
+        gt = np.fromiter(map(bytes.find, sel, repeat(b">")), dtype=np.int64,
+                         count=len(look)) + p
+        if (gt < at[look]).any() or (a[gt - 1] == 47).any():  # no ">", or "/>"
+            return None
+        cr = b"<" + self.pat.prefix + b'c r="'
+        lp = np.fromiter(map(bytes.rfind, sel, repeat(cr)), dtype=np.int64, count=len(look))
+        inner = gt + 1 < p + size[look]
+        has_cell = lp >= 0
+        if (inner & ~has_cell).any():
+            return None  # cells without r: the row loop finds their columns
+        after = np.fromiter(map(bytes.find, sel, repeat(self.pat.cell_start),
+                                (lp + 1).tolist()), dtype=np.int64, count=len(look))
+        if (has_cell & (after >= 0)).any():
+            return None  # a later cell without r (or rich text): the row loop
+        lpos = np.where(has_cell, p + lp + len(cr), 0)
+        let = np.take(a, lpos[:, None] + np.arange(4), mode="clip").astype(np.int64)
+        is_letter = (let >= 65) & (let <= 90)
+        nlet = np.argmin(is_letter, axis=1)
+        if (has_cell & ((nlet == 0) | is_letter.all(axis=1))).any():
+            return None
+        col = np.zeros(len(look), dtype=np.int64)
+        for j in range(3):
+            col = np.where(j < nlet, col * 26 + let[:, j] - 64, col)
+        if (has_cell & (col >= lim)).any():
+            return None  # an existing cell at or right of a new column: the row loop
+        if checked:
+            sel = [pieces[i] for i in new.tolist()]
+            gt = gt[new]
+        p = offs[new]
+        q = at[new] + k[new] + 1  # just after the quote closing r
+        spans = np.all(np.take(a, q[:, None] + np.arange(8), mode="clip")
+                       == np.frombuffer(b' spans="', dtype=np.uint8), axis=1)
+        if not (spans | (a[q] == 62)).all():  # other attributes first: the row loop
+            return None
+        # the new cells' text, block by block
+        tails = np.empty(len(new), dtype=object)
+        rnew = rows[new]
+        i = 0
+        while i < len(new):
+            r0 = int(rnew[i])
+            if not self._blk_lo <= r0 < self._blk_hi:
+                self._block(r0)
+            j = int(np.searchsorted(rnew, self._blk_hi))
+            tails[i:j] = self._blk_arr[rnew[i:j] - self._blk_lo]
+            i = j
+        # drop spans="..." (up to its closing quote) from the rows that get cells
+        cut = np.zeros(len(new), dtype=np.int64)
+        if spans.any():
+            w = np.flatnonzero(spans)
+            close = np.fromiter(map(bytes.find, [sel[i] for i in w.tolist()], repeat(b'"'),
+                                    (q[w] - p[w] + 8).tolist()), dtype=np.int64, count=len(w))
+            if (close < 0).any() or (close + p[w] >= gt[w]).any():
+                return None  # no closing quote inside the tag: the row loop
+            cut[w] = close + 1 - (q[w] - p[w])
+        rel = (q - p).tolist()
+        body = np.empty(n, dtype=object)
+        body[:] = pieces
+        body[new] = [x if c == 0 else x[:s] + x[s + c:]
+                     for x, s, c in zip(sel, rel, cut.tolist(), strict=True)]
+        for i, made_rows in made.items():
+            body[i] = b"".join(made_rows) + body[i]
+        tail_all = np.full(n, b"", dtype=object)
+        tail_all[new] = tails
+        out: list[bytes] = [rend] * (3 * n)
+        out[0::3] = body.tolist()
+        out[1::3] = tail_all.tolist()
+        out.append(rest)
+        return b"".join(out), nj, last
 
     def _active(self, r: int) -> dict[int, bool]:
         """Columns whose existing cells go at row r: col -> True if that is an error."""

@@ -28,6 +28,7 @@ from sheetvol.workbook._safety import check_prolog
 from sheetvol.workbook.errors import CellError, WorkbookError
 
 CHUNK = 1 << 23
+HEAD_READ = 1 << 16
 
 _SHEETDATA = re.compile(rb"<([A-Za-z_][\w.\-]*:)?sheetData(?=[\s>/])[^>]*?(/?)>")
 ATTR_R_ROW = re.compile(rb"""(?:^|\s)r\s*=\s*["'](\d+)["']""")
@@ -192,12 +193,14 @@ class SheetStream:
         self.name = name
         self.chunk = chunk
         buf = b""
+        step = HEAD_READ  # the head is small: no whole chunk inflated just to find it
         while True:
-            data = self._read(chunk)
+            data = self._read(step)
             buf += data
             m = _SHEETDATA.search(buf)
             if m or not data:
                 break
+            step = min(step * 4, chunk)
         check_prolog(buf[:4096], part, name)
         if not m:
             raise WorkbookError(f"{name}: part {part} has no <sheetData>; it is not a worksheet.")
