@@ -242,7 +242,7 @@ class SheetEdits:
 
 _LETTERS = re.compile(rb"[A-Z]{1,3}")
 _DELIM = frozenset(b" \t\r\n>/")
-BLOCK = 1 << 16
+BLOCK = 1 << 12
 
 
 class RowEditor:
@@ -275,6 +275,7 @@ class RowEditor:
         self.chunks_whole = self.chunks_by_row = 0
         self._row_r = pat.row_start + b' r="'
         self._special = np.array(sorted(self.special), dtype=np.int64)
+        self._arrays: dict[int, np.ndarray] = {}  # the runs' numbers as arrays
         self._run_min = min((run.col for run in edits.runs), default=MAX_COL)
         self._last_cell = re.compile(rb"<" + re.escape(pat.prefix) + rb'c r="([A-Z]{1,3})\d')
         self._refresh_ranges()
@@ -311,20 +312,19 @@ class RowEditor:
             return self._blk
         lo, hi = r, r + BLOCK
         p = self.p
-        cols = []  # (run, a, b, number texts of rows a..b-1)
+        cols = []  # (run, a, b, number texts of rows a..b-1, the numbers)
         for run in sorted(self.e.runs, key=lambda x: x.col):
             a, b = max(lo, run.first_row), min(hi, run.last_row + 1)
             if a < b:
-                nums = repr_texts(np.asarray(run.values[a - run.first_row : b - run.first_row],
-                                             dtype=np.float64))
-                cols.append((run, a, b, nums))
+                vals = self._values(run)[a - run.first_row : b - run.first_row]
+                cols.append((run, a, b, repr_texts(vals), vals))
         n = hi - lo
         # rows that take the layout: every column covers them with a number, no text cell
         full = np.full(n, bool(cols))
         some = np.zeros(n, dtype=bool)  # rows with anything new at all
-        for run, a, b, nums in cols:
+        for run, a, b, _, vals in cols:
             has = np.zeros(n, dtype=bool)
-            has[a - lo : b - lo] = np.fromiter(map(bool, nums), dtype=bool, count=b - a)
+            has[a - lo : b - lo] = np.isfinite(vals)  # where repr_texts gave text
             some |= has
             if run.texts:
                 rows = np.fromiter(run.texts, dtype=np.int64, count=len(run.texts)) - lo
@@ -343,7 +343,7 @@ class RowEditor:
             stride = 4 * len(cols) + 1
             pieces: list[str] = [""] * (m * stride)  # every slot is set below
             before = ""
-            for k, (run, a, _, nums) in enumerate(cols):
+            for k, (run, a, _, nums, _) in enumerate(cols):
                 s = f' s="{run.style}"' if run.style else ""
                 pieces[4 * k :: stride] = [f'{before}<{p}c r="{run.letters}'] * m
                 pieces[4 * k + 1 :: stride] = row_texts
@@ -362,7 +362,7 @@ class RowEditor:
             for o, i in enumerate(rest):
                 row = lo + i
                 cells = []
-                for run, a, b, nums in cols:
+                for run, a, b, nums, _ in cols:
                     if not a <= row < b:
                         continue
                     if run.texts and row in run.texts:  # its XML is ready-made
@@ -571,11 +571,11 @@ class RowEditor:
         Returns (edited chunk, index into the rows needing new cells, last row).
         """
         rend = self.pat.row_end
-        n = chunk.count(rend)
-        if not n or chunk.count(self.pat.row_start) != n:
-            return None
         pieces = chunk.split(rend)  # each one row without its end tag ...
         rest = pieces.pop()  # ... and what follows the last one
+        n = len(pieces)
+        if not n or chunk.count(self.pat.row_start) != n:
+            return None
         head = self._row_r
         if not all(map(bytes.startswith, pieces, repeat(head))):
             return None  # (so each piece holds exactly one row start, at its start)
@@ -693,6 +693,13 @@ class RowEditor:
         out[1::3] = tail_all.tolist()
         out.append(rest)
         return b"".join(out), nj, last
+
+    def _values(self, run: ColumnRun) -> np.ndarray:
+        """A run's numbers as an array (made once)."""
+        got = self._arrays.get(id(run))
+        if got is None or len(got) != len(run.values):
+            got = self._arrays[id(run)] = np.asarray(run.values, dtype=np.float64)
+        return got
 
     def _active(self, r: int) -> dict[int, bool]:
         """Columns whose existing cells go at row r: col -> True if that is an error."""
