@@ -94,7 +94,7 @@ def columns(rows: int, seed: int) -> list[NewColumn]:
 def write_both(tmp_path: Path, xml: bytes, cols: list[NewColumn], monkeypatch,
                chunk: int) -> tuple[bytes, bytes, list]:
     src = book(tmp_path / "in.xlsx", xml)
-    monkeypatch.setattr(writer, "SHEET_CHUNK", chunk)
+    monkeypatch.setattr(writer, "CHUNK", chunk)
     editors: list = []
     real = writer.RowEditor
 

@@ -27,7 +27,10 @@ from sheetvol.functions.grid import MAX_COL, MAX_ROW, column_letters, column_num
 from sheetvol.workbook._safety import check_prolog
 from sheetvol.workbook.errors import CellError, WorkbookError
 
-CHUNK = 1 << 23
+# a sheet's XML goes through in chunks of about this many bytes: a chunk and what is
+# made of it stay in the CPU's cache, and the first chunk's inflating and the last
+# one's deflating (which nothing overlaps) are short (measured, docs/performance.md)
+CHUNK = 1 << 20
 HEAD_READ = 1 << 16
 
 _SHEETDATA = re.compile(rb"<([A-Za-z_][\w.\-]*:)?sheetData(?=[\s>/])[^>]*?(/?)>")

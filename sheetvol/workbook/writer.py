@@ -72,6 +72,7 @@ from sheetvol.workbook._sheetparts import (
     set_first_attr,
 )
 from sheetvol.workbook._sheetxml import (
+    CHUNK,
     Patterns,
     SheetStream,
     cell_name,
@@ -105,10 +106,6 @@ from sheetvol.workbook.package import NS_PKG_REL, NS_REL, Package, SheetInfo, Ta
 # default 6 for a part about 20% larger (measured, see docs/performance.md).
 SHEET_LEVEL = 1
 SMALL_LEVEL = 6
-# rows of a rewritten sheet go through in chunks of about this many bytes of XML: small
-# enough that deflating the last chunk (which cannot overlap the row loop) is short,
-# large enough that the cost per chunk stays small (measured, see docs/performance.md)
-SHEET_CHUNK = 1 << 20
 SHEETVOL_PART = "xl/worksheets/sheetvol"
 CT_WORKSHEET = "application/vnd.openxmlformats-officedocument.spreadsheetml.worksheet+xml"
 CT_STYLES = "application/vnd.openxmlformats-officedocument.spreadsheetml.styles+xml"
@@ -655,7 +652,7 @@ class _Job:
                      progress: Callable[[int], None] | None) -> None:
         sheet = next(s for s in self.pkg.sheets if s.part == info.filename)
         with open_part(self.zin, info.filename, self.file) as fh:
-            stream = SheetStream(fh, info.filename, self.file, ahead=True, chunk=SHEET_CHUNK)
+            stream = SheetStream(fh, info.filename, self.file, ahead=True, chunk=CHUNK)
             edits = self._sheet_edits(sheet, stream)
             editor = RowEditor(edits, stream.pat)
             edits.on_change = editor._refresh_ranges
