@@ -617,10 +617,9 @@ class RowEditor:
         at_row = np.searchsorted(rows, wanted)
         present = rows[at_row] == wanted  # (at_row < n: wanted ends at the last row)
         new = at_row[present]  # the rows that get new cells
-        # rows with new cells that the sheet lacks: made here, put before the next row
-        made: dict[int, list[bytes]] = {}
-        for i, x in zip(at_row[~present].tolist(), wanted[~present].tolist(), strict=True):
-            made.setdefault(i, []).append(self._new_row(x))
+        missing = wanted[~present]  # rows with new cells that the sheet lacks
+        if any(x in self.by_row_mods for x in missing.tolist()):
+            return None  # a formula's result in a row the sheet lacks: the row loop
         look = lines if checked else new  # the rows whose last column matters
         sel = [pieces[i] for i in look.tolist()]
         p = offs[look]
@@ -679,6 +678,10 @@ class RowEditor:
             if (close < 0).any() or (close + p[w] >= gt[w]).any():
                 return None  # no closing quote inside the tag: the row loop
             cut[w] = close + 1 - (q[w] - p[w])
+        # the missing rows, made as the row loop makes them, go before the next row
+        made: dict[int, list[bytes]] = {}
+        for i, x in zip(at_row[~present].tolist(), missing.tolist(), strict=True):
+            made.setdefault(i, []).append(self._new_row(x))
         rel = (q - p).tolist()
         body = np.empty(n, dtype=object)
         body[:] = pieces
