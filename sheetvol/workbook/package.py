@@ -524,16 +524,18 @@ class Package:
             cursor = RowCursor(pat, self.path.name, info.part)
             for chunk in stream.body():
                 scan.feed(chunk)
-                # every "<c" starting a cell with r first? (rich text runs such as <color>
-                # also count, and merely send the chunk down the general path)
-                if chunk.count(r_first) == chunk.count(c_any):
-                    # split, not findall: the groups come as three flat lists (no tuple
-                    # per cell), and the other cells of those columns are looked for in
-                    # what the plain ones leave (a cell never holds another, so each lies
-                    # whole between two plain ones; the joint cannot start a tag)
-                    parts = simple.split(chunk)
-                    lts, rws, vts = parts[1::4], parts[2::4], parts[3::4]
-                    others = rest.findall(b"\0".join(parts[::4]) if lts else chunk)
+                # split, not findall: the groups come as three flat lists (no tuple per
+                # cell), and the other cells of those columns are looked for in what the
+                # plain ones leave (a cell never holds another, so each lies whole
+                # between two plain ones; the joint cannot start a tag)
+                parts = simple.split(chunk)
+                lts, rws, vts = parts[1::4], parts[2::4], parts[3::4]
+                rest_of = b"\0".join(parts[::4]) if lts else chunk
+                # every "<c" starting a cell with r first? Counted in what the plain cells
+                # leave: each of them is one "<c" with r first. (Rich text runs such as
+                # <color> also count, and merely send the chunk down the general path.)
+                if rest_of.count(r_first) == rest_of.count(c_any):
+                    others = rest.findall(rest_of)
                     if lts:
                         got = _bulk_numbers(lts, rws, vts, wanted_letters, first_row)
                         if got is not None and any(int(rows_.max()) > MAX_ROW
@@ -774,8 +776,9 @@ class FormulaScan:
 
     def feed(self, chunk: bytes) -> None:
         """Note the sheetvol formulas of the next chunk."""
-        if (self.f_tag not in chunk or (not self.masters and not _SV.search(chunk))) and (
-                self.cursor.skip(chunk)):
+        # (no "f" at all, the usual case, is found at memchr speed; "<f" is not)
+        if (b"f" not in chunk or self.f_tag not in chunk
+                or (not self.masters and not _SV.search(chunk))) and self.cursor.skip(chunk):
             return
         masters = self.masters
         for r, c, _attrs, inner in self.cursor.cells(chunk):
