@@ -168,3 +168,42 @@ def test_cells_of_a_shrunk_spill_go_in_whole_chunks_too(tmp_path, monkeypatch):
     assert (ws["B40"].value.ref, ws["B40"].value.text) == ("B40:B40", "=SV_SERIES(A2:A9)")
     assert [ws.cell(r, 2).value for r in (39, 41, 500, 900, 901)] == [
         100 + 39 * 0.25, None, None, None, 100 + 901 * 0.25]
+
+
+def _fill_both_ways(src: Path, out: Path, monkeypatch) -> dict[str, tuple[bytes, bytes]]:
+    """Each part of the output of ``sheetvol fill`` made with and without whole chunks."""
+    from sheetvol.fill.job import FillOptions, fill_file
+
+    got: dict[str, list[bytes]] = {}
+    with monkeypatch.context() as m:
+        m.setattr(writer, "CHUNK", 4096)
+        for way in ("whole", "rows"):
+            if way == "rows":
+                m.setattr(_rowedit.RowEditor, "_whole_chunk", lambda self, chunk, ni: None)
+            dst = out.with_name(f"{out.stem}-{way}.xlsx")
+            fill_file(src, FillOptions(output=dst))
+            with zipfile.ZipFile(dst) as zf:
+                for name in zf.namelist():
+                    got.setdefault(name, []).append(zf.read(name))
+    return {name: (a, b) for name, (a, b) in got.items()}
+
+
+@pytest.mark.parametrize("book_name", ["prices", "demo"])
+def test_a_fill_and_a_second_fill_write_the_same_parts_either_way(tmp_path, monkeypatch,
+                                                                 book_name):
+    from test_fill_io import price_book
+
+    if book_name == "prices":
+        src = price_book(tmp_path / "prices.xlsx", rows=3000)
+    else:
+        src = Path(__file__).resolve().parents[1] / "workbooks" / "demo-desk.xlsx"
+    first = tmp_path / "first.xlsx"
+    for name, (whole, by_row) in _fill_both_ways(src, first, monkeypatch).items():
+        if not name.startswith("xl/worksheets/sheetvol"):  # the notes: the time of the run
+            assert whole == by_row, name
+    # filling the filled book again replaces sheetvol's own columns: the checked rows
+    second = tmp_path / "second.xlsx"
+    refill = _fill_both_ways(first.with_name("first-whole.xlsx"), second, monkeypatch)
+    for name, (whole, by_row) in refill.items():
+        if not name.startswith("xl/worksheets/sheetvol"):
+            assert whole == by_row, name
