@@ -264,6 +264,32 @@ class SheetStream:
             buf += data
 
 
+class Pieces:
+    """A sheet's XML already inflated, read back piece by piece (as a :class:`SheetStream`
+    reads a part: ``read(n)`` gives the next piece whatever ``n``, ``read()`` the rest).
+
+    Examples
+    --------
+    >>> fh = Pieces([b"<sheetData>", b"<row/>", b"</sheetData>"])
+    >>> fh.read(4), fh.read()
+    (b'<sheetData>', b'<row/></sheetData>')
+    """
+
+    def __init__(self, pieces: list[bytes]) -> None:
+        self._pieces = pieces
+        self._next = 0
+
+    def read(self, n: int = -1, /) -> bytes:
+        i = self._next
+        if n < 0:
+            self._next = len(self._pieces)
+            return b"".join(self._pieces[i:])
+        if i >= len(self._pieces):
+            return b""
+        self._next = i + 1
+        return self._pieces[i]
+
+
 class ReadAhead:
     """Reads ``fh`` in chunks of ``size`` in a second thread, one chunk ahead of the caller.
 

@@ -53,6 +53,10 @@ NS_REL = "http://schemas.openxmlformats.org/officeDocument/2006/relationships"
 NS_PKG_REL = "http://schemas.openxmlformats.org/package/2006/relationships"
 MACRO_TYPES = ("macroEnabled", "vbaProject")
 _SV = re.compile(rb"(?i)\bSV_")
+# sheets read whole are kept for the write that follows while their XML comes to at
+# most this size together (about 300,000 rows of OHLC): the write then does not inflate
+# them again; beyond it they are inflated again, so that memory stays bounded
+KEPT_MAX = 96 << 20
 _COL = re.compile(rb"<(?:[A-Za-z_][\w.\-]*:)?col(?=[\s>/])([^>]*)>")
 _HIDDEN = re.compile(rb"""\shidden\s*=\s*["'](?:1|true)["']""")
 _MIN = re.compile(rb"""\smin\s*=\s*["'](\d+)["']""")
@@ -151,6 +155,9 @@ class Package:
     _formulas: dict[str, list[FormulaCell]] = field(default_factory=dict, repr=False)
     # each sheet part's head (everything before the cells), kept by the first pass over it
     _heads: dict[str, bytes] = field(default_factory=dict, repr=False)
+    # sheet part -> its XML in pieces, kept by read_columns while they fit in KEPT_MAX
+    # bytes together: a write of that sheet then does not inflate it again
+    _kept: dict[str, list[bytes]] = field(default_factory=dict, repr=False)
 
     @classmethod
     def open(cls, path: str | Path, *, max_total: int | None = None,
@@ -498,6 +505,7 @@ class Package:
         for c in wanted:
             if not 1 <= c <= MAX_COL:
                 raise WorkbookError(f"{self.path.name}: column {c} is outside the sheet.")
+        self._kept.pop(info.part, None)
         pieces: dict[int, list[tuple[np.ndarray, np.ndarray]]] = {c: [] for c in wanted}
         other: dict[int, dict[int, object]] = {c: {} for c in wanted}
         last = first_row - 1
@@ -522,7 +530,11 @@ class Package:
                                (self.path.name, info.part))
             # row numbers carried across chunks, for rows and cells that omit ``r``
             cursor = RowCursor(pat, self.path.name, info.part)
+            room = KEPT_MAX - sum(zf.getinfo(part).file_size for part in self._kept)
+            kept = [stream.head] if zf.getinfo(info.part).file_size <= room else None
             for chunk in stream.body():
+                if kept is not None:
+                    kept.append(chunk)
                 scan.feed(chunk)
                 # split, not findall: the groups come as three flat lists (no tuple per
                 # cell), and the other cells of those columns are looked for in what the
@@ -572,6 +584,8 @@ class Package:
                     else:
                         other[c][r] = value
                     last = max(last, r)
+            if kept is not None:  # read to its end: its size and checksum were checked
+                self._kept[info.part] = [*kept, stream.tail]
         self._formulas[info.part] = scan.found
         n = max(last - first_row + 1, 0)
         out = {}
@@ -581,6 +595,10 @@ class Package:
                 numbers[rows_ - first_row] = vals
             out[c] = Column(numbers=numbers, other=other[c], first_row=first_row)
         return out
+
+    def _kept_xml(self, part: str) -> list[bytes] | None:
+        """The pieces of a sheet part's XML kept by the last :meth:`read_columns`, if any."""
+        return self._kept.get(part)
 
     def named_cell(self, name: str) -> tuple[str, int, int] | None:
         """The single cell a workbook-level defined name points at: (sheet, row, col).
