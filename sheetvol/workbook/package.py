@@ -203,6 +203,7 @@ class Package:
 
     def close(self) -> None:
         """Let the file handle go (reads after this reopen the path)."""
+        self._kept.clear()
         if self._fh is not None:
             self._fh.close()
             self._fh = None
@@ -499,6 +500,12 @@ class Package:
         -------
         dict of int to Column
             All columns have the same length, so index i is the same row in each.
+
+        Notes
+        -----
+        The sheet's XML is kept until :meth:`close` while the sheets kept come to at
+        most :data:`KEPT_MAX` bytes, so that :func:`write_package` does not inflate it
+        again.
         """
         info = self._worksheet(sheet)
         wanted = set(cols)
