@@ -249,9 +249,11 @@ class RowEditor:
     """Applies :class:`SheetEdits` to the body chunks of a sheet.
 
     The text of new number cells is made a block of rows at a time with one list
-    comprehension per column (the hot loop of a million-row fill); rows are found with
-    ``bytes.find``, and a row whose existing cells all lie left of the new ones gets
-    them appended without being parsed.
+    comprehension per column (the hot loop of a million-row fill). A chunk of plain rows
+    is edited as a whole, with bytes and numpy operations per chunk
+    (:meth:`_whole_chunk`); in any other chunk rows are found with ``bytes.find``, and
+    a row whose existing cells all lie left of the new ones gets them appended without
+    being parsed.
     """
 
     def __init__(self, edits: SheetEdits, pat: Patterns) -> None:
