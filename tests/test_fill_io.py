@@ -120,18 +120,40 @@ def test_reading_columns_notes_the_typed_formulas(tmp_path, monkeypatch):
     assert pkg.formula_cells(["Desk"]) == pkg.formula_cells()[1:]
 
 
-def test_a_fill_opens_the_price_sheet_four_times_not_five(tmp_path, monkeypatch):
+def test_a_fill_opens_the_price_sheet_three_times(tmp_path, monkeypatch):
     # the header rows (looking for a trade log, then for prices: the first chunk only),
-    # one reading pass (prices and typed formulas), the writer
+    # one reading pass (prices and typed formulas); the writer takes the XML that pass
+    # kept, so the sheet is inflated whole once
     from sheetvol.fill.job import FillOptions, fill_file
 
     src = formula_book(tmp_path / "f.xlsx")
     seen = opened_parts(monkeypatch)
     report = fill_file(src, FillOptions(output=tmp_path / "out.xlsx"))
-    assert seen.count("xl/worksheets/sheet1.xml") == 4
+    assert seen.count("xl/worksheets/sheet1.xml") == 3
     assert report.formulas_ok == 2
     # new columns go right of everything used near the top (the formula in G4)
     assert report.written[0].letter == "H"
+
+
+def test_sheets_too_large_to_keep_are_inflated_again_with_the_same_result(tmp_path,
+                                                                          monkeypatch):
+    import zipfile
+
+    from sheetvol.fill.job import FillOptions, fill_file
+    from sheetvol.workbook import package
+
+    src = formula_book(tmp_path / "f.xlsx")
+    fill_file(src, FillOptions(output=tmp_path / "kept.xlsx"))
+    monkeypatch.setattr(package, "KEPT_MAX", 0)
+    seen = opened_parts(monkeypatch)
+    fill_file(src, FillOptions(output=tmp_path / "again.xlsx"))
+    assert seen.count("xl/worksheets/sheet1.xml") == 4  # the writer inflates it again
+    with (zipfile.ZipFile(tmp_path / "kept.xlsx") as a,
+          zipfile.ZipFile(tmp_path / "again.xlsx") as b):
+        assert a.namelist() == b.namelist()
+        for name in a.namelist():
+            if not name.startswith("xl/worksheets/sheetvol"):  # the notes: time of the run
+                assert a.read(name) == b.read(name), name
 
 
 hypothesis = pytest.importorskip("hypothesis")

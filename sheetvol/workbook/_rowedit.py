@@ -10,8 +10,10 @@ from __future__ import annotations
 
 import math
 import re
+from bisect import bisect_right
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
+from itertools import repeat
 
 import numpy as np
 
@@ -241,16 +243,18 @@ class SheetEdits:
 
 _LETTERS = re.compile(rb"[A-Z]{1,3}")
 _DELIM = frozenset(b" \t\r\n>/")
-BLOCK = 1 << 16
+BLOCK = 1 << 12
 
 
 class RowEditor:
     """Applies :class:`SheetEdits` to the body chunks of a sheet.
 
     The text of new number cells is made a block of rows at a time with one list
-    comprehension per column (the hot loop of a million-row fill); rows are found with
-    ``bytes.find``, and a row whose existing cells all lie left of the new ones gets
-    them appended without being parsed.
+    comprehension per column (the hot loop of a million-row fill). A chunk of plain rows
+    is edited as a whole, with bytes and numpy operations per chunk
+    (:meth:`_whole_chunk`); in any other chunk rows are found with ``bytes.find``, and
+    a row whose existing cells all lie left of the new ones gets them appended without
+    being parsed.
     """
 
     def __init__(self, edits: SheetEdits, pat: Patterns) -> None:
@@ -269,6 +273,12 @@ class RowEditor:
         self.special = set(self.by_row_points) | set(self.by_row_mods)
         self._blk_lo = self._blk_hi = 0
         self._blk: list[bytes] = []
+        self._blk_arr: np.ndarray = np.empty(0, dtype=object)  # the same, as an array
+        # chunks edited as a whole (plain rows) and row by row: what tests look at
+        self.chunks_whole = self.chunks_by_row = 0
+        self._row_r = pat.row_start + b' r="'
+        self._special = np.array(sorted(self.special), dtype=np.int64)
+        self._arrays: dict[int, np.ndarray] = {}  # the runs' numbers as arrays
         self._run_min = min((run.col for run in edits.runs), default=MAX_COL)
         self._last_cell = re.compile(rb"<" + re.escape(pat.prefix) + rb'c r="([A-Z]{1,3})\d')
         self._refresh_ranges()
@@ -305,20 +315,19 @@ class RowEditor:
             return self._blk
         lo, hi = r, r + BLOCK
         p = self.p
-        cols = []  # (run, a, b, number texts of rows a..b-1)
+        cols = []  # (run, a, b, number texts of rows a..b-1, the numbers)
         for run in sorted(self.e.runs, key=lambda x: x.col):
             a, b = max(lo, run.first_row), min(hi, run.last_row + 1)
             if a < b:
-                nums = repr_texts(np.asarray(run.values[a - run.first_row : b - run.first_row],
-                                             dtype=np.float64))
-                cols.append((run, a, b, nums))
+                vals = self._values(run)[a - run.first_row : b - run.first_row]
+                cols.append((run, a, b, repr_texts(vals), vals))
         n = hi - lo
         # rows that take the layout: every column covers them with a number, no text cell
         full = np.full(n, bool(cols))
         some = np.zeros(n, dtype=bool)  # rows with anything new at all
-        for run, a, b, nums in cols:
+        for run, a, b, _, vals in cols:
             has = np.zeros(n, dtype=bool)
-            has[a - lo : b - lo] = np.fromiter(map(bool, nums), dtype=bool, count=b - a)
+            has[a - lo : b - lo] = np.isfinite(vals)  # where repr_texts gave text
             some |= has
             if run.texts:
                 rows = np.fromiter(run.texts, dtype=np.int64, count=len(run.texts)) - lo
@@ -337,7 +346,7 @@ class RowEditor:
             stride = 4 * len(cols) + 1
             pieces: list[str] = [""] * (m * stride)  # every slot is set below
             before = ""
-            for k, (run, a, _, nums) in enumerate(cols):
+            for k, (run, a, _, nums, _) in enumerate(cols):
                 s = f' s="{run.style}"' if run.style else ""
                 pieces[4 * k :: stride] = [f'{before}<{p}c r="{run.letters}'] * m
                 pieces[4 * k + 1 :: stride] = row_texts
@@ -356,7 +365,7 @@ class RowEditor:
             for o, i in enumerate(rest):
                 row = lo + i
                 cells = []
-                for run, a, b, nums in cols:
+                for run, a, b, nums, _ in cols:
                     if not a <= row < b:
                         continue
                     if run.texts and row in run.texts:  # its XML is ready-made
@@ -367,7 +376,7 @@ class RowEditor:
                 others[o] = "".join(cells).encode()
             blk[rest] = others
         out = blk.tolist()
-        self._blk_lo, self._blk_hi, self._blk = lo, hi, out
+        self._blk_lo, self._blk_hi, self._blk, self._blk_arr = lo, hi, out, blk
         return out
 
     def new_cells(self, r: int) -> dict[int, tuple[str, bool]]:
@@ -429,6 +438,16 @@ class RowEditor:
         blk_lo = blk_hi = 0
         r = 0
         for chunk in chunks:
+            got = self._whole_chunk(chunk, ni)
+            if got is not None:
+                self.chunks_whole += 1
+                piece, ni, r = got
+                if progress is not None and r > self.rows_done:
+                    progress(r - self.rows_done)
+                    self.rows_done = r
+                yield piece
+                continue
+            self.chunks_by_row += 1
             find = chunk.find
             out: list[bytes] = []
             append = out.append
@@ -540,6 +559,153 @@ class RowEditor:
         self.ni = n_need
         if rest:
             yield b"".join(rest)
+
+    def _whole_chunk(self, chunk: bytes, ni: int) -> tuple[bytes, int, int] | None:
+        """The edited chunk made in one go when all its rows are plain, else None.
+
+        Plain rows (what spreadsheet programs and exports write): each starts with
+        ``<row r="N"`` right after the previous ``</row>``, numbers increase, none is
+        a header, a formula to replace or in a checked range, no new row goes between
+        them, and a row that gets new cells has its own cells, each with ``r`` first,
+        all left of the new ones. Such a row gets exactly what the row loop gives it:
+        its ``spans`` hint dropped and the new cells put before ``</row>``; the other
+        rows stay as they are. The tests compare both ways byte for byte.
+
+        Returns (edited chunk, index into the rows needing new cells, last row).
+        """
+        rend = self.pat.row_end
+        pieces = chunk.split(rend)  # each one row without its end tag ...
+        rest = pieces.pop()  # ... and what follows the last one
+        n = len(pieces)
+        if not n or chunk.count(self.pat.row_start) != n:
+            return None
+        head = self._row_r
+        if not all(map(bytes.startswith, pieces, repeat(head))):
+            return None  # (so each piece holds exactly one row start, at its start)
+        a = np.frombuffer(chunk, dtype=np.uint8)
+        size = np.fromiter(map(len, pieces), dtype=np.int64, count=n)
+        offs = np.zeros(n, dtype=np.int64)
+        np.cumsum(size[:-1] + len(rend), out=offs[1:])
+        # the row numbers: up to 7 digits and a quote
+        at = offs + len(head)
+        win = np.take(a, at[:, None] + np.arange(8), mode="clip")
+        digit = (win >= 48) & (win <= 57)
+        k = np.argmin(digit, axis=1)  # the first byte that is not a digit
+        lines = np.arange(n)
+        if not digit[:, 0].all() or digit.all(axis=1).any() or (win[lines, k] != 34).any():
+            return None
+        rows = np.zeros(n, dtype=np.int64)
+        for j in range(7):
+            rows = np.where(j < k, rows * 10 + win[:, j] - 48, rows)
+        if n > 1 and (np.diff(rows) <= 0).any():
+            return None
+        first, last = int(rows[0]), int(rows[-1])
+        if first <= self.watch_to and last >= self.watch_from:
+            return None  # a shared formula may need a new master: the row loop
+        sp = self._special
+        if len(sp) and ((sp >= first) & (sp <= last)).any():
+            return None
+        # columns whose existing cells go (a replaced column, a spill's range): a row
+        # with a cell there goes row by row, so every row is looked at, not only the
+        # rows with new cells
+        lim = self._run_min
+        checked = first <= self.check_to and last >= self.check_from
+        if checked:
+            lim = min([lim] + [c for c, lo, hi in self.ranges if lo <= last and hi >= first])
+        need = self.need
+        nj = bisect_right(need, last, ni)
+        if nj == ni and not checked:  # nothing new in these rows
+            return chunk, ni, last
+        wanted = np.array(need[ni:nj], dtype=np.int64)
+        at_row = np.searchsorted(rows, wanted)
+        present = rows[at_row] == wanted  # (at_row < n: wanted ends at the last row)
+        new = at_row[present]  # the rows that get new cells
+        missing = wanted[~present]  # rows with new cells that the sheet lacks
+        if any(x in self.by_row_mods for x in missing.tolist()):
+            return None  # a formula's result in a row the sheet lacks: the row loop
+        look = lines if checked else new  # the rows whose last column matters
+        sel = [pieces[i] for i in look.tolist()]
+        p = offs[look]
+        # the end of the row tag (the first ">") and the existing cells' last column
+        gt = np.fromiter(map(bytes.find, sel, repeat(b">")), dtype=np.int64,
+                         count=len(look)) + p
+        if (gt < at[look]).any() or (a[gt - 1] == 47).any():  # no ">", or "/>"
+            return None
+        cr = b"<" + self.pat.prefix + b'c r="'
+        lp = np.fromiter(map(bytes.rfind, sel, repeat(cr)), dtype=np.int64, count=len(look))
+        inner = gt + 1 < p + size[look]
+        has_cell = lp >= 0
+        if (inner & ~has_cell).any():
+            return None  # cells without r: the row loop finds their columns
+        after = np.fromiter(map(bytes.find, sel, repeat(self.pat.cell_start),
+                                (lp + 1).tolist()), dtype=np.int64, count=len(look))
+        if (has_cell & (after >= 0)).any():
+            return None  # a later cell without r (or rich text): the row loop
+        lpos = np.where(has_cell, p + lp + len(cr), 0)
+        let = np.take(a, lpos[:, None] + np.arange(4), mode="clip").astype(np.int64)
+        is_letter = (let >= 65) & (let <= 90)
+        nlet = np.argmin(is_letter, axis=1)
+        if (has_cell & ((nlet == 0) | is_letter.all(axis=1))).any():
+            return None
+        col = np.zeros(len(look), dtype=np.int64)
+        for j in range(3):
+            col = np.where(j < nlet, col * 26 + let[:, j] - 64, col)
+        if (has_cell & (col >= lim)).any():
+            return None  # an existing cell at or right of a new column: the row loop
+        if checked:
+            sel = [pieces[i] for i in new.tolist()]
+            gt = gt[new]
+        p = offs[new]
+        q = at[new] + k[new] + 1  # just after the quote closing r
+        spans = np.all(np.take(a, q[:, None] + np.arange(8), mode="clip")
+                       == np.frombuffer(b' spans="', dtype=np.uint8), axis=1)
+        if not (spans | (a[q] == 62)).all():  # other attributes first: the row loop
+            return None
+        # the new cells' text, block by block
+        tails = np.empty(len(new), dtype=object)
+        rnew = rows[new]
+        i = 0
+        while i < len(new):
+            r0 = int(rnew[i])
+            if not self._blk_lo <= r0 < self._blk_hi:
+                self._block(r0)
+            j = int(np.searchsorted(rnew, self._blk_hi))
+            tails[i:j] = self._blk_arr[rnew[i:j] - self._blk_lo]
+            i = j
+        # drop spans="..." (up to its closing quote) from the rows that get cells
+        cut = np.zeros(len(new), dtype=np.int64)
+        if spans.any():
+            w = np.flatnonzero(spans)
+            close = np.fromiter(map(bytes.find, [sel[i] for i in w.tolist()], repeat(b'"'),
+                                    (q[w] - p[w] + 8).tolist()), dtype=np.int64, count=len(w))
+            if (close < 0).any() or (close + p[w] >= gt[w]).any():
+                return None  # no closing quote inside the tag: the row loop
+            cut[w] = close + 1 - (q[w] - p[w])
+        # the missing rows, made as the row loop makes them, go before the next row
+        made: dict[int, list[bytes]] = {}
+        for i, x in zip(at_row[~present].tolist(), missing.tolist(), strict=True):
+            made.setdefault(i, []).append(self._new_row(x))
+        rel = (q - p).tolist()
+        body = np.empty(n, dtype=object)
+        body[:] = pieces
+        body[new] = [x if c == 0 else x[:s] + x[s + c:]
+                     for x, s, c in zip(sel, rel, cut.tolist(), strict=True)]
+        for i, made_rows in made.items():
+            body[i] = b"".join(made_rows) + body[i]
+        tail_all = np.full(n, b"", dtype=object)
+        tail_all[new] = tails
+        out: list[bytes] = [rend] * (3 * n)
+        out[0::3] = body.tolist()
+        out[1::3] = tail_all.tolist()
+        out.append(rest)
+        return b"".join(out), nj, last
+
+    def _values(self, run: ColumnRun) -> np.ndarray:
+        """A run's numbers as an array (made once)."""
+        got = self._arrays.get(id(run))
+        if got is None or len(got) != len(run.values):
+            got = self._arrays[id(run)] = np.asarray(run.values, dtype=np.float64)
+        return got
 
     def _active(self, r: int) -> dict[int, bool]:
         """Columns whose existing cells go at row r: col -> True if that is an error."""

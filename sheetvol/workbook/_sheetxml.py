@@ -27,7 +27,11 @@ from sheetvol.functions.grid import MAX_COL, MAX_ROW, column_letters, column_num
 from sheetvol.workbook._safety import check_prolog
 from sheetvol.workbook.errors import CellError, WorkbookError
 
-CHUNK = 1 << 23
+# a sheet's XML goes through in chunks of about this many bytes: a chunk and what is
+# made of it stay in the CPU's cache, and the first chunk's inflating and the last
+# one's deflating (which nothing overlaps) are short (measured, docs/performance.md)
+CHUNK = 1 << 20
+HEAD_READ = 1 << 16
 
 _SHEETDATA = re.compile(rb"<([A-Za-z_][\w.\-]*:)?sheetData(?=[\s>/])[^>]*?(/?)>")
 ATTR_R_ROW = re.compile(rb"""(?:^|\s)r\s*=\s*["'](\d+)["']""")
@@ -220,12 +224,14 @@ class SheetStream:
         self.name = name
         self.chunk = chunk
         buf = b""
+        step = HEAD_READ  # the head is small: no whole chunk inflated just to find it
         while True:
-            data = self._read(chunk)
+            data = self._read(step)
             buf += data
             m = _SHEETDATA.search(buf)
             if m or not data:
                 break
+            step = min(step * 4, chunk)
         check_prolog(buf[:4096], part, name)
         if not m:
             raise WorkbookError(f"{name}: part {part} has no <sheetData>; it is not a worksheet.")
@@ -284,6 +290,32 @@ class SheetStream:
             if not data:
                 eof = True
             buf += data
+
+
+class Pieces:
+    """A sheet's XML already inflated, read back piece by piece (as a :class:`SheetStream`
+    reads a part: ``read(n)`` gives the next piece whatever ``n``, ``read()`` the rest).
+
+    Examples
+    --------
+    >>> fh = Pieces([b"<sheetData>", b"<row/>", b"</sheetData>"])
+    >>> fh.read(4), fh.read()
+    (b'<sheetData>', b'<row/></sheetData>')
+    """
+
+    def __init__(self, pieces: list[bytes]) -> None:
+        self._pieces = pieces
+        self._next = 0
+
+    def read(self, n: int = -1, /) -> bytes:
+        i = self._next
+        if n < 0:
+            self._next = len(self._pieces)
+            return b"".join(self._pieces[i:])
+        if i >= len(self._pieces):
+            return b""
+        self._next = i + 1
+        return self._pieces[i]
 
 
 class ReadAhead:

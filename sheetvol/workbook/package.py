@@ -53,6 +53,10 @@ NS_REL = "http://schemas.openxmlformats.org/officeDocument/2006/relationships"
 NS_PKG_REL = "http://schemas.openxmlformats.org/package/2006/relationships"
 MACRO_TYPES = ("macroEnabled", "vbaProject")
 _SV = re.compile(rb"(?i)\bSV_")
+# sheets read whole are kept for the write that follows while their XML comes to at
+# most this size together (about 300,000 rows of OHLC): the write then does not inflate
+# them again; beyond it they are inflated again, so that memory stays bounded
+KEPT_MAX = 96 << 20
 _COL = re.compile(rb"<(?:[A-Za-z_][\w.\-]*:)?col(?=[\s>/])([^>]*)>")
 _HIDDEN = re.compile(rb"""\shidden\s*=\s*["'](?:1|true)["']""")
 _MERGE = re.compile(rb"""<(?:[A-Za-z_][\w.\-]*:)?mergeCell\s[^>]*?ref\s*=\s*["']([^"']*)["']""")
@@ -152,7 +156,11 @@ class Package:
     _formulas: dict[str, list[FormulaCell]] = field(default_factory=dict, repr=False)
     # each sheet part's head (everything before the cells), kept by the first pass over it
     _heads: dict[str, bytes] = field(default_factory=dict, repr=False)
+    # each sheet part's tail (everything after the cells: merged blocks and the rest)
     _tails: dict[str, bytes] = field(default_factory=dict, repr=False)
+    # sheet part -> its XML in pieces, kept by read_columns while they fit in KEPT_MAX
+    # bytes together: a write of that sheet then does not inflate it again
+    _kept: dict[str, list[bytes]] = field(default_factory=dict, repr=False)
 
     @classmethod
     def open(cls, path: str | Path, *, max_total: int | None = None,
@@ -198,6 +206,7 @@ class Package:
 
     def close(self) -> None:
         """Let the file handle go (reads after this reopen the path)."""
+        self._kept.clear()
         if self._fh is not None:
             self._fh.close()
             self._fh = None
@@ -525,12 +534,19 @@ class Package:
         -------
         dict of int to Column
             All columns have the same length, so index i is the same row in each.
+
+        Notes
+        -----
+        The sheet's XML is kept until :meth:`close` while the sheets kept come to at
+        most :data:`KEPT_MAX` bytes, so that :func:`write_package` does not inflate it
+        again.
         """
         info = self._worksheet(sheet)
         wanted = set(cols)
         for c in wanted:
             if not 1 <= c <= MAX_COL:
                 raise WorkbookError(f"{self.path.name}: column {c} is outside the sheet.")
+        self._kept.pop(info.part, None)
         pieces: dict[int, list[tuple[np.ndarray, np.ndarray]]] = {c: [] for c in wanted}
         other: dict[int, dict[int, object]] = {c: {} for c in wanted}
         last = first_row - 1
@@ -555,18 +571,24 @@ class Package:
                                (self.path.name, info.part))
             # row numbers carried across chunks, for rows and cells that omit ``r``
             cursor = RowCursor(pat, self.path.name, info.part)
+            room = KEPT_MAX - sum(zf.getinfo(part).file_size for part in self._kept)
+            kept = [stream.head] if zf.getinfo(info.part).file_size <= room else None
             for chunk in stream.body():
+                if kept is not None:
+                    kept.append(chunk)
                 scan.feed(chunk)
-                # every "<c" starting a cell with r first? (rich text runs such as <color>
-                # also count, and merely send the chunk down the general path)
-                if chunk.count(r_first) == chunk.count(c_any):
-                    # split, not findall: the groups come as three flat lists (no tuple
-                    # per cell), and the other cells of those columns are looked for in
-                    # what the plain ones leave (a cell never holds another, so each lies
-                    # whole between two plain ones; the joint cannot start a tag)
-                    parts = simple.split(chunk)
-                    lts, rws, vts = parts[1::4], parts[2::4], parts[3::4]
-                    others = rest.findall(b"\0".join(parts[::4]) if lts else chunk)
+                # split, not findall: the groups come as three flat lists (no tuple per
+                # cell), and the other cells of those columns are looked for in what the
+                # plain ones leave (a cell never holds another, so each lies whole
+                # between two plain ones; the joint cannot start a tag)
+                parts = simple.split(chunk)
+                lts, rws, vts = parts[1::4], parts[2::4], parts[3::4]
+                rest_of = b"\0".join(parts[::4]) if lts else chunk
+                # every "<c" starting a cell with r first? Counted in what the plain cells
+                # leave: each of them is one "<c" with r first. (Rich text runs such as
+                # <color> also count, and merely send the chunk down the general path.)
+                if rest_of.count(r_first) == rest_of.count(c_any):
+                    others = rest.findall(rest_of)
                     if lts:
                         got = _bulk_numbers(lts, rws, vts, wanted_letters, first_row)
                         if got is not None and any(int(rows_.max()) > MAX_ROW
@@ -603,6 +625,8 @@ class Package:
                     else:
                         other[c][r] = value
                     last = max(last, r)
+            if kept is not None:  # read to its end: its size and checksum were checked
+                self._kept[info.part] = [*kept, stream.tail]
         self._formulas[info.part] = scan.found
         self._tails[info.part] = stream.tail
         n = max(last - first_row + 1, 0)
@@ -613,6 +637,10 @@ class Package:
                 numbers[rows_ - first_row] = vals
             out[c] = Column(numbers=numbers, other=other[c], first_row=first_row)
         return out
+
+    def _kept_xml(self, part: str) -> list[bytes] | None:
+        """The pieces of a sheet part's XML kept by the last :meth:`read_columns`, if any."""
+        return self._kept.get(part)
 
     def named_cell(self, name: str) -> tuple[str, int, int] | None:
         """The single cell a workbook-level defined name points at: (sheet, row, col).
@@ -808,8 +836,9 @@ class FormulaScan:
 
     def feed(self, chunk: bytes) -> None:
         """Note the sheetvol formulas of the next chunk."""
-        if (self.f_tag not in chunk or (not self.masters and not _SV.search(chunk))) and (
-                self.cursor.skip(chunk)):
+        # (no "f" at all, the usual case, is found at memchr speed; "<f" is not)
+        if (b"f" not in chunk or self.f_tag not in chunk
+                or (not self.masters and not _SV.search(chunk))) and self.cursor.skip(chunk):
             return
         masters = self.masters
         for r, c, _attrs, inner in self.cursor.cells(chunk):

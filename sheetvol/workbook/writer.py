@@ -36,6 +36,7 @@ import re
 import tempfile
 import zipfile
 from collections.abc import Callable
+from contextlib import nullcontext
 from pathlib import Path
 
 import numpy as np
@@ -72,7 +73,9 @@ from sheetvol.workbook._sheetparts import (
     set_first_attr,
 )
 from sheetvol.workbook._sheetxml import (
+    CHUNK,
     Patterns,
+    Pieces,
     SheetStream,
     cell_name,
     col_index,
@@ -650,8 +653,12 @@ class _Job:
     def _write_sheet(self, zout: zipfile.ZipFile, info: zipfile.ZipInfo,
                      progress: Callable[[int], None] | None) -> None:
         sheet = next(s for s in self.pkg.sheets if s.part == info.filename)
-        with open_part(self.zin, info.filename, self.file) as fh:
-            stream = SheetStream(fh, info.filename, self.file, ahead=True)
+        # the XML its reading pass kept (inflated through the safe part reader, size and
+        # checksum checked), else the part itself, inflated ahead in a second thread
+        kept = self.pkg._kept_xml(info.filename)
+        with (open_part(self.zin, info.filename, self.file) if kept is None
+              else nullcontext(Pieces(kept))) as fh:
+            stream = SheetStream(fh, info.filename, self.file, ahead=kept is None, chunk=CHUNK)
             edits = self._sheet_edits(sheet, stream)
             editor = RowEditor(edits, stream.pat)
             edits.on_change = editor._refresh_ranges
