@@ -313,6 +313,45 @@ def test_no_room_right_of_the_prices_is_refused_at_once(tmp_path, capsys, extra,
     assert '"Prices"' in line and "no room for 6 new columns" in line and "XFD" in line, line
 
 
+def test_a_workbook_without_its_styles_part_keeps_how_its_cells_show(tmp_path):
+    # Found by mutating workbooks and reading the outputs back: with the styles part gone,
+    # the cells' style numbers (s="1" on the dates here) pointed into the styles the fill
+    # made for its own columns, and whole columns of numbers read back as dates.
+    base = price_book(tmp_path / "base.xlsx")
+    bad = repack(base, tmp_path / "bad.xlsx", {"xl/styles.xml": None})
+    before = openpyxl_cells(bad)
+    report = fill_file(bad, FillOptions(output=tmp_path / "out.xlsx"))
+    after = openpyxl_cells(report.output)
+    changed = {k: (v, after[k]) for k, v in before.items() if after.get(k) != v}
+    assert not changed, list(changed.items())[:3]
+    assert isinstance(after["A2"], (int, float)) and after["F1"] == report.written[0].spec.header
+    # Without a styles part a style number means nothing: every cell that was there
+    # still shows as General (the dates' s="1" must not now name one of the fill's formats).
+    import openpyxl
+
+    ws = openpyxl.load_workbook(report.output)["Prices"]
+    shown = {(ws[k].number_format, bool(ws[k].font.b)) for k in before}
+    assert shown == {("General", False)}, shown
+    # The relationship and content type the input had are used, not doubled.
+    with zipfile.ZipFile(report.output) as zf:
+        rels = zf.read("xl/_rels/workbook.xml.rels")
+        types = zf.read("[Content_Types].xml")
+    assert rels.count(b"/relationships/styles") == 1
+    assert types.count(b'PartName="/xl/styles.xml"') == 1
+
+
+def openpyxl_cells(book: Path) -> dict[str, object]:
+    """Cell -> value of the price sheet as openpyxl reads it (its read-only reader, which
+    takes a style number without a styles part as no style)."""
+    import openpyxl
+
+    wb = openpyxl.load_workbook(book, read_only=True)
+    out = {c.coordinate: c.value for row in wb["Prices"].iter_rows() for c in row
+           if getattr(c, "value", None) is not None}
+    wb.close()
+    return out
+
+
 def _docprops(book: Path) -> Entry:
     with zipfile.ZipFile(book) as zf:
         return deflated("docProps/app.xml", zf.read("docProps/app.xml"))

@@ -264,6 +264,20 @@ class StyleBook:
         return (self.head + "".join(t for _, t in self.pieces) + self.tail).encode("utf-8")
 
 
+def minimal_styles(plain: int = 1) -> bytes:
+    """:data:`MINIMAL_STYLES` with ``plain`` plain cell styles (at least one).
+
+    Examples
+    --------
+    >>> minimal_styles(3).count(b'<xf numFmtId="0" fontId="0" fillId="0" borderId="0" xfId="0"/>')
+    3
+    """
+    plain = max(plain, 1)
+    one = b'<xf numFmtId="0" fontId="0" fillId="0" borderId="0" xfId="0"/>'
+    return MINIMAL_STYLES.replace(b'<cellXfs count="1">' + one,
+                                  b'<cellXfs count="%d">' % plain + one * plain)
+
+
 MINIMAL_STYLES = (
     b'<?xml version="1.0" encoding="UTF-8" standalone="yes"?>\n'
     b'<styleSheet xmlns="http://schemas.openxmlformats.org/spreadsheetml/2006/main">'

@@ -84,7 +84,7 @@ from sheetvol.workbook._sheetxml import (
     parse_ref,
     unescape,
 )
-from sheetvol.workbook._styles import MINIMAL_STYLES, StyleBook
+from sheetvol.workbook._styles import StyleBook, minimal_styles
 from sheetvol.workbook._zipcopy import (
     WriteBehind,
     clone_info,
@@ -110,6 +110,9 @@ SHEET_LEVEL = 1
 SMALL_LEVEL = 6
 SHEETVOL_PART = "xl/worksheets/sheetvol"
 CT_WORKSHEET = "application/vnd.openxmlformats-officedocument.spreadsheetml.worksheet+xml"
+# a style number on a cell, a row (s=) or a column (style=)
+_STYLE_NUMBER = re.compile(
+    rb"""<(?:[\w.\-]+:)?(?:c|row|col)\s[^>]*?\b(?:s|style)\s*=\s*["'](\d{1,9})["']""")
 CT_STYLES = "application/vnd.openxmlformats-officedocument.spreadsheetml.styles+xml"
 REL_WORKSHEET = NS_REL + "/worksheet"
 REL_STYLES = NS_REL + "/styles"
@@ -232,9 +235,18 @@ class _Job:
         if self.styles is None:
             part = next((t for t, k in self.wb_rels.values() if k == "styles"), None)
             if part is None or part not in self.names:
-                part = "xl/styles.xml"
-                self.add_part(part, MINIMAL_STYLES, CT_STYLES, REL_STYLES, "styles.xml")
-                self.styles = StyleBook(MINIMAL_STYLES)
+                # No styles part: the cells' style numbers mean no style, so the new part
+                # starts with that many plain styles and the fill's own come after them.
+                data = minimal_styles(self._style_numbers_used())
+                if part is None:
+                    part = "xl/styles.xml"
+                    self.add_part(part, data, CT_STYLES, REL_STYLES, "styles.xml")
+                else:  # related but missing: the part goes where the relationship points
+                    self.added[part] = data
+                    if f'PartName="/{part}"' not in self.part("[Content_Types].xml").decode(
+                            "utf-8", "replace"):
+                        self._content_type(part, CT_STYLES)
+                self.styles = StyleBook(data)
             else:
                 data = self.part(part)  # a refusal here already names the file and part
                 try:
@@ -244,6 +256,15 @@ class _Job:
                                         "spreadsheet program and save it again") from None
             self.styles_part = part
         return self.styles
+
+    def _style_numbers_used(self) -> int:
+        """One more than the highest style number a cell, row or column uses (0: none)."""
+        top = -1
+        for info in self.pkg.sheets:
+            if info.part in self.names:
+                for m in _STYLE_NUMBER.finditer(self.part(info.part)):
+                    top = max(top, int(m[1]))
+        return top + 1
 
     def number_style(self, code: str | None) -> int:
         if not code:
