@@ -9,6 +9,7 @@ equity is a budget of 100.
 from __future__ import annotations
 
 import datetime as dt
+import zipfile
 from pathlib import Path
 
 import pytest
@@ -313,3 +314,25 @@ def test_review_columns_go_right_of_a_merged_block_beside_the_log(tmp_path):
     assert min(review) == 9, heads  # column I, right of the block
     assert [str(r) for r in ws.merged_cells.ranges] == ["F2:H4"]
     assert ws["F2"].value == "checked by risk"
+
+
+@pytest.mark.parametrize("block", ["F2:XFD4", "ZZZ9:A1"])
+def test_no_room_right_of_the_log_is_refused_naming_the_sheet(tmp_path, block):
+    # Found by mutating workbooks: a merged block reaching past the sheet's last column
+    # (or beyond it: ZZZ is no column) beside the log sent the review columns past XFD and
+    # the fill failed unexpectedly.
+    src = tmp_path / "desk.xlsx"
+    _book(src)
+    with zipfile.ZipFile(src) as zf:
+        parts = {n: zf.read(n) for n in zf.namelist()}
+    sheet = "xl/worksheets/sheet1.xml"
+    parts[sheet] = parts[sheet].replace(
+        b"</sheetData>", b'</sheetData><mergeCells count="1"><mergeCell ref="%s"/></mergeCells>'
+        % block.encode())
+    with zipfile.ZipFile(src, "w", zipfile.ZIP_DEFLATED) as zf:
+        for n, data in parts.items():
+            zf.writestr(n, data)
+    with pytest.raises(ValueError) as err:
+        fill_file(src, FillOptions(output=tmp_path / "out.xlsx"))
+    assert type(err.value).__name__ == "TradeLogError", err.value
+    assert 'sheet "Trades"' in str(err.value) and "no room" in str(err.value)

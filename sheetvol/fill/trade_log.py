@@ -51,6 +51,7 @@ from sheetvol.fill.review import (
 from sheetvol.fill.trade_settings import Instrument, TradeSettings, instrument_key
 from sheetvol.functions import cells
 from sheetvol.functions._lazy import pandas as pd
+from sheetvol.functions.grid import MAX_COL
 from sheetvol.workbook import CellError, NewColumn, NewSheet, Package, Styled
 
 __all__ = [
@@ -818,6 +819,11 @@ def plan_trade_review(
         else:
             while any(lo <= start <= hi for lo, hi in merged):
                 start += 1
+            if start > MAX_COL:
+                raise TradeLogError(
+                    f'trade log, sheet "{log.sheet}": no room for the review columns: cells or '
+                    f"merged blocks right of the log reach column {col_letter(MAX_COL)}, the "
+                    "sheet's last; clear or move them")
             targets[key] = start
             start += 1
     report.replaced = len(own) - len(free)

@@ -466,9 +466,11 @@ class Package:
         out = []
         for m in _MERGE.finditer(self._tails[info.part]):
             try:
-                out.append(parse_ref(m[1].decode("ascii", "replace")))
+                top, left, bottom, right = parse_ref(m[1].decode("ascii", "replace"))
             except ValueError:
                 continue  # not a block: it merges nothing a program would show
+            # a block reaching past the sheet's edge (a damaged reference) ends there
+            out.append((top, min(left, MAX_COL), min(bottom, MAX_ROW), min(right, MAX_COL)))
         return out
 
     def read_grid(self, sheet: str, max_rows: int | None = None) -> Grid:
