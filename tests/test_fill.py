@@ -7,6 +7,7 @@ import hashlib
 import math
 import re
 import zipfile
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -472,3 +473,12 @@ def test_notes_keep_numbers_and_list_each_caution_once(tmp_path):
         assert phrase in text, phrase
     assert len(cautions) == len(set(cautions)) == 5
     assert not set(cautions) & set(TRADE_CAUTIONS)  # not listed a second time verbatim
+
+
+def test_output_places_may_be_given_as_text(tmp_path):
+    # A script's FillOptions(output="...") failed with AttributeError deep in the fill.
+    src = Path(__file__).resolve().parents[1] / "workbooks" / "demo-desk.xlsx"
+    report = fill_file(src, FillOptions(output=str(tmp_path / "out.xlsx")))
+    assert report.output == tmp_path / "out.xlsx" and report.output.exists()
+    options = FillOptions(out_dir=str(tmp_path / "here"))
+    assert options.out_dir == tmp_path / "here"

@@ -352,6 +352,21 @@ def openpyxl_cells(book: Path) -> dict[str, object]:
     return out
 
 
+@pytest.mark.parametrize("serial", [b"-5", b"2958466", b"1e300"])
+def test_a_date_cell_holding_a_day_number_no_worksheet_has_is_refused(tmp_path, capsys, serial):
+    # Found while checking the date limits: a date cell holding -5 reached the summary's
+    # date display and failed unexpectedly there.
+    base = price_book(tmp_path / "base.xlsx")
+    bad = edit_part(base, tmp_path / "bad.xlsx", SHEET,
+                    lambda d: re.sub(rb'<c r="A5" s="1"><v>\d+</v>',
+                                     b'<c r="A5" s="1"><v>' + serial + b"</v>", d))
+    rc, _, err = run_cli(["fill", str(bad), "-q"], capsys)
+    assert rc == 1
+    (line,) = error_lines(err)
+    assert '"Prices"' in line and "A5" in line and "not a date a worksheet can hold" in line, line
+    assert "unexpected" not in line
+
+
 def _docprops(book: Path) -> Entry:
     with zipfile.ZipFile(book) as zf:
         return deflated("docProps/app.xml", zf.read("docProps/app.xml"))

@@ -157,6 +157,13 @@ class FillOptions:
     trades: TradeSettings | None = None
     review_trades: bool = True
 
+    def __post_init__(self) -> None:
+        # A script may name the places as text, as fill_file takes its input.
+        if self.output is not None:
+            self.output = Path(self.output)
+        if self.out_dir is not None:
+            self.out_dir = Path(self.out_dir)
+
 
 @dataclass
 class SheetReport:

@@ -209,6 +209,10 @@ def _yyyymmdd(values: np.ndarray) -> np.ndarray | None:
     return _stamps_to_days(stamps)
 
 
+def _number(x: float) -> str:
+    return f"{x:g}" if abs(x) >= 1e15 else f"{x:.15g}"
+
+
 def _before_first_date(value: object, dayfirst: bool) -> bool:
     """True for date text that reads as a date before a worksheet's first one."""
     try:
@@ -342,6 +346,14 @@ def build_price_table(
         as_ymd = _yyyymmdd(raw)
         shift = cells.DATE_1904_OFFSET if date1904 else 0.0
         dates = as_ymd if as_ymd is not None else raw + shift
+        with np.errstate(invalid="ignore"):
+            beyond = np.flatnonzero((dates < 0) | (dates >= cells.LAST_SERIAL + 1))
+        if beyond.size:  # a number no date cell can show (negative, or past 9999-12-31)
+            r = first + int(beyond[0])
+            raise PriceTableError(
+                f"{prefix}{cell('date', r)} holds {_number(raw[beyond[0]])}, which is not a "
+                f"date a worksheet can hold (day numbers 0 to {cells.LAST_SERIAL:,}); fix the "
+                "cell")
         content |= np.isfinite(dates)
         texts: dict[int, str] = {}
         for r, v in other.items():
