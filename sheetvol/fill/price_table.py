@@ -209,10 +209,6 @@ def _yyyymmdd(values: np.ndarray) -> np.ndarray | None:
     return _stamps_to_days(stamps)
 
 
-def _number(x: float) -> str:
-    return f"{x:g}" if abs(x) >= 1e15 else f"{x:.15g}"
-
-
 def _before_first_date(value: object, dayfirst: bool) -> bool:
     """True for date text that reads as a date before a worksheet's first one."""
     try:
@@ -351,7 +347,7 @@ def build_price_table(
         if beyond.size:  # a number no date cell can show (negative, or past 9999-12-31)
             r = first + int(beyond[0])
             raise PriceTableError(
-                f"{prefix}{cell('date', r)} holds {_number(raw[beyond[0]])}, which is not a "
+                f"{prefix}{cell('date', r)} holds {raw[beyond[0]]:.15g}, which is not a "
                 f"date a worksheet can hold (day numbers 0 to {cells.LAST_SERIAL:,}); fix the "
                 "cell")
         content |= np.isfinite(dates)
