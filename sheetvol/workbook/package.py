@@ -444,8 +444,9 @@ class Package:
         """The sheet's merged cells as blocks (top, left, bottom, right), 1-based.
 
         A spreadsheet shows only a merged block's top-left cell, so a column under
-        one is not free to write into. Read from the part after the cells (kept by
-        :meth:`read_columns`; streamed here when that has not run).
+        one is not free to write into. Read from the part after the cells, kept by
+        any whole pass over the sheet (:meth:`read_columns`, :meth:`read_grid` of the
+        whole sheet, the formula scan); streamed here when none has run.
 
         Parameters
         ----------
@@ -501,6 +502,8 @@ class Package:
                 rows.setdefault(r, {})[c] = value
                 max_row = max(max_row, r)
                 max_col = max(max_col, c)
+        if max_rows is None:  # the whole part was read: its tail is complete
+            self._tails[info.part] = stream.tail
         return Grid(rows=rows, max_row=max_row, max_col=max_col)
 
     def _value(self, reader: CellReader, info: SheetInfo, r: int, c: int, attrs: bytes,
@@ -769,6 +772,7 @@ class Package:
                     for chunk in stream.body():
                         scan.feed(chunk)
                     self._formulas[info.part] = scan.found
+                    self._tails[info.part] = stream.tail
                 out.extend(self._formulas[info.part])
         return out
 
